@@ -1,0 +1,241 @@
+"""Engineering notation for part values: reading "16.2k", "4k7", "10nF"; writing them back.
+
+Conventions (decided here, used everywhere in bandwright):
+
+- **Prefixes** ``f p n u µ m k M G T`` are the SI ones, case-sensitive except that ``K``
+  also means kilo and ``P``, ``N``, ``U``, ``g``, ``t`` are read as their usual
+  counterparts (pico, nano, micro, giga, tera). ``meg`` in any case (``1meg``, ``1MEG``,
+  ``1Meg``) means mega, as SPICE writes it.
+- **"M" is mega, "m" is milli**, as on part markings and in the RKM code. SPICE reads
+  both ``m`` and ``M`` as milli (it ignores case), so a SPICE deck must never carry a
+  bare "M": write decks with :func:`format_spice`, which prints ``Meg``.
+- **RKM code** (letter as decimal point): ``4k7`` = 4.7 k, ``4R7`` = 4.7, ``R47`` = 0.47,
+  ``4n7`` = 4.7 n, ``2M2`` = 2.2 M. ``R`` also ends a plain value (``220R`` = 220).
+- **Units** are tolerated and dropped: ``Ω`` (either code point), ``ohm``/``ohms`` (any
+  case) and ``F``. A lowercase ``f`` right after a number is femto (``10f`` = 1e-14);
+  after a prefix it is the farad unit (``10uf`` = 10 µ).
+- Zero parses (it is validated elsewhere); negative values, NaN and infinities do not.
+- Printing uses the ASCII ``u`` for micro so that the text survives TOML, shells and
+  SPICE.
+
+References
+----------
+.. [1] IEC 60062:2016, *Marking codes for resistors and capacitors*, §4 (the RKM code,
+   letters in place of the decimal point) [mem].
+.. [2] ngspice-39 User's Manual, §2.3 (scale factors: ``M`` and ``m`` are milli, ``Meg``
+   is mega; letters after a number are ignored) [mem; checked against ngspice-39 in the
+   tests].
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from decimal import Decimal, InvalidOperation
+from numbers import Real
+
+__all__ = ["parse_value", "format_value", "format_spice"]
+
+_PREFIX_EXPONENT: dict[str, int] = {
+    "f": -15,
+    "p": -12, "P": -12,
+    "n": -9, "N": -9,
+    "u": -6, "U": -6, "µ": -6, "μ": -6,
+    "m": -3,
+    "R": 0, "r": 0,
+    "k": 3, "K": 3,
+    "M": 6,
+    "G": 9, "g": 9,
+    "T": 12, "t": 12,
+}
+_PREFIX_CHARS = "".join(_PREFIX_EXPONENT)
+_UNIT = r"(?:(?i:ohms?)|\u03a9|\u2126|[Ff])"
+_NUMBER = r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+
+# "16.2k", "1e3", "1meg", "220R", "10 nF": a number, then a prefix, then a unit.
+_DECIMAL_RE = re.compile(
+    rf"^\+?(?P<number>{_NUMBER})\s*(?P<prefix>(?i:meg)|[{_PREFIX_CHARS}])?\s*(?P<unit>{_UNIT})?$")
+# "4k7", "R47", "4n7F": the prefix letter stands where the decimal point would be (RKM).
+_RKM_RE = re.compile(
+    rf"^\+?(?P<whole>\d*)(?P<prefix>[{_PREFIX_CHARS}])(?P<fraction>\d+)\s*(?P<unit>{_UNIT})?$")
+_LEADING_NUMBER_RE = re.compile(rf"^\+?{_NUMBER}")
+
+_PRINT_PREFIXES: dict[int, str] = {-15: "f", -12: "p", -9: "n", -6: "u", -3: "m", 0: "",
+                                   3: "k", 6: "M", 9: "G", 12: "T"}
+_SPICE_PREFIXES: dict[int, str] = {**_PRINT_PREFIXES, 6: "Meg"}
+
+
+def _exponent_of(prefix: str | None) -> int:
+    if not prefix:
+        return 0
+    if prefix.lower() == "meg":
+        return 6
+    return _PREFIX_EXPONENT[prefix]
+
+
+def _finite_non_negative(value: float, shown: object) -> float:
+    if math.isnan(value) or math.isinf(value):
+        raise ValueError(f"cannot read {shown!r} as a part value: it is not a finite number")
+    if value < 0:
+        raise ValueError(f"cannot read {shown!r} as a part value: it is negative")
+    return value
+
+
+def parse_value(text: str | float) -> float:
+    """Read a part value written in engineering notation.
+
+    Parameters
+    ----------
+    text : str or float
+        For example "16.2k", "10n", "4k7", "4.7nF", "1M", "2.2µ", "1meg", "220R", "4R7",
+        "1e3", "0.5", "10 kΩ". A real number is accepted as it is.
+
+    Returns
+    -------
+    float
+        The value in base units (ohms, farads), correctly rounded from the decimal text.
+
+    Raises
+    ------
+    ValueError
+        If the text is empty, negative, not a number or carries an unknown suffix; the
+        message says which.
+
+    Notes
+    -----
+    "M" is mega and "m" is milli (part-marking convention); "meg" in any case is mega.
+    The RKM code of IEC 60062 [1]_ is read too ("4k7" = 4700).
+
+    References
+    ----------
+    .. [1] IEC 60062:2016, §4 [mem].
+
+    Examples
+    --------
+    >>> parse_value("16.2k"), parse_value("4k7"), parse_value("1MEG"), parse_value("4.7nF")
+    (16200.0, 4700.0, 1000000.0, 4.7e-09)
+    """
+    if isinstance(text, bool):
+        raise ValueError(f"cannot read {text!r} as a part value: it is a boolean")
+    if isinstance(text, Real):
+        return _finite_non_negative(float(text), text)
+    if not isinstance(text, str):
+        raise ValueError(f"cannot read {text!r} as a part value: expected text or a number")
+    s = text.strip()
+    if not s:
+        raise ValueError("cannot read an empty string as a part value")
+    if s[0] in "-\u2212":
+        raise ValueError(f"cannot read {text!r} as a part value: it is negative")
+
+    match = _DECIMAL_RE.match(s)
+    if match:
+        digits = match["number"]
+    else:
+        match = _RKM_RE.match(s)
+        if match is None:
+            raise ValueError(_junk_reason(text, s))
+        digits = f"{match['whole'] or '0'}.{match['fraction']}"
+    try:
+        exact = Decimal(digits).scaleb(_exponent_of(match["prefix"]))
+    except InvalidOperation:  # pragma: no cover - the regexes only pass decimal digits
+        raise ValueError(f"cannot read {text!r} as a part value") from None
+    # float(Decimal) is correctly rounded, so "16.2k" gives exactly the double of 16200.
+    return _finite_non_negative(float(exact), text)
+
+
+def _junk_reason(text: str, s: str) -> str:
+    head = _LEADING_NUMBER_RE.match(s)
+    if head is None:
+        return f"cannot read {text!r} as a part value: it does not start with a number"
+    return (f"cannot read {text!r} as a part value: unknown suffix {s[head.end():]!r} "
+            "(expected a prefix f p n u µ m k M meg G T or R, or RKM like 4k7, "
+            "then optionally Ω, ohm or F)")
+
+
+def _engineering(value: float, significant: int, prefixes: dict[int, str]) -> str:
+    if not math.isfinite(value):
+        raise ValueError(f"cannot print {value!r} as a part value: it is not finite")
+    if int(significant) != significant or significant < 1:
+        raise ValueError(f"significant must be a whole number >= 1, got {significant!r}")
+    if value == 0:
+        return "0"
+    sign = "-" if value < 0 else ""
+    # Round through the decimal string first, so that 999.96 becomes "1k", not "1000".
+    mantissa, exp_text = f"{abs(value):.{int(significant) - 1}e}".split("e")
+    exponent = int(exp_text)
+    digits = mantissa.replace(".", "")
+    exp3 = 3 * (exponent // 3)
+    if exp3 not in prefixes:
+        short = mantissa.rstrip("0").rstrip(".")
+        return f"{sign}{short}e{exponent}"
+    shift = exponent - exp3 + 1
+    digits = digits.ljust(shift, "0")
+    whole, fraction = digits[:shift], digits[shift:].rstrip("0")
+    return f"{sign}{whole}{'.' + fraction if fraction else ''}{prefixes[exp3]}"
+
+
+def format_value(value: float, unit: str = "", *, significant: int = 3) -> str:
+    """Print a part value in engineering notation, for people and for chain files.
+
+    Parameters
+    ----------
+    value : float
+        Value in base units (ohms, farads).
+    unit : str, optional
+        Appended as given ("Ω", "F"); empty by default.
+    significant : int, optional
+        Significant digits kept (3 by default, enough for every E192 value).
+
+    Returns
+    -------
+    str
+        The value with trailing zeros removed and an SI prefix (``u`` for micro, ``M`` for
+        mega): "16.2k", "4.7n", "1M", "220". Values outside femto … tera print as
+        "1.5e-18". :func:`parse_value` reads every result back.
+
+    Raises
+    ------
+    ValueError
+        If `value` is not finite or `significant` < 1.
+
+    Examples
+    --------
+    >>> format_value(16200.0), format_value(4.7e-9, "F"), format_value(1e6), format_value(220)
+    ('16.2k', '4.7nF', '1M', '220')
+    """
+    return _engineering(float(value), significant, _PRINT_PREFIXES) + unit
+
+
+def format_spice(value: float, *, significant: int = 6) -> str:
+    """Print a value for a SPICE deck.
+
+    Parameters
+    ----------
+    value : float
+        Value in base units.
+    significant : int, optional
+        Significant digits kept (6 by default, so that the deck carries the analysed
+        values, not a 3-digit label of them).
+
+    Returns
+    -------
+    str
+        The value with SPICE scale factors ``f p n u m k Meg G T``: "16.2k", "1Meg",
+        "4.7n". No unit is appended: SPICE would ignore it anyway.
+
+    Raises
+    ------
+    ValueError
+        If `value` is not finite or `significant` < 1.
+
+    Notes
+    -----
+    SPICE reads ``M`` as milli, so mega must be written ``Meg`` (ngspice-39 User's
+    Manual, §2.3 [mem; checked with ngspice in the tests]).
+
+    Examples
+    --------
+    >>> format_spice(1e6), format_spice(79577.4715), format_spice(1e-3)
+    ('1Meg', '79.5775k', '1m')
+    """
+    return _engineering(float(value), significant, _SPICE_PREFIXES)
