@@ -1,0 +1,11 @@
+"""The requirement: dataclasses, the TOML loader and its validation."""
+
+from bandwright.spec.loader import load_spec, spec_from_dict
+from bandwright.spec.requirement import (
+    AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
+    Requirement, StopbandPoint, Supply, Tone,
+)
+
+__all__ = ["load_spec", "spec_from_dict", "Requirement", "Passband", "StopbandPoint",
+           "DesignChoice", "InputSignal", "Tone", "Supply", "AmplifierChoice", "Environment",
+           "NoiseBudget"]

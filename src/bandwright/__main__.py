@@ -1,0 +1,5 @@
+import sys
+
+from bandwright.cli import main
+
+sys.exit(main())

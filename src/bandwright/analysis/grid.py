@@ -1,0 +1,45 @@
+"""Frequency grids of the reports (design.md, JSON `response` and `noise`)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from bandwright.spec.requirement import Requirement
+
+__all__ = ["response_grid", "passband_grid", "noise_band", "noise_grid"]
+
+POINTS_PER_DECADE = 120
+PASSBAND_POINTS = 101
+
+
+def passband_grid(requirement: Requirement, points: int = PASSBAND_POINTS) -> np.ndarray:
+    """Log-spaced points across the passband, both edges included exactly."""
+    pb = requirement.passband
+    return np.geomspace(pb.low_hz, pb.high_hz, points)
+
+
+def response_grid(requirement: Requirement) -> np.ndarray:
+    """f0/10 (or half the lowest stopband point) to 10 f0 (or twice the highest), at least
+    100 points a decade and at least 50 inside the passband (design.md)."""
+    f0 = requirement.passband.center_hz
+    stops = [p.freq_hz for p in requirement.stopband]
+    lo = min([f0 / 10] + [f / 2 for f in stops])
+    hi = max([10 * f0] + [2 * f for f in stops])
+    n = int(math.ceil(POINTS_PER_DECADE * math.log10(hi / lo))) + 1
+    grid = np.concatenate([np.geomspace(lo, hi, n), passband_grid(requirement)])
+    return np.unique(grid)
+
+
+def noise_band(requirement: Requirement) -> tuple[float, float]:
+    """`noise.band_hz`, or the passband."""
+    if requirement.noise.band_hz is not None:
+        return requirement.noise.band_hz
+    return (requirement.passband.low_hz, requirement.passband.high_hz)
+
+
+def noise_grid(requirement: Requirement, points: int = 401) -> np.ndarray:
+    """Log-spaced grid over the noise band, edges included (at least 50 points inside)."""
+    lo, hi = noise_band(requirement)
+    return np.geomspace(lo, hi, max(points, 51))

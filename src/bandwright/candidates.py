@@ -1,0 +1,156 @@
+"""Candidate section sets for a requirement: family × order × path (bandpass or wideband)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+
+from bandwright.prototype import bandpass_omega, minimum_order, order_for_point, prototype
+from bandwright.prototype.poles import Prototype
+from bandwright.sections import bandpass_sections, wideband_sections
+from bandwright.sections.section import Section
+from bandwright.sections.split import cascade_response
+from bandwright.spec.requirement import Requirement
+from bandwright.types import FAMILIES
+
+__all__ = ["Candidate", "make_candidates", "WIDEBAND_RATIO", "MAX_ORDER"]
+
+# Winder 2002, ch. 6: edges more than an octave apart → highpass + lowpass cascade.
+WIDEBAND_RATIO = 2.0
+MAX_ORDER = 20
+
+Path = Literal["bandpass", "wideband"]
+
+
+@dataclass(frozen=True, slots=True)
+class Candidate:
+    """One way to meet the requirement, before circuits.
+
+    Attributes
+    ----------
+    path : {"bandpass", "wideband"}
+    family : str
+    order : int
+        Lowpass-prototype order (bandpass path: the bandpass has 2·order poles);
+        wideband: highpass order + lowpass order.
+    ripple_db : float
+        Chebyshev ripple, or the Butterworth edge loss, of the prototype(s).
+    sections : tuple of Section
+        In generated order (by f0).
+    note : str
+        How the order was decided.
+    """
+
+    path: Path
+    family: str
+    order: int
+    ripple_db: float
+    sections: tuple[Section, ...]
+    note: str
+
+    @property
+    def highest_q(self) -> float:
+        return max((s.q for s in self.sections), default=0.0)
+
+
+def make_candidates(req: Requirement, *, family: str | None = None,
+                    order: int | None = None) -> tuple[Candidate, ...]:
+    """Every candidate the requirement allows, ranked: fewer sections, then lower highest Q.
+
+    `family` and `order` override the file's `[design]` choices.
+    """
+    family = family or req.design.family
+    order = order or req.design.order
+    fams = (family,) if family else FAMILIES
+    out = [_bandpass_candidate(req, fam, order) for fam in fams]
+    if req.passband.high_hz / req.passband.low_hz > WIDEBAND_RATIO:
+        out += [_wideband_candidate(req, fam, order) for fam in fams]
+    return tuple(sorted(out, key=lambda c: (len(c.sections), c.highest_q,
+                                            c.path != "bandpass", c.family)))
+
+
+def _bandpass_candidate(req: Requirement, family: str, order: int | None) -> Candidate:
+    pb = req.passband
+    if order is None:
+        omegas = bandpass_omega([p.freq_hz for p in req.stopband], pb.center_hz, pb.bandwidth_hz)
+        order = minimum_order(family, omegas, pb.max_loss_db,
+                              [p.min_loss_db for p in req.stopband])
+        decided = _decider(req, family, omegas, order)
+        if order > MAX_ORDER:
+            decided += f"; capped at the largest supported order, {MAX_ORDER}"
+            order = MAX_ORDER
+    else:
+        decided = "order given"
+    proto = prototype(family, order, pb.max_loss_db)
+    secs = bandpass_sections(proto, center_hz=pb.center_hz, bandwidth_hz=pb.bandwidth_hz,
+                             gain=pb.gain)
+    return Candidate(path="bandpass", family=family, order=order, ripple_db=pb.max_loss_db,
+                     sections=secs, note=decided)
+
+
+def _decider(req: Requirement, family: str, omegas, order: int) -> str:
+    """Name the stopband point that sets the order."""
+    pb = req.passband
+    best = max(range(len(req.stopband)),
+               key=lambda i: order_for_point(family, float(omegas[i]), pb.max_loss_db,
+                                             req.stopband[i].min_loss_db))
+    p = req.stopband[best]
+    return (f"order {order} set by {p.min_loss_db:g} dB at {p.freq_hz:g} Hz "
+            f"(Ω = {float(omegas[best]):.4g})")
+
+
+def _side_order(family: str, omegas: list[float], losses: list[float], loss_db: float,
+                fallback: int | None) -> int:
+    if fallback is not None:
+        n = fallback
+    elif omegas:
+        n = minimum_order(family, omegas, loss_db, losses)
+    else:
+        n = 2
+    return min(MAX_ORDER, n + (n % 2))  # even: every section a biquad
+
+
+def _wideband_candidate(req: Requirement, family: str, order: int | None) -> Candidate:
+    """Highpass for the lower edge, lowpass for the upper; each side's edge loss `a` is found
+    so the two skirts together lose at most max_loss_db anywhere in the passband."""
+    pb = req.passband
+    lo_pts = [p for p in req.stopband if p.freq_hz < pb.low_hz]
+    hi_pts = [p for p in req.stopband if p.freq_hz > pb.high_hz]
+    grid = np.geomspace(pb.low_hz, pb.high_hz, 801)
+
+    def build(a_db: float, n_hp: int, n_lp: int) -> tuple[Section, ...]:
+        return wideband_sections(prototype(family, n_hp, a_db), prototype(family, n_lp, a_db),
+                                 low_hz=pb.low_hz, high_hz=pb.high_hz, gain=pb.gain)
+
+    def worst_loss(secs) -> float:
+        g = 20 * np.log10(np.abs(cascade_response(secs, grid)))
+        return float(pb.gain_db - g.min())
+
+    a_db = pb.max_loss_db
+    for _ in range(4):
+        n_hp = _side_order(family, [pb.low_hz / p.freq_hz for p in lo_pts],
+                           [p.min_loss_db for p in lo_pts], a_db, order)
+        n_lp = _side_order(family, [p.freq_hz / pb.high_hz for p in hi_pts],
+                           [p.min_loss_db for p in hi_pts], a_db, order)
+        lo, hi = 0.02 * pb.max_loss_db, pb.max_loss_db
+        if worst_loss(build(hi, n_hp, n_lp)) > pb.max_loss_db:
+            for _ in range(40):  # bisection on the edge loss of each side
+                mid = math.sqrt(lo * hi)
+                if worst_loss(build(mid, n_hp, n_lp)) > pb.max_loss_db:
+                    hi = mid
+                else:
+                    lo = mid
+            new_a = lo
+        else:
+            new_a = hi
+        if math.isclose(new_a, a_db, rel_tol=1e-6):
+            break
+        a_db = new_a
+    secs = build(a_db, n_hp, n_lp)
+    note = (f"highpass order {n_hp} + lowpass order {n_lp}, each side's edge loss "
+            f"{a_db:.3g} dB so the skirts together stay within {pb.max_loss_db:g} dB")
+    return Candidate(path="wideband", family=family, order=n_hp + n_lp, ripple_db=a_db,
+                     sections=secs, note=note)

@@ -1,0 +1,90 @@
+"""Command line: `bandwright plan` and `bandwright audit`.
+
+Exit 0: every check passes (warnings allowed); 1: it ran and some check failed;
+2: bad input or usage (one line on stderr, nothing written).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+from pathlib import Path
+
+from rich.console import Console
+
+from bandwright import __version__
+from bandwright.checks.base import worst_status
+from bandwright.errors import SpecError
+from bandwright.report.outdir import OutDirRefused, check_out_dir, write_out_dir
+from bandwright.types import FAMILIES
+
+__all__ = ["main", "build_parser"]
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # usage errors: one line, exit 2
+        self.exit(2, f"bandwright: {message}\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="bandwright",
+                description="Plan and audit multi-stage active bandpass filter chains.")
+    p.add_argument("--version", action="version", version=f"bandwright {__version__}")
+    sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    pl = sub.add_parser("plan", help="design a chain from a requirement file")
+    pl.add_argument("spec", metavar="SPEC.toml")
+    pl.add_argument("--family", choices=FAMILIES, help="override design.family")
+    pl.add_argument("--order", type=int, help="override design.order (1 to 20)")
+    _common(pl)
+    return p
+
+
+def _common(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of the report")
+    p.add_argument("--out", metavar="DIR", type=Path, help="write plan.json and the other files here")
+    p.add_argument("--force", action="store_true", help="replace a non-empty --out folder")
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    err = Console(stderr=True, highlight=False, soft_wrap=True)
+    try:
+        if args.order is not None and not 1 <= args.order <= 20:
+            raise SpecError("--order", "", f"order {args.order} outside 1 to 20")
+        if args.out is not None:
+            check_out_dir(args.out, force=args.force)
+        return _run_plan(args)
+    except SpecError as exc:
+        err.print(f"bandwright: {exc}", markup=False)
+        return 2
+    except OutDirRefused as exc:
+        err.print(f"bandwright: {exc}", markup=False)
+        return 2
+
+
+def _run_plan(args: argparse.Namespace) -> int:
+    # Imported here so that `--help` and usage errors stay fast.
+    from bandwright.planner import plan
+    from bandwright.report.json_out import dumps
+    from bandwright.report.terminal import render_plan
+    from bandwright.spec import load_spec
+
+    req = load_spec(args.spec)
+    result = plan(req, family=args.family, order=args.order)
+    text = dumps(result)
+    if args.out is not None:
+        write_out_dir(args.out, {"plan.json": text.encode()}, force=args.force)
+    if args.json:
+        sys.stdout.write(text + "\n")
+    else:
+        console = Console(width=max(100, Console().width), no_color="NO_COLOR" in os.environ,
+                          highlight=False)
+        render_plan(result, console)
+        if args.out is not None:
+            console.print(f"Wrote {args.out}/")
+    return 1 if worst_status(result.checks) == "fail" else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

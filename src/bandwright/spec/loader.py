@@ -1,0 +1,156 @@
+"""requirement.toml → Requirement, validated as a whole before anything runs."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any
+
+from bandwright.errors import SpecError
+from bandwright.spec.reader import TableReader, read_toml
+from bandwright.spec.requirement import (
+    AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
+    Requirement, StopbandPoint, Supply, Tone,
+)
+from bandwright.types import FAMILIES
+
+__all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS",
+           "read_amplifier", "read_common_tables"]
+
+SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
+AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
+                  "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
+TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
+              "noise")
+HALF_POWER_DB = 10 * math.log10(2)
+
+
+def load_spec(path: str | Path) -> Requirement:
+    """Read and validate a requirement file.
+
+    Raises
+    ------
+    SpecError
+        With file, dotted key, value and what was expected, for the first problem found.
+    """
+    return spec_from_dict(read_toml(path), path=str(path))
+
+
+def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requirement:
+    """Validate a parsed requirement document (see design.md for the keys)."""
+    top = TableReader(path, "", doc, TOP_TABLES)
+    if not top.has("passband"):
+        raise SpecError(path, "passband", "missing table [passband]")
+    passband = _read_passband(TableReader(path, "passband", doc["passband"],
+                                          ("center_hz", "bandwidth_hz", "low_hz", "high_hz",
+                                           "max_loss_db", "gain_db", "gain_tolerance_db")))
+    stopband = tuple(_read_stop(path, i, t, passband) for i, t in enumerate(top.tables("stopband")))
+    design = _read_design(TableReader(path, "design", doc.get("design", {}),
+                                      ("family", "order", "resistor_series", "capacitor_series")))
+    if not stopband and design.order is None:
+        raise SpecError(path, "stopband", "no [[stopband]] point and no design.order: give at "
+                        "least one stopband point, or the order")
+    common = read_common_tables(path, doc)
+    noise = common["noise"]
+    return Requirement(path=path, passband=passband, stopband=stopband, design=design,
+                       input=common["input"], supply=common["supply"],
+                       amplifier=common["amplifier"], environment=common["environment"],
+                       noise=noise)
+
+
+def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
+    """The tables a requirement and an audit file share: input, supply, amplifier,
+    environment, noise."""
+    inp = TableReader(path, "input", doc.get("input", {}), ("max_vpk", "source_ohms", "tone"))
+    tones = []
+    for i, t in enumerate(inp.tables("tone")):
+        tr = TableReader(path, f"input.tone[{i}]", t, ("freq_hz", "vpk"))
+        tones.append(Tone(freq_hz=tr.number("freq_hz", required=True, positive=True),
+                          vpk=tr.number("vpk", required=True, nonnegative=True)))
+    input_signal = InputSignal(max_vpk=inp.number("max_vpk", 1.0, nonnegative=True),
+                               source_ohms=inp.number("source_ohms", 0.0, nonnegative=True),
+                               tones=tuple(tones))
+    sup = TableReader(path, "supply", doc.get("supply", {}), ("rails_v",))
+    rails = sup.pair("rails_v") or (-5.0, 5.0)
+    if not rails[0] < rails[1]:
+        raise sup.error("rails_v", "rails reversed: expected [negative, positive]")
+    if not rails[0] < 0 < rails[1]:
+        raise sup.error("rails_v", "expected split rails around the signal reference, "
+                        "[negative, positive] (for a single supply give them relative to the "
+                        "mid-supply reference, e.g. [-2.5, 2.5])")
+    env = TableReader(path, "environment", doc.get("environment", {}), ("temperature_c",))
+    noi = TableReader(path, "noise", doc.get("noise", {}), ("band_hz", "max_output_vrms"))
+    band = noi.pair("band_hz", positive=True)
+    if band is not None and not band[0] < band[1]:
+        raise noi.error("band_hz", "expected [low, high] with low < high")
+    return {
+        "input": input_signal,
+        "supply": Supply(rails_v=rails),
+        "amplifier": read_amplifier(path, "amplifier", doc.get("amplifier", {})),
+        "environment": Environment(
+            temperature_c=env.number("temperature_c", 25.0, low=-273.15, high=300.0)),
+        "noise": NoiseBudget(band_hz=band,
+                             max_output_vrms=noi.number("max_output_vrms", None, positive=True)),
+    }
+
+
+def read_amplifier(path: str, prefix: str, table: Any) -> AmplifierChoice:
+    """`[amplifier]` (or a stage's own): archetype name plus explicit overrides."""
+    amp = TableReader(path, prefix, table, ("archetype",) + AMPLIFIER_KEYS)
+    overrides = []
+    for key in AMPLIFIER_KEYS:
+        if amp.has(key):
+            value = amp.number(key, nonnegative=True)
+            if key in ("gbw_hz", "slew_v_per_us", "dc_gain_db") and not value > 0:
+                raise amp.error(key, "must be > 0")
+            overrides.append((key, value))
+    return AmplifierChoice(archetype=amp.string("archetype"), overrides=tuple(overrides))
+
+
+def _read_passband(pb: TableReader) -> Passband:
+    by_centre = pb.has("center_hz") or pb.has("bandwidth_hz")
+    by_edges = pb.has("low_hz") or pb.has("high_hz")
+    if by_centre and by_edges:
+        raise SpecError(pb.path, "passband", "give either center_hz + bandwidth_hz or "
+                        "low_hz + high_hz, not both")
+    if by_edges:
+        low = pb.number("low_hz", required=True, positive=True)
+        high = pb.number("high_hz", required=True, positive=True)
+        if not low < high:
+            raise pb.error("high_hz", f"must be above passband.low_hz = {low:g}")
+    elif by_centre:
+        f0 = pb.number("center_hz", required=True, positive=True)
+        bw = pb.number("bandwidth_hz", required=True, positive=True)
+        # Geometric centre: low * high = f0^2 and high - low = bw.
+        low = (math.sqrt(bw * bw + 4 * f0 * f0) - bw) / 2
+        high = low + bw
+    else:
+        raise SpecError(pb.path, "passband", "missing band: give center_hz + bandwidth_hz, or "
+                        "low_hz + high_hz")
+    max_loss = pb.number("max_loss_db", HALF_POWER_DB, positive=True, high=40.0)
+    gain_db = pb.number("gain_db", 0.0, low=-60.0, high=120.0)
+    gain_tol = pb.number("gain_tolerance_db", 0.5, positive=True, high=20.0)
+    return Passband(low_hz=low, high_hz=high, max_loss_db=max_loss, gain_db=gain_db,
+                    gain_tolerance_db=gain_tol)
+
+
+def _read_stop(path: str, i: int, table: Any, passband: Passband) -> StopbandPoint:
+    st = TableReader(path, f"stopband[{i}]", table, ("freq_hz", "min_loss_db"))
+    f = st.number("freq_hz", required=True, positive=True)
+    a = st.number("min_loss_db", required=True, positive=True, high=300.0)
+    if passband.low_hz <= f <= passband.high_hz:
+        raise st.error("freq_hz", f"lies inside the passband [{passband.low_hz:g}, "
+                       f"{passband.high_hz:g}] Hz")
+    if not a > passband.max_loss_db:
+        raise st.error("min_loss_db", f"must exceed passband.max_loss_db = "
+                       f"{passband.max_loss_db:g} dB")
+    return StopbandPoint(freq_hz=f, min_loss_db=a)
+
+
+def _read_design(d: TableReader) -> DesignChoice:
+    return DesignChoice(
+        family=d.string("family", None, choices=FAMILIES),
+        order=d.integer("order", None, low=1, high=20),
+        resistor_series=d.string("resistor_series", "E96", choices=SERIES_NAMES),
+        capacitor_series=d.string("capacitor_series", "E12", choices=SERIES_NAMES),
+    )

@@ -1,0 +1,175 @@
+"""Typed, validated reads from a parsed TOML document; every error names file and key.
+
+Shared by the requirement loader and the audit loader.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+import tomllib
+from pathlib import Path
+from typing import Any, Iterable
+
+from bandwright.errors import SpecError
+
+__all__ = ["read_toml", "TableReader", "number_hint"]
+
+_LINE = re.compile(r"\(at line (\d+), column \d+\)")
+_PREFIX = {"p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "m": 1e-3, "": 1.0, "k": 1e3, "K": 1e3,
+           "M": 1e6, "G": 1e9}
+_WITH_UNIT = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([pnuµmkKMG]?)\s*"
+                        r"(hz|v|vpk|vrms|ohms?|Ω|db|a|s|%)?\s*$", re.IGNORECASE)
+
+
+def read_toml(path: str | Path) -> dict[str, Any]:
+    """Parse a TOML file; syntax errors become a SpecError with the line."""
+    p = Path(path)
+    try:
+        raw = p.read_bytes()
+    except OSError as exc:
+        raise SpecError(str(path), "", f"cannot read file: {exc.strerror or exc}") from None
+    try:
+        return tomllib.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError:
+        raise SpecError(str(path), "", "not a UTF-8 text file") from None
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        m = _LINE.search(msg)
+        line = int(m.group(1)) if m else None
+        raise SpecError(str(path), "", "TOML syntax error: " + _LINE.sub("", msg).strip(),
+                        line=line) from None
+
+
+def number_hint(text: str) -> str:
+    """' (did you mean 10000?)' when `text` reads as a number with a prefix or unit."""
+    m = _WITH_UNIT.match(text)
+    if not m:
+        return ""
+    prefix = m.group(2)
+    # "m" followed by nothing is ambiguous only for us, not for the user: treat as milli.
+    value = float(m.group(1)) * _PREFIX.get(prefix, 1.0)
+    return f" (did you mean {value:g}?)"
+
+
+class TableReader:
+    """Reads one TOML table at dotted `prefix`, tracking which keys were used."""
+
+    def __init__(self, path: str, prefix: str, table: Any, allowed: Iterable[str]) -> None:
+        self.path = path
+        self.prefix = prefix
+        if not isinstance(table, dict):
+            raise SpecError(path, prefix, f"must be a table, got {_kind(table)}", value=table)
+        self.table = table
+        self.allowed = tuple(allowed)
+        for key in table:
+            if key not in self.allowed:
+                close = difflib.get_close_matches(key, self.allowed, n=1, cutoff=0.5)
+                hint = f"; did you mean '{close[0]}'?" if close else \
+                    f"; allowed: {', '.join(self.allowed)}"
+                raise SpecError(path, self.key(key), "unknown key" + hint)
+
+    def key(self, name: str) -> str:
+        return f"{self.prefix}.{name}" if self.prefix else name
+
+    def has(self, name: str) -> bool:
+        return name in self.table
+
+    def error(self, name: str, message: str) -> SpecError:
+        return SpecError(self.path, self.key(name), message, value=self.table.get(name))
+
+    def number(self, name: str, default: float | None = None, *, required: bool = False,
+               positive: bool = False, nonnegative: bool = False,
+               low: float | None = None, high: float | None = None) -> float | None:
+        """A finite float (ints accepted), with optional bounds."""
+        if name not in self.table:
+            if required:
+                raise SpecError(self.path, self.key(name), "missing (a number is required)")
+            return default
+        v = self.table[name]
+        return self._check_number(self.key(name), v, positive=positive, nonnegative=nonnegative,
+                                  low=low, high=high)
+
+    def _check_number(self, key: str, v: Any, *, positive: bool = False,
+                      nonnegative: bool = False, low: float | None = None,
+                      high: float | None = None) -> float:
+        if isinstance(v, bool) or not isinstance(v, (int, float)):
+            hint = number_hint(v) if isinstance(v, str) else ""
+            raise SpecError(self.path, key, f"expected a number, got {_kind(v)}{hint}", value=v)
+        x = float(v)
+        if not math.isfinite(x):
+            raise SpecError(self.path, key, "must be a finite number", value=v)
+        if positive and not x > 0:
+            raise SpecError(self.path, key, "must be > 0", value=v)
+        if nonnegative and x < 0:
+            raise SpecError(self.path, key, "must be >= 0", value=v)
+        if low is not None and x < low:
+            raise SpecError(self.path, key, f"must be >= {low:g}", value=v)
+        if high is not None and x > high:
+            raise SpecError(self.path, key, f"must be <= {high:g}", value=v)
+        return x
+
+    def integer(self, name: str, default: int | None = None, *, low: int, high: int) -> int | None:
+        if name not in self.table:
+            return default
+        v = self.table[name]
+        if isinstance(v, bool) or not isinstance(v, int):
+            if isinstance(v, float) and v.is_integer():
+                v = int(v)
+            else:
+                raise self.error(name, f"expected a whole number, got {_kind(v)}")
+        if not low <= v <= high:
+            raise self.error(name, f"must be from {low} to {high}")
+        return int(v)
+
+    def string(self, name: str, default: str | None = None, *,
+               choices: Iterable[str] | None = None) -> str | None:
+        if name not in self.table:
+            return default
+        v = self.table[name]
+        if not isinstance(v, str):
+            raise self.error(name, f"expected a string, got {_kind(v)}")
+        if choices is not None:
+            options = tuple(choices)
+            folded = {c.lower(): c for c in options}
+            if v.lower() not in folded:
+                close = difflib.get_close_matches(v.lower(), list(folded), n=1, cutoff=0.5)
+                hint = f"; did you mean '{folded[close[0]]}'?" if close else ""
+                raise self.error(name, f"must be one of {', '.join(options)}{hint}")
+            v = folded[v.lower()]
+        return v
+
+    def pair(self, name: str, *, positive: bool = False) -> tuple[float, float] | None:
+        """A two-number array."""
+        if name not in self.table:
+            return None
+        v = self.table[name]
+        if not isinstance(v, list) or len(v) != 2:
+            raise self.error(name, "expected an array of two numbers")
+        return (self._check_number(self.key(name) + "[0]", v[0], positive=positive),
+                self._check_number(self.key(name) + "[1]", v[1], positive=positive))
+
+    def tables(self, name: str) -> list[Any]:
+        """An array of tables (``[[name]]``); missing means empty."""
+        if name not in self.table:
+            return []
+        v = self.table[name]
+        if not isinstance(v, list):
+            raise self.error(name, f"expected an array of tables ([[{self.key(name)}]]), "
+                             f"got {_kind(v)}")
+        return v
+
+
+def _kind(v: Any) -> str:
+    if isinstance(v, bool):
+        return "a boolean"
+    if isinstance(v, str):
+        return f"the string {v!r}"
+    if isinstance(v, dict):
+        return "a table"
+    if isinstance(v, list):
+        return "an array"
+    if isinstance(v, (int, float)):
+        return "a number"
+    return type(v).__name__

@@ -1,0 +1,108 @@
+"""The requirement as frozen values, units in names (keys of design.md)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+__all__ = [
+    "Passband", "StopbandPoint", "DesignChoice", "Tone", "InputSignal", "Supply",
+    "AmplifierChoice", "Environment", "NoiseBudget", "Requirement",
+]
+
+
+@dataclass(frozen=True, slots=True)
+class Passband:
+    """The band to pass. `center_hz` is the geometric centre of `low_hz` and `high_hz`."""
+
+    low_hz: float
+    high_hz: float
+    max_loss_db: float
+    gain_db: float
+    gain_tolerance_db: float = 0.5
+
+    @property
+    def center_hz(self) -> float:
+        return math.sqrt(self.low_hz * self.high_hz)
+
+    @property
+    def bandwidth_hz(self) -> float:
+        return self.high_hz - self.low_hz
+
+    @property
+    def gain(self) -> float:
+        """Reference gain (passband maximum), V/V."""
+        return 10.0 ** (self.gain_db / 20.0)
+
+
+@dataclass(frozen=True, slots=True)
+class StopbandPoint:
+    freq_hz: float
+    min_loss_db: float
+
+
+@dataclass(frozen=True, slots=True)
+class DesignChoice:
+    """`[design]`: family and order (None: the planner chooses), part series."""
+
+    family: str | None = None
+    order: int | None = None
+    resistor_series: str = "E96"
+    capacitor_series: str = "E12"
+
+
+@dataclass(frozen=True, slots=True)
+class Tone:
+    """An out-of-band tone at the source (open-circuit amplitude)."""
+
+    freq_hz: float
+    vpk: float
+
+
+@dataclass(frozen=True, slots=True)
+class InputSignal:
+    """`[input]`: largest in-band amplitude, source resistance, tones (open-circuit, ahead
+    of the source resistance)."""
+
+    max_vpk: float = 1.0
+    source_ohms: float = 0.0
+    tones: tuple[Tone, ...] = ()
+
+
+@dataclass(frozen=True, slots=True)
+class Supply:
+    rails_v: tuple[float, float] = (-5.0, 5.0)
+
+
+@dataclass(frozen=True, slots=True)
+class AmplifierChoice:
+    """`[amplifier]`: an archetype name and explicit parameter overrides."""
+
+    archetype: str | None = None
+    overrides: tuple[tuple[str, float], ...] = ()
+
+
+@dataclass(frozen=True, slots=True)
+class Environment:
+    temperature_c: float = 25.0
+
+
+@dataclass(frozen=True, slots=True)
+class NoiseBudget:
+    band_hz: tuple[float, float] | None = None
+    max_output_vrms: float | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class Requirement:
+    """A whole bandpass requirement, as read from `path`."""
+
+    path: str
+    passband: Passband
+    stopband: tuple[StopbandPoint, ...] = ()
+    design: DesignChoice = field(default_factory=DesignChoice)
+    input: InputSignal = field(default_factory=InputSignal)
+    supply: Supply = field(default_factory=Supply)
+    amplifier: AmplifierChoice = field(default_factory=AmplifierChoice)
+    environment: Environment = field(default_factory=Environment)
+    noise: NoiseBudget = field(default_factory=NoiseBudget)

@@ -1,0 +1,98 @@
+"""The command-line surface: exit codes, one JSON object, overrides, --out safety."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import pytest
+
+from conftest import SCENARIOS, run_cli
+
+SCENARIO = SCENARIOS / "ultrasonic_ranging.toml"
+
+
+def test_plan_prints_family_order_and_sections():
+    r = run_cli("plan", SCENARIO)
+    assert r.returncode in (0, 1), r.stderr
+    for word in ("butterworth", "Sections", "Checks"):
+        assert word in r.stdout
+
+
+def test_json_is_exactly_one_object_with_design_keys():
+    r = run_cli("plan", SCENARIO, "--json")
+    doc = json.loads(r.stdout)  # raises on anything but exactly one JSON document
+    for key in ("tool", "prototype", "stages", "checks", "response", "nodes", "noise"):
+        assert key in doc
+    assert doc["tool"]["name"] == "bandwright"
+    assert set(doc["prototype"]) >= {"family", "order", "ripple_db"}
+    st = doc["stages"][0]
+    assert set(st) >= {"position", "kind", "f0_hz", "q", "gain", "topology", "components",
+                       "nets", "actual"}
+    assert [s["position"] for s in doc["stages"]] == list(range(1, len(doc["stages"]) + 1))
+    for c in doc["checks"]:
+        assert set(c) >= {"id", "stage", "net", "status", "value", "limit", "unit", "message"}
+
+
+def test_response_grid_meets_design_density():
+    """design.md: ≥ 100 points a decade, ≥ 50 inside the passband."""
+    doc = json.loads(run_cli("plan", SCENARIO, "--json").stdout)
+    f = doc["response"]["freq_hz"]
+    decades = math.log10(f[-1] / f[0])
+    assert len(f) >= 100 * decades
+    inside = [x for x in f if 38049.96 <= x <= 42049.97]
+    assert len(inside) >= 50
+    assert f[0] <= 4000 * 1.0001 and f[-1] >= 400000 * 0.9999
+
+
+def test_family_and_order_override(tmp_path):
+    doc = json.loads(run_cli("plan", SCENARIO, "--json", "--family", "chebyshev",
+                             "--order", "4").stdout)
+    assert doc["prototype"]["family"] == "chebyshev"
+    assert doc["prototype"]["order"] == 4
+    assert len(doc["stages"]) == 4
+
+
+def test_too_low_order_fails_the_mask_with_exit_1():
+    r = run_cli("plan", SCENARIO, "--json", "--order", "1", "--family", "butterworth")
+    assert r.returncode == 1
+    doc = json.loads(r.stdout)
+    assert any(c["id"] == "mask" and c["status"] == "fail" for c in doc["checks"])
+
+
+@pytest.mark.parametrize("args", [["plan"], ["frobnicate"], ["plan", "x.toml", "--order", "x"],
+                                  ["plan", "x.toml", "--order", "0"]])
+def test_usage_errors_exit_2(args):
+    r = run_cli(*args)
+    assert r.returncode == 2
+    assert "Traceback" not in r.stderr
+
+
+def test_no_duplicate_flags():
+    from bandwright.cli import build_parser
+    parser = build_parser()
+    sub = parser._subparsers._group_actions[0].choices
+    for name, p in sub.items():
+        flags = [o for a in p._actions for o in a.option_strings]
+        assert len(flags) == len(set(flags)), name
+
+
+def test_out_refuses_non_empty_folder_without_force(tmp_path):
+    out = tmp_path / "o"
+    out.mkdir()
+    (out / "keep.txt").write_text("mine")
+    r = run_cli("plan", SCENARIO, "--out", out)
+    assert r.returncode == 2 and "--force" in r.stderr
+    assert (out / "keep.txt").read_text() == "mine"
+    r = run_cli("plan", SCENARIO, "--out", out, "--force")
+    assert r.returncode in (0, 1)
+    assert (out / "plan.json").exists() and not (out / "keep.txt").exists()
+
+
+def test_out_into_existing_empty_folder(tmp_path):
+    out = tmp_path / "empty"
+    out.mkdir()
+    r = run_cli("plan", SCENARIO, "--out", out)
+    assert r.returncode in (0, 1)
+    json.loads((out / "plan.json").read_text())
+    assert [p.name for p in tmp_path.iterdir()] == ["empty"]  # no temporary left behind
