@@ -1,0 +1,525 @@
+"""Linear nodal analysis of an element list: AC response and noise, batched.
+
+The element list (``circuits.elements``) is stamped once into modified-nodal-analysis
+(MNA) matrices ``G + s C`` as arrays; the frequency axis and the optional sample axis
+(part values for Monte Carlo) are broadcast over them and every system is solved in one
+stacked ``np.linalg.solve`` call.
+
+Conventions
+-----------
+* Ground is net ``"0"``; it has no unknown.
+* The drive is a unit (1 V) AC source, ahead of ``source_ohms``. A positive
+  ``source_ohms`` is stamped as its Norton equivalent (1/Rs into the input net, Rs from the
+  input net to ground), so the input net is the far side of the source resistance and no
+  source net exists. With ``source_ohms == 0`` an ideal voltage source holds the input net
+  (one extra unknown: its current).
+* Op-amp (single-pole model, ``parts.opamp.OpAmp``): an output voltage source whose
+  equation row is ``V_out (1/A0 + s/wt) - (V+ - V-) = 0``, i.e. ``V_out = A(s) (V+ - V-)``
+  with ``A(s) = A0 / (1 + s A0/wt)`` divided through by ``A0`` so that A0 -> inf and
+  wt -> inf stay finite and well conditioned. ``gbw_hz == math.inf`` means an ideal
+  op-amp (nullor): the row is ``V+ - V- = 0`` whatever ``dc_gain_db`` says.
+
+References
+----------
+.. [1] C.-W. Ho, A. E. Ruehli, P. A. Brennan, "The modified nodal approach to network
+   analysis", IEEE Trans. Circuits Syst. CAS-22(6), 1975, pp. 504-509 [mem].
+.. [2] J. Vlach, K. Singhal, *Computer Methods for Circuit Analysis and Design*, 2nd ed.,
+   Van Nostrand Reinhold, 1994, ch. 3 (MNA stamps) and ch. 11 (adjoint network,
+   noise) [mem].
+.. [3] J. B. Johnson, "Thermal agitation of electricity in conductors"; H. Nyquist,
+   "Thermal agitation of electric charge in conductors", Phys. Rev. 32, 1928 -- 4kTR.
+.. [4] C. D. Motchenbacher, J. A. Connelly, *Low-Noise Electronic System Design*, Wiley,
+   1993, ch. 4 -- op-amp e_n / i_n model with 1/f corner [mem].
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+
+from bandwright.circuits.elements import GROUND, Element
+
+__all__ = [
+    "BOLTZMANN_J_PER_K",
+    "MnaSystem",
+    "NodalSolution",
+    "NoiseResult",
+    "passive_names",
+    "mna_system",
+    "ac_solve",
+    "transfer",
+    "noise",
+]
+
+BOLTZMANN_J_PER_K = 1.380649e-23  # exact since the 2019 SI redefinition
+_KELVIN_OFFSET = 273.15
+
+
+def passive_names(elements: Sequence[Element]) -> tuple[str, ...]:
+    """Names of every R and C, in element order: the column order of ``values``.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The element list.
+
+    Returns
+    -------
+    tuple of str
+        Reference designators of the passive parts (the keys of
+        ``elements.passive_values``, in the same order).
+    """
+    return tuple(e.name for e in elements if e.kind in ("R", "C"))
+
+
+@dataclass(frozen=True, slots=True)
+class MnaSystem:
+    """Stamped MNA matrices of an element list: ``(G + s C) x = rhs``.
+
+    Attributes
+    ----------
+    nets : tuple of str
+        Non-ground nets; unknown ``i`` is the voltage of ``nets[i]`` for ``i < len(nets)``.
+        Further unknowns are branch currents (ideal source, op-amp outputs).
+    g : ndarray of float, shape (M, M) or (S, M, M)
+        Conductance part, siemens (op-amp rows: dimensionless).
+    c : ndarray of float, shape (M, M) or (S, M, M)
+        Capacitance part, farads (op-amp rows: 1/wt in seconds).
+    rhs : ndarray of float, shape (M,)
+        Excitation of the unit AC source (open-circuit 1 V).
+    opamp_rows : dict of str to int
+        Row (unknown index) of each op-amp's equation, by op-amp name.
+    """
+
+    nets: tuple[str, ...]
+    g: np.ndarray
+    c: np.ndarray
+    rhs: np.ndarray
+    opamp_rows: dict[str, int]
+
+    @property
+    def size(self) -> int:
+        """Number of unknowns M."""
+        return self.rhs.shape[0]
+
+    def index(self, net: str) -> int:
+        """Unknown index of `net` (-1 for ground); KeyError if the net is not in the list."""
+        if net == GROUND:
+            return -1
+        try:
+            return self.nets.index(net)
+        except ValueError:
+            raise KeyError(f"net {net!r} is not in the element list (nets: {self.nets})") from None
+
+
+def _net_order(elements: Sequence[Element], input_net: str) -> tuple[str, ...]:
+    nets: list[str] = [input_net] if input_net != GROUND else []
+    for e in elements:
+        for n in e.nets:
+            if n != GROUND and n not in nets:
+                nets.append(n)
+    return tuple(nets)
+
+
+def _check_values(elements: Sequence[Element], values: np.ndarray | None) -> np.ndarray:
+    """Passive values as an array (P,) or (S, P), validated."""
+    names = passive_names(elements)
+    if values is None:
+        v = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+    else:
+        v = np.asarray(values, dtype=float)
+        if v.ndim != 2 or v.shape[1] != len(names):
+            raise ValueError(
+                f"values must have shape (S, {len(names)}) in the order {names}; got {v.shape}")
+    if np.any(~np.isfinite(v)) or np.any(v <= 0):
+        raise ValueError(f"every R and C value must be finite and > 0 (parts {names})")
+    return v
+
+
+def mna_system(elements: Sequence[Element], *, input_net: str = "in", source_ohms: float = 0.0,
+               values: np.ndarray | None = None) -> MnaSystem:
+    """Stamp an element list into MNA matrices, vectorised over part-value samples.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        R, C and op-amp elements between named nets ("0" is ground).
+    input_net : str
+        Net driven by the unit AC source.
+    source_ohms : float
+        Source resistance, ohms (0: ideal source straight onto `input_net`).
+    values : ndarray of float, shape (S, P), optional
+        Part values overriding those of the elements, columns in ``passive_names`` order.
+
+    Returns
+    -------
+    MnaSystem
+        ``g`` and ``c`` have shape (M, M) without `values`, (S, M, M) with them.
+
+    Raises
+    ------
+    ValueError
+        On an unknown element kind, a non-positive part value, an op-amp without a model or
+        driving ground, a negative source resistance, or a `values` array of the wrong shape.
+
+    Notes
+    -----
+    Standard MNA stamps ([1]_, [2]_ ch. 3): a conductance y between nets a and b adds
+    ``y`` at (a, a) and (b, b) and ``-y`` at (a, b) and (b, a). The stamps of all passive
+    parts are kept as one (P, M, M) incidence tensor so that a batch of part values is a
+    single ``einsum``. Op-amp rows are described in the module docstring.
+    """
+    if not source_ohms >= 0 or not math.isfinite(source_ohms):
+        raise ValueError(f"source_ohms must be finite and >= 0; got {source_ohms}")
+    if input_net == GROUND:
+        raise ValueError("input_net cannot be ground")
+    for e in elements:
+        if e.kind not in ("R", "C", "opamp"):
+            raise ValueError(f"{e.name}: unknown element kind {e.kind!r}")
+        if e.kind == "opamp":
+            if e.model is None:
+                raise ValueError(f"{e.name}: op-amp without a model")
+            if e.nets[2] == GROUND:
+                raise ValueError(f"{e.name}: op-amp output tied to ground")
+    v = _check_values(elements, values)
+    nets = _net_order(elements, input_net)
+    n_nets = len(nets)
+    ideal_source = source_ohms == 0.0
+    opamps = [e for e in elements if e.kind == "opamp"]
+    size = n_nets + int(ideal_source) + len(opamps)
+    gnd = size  # ground gets a scratch slot that is sliced off, so stamps need no branches
+    idx = {n: i for i, n in enumerate(nets)}
+    idx[GROUND] = gnd
+
+    passives = [e for e in elements if e.kind in ("R", "C")]
+    n_p = len(passives)
+    a = np.array([idx[e.nets[0]] for e in passives], dtype=int)
+    b = np.array([idx[e.nets[1]] for e in passives], dtype=int)
+    p = np.arange(n_p)
+    incidence = np.zeros((n_p, size + 1, size + 1))
+    np.add.at(incidence, (p, a, a), 1.0)
+    np.add.at(incidence, (p, b, b), 1.0)
+    np.add.at(incidence, (p, a, b), -1.0)
+    np.add.at(incidence, (p, b, a), -1.0)
+    incidence = incidence[:, :size, :size]
+    is_r = np.array([e.kind == "R" for e in passives], dtype=bool)
+    conductance = np.where(is_r, 1.0 / v, 0.0)
+    capacitance = np.where(is_r, 0.0, v)
+    g = np.einsum("...p,pij->...ij", conductance, incidence)
+    c = np.einsum("...p,pij->...ij", capacitance, incidence)
+
+    g_fix = np.zeros((size + 1, size + 1))
+    c_fix = np.zeros((size + 1, size + 1))
+    rhs = np.zeros(size + 1)
+    k_in = idx[input_net]
+    if ideal_source:
+        row = n_nets
+        g_fix[row, k_in] = 1.0
+        g_fix[k_in, row] = 1.0
+        rhs[row] = 1.0
+    else:
+        # Norton equivalent of (1 V in series with Rs).
+        g_fix[k_in, k_in] += 1.0 / source_ohms
+        rhs[k_in] = 1.0 / source_ohms
+    opamp_rows: dict[str, int] = {}
+    for k, e in enumerate(opamps):
+        row = n_nets + int(ideal_source) + k
+        opamp_rows[e.name] = row
+        plus, minus, out = (idx[n] for n in e.nets)
+        model = e.model
+        ideal = math.isinf(model.gbw_hz)
+        # Divided through by A0: V_out (1/A0 + s/wt) - (V+ - V-) = 0.
+        g_fix[row, out] = 0.0 if ideal else 1.0 / model.a0
+        c_fix[row, out] = 0.0 if ideal else 1.0 / (2 * math.pi * model.gbw_hz)
+        g_fix[row, plus] += -1.0
+        g_fix[row, minus] += 1.0
+        g_fix[out, row] += 1.0  # the output current enters KCL at the output net
+    g = g + g_fix[:size, :size]
+    c = c + c_fix[:size, :size]
+    return MnaSystem(nets=nets, g=g, c=c, rhs=rhs[:size].copy(), opamp_rows=opamp_rows)
+
+
+def _admittance(system: MnaSystem, freq_hz: np.ndarray) -> np.ndarray:
+    """Y = G + j 2 pi f C broadcast to (F, M, M) or (S, F, M, M)."""
+    s = 2j * np.pi * freq_hz
+    g = system.g[..., None, :, :]
+    c = system.c[..., None, :, :]
+    return g + s[:, None, None] * c
+
+
+def _freq_array(freq_hz: np.ndarray) -> np.ndarray:
+    f = np.asarray(freq_hz, dtype=float)
+    if f.ndim != 1:
+        raise ValueError(f"freq_hz must be one-dimensional; got shape {f.shape}")
+    if np.any(~np.isfinite(f)) or np.any(f < 0):
+        raise ValueError("freq_hz must be finite and >= 0")
+    return f
+
+
+@dataclass(frozen=True, slots=True)
+class NodalSolution:
+    """Node voltages of an AC solve for a unit (1 V open-circuit) source.
+
+    Attributes
+    ----------
+    nets : tuple of str
+        Non-ground nets, in the order of the last axis of `voltages`.
+    freq_hz : ndarray of float, shape (F,)
+        Frequencies, Hz.
+    voltages : ndarray of complex, shape (F, N) or (S, F, N)
+        Complex node voltages, V per V of source.
+    """
+
+    nets: tuple[str, ...]
+    freq_hz: np.ndarray
+    voltages: np.ndarray
+
+    def at(self, net: str) -> np.ndarray:
+        """Voltage of `net`, shape (F,) or (S, F); zeros for ground.
+
+        Raises
+        ------
+        KeyError
+            If `net` is not in the circuit.
+        """
+        if net == GROUND:
+            return np.zeros(self.voltages.shape[:-1], dtype=complex)
+        if net not in self.nets:
+            raise KeyError(f"net {net!r} is not in the element list (nets: {self.nets})")
+        return self.voltages[..., self.nets.index(net)]
+
+
+def ac_solve(elements: Sequence[Element], freq_hz: np.ndarray, *, input_net: str = "in",
+             source_ohms: float = 0.0, values: np.ndarray | None = None) -> NodalSolution:
+    """AC node voltages for a unit source, batched over frequency and part-value samples.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The element list.
+    freq_hz : ndarray of float, shape (F,)
+        Frequencies, Hz (>= 0; 0 is DC and needs a DC path to every net).
+    input_net : str
+        Net driven by the source.
+    source_ohms : float
+        Source resistance, ohms, between the 1 V source and `input_net` (0: ideal).
+    values : ndarray of float, shape (S, P), optional
+        Part values in ``passive_names(elements)`` order, one row per sample.
+
+    Returns
+    -------
+    NodalSolution
+        Voltages of shape (F, N), or (S, F, N) with `values`.
+
+    Raises
+    ------
+    ValueError
+        On bad arguments (see ``mna_system``).
+    numpy.linalg.LinAlgError
+        If a system is exactly singular (e.g. a net with no DC path at f = 0).
+
+    Notes
+    -----
+    Modified nodal analysis [1]_; the op-amp row is the single-pole model of
+    ``parts.opamp.OpAmp`` (Franco 2015, §6.1 [mem]) scaled by 1/A0.
+
+    Examples
+    --------
+    >>> from bandwright.circuits.elements import resistor, capacitor
+    >>> els = (resistor("R1", "in", "out", 1e3), capacitor("C1", "out", "0", 1e-6))
+    >>> sol = ac_solve(els, np.array([159.15494309189535]))
+    >>> round(float(abs(sol.at("out")[0])), 6)
+    0.707107
+    """
+    f = _freq_array(freq_hz)
+    system = mna_system(elements, input_net=input_net, source_ohms=source_ohms, values=values)
+    y = _admittance(system, f)
+    rhs = np.broadcast_to(system.rhs[:, None], y.shape[:-2] + (system.size, 1))
+    x = np.linalg.solve(y, rhs)[..., 0]
+    return NodalSolution(nets=system.nets, freq_hz=f, voltages=x[..., : len(system.nets)])
+
+
+def transfer(elements: Sequence[Element], freq_hz: np.ndarray, *, out_net: str = "out",
+             input_net: str = "in", source_ohms: float = 0.0,
+             values: np.ndarray | None = None) -> np.ndarray:
+    """Complex transfer from the source's open-circuit voltage to `out_net`.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The element list.
+    freq_hz : ndarray of float, shape (F,)
+        Frequencies, Hz.
+    out_net : str
+        Net whose voltage is returned.
+    input_net : str
+        Net driven by the source.
+    source_ohms : float
+        Source resistance, ohms.
+    values : ndarray of float, shape (S, P), optional
+        Part-value samples (see ``ac_solve``).
+
+    Returns
+    -------
+    ndarray of complex, shape (F,) or (S, F)
+        V(out_net) per volt of source.
+
+    Notes
+    -----
+    ``ac_solve(...).at(out_net)``; see ``ac_solve`` for the method.
+    """
+    sol = ac_solve(elements, freq_hz, input_net=input_net, source_ohms=source_ohms, values=values)
+    return sol.at(out_net)
+
+
+@dataclass(frozen=True, slots=True)
+class NoiseResult:
+    """Output noise of a circuit and the share of every source.
+
+    Attributes
+    ----------
+    freq_hz : ndarray of float, shape (F,)
+        Frequencies, Hz.
+    total_psd : ndarray of float, shape (F,) or (S, F)
+        Output noise power spectral density, V^2/Hz.
+    contributions : dict of str to ndarray
+        Output PSD of each source, V^2/Hz, keyed "R2", "Rsource", "U1 voltage",
+        "U1 current+", "U1 current-". They add up to `total_psd` (uncorrelated sources).
+    """
+
+    freq_hz: np.ndarray
+    total_psd: np.ndarray
+    contributions: dict[str, np.ndarray]
+
+    def density(self) -> np.ndarray:
+        """Output noise density sqrt(total_psd), V/sqrt(Hz)."""
+        return np.sqrt(self.total_psd)
+
+    def integrated_vrms(self, band_hz: tuple[float, float]) -> np.ndarray | float:
+        """RMS output noise over a band, V.
+
+        Parameters
+        ----------
+        band_hz : (float, float)
+            Lower and upper band edges, Hz.
+
+        Returns
+        -------
+        float or ndarray of float, shape (S,)
+            sqrt of the integral of `total_psd` over the band.
+
+        Raises
+        ------
+        ValueError
+            If fewer than two grid points lie inside the band.
+
+        Notes
+        -----
+        Trapezoid rule in linear frequency over the grid points f with
+        lo <= f <= hi; nothing is interpolated at the edges, so the band is exact only when
+        its edges are grid points. On a log-spaced grid the trapezoid in linear frequency
+        is still consistent (the panels simply have unequal widths); use enough points per
+        decade where the PSD bends.
+        """
+        lo, hi = float(band_hz[0]), float(band_hz[1])
+        inside = (self.freq_hz >= lo) & (self.freq_hz <= hi)
+        if np.count_nonzero(inside) < 2:
+            raise ValueError(f"fewer than two frequency points inside band {band_hz} Hz")
+        power = np.trapezoid(self.total_psd[..., inside], self.freq_hz[inside], axis=-1)
+        out = np.sqrt(power)
+        return float(out) if out.ndim == 0 else out
+
+
+def noise(elements: Sequence[Element], freq_hz: np.ndarray, *, out_net: str = "out",
+          input_net: str = "in", source_ohms: float = 0.0, temperature_c: float = 25.0,
+          values: np.ndarray | None = None) -> NoiseResult:
+    """Output noise at `out_net` with per-source contributions, by the adjoint method.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The element list.
+    freq_hz : ndarray of float, shape (F,)
+        Frequencies, Hz (> 0: the 1/f terms diverge at DC).
+    out_net : str
+        Net whose noise is computed.
+    input_net : str
+        Net driven by the signal source, which is zeroed (shorted behind its resistance).
+    source_ohms : float
+        Source resistance, ohms; it is a noise source named "Rsource" (zero when
+        `source_ohms` is 0, the input net then being held by the ideal source).
+    temperature_c : float
+        Temperature of every resistor, degrees Celsius.
+    values : ndarray of float, shape (S, P), optional
+        Part-value samples (see ``ac_solve``); results then have a leading S axis.
+
+    Returns
+    -------
+    NoiseResult
+
+    Raises
+    ------
+    ValueError
+        On bad arguments, or a frequency <= 0.
+
+    Notes
+    -----
+    Sources, all uncorrelated:
+
+    * each resistor: a current 4kT/R (A^2/Hz) across it (Johnson/Nyquist [3]_),
+      k = 1.380649e-23 J/K, T = temperature_c + 273.15 K;
+    * each op-amp: e_n^2(f) = e_w^2 (1 + fc/f) in series with the non-inverting input,
+      and i_n^2(f) = i_w^2 (1 + fc/f) into each input separately [4]_.
+
+    One solve of the transposed system ``Y^T z = e_out`` per frequency gives
+    ``z[k] = dV_out / dI_k``, the transimpedance from a current injected into unknown k
+    to the output (adjoint network, [2]_ ch. 11): v_out = e_out^T Y^-1 J = z^T J. A
+    current source between nets a and b then sees ``z[a] - z[b]``; the op-amp voltage
+    noise enters the op-amp row, whose right-hand side it is, and sees ``z[row]``. Output
+    PSD = sum |G_i|^2 S_i.
+    """
+    f = _freq_array(freq_hz)
+    if np.any(f <= 0):
+        raise ValueError("noise needs frequencies > 0 (the 1/f terms diverge at DC)")
+    system = mna_system(elements, input_net=input_net, source_ohms=source_ohms, values=values)
+    k_out = system.index(out_net)
+    if k_out < 0:
+        raise ValueError("out_net cannot be ground")
+    y = _admittance(system, f)
+    e_out = np.zeros(system.size)
+    e_out[k_out] = 1.0
+    rhs = np.broadcast_to(e_out[:, None], y.shape[:-2] + (system.size, 1))
+    z = np.linalg.solve(np.swapaxes(y, -1, -2), rhs)[..., 0]  # (..., F, M)
+    z_gnd = np.concatenate([z, np.zeros(z.shape[:-1] + (1,), dtype=z.dtype)], axis=-1)
+
+    def gain_sq(k: int) -> np.ndarray:
+        return np.abs(z_gnd[..., k]) ** 2  # k = -1 hits the appended ground zero
+
+    four_kt = 4 * BOLTZMANN_J_PER_K * (temperature_c + _KELVIN_OFFSET)
+    v = _check_values(elements, values)
+    contributions: dict[str, np.ndarray] = {}
+    passives = [e for e in elements if e.kind in ("R", "C")]
+    for p, e in enumerate(passives):
+        if e.kind != "R":
+            continue
+        a, b = system.index(e.nets[0]), system.index(e.nets[1])
+        r_ohms = v[..., p, None]
+        contributions[e.name] = np.abs(z_gnd[..., a] - z_gnd[..., b]) ** 2 * four_kt / r_ohms
+    k_in = system.index(input_net)
+    if source_ohms > 0:
+        contributions["Rsource"] = gain_sq(k_in) * four_kt / source_ohms
+    else:
+        contributions["Rsource"] = np.zeros(z.shape[:-1])
+    for e in elements:
+        if e.kind != "opamp":
+            continue
+        plus, minus = system.index(e.nets[0]), system.index(e.nets[1])
+        row = system.opamp_rows[e.name]
+        contributions[f"{e.name} voltage"] = gain_sq(row) * e.model.voltage_noise_psd(f)
+        contributions[f"{e.name} current+"] = gain_sq(plus) * e.model.current_noise_psd(f)
+        contributions[f"{e.name} current-"] = gain_sq(minus) * e.model.current_noise_psd(f)
+    total = np.sum(np.stack(list(contributions.values())), axis=0)
+    return NoiseResult(freq_hz=f, total_psd=total, contributions=contributions)
