@@ -106,7 +106,23 @@ class MnaSystem:
         return self.rhs.shape[0]
 
     def index(self, net: str) -> int:
-        """Unknown index of `net` (-1 for ground); KeyError if the net is not in the list."""
+        """Unknown index of a net.
+
+        Parameters
+        ----------
+        net : str
+            Net name.
+
+        Returns
+        -------
+        int
+            Its unknown index; -1 for ground.
+
+        Raises
+        ------
+        KeyError
+            If the net is not in the element list.
+        """
         if net == GROUND:
             return -1
         try:
@@ -278,7 +294,17 @@ class NodalSolution:
     voltages: np.ndarray
 
     def at(self, net: str) -> np.ndarray:
-        """Voltage of `net`, shape (F,) or (S, F); zeros for ground.
+        """Voltage of one net.
+
+        Parameters
+        ----------
+        net : str
+            Net name.
+
+        Returns
+        -------
+        ndarray of complex, shape (F,) or (S, F)
+            Its voltage per volt of source; zeros for ground.
 
         Raises
         ------

@@ -1,0 +1,286 @@
+"""Transfer polynomials of an element list, and the section figures (f0, Q, gain) they give.
+
+The nodal solver (``circuits.nodal``) is the reference but costs one complex solve per
+frequency and sample. Here the same MNA matrices are reduced to the numerator and
+denominator polynomials in s of the transfer, which are cheap to evaluate anywhere and
+whose roots are the poles.
+
+Method
+------
+``det(G + s C)`` is a polynomial in s of degree at most d = (number of capacitors) +
+(number of op-amps with finite GBW): every capacitor and every finite-GBW op-amp row puts
+s in one matrix entry, and each (row, column) of the determinant's expansion takes one
+entry per row. By Cramer's rule the output voltage is ``det(Y_out) / det(Y)``, with
+``Y_out`` the matrix whose output column is replaced by the excitation; ``det(Y_out)`` is
+also of degree <= d. Both are evaluated at the K = d + 1 points ``s_k = w_c exp(2 pi j
+k / K)`` on a circle, and ``fft(P) / K`` returns the coefficients of P(w_c sigma) in
+sigma exactly (the discrete Fourier transform interpolates a polynomial of degree < K
+from K roots of unity), up to rounding.
+
+The radius ``w_c`` is the reciprocal of a characteristic RC time constant (geometric mean
+of the resistors times the geometric mean of the capacitors), so that in sigma = s/w_c
+the coefficients are of similar size; rows and columns of ``G + s C`` are equilibrated by
+constant (s-independent) factors, which scale both determinants alike and leave the ratio
+and the polynomial structure untouched.
+
+References
+----------
+.. [1] J. Vlach, K. Singhal, *Computer Methods for Circuit Analysis and Design*, 2nd ed.,
+   Van Nostrand Reinhold, 1994 -- network functions by polynomial interpolation on a
+   circle with the FFT [mem; chapter not checked].
+.. [2] J. W. Cooley, J. W. Tukey, "An algorithm for the machine calculation of complex
+   Fourier series", Math. Comp. 19, 1965 -- the DFT as interpolation at the roots of unity.
+.. [3] R. Schaumann, M. E. Van Valkenburg, *Design of Analog Filters*, Oxford UP, 2001,
+   ch. 4 -- pole frequency and quality factor of a pole pair:
+   w0 = |p|, Q = w0 / (2 |Re p|) [mem].
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Sequence
+
+import numpy as np
+from numpy.polynomial import polynomial as npoly
+
+from bandwright.circuits.base import Figures
+from bandwright.circuits.elements import Element
+from bandwright.circuits.nodal import mna_system
+from bandwright.types import StageKind
+
+__all__ = ["transfer_polynomials", "polynomial_degree", "section_figures"]
+
+# Coefficients below this fraction of the largest one (in sigma = s/w_c) are rounding
+# noise of the FFT interpolation: a genuine coefficient that small would stand for a pole
+# some 1e10 times w_c away, which no figure depends on.
+_NEGLIGIBLE = 1e-10
+
+
+def polynomial_degree(elements: Sequence[Element]) -> int:
+    """Upper bound d on the degree in s of the transfer's numerator and denominator.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The element list.
+
+    Returns
+    -------
+    int
+        Number of capacitors plus number of op-amps with finite GBW.
+    """
+    n_c = sum(1 for e in elements if e.kind == "C")
+    n_poles = sum(1 for e in elements if e.kind == "opamp" and math.isfinite(e.model.gbw_hz))
+    return n_c + n_poles
+
+
+def _scale_rad_s(elements: Sequence[Element], v: np.ndarray) -> np.ndarray:
+    """Characteristic angular frequency w_c per sample: 1 / (gm(R) gm(C))."""
+    kinds = np.array([e.kind for e in elements if e.kind in ("R", "C")])
+    is_r, is_c = kinds == "R", kinds == "C"
+    wt = [2 * math.pi * e.model.gbw_hz for e in elements
+          if e.kind == "opamp" and math.isfinite(e.model.gbw_hz)]
+    if is_r.any() and is_c.any():
+        log_tau = np.mean(np.log(v[..., is_r]), axis=-1) + np.mean(np.log(v[..., is_c]), axis=-1)
+        return np.exp(-log_tau)
+    # No RC time constant: the op-amp poles are the only dynamics.
+    w = math.exp(np.mean(np.log(wt))) if wt else 1.0
+    return np.full(v.shape[:-1], w)
+
+
+def _reciprocal(x: np.ndarray) -> np.ndarray:
+    """1/x, with 1 where x is 0 (an all-zero row: the circuit is singular anyway)."""
+    return 1.0 / np.where(x > 0, x, 1.0)
+
+
+def _scaled_polynomials(elements: Sequence[Element], *, out_net: str, input_net: str,
+                        source_ohms: float, values: np.ndarray | None
+                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Coefficients (ascending) of num and den in sigma = s / w_c, and w_c.
+
+    Both are divided by the largest |den coefficient|, per sample.
+    """
+    system = mna_system(elements, input_net=input_net, source_ohms=source_ohms, values=values)
+    k_out = system.index(out_net)
+    if k_out < 0:
+        raise ValueError("out_net cannot be ground")
+    if values is None:
+        v = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+    else:
+        v = np.asarray(values, dtype=float)
+    w_c = _scale_rad_s(elements, v)                       # () or (S,)
+    n_points = polynomial_degree(elements) + 1
+    sigma = np.exp(2j * np.pi * np.arange(n_points) / n_points)
+    g, c = system.g, system.c                              # (..., M, M)
+    # Constant equilibration: det(D1 Y D2) = det(D1) det(D2) det(Y) for every s.
+    mag = np.abs(g) + w_c[..., None, None] * np.abs(c)
+    row = _reciprocal(np.max(mag, axis=-1))                # (..., M)
+    mag = mag * row[..., :, None]
+    col = _reciprocal(np.max(mag, axis=-2))
+    d1 = row[..., None, :, None]
+    d2 = col[..., None, None, :]
+    s = w_c[..., None] * sigma                             # (..., K)
+    y = d1 * (g[..., None, :, :] + s[..., :, None, None] * c[..., None, :, :]) * d2
+    y_out = y.copy()
+    # Cramer: x_out = col_out * det(Y with column out <- D1 rhs) / det(Y).
+    y_out[..., :, k_out] = (system.rhs * row)[..., None, :] * col[..., None, k_out, None]
+    den = np.fft.fft(np.linalg.det(y), axis=-1) / n_points
+    num = np.fft.fft(np.linalg.det(y_out), axis=-1) / n_points
+    norm = np.max(np.abs(den), axis=-1, keepdims=True)
+    return (num / norm).real, (den / norm).real, w_c
+
+
+def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
+                         input_net: str = "in", source_ohms: float = 0.0,
+                         values: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Numerator and denominator of the transfer to `out_net` as polynomials in s.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The element list.
+    out_net : str
+        Output net.
+    input_net : str
+        Net driven by the (1 V open-circuit) source.
+    source_ohms : float
+        Source resistance, ohms (0: ideal source).
+    values : ndarray of float, shape (S, P), optional
+        Part-value samples in ``passive_names(elements)`` order.
+
+    Returns
+    -------
+    num, den : ndarray of float, shape (d + 1,) or (S, d + 1)
+        Coefficients in ASCENDING powers of s (``num[k]`` multiplies s**k), so that
+        ``numpy.polynomial.polynomial.polyval(s, num)`` evaluates them; reverse them for
+        ``np.roots``. d is ``polynomial_degree(elements)``; coefficients above the true
+        degree come out as rounding noise. Only the ratio num/den is meaningful: both are
+        divided by a common factor chosen so that the largest coefficient of den, in the
+        scaled variable s/w_c, is 1 (w_c: see Notes).
+
+    Raises
+    ------
+    ValueError
+        On bad arguments (see ``circuits.nodal.mna_system``).
+
+    Notes
+    -----
+    Evaluates ``det(G + s C)`` and its Cramer numerator at d + 1 points on the circle
+    |s| = w_c and interpolates by inverse DFT ([1]_, [2]_); w_c = 1/(gm(R) gm(C)), the
+    reciprocal geometric-mean RC time constant (module docstring). The transfer is the same
+    as ``circuits.nodal.transfer``: from the open-circuit source voltage to `out_net`.
+    """
+    num, den, w_c = _scaled_polynomials(elements, out_net=out_net, input_net=input_net,
+                                        source_ohms=source_ohms, values=values)
+    powers = w_c[..., None] ** -np.arange(num.shape[-1])
+    return num * powers, den * powers
+
+
+def _trim(coefs: np.ndarray) -> np.ndarray:
+    """Drop highest-power coefficients that are rounding noise."""
+    big = np.max(np.abs(coefs))
+    keep = np.nonzero(np.abs(coefs) > _NEGLIGIBLE * big)[0]
+    return coefs[: keep[-1] + 1] if keep.size else coefs[:1]
+
+
+def _pick_pair(poles: np.ndarray, w_near: float) -> tuple[complex, ...]:
+    """The pole pair (complex, or two real poles) closest in log |p| to w_near."""
+    tiny = 1e-9 * np.maximum(np.abs(poles), np.finfo(float).tiny)
+    upper = poles[poles.imag > tiny]
+    if upper.size:
+        best = upper[np.argmin(np.abs(np.log(np.abs(upper) / w_near)))]
+        return best, np.conj(best)
+    real = np.sort(poles[np.abs(poles.imag) <= tiny].real)
+    if real.size < 2:
+        raise ValueError(f"the transfer has fewer than two poles: {poles}")
+    i, j = np.triu_indices(real.size, k=1)
+    w0 = np.sqrt(np.abs(real[i] * real[j]))
+    k = np.argmin(np.abs(np.log(np.maximum(w0, np.finfo(float).tiny) / w_near)))
+    return complex(real[i[k]]), complex(real[j[k]])
+
+
+def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
+                    out_net: str = "out", input_net: str = "in") -> Figures:
+    """Pole frequency, Q and gain of a section as built, from its transfer polynomials.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The section's element list (its op-amp models included: finite GBW moves the
+        figures).
+    kind : {"bandpass", "lowpass", "highpass", "gain"}
+        Which gain to report (see Notes).
+    near_hz : float
+        Expected pole frequency, Hz; the pole pair closest to it in log frequency is used.
+    out_net : str
+        Output net.
+    input_net : str
+        Input net (ideal source).
+
+    Returns
+    -------
+    Figures
+        ``f0_hz``, ``q`` and signed ``gain`` (V/V). For kind "gain": f0_hz = q = 0.
+
+    Raises
+    ------
+    ValueError
+        If the transfer has no pole pair, or `kind` is unknown.
+
+    Notes
+    -----
+    Poles are the roots of the denominator; complex pairs are preferred over pairs of real
+    poles when both exist. For a complex pair p, p*: w0 = |p|,
+    Q = -|p| / (2 Re p) ([3]_), which equals |p|/(2|Re p|) for a stable pair and is negative
+    for a right-half-plane pair, so that an unstable section shows as Q < 0. For two real
+    poles p1, p2: w0 = sqrt(p1 p2), Q = w0 / |p1 + p2| (Q <= 1/2). f0 = w0 / 2 pi.
+
+    Gain, signed:
+
+    * bandpass -- H(j w0), reported as sign(Re H) |H| (H is real at w0 for an ideal
+      biquad; finite GBW adds a small phase that this ignores, keeping the sign, so an
+      inverting multiple-feedback section gives about -H0);
+    * lowpass -- H(0) = num[0] / den[0];
+    * highpass -- the high-frequency gain of the section itself, with the poles and zeros
+      that are not its own divided out at their DC value:
+      ``num_m / den_n * prod(-z_extra) / prod(-p_extra)``, where the section keeps the
+      chosen pole pair and the two zeros nearest the origin, and every other pole and zero
+      (the op-amp poles, above all) is an "extra" one. With an ideal op-amp this is
+      simply lim H(s) as s -> infinity; with finite GBW it is the gain the section would
+      have if its op-amps were ideal above f0 only, not H at any one frequency;
+    * gain -- H(0).
+    """
+    if kind not in ("bandpass", "lowpass", "highpass", "gain"):
+        raise ValueError(f"unknown section kind {kind!r}")
+    num, den, w_c = _scaled_polynomials(elements, out_net=out_net, input_net=input_net,
+                                        source_ohms=0.0, values=None)
+    w_c = float(w_c)
+    num, den = _trim(num), _trim(den)
+    if kind == "gain":
+        return Figures(f0_hz=0.0, q=0.0, gain=float(num[0] / den[0]))
+    poles = np.roots(den[::-1])                             # in sigma = s / w_c
+    pair = _pick_pair(poles, 2 * math.pi * near_hz / w_c)
+    p = pair[0]
+    if abs(p.imag) > 0:
+        w0 = float(abs(p))
+        q = -w0 / (2 * p.real) if p.real != 0 else math.inf
+    else:
+        w0 = math.sqrt(abs(pair[0].real * pair[1].real))
+        q = w0 / abs(pair[0].real + pair[1].real)
+    if kind == "bandpass":
+        h = npoly.polyval(1j * w0, num) / npoly.polyval(1j * w0, den)
+        gain = math.copysign(abs(h), h.real)
+    elif kind == "lowpass":
+        gain = float(num[0] / den[0])
+    else:
+        zeros = np.roots(num[::-1])
+        order = np.argsort(np.abs(zeros))
+        if zeros.size < 2:
+            raise ValueError("a highpass transfer needs at least two zeros")
+        extra_zeros = zeros[order[2:]]
+        others = list(poles)
+        for chosen in pair:
+            others.pop(int(np.argmin(np.abs(np.asarray(others) - chosen))))
+        gain = float(np.real(num[-1] / den[-1] * np.prod(-extra_zeros)
+                             / np.prod(-np.asarray(others, dtype=complex))))
+    return Figures(f0_hz=float(w0 * w_c / (2 * math.pi)), q=float(q), gain=float(gain))
