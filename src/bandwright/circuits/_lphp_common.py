@@ -1,0 +1,298 @@
+"""Shared rules of the lowpass, highpass and gain-stage topologies (wideband path).
+
+Private helpers for ``sallen_key_lowpass``, ``mfb_lowpass``, ``sallen_key_highpass``,
+``mfb_highpass``, ``noninverting_gain`` and ``inverting_gain``: the gain-resistor rule,
+the finite-GBW criterion, component spread and Q sensitivity, and the checks every one of
+them makes on a section before designing it.
+
+The finite-GBW criterion
+------------------------
+For a single-op-amp circuit with open-loop gain A(s) the transfer is
+``H = H_ideal / (1 + NG(s)/A(s))``, NG being the noise gain 1/beta of the loop (Franco,
+*Design with Operational Amplifiers and Analog Integrated Circuits*, 4th ed., 2015, §1.2
+and §6.2 [mem]). With the integrator model ``A = wt/s`` (A0 -> inf) and
+``NG = N(s)/D(s)``, D(s) = s^2 + b s + c the ideal denominator (b = w0/Q, c = w0^2) and
+N(s) = n2 s^2 + n1 s + n0, the poles solve ``D(s) + eps s N(s) = 0``, eps = 1/wt. Writing
+that cubic as ``lambda (eps n2 s + 1)(s^2 + b' s + c')`` and matching coefficients to first
+order in eps gives (derived here; checked with sympy in the tests)::
+
+    c' = c (1 - eps (n1 - n2 b))
+    b' = b + eps (n0 - n2 c - b (n1 - n2 b))
+
+so, with e = f0/GBW (eps = e/w0), ``df0/f0 = -(n1 - n2 b) e / (2 w0)`` and
+``dQ/Q = df0/f0 - (b'-b)/b``. No pole roots are needed, so it holds for any Q > 0.
+
+``gbw_needed_hz`` is the GBW at which both first-order shifts stay within
+``GBW_SHIFT_LIMIT`` (10 %, the limit the bandpass topologies use too). The planner
+predistorts the design for these shifts (design.md, "Built, not ideal"); the limit keeps
+the correction in the range where the first-order model is reliable. Without
+predistortion, the common-practice rule for a unity-gain Sallen-Key lowpass is
+"GBW >= 100 x gain x Q x f0", i.e. a 1 % shift (|df0/f0| = |dQ/Q| = Q e there).
+
+A flat gain stage cannot be predistorted: its roll-off adds to the passband loss. Its
+criterion is a gain error of at most ``GAIN_ERROR_LIMIT`` (1 %) at the highest signal
+frequency.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping
+
+from bandwright.circuits.base import Limits
+from bandwright.errors import InfeasibleDesign
+from bandwright.sections.section import Section
+
+__all__ = ["GBW_SHIFT_LIMIT", "GAIN_ERROR_LIMIT", "MAX_SPREAD", "UNITY_RTOL", "BASE_R_OHMS", "is_unity",
+           "ratio_pair", "finite_gbw_shift", "gbw_needed_hz", "noise_gain_at",
+           "spread", "max_log_sensitivity", "section_problems", "require", "infeasible_limits",
+           "gbw_reason"]
+
+#: Largest first-order relative shift of f0 or Q allowed from finite GBW (criterion above).
+GBW_SHIFT_LIMIT = 0.1
+#: Largest gain error of a flat gain stage at the highest signal frequency.
+GAIN_ERROR_LIMIT = 0.01
+#: Largest component spread (largest/smallest R, or C) accepted. Beyond about 1000:1 one part
+#: ends up near stray capacitance or at an impractical resistance (common practice).
+MAX_SPREAD = 1000.0
+#: A gain this close to 1 (relative) is unity: the difference is float round-off, some six
+#: orders below any part tolerance, and would otherwise ask for a gigaohm resistor.
+UNITY_RTOL = 1e-9
+#: The smaller resistor of a gain-setting pair (design choice: 10 kOhm keeps the op-amp
+#: load light and the Johnson noise modest; common practice).
+BASE_R_OHMS = 10e3
+
+
+def is_unity(gain: float) -> bool:
+    """True when `gain` is 1 within ``UNITY_RTOL``."""
+    return abs(gain - 1.0) <= UNITY_RTOL
+
+
+def ratio_pair(ratio: float, base_ohms: float = BASE_R_OHMS) -> tuple[float, float]:
+    """Two resistors (r_top, r_bottom) with r_top / r_bottom = `ratio`, the smaller one `base_ohms`.
+
+    Parameters
+    ----------
+    ratio : float
+        Wanted r_top / r_bottom, > 0.
+    base_ohms : float
+        Value of the smaller of the two, ohms.
+
+    Returns
+    -------
+    (float, float)
+        (r_top, r_bottom), ohms.
+    """
+    if not ratio > 0:
+        raise ValueError(f"resistor ratio must be > 0; got {ratio}")
+    if ratio >= 1:
+        return ratio * base_ohms, base_ohms
+    return base_ohms, base_ohms / ratio
+
+
+def finite_gbw_shift(f0_hz: float, q: float, ng_num: tuple[float, float, float]
+                     ) -> tuple[float, float]:
+    """First-order relative shifts of f0 and Q per unit e = f0/GBW.
+
+    Parameters
+    ----------
+    f0_hz : float
+        Ideal pole frequency, Hz.
+    q : float
+        Ideal pole Q.
+    ng_num : (float, float, float)
+        (n2, n1, n0): numerator of the ideal noise gain NG(s) = N(s)/D(s) over the monic
+        denominator D(s) = s^2 + (w0/Q) s + w0^2, s in rad/s.
+
+    Returns
+    -------
+    (float, float)
+        (k_f, k_q) with df0/f0 ~= k_f e and dQ/Q ~= k_q e.
+
+    Notes
+    -----
+    Perturbation of the characteristic polynomial D(s) + (s/wt) N(s) (module docstring;
+    closed-loop gain with finite loop gain, Franco 2015, §6.2 [mem]).
+    """
+    w0 = 2 * math.pi * f0_hz
+    b, c = w0 / q, w0 * w0
+    n2, n1, n0 = ng_num
+    dc_per_eps = -c * (n1 - n2 * b)
+    db_per_eps = n0 - n2 * c - b * (n1 - n2 * b)
+    # eps = e / w0
+    k_f = 0.5 * dc_per_eps / c / w0
+    k_b = db_per_eps / b / w0
+    return k_f, k_f - k_b
+
+
+def gbw_needed_hz(f0_hz: float, shifts: tuple[float, float]) -> float:
+    """GBW keeping both first-order shifts within ``GBW_SHIFT_LIMIT``.
+
+    Parameters
+    ----------
+    f0_hz : float
+        Pole frequency, Hz.
+    shifts : (float, float)
+        (k_f, k_q) from `finite_gbw_shift`.
+
+    Returns
+    -------
+    float
+        f0 · max(|k_f|, |k_q|) / GBW_SHIFT_LIMIT, Hz (10 Q f0 for a unity-gain
+        Sallen-Key lowpass).
+    """
+    return f0_hz * max(abs(shifts[0]), abs(shifts[1])) / GBW_SHIFT_LIMIT
+
+
+def noise_gain_at(f_hz: float, f0_hz: float, q: float,
+                  ng_num: tuple[float, float, float]) -> float:
+    """|NG(j 2 pi f)| from the noise-gain numerator over the monic ideal denominator.
+
+    Parameters
+    ----------
+    f_hz : float
+        Frequency, Hz.
+    f0_hz, q : float
+        Ideal pole frequency (Hz) and Q.
+    ng_num : (float, float, float)
+        (n2, n1, n0) as in `finite_gbw_shift`.
+
+    Returns
+    -------
+    float
+        Magnitude of the noise gain, V/V.
+    """
+    s = 2j * math.pi * f_hz
+    w0 = 2 * math.pi * f0_hz
+    n2, n1, n0 = ng_num
+    return abs((n2 * s * s + n1 * s + n0) / (s * s + (w0 / q) * s + w0 * w0))
+
+
+def spread(components: Mapping[str, float], *,
+           separate: tuple[str, ...] = ()) -> float:
+    """Component spread: the largest max/min over the resistors and over the capacitors.
+
+    Names starting with "R" are resistors and with "C" capacitors. Capacitors count too:
+    a Sallen-Key lowpass with equal resistors keeps all of its spread in C1/C2. The parts
+    named in `separate` (a gain-setting pair such as Rf, Rg, whose level is fixed apart from
+    the filter's impedance level) form a group of their own, so that the figure does not
+    depend on the capacitor value chosen.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        Part name -> value (ohms or farads).
+    separate : tuple of str
+        Parts compared only among themselves.
+
+    Returns
+    -------
+    float
+        Spread, >= 1 (1 when no two parts of one kind share a group).
+    """
+    out = 1.0
+    groups = ({k: v for k, v in components.items() if k not in separate},
+              {k: v for k, v in components.items() if k in separate})
+    for group in groups:
+        for prefix in ("R", "C"):
+            vals = [v for k, v in group.items() if k.startswith(prefix)]
+            if len(vals) >= 2:
+                out = max(out, max(vals) / min(vals))
+    return out
+
+
+def max_log_sensitivity(fn: Callable[[Mapping[str, float]], float],
+                        components: Mapping[str, float]) -> float:
+    """Largest |d ln fn / d ln x| over the parts x (central differences in ln x).
+
+    Parameters
+    ----------
+    fn : callable
+        Figure (e.g. Q) as a function of the part values.
+    components : mapping of str to float
+        Part values at which to differentiate.
+
+    Returns
+    -------
+    float
+        max |S_x^fn| (0 when there are no parts).
+
+    Notes
+    -----
+    Classical sensitivity S_x^y = (x/y) dy/dx (Schaumann & Van Valkenburg 2001, ch. 3
+    [mem]); the step h = 1e-5 in ln x leaves an O(h^2) = 1e-10 error.
+    """
+    h = 1e-5
+    worst = 0.0
+    for name in components:
+        up, down = dict(components), dict(components)
+        up[name] *= math.exp(h)
+        down[name] *= math.exp(-h)
+        s = (math.log(abs(fn(up))) - math.log(abs(fn(down)))) / (2 * h)
+        worst = max(worst, abs(s))
+    return worst
+
+
+def section_problems(section: Section, *, kind: str, inverting: bool,
+                     min_gain: float = 0.0) -> list[str]:
+    """Reasons a section cannot be built by a topology of `kind` and gain sign, or [].
+
+    Parameters
+    ----------
+    section : Section
+        The section.
+    kind : str
+        The topology's KIND.
+    inverting : bool
+        True when the topology's gain is negative.
+    min_gain : float
+        Smallest |gain| the topology reaches (non-inverting Sallen-Key: 1).
+
+    Returns
+    -------
+    list of str
+    """
+    problems: list[str] = []
+    if section.kind != kind:
+        problems.append(f"section kind {section.kind!r}: this topology builds {kind!r}")
+        return problems
+    if kind != "gain":
+        if not (section.f0_hz > 0 and math.isfinite(section.f0_hz)):
+            problems.append(f"f0 = {section.f0_hz!r} Hz: must be finite and > 0")
+        if not (section.q > 0 and math.isfinite(section.q)):
+            problems.append(f"Q = {section.q!r}: must be finite and > 0")
+    g = section.gain
+    if not (math.isfinite(g) and g != 0):
+        problems.append(f"gain = {g!r}: must be finite and non-zero")
+    elif inverting and g > 0:
+        problems.append(f"gain = {g:.6g} V/V: this topology inverts (gain < 0 only)")
+    elif not inverting and g < 0:
+        problems.append(f"gain = {g:.6g} V/V: this topology does not invert (gain > 0 only)")
+    elif abs(g) < min_gain and not is_unity(abs(g) / min_gain):
+        problems.append(f"gain = {g:.6g} V/V: below the {min_gain:g} V/V this topology "
+                        "reaches; run it at unity and put the attenuation in a gain stage")
+    return problems
+
+
+def require(section: Section, **kwargs) -> None:
+    """Raise InfeasibleDesign (or ValueError for a wrong kind) if `section_problems` finds any."""
+    problems = section_problems(section, **kwargs)
+    if problems:
+        if section.kind != kwargs["kind"]:
+            raise ValueError(problems[0])
+        raise InfeasibleDesign("; ".join(problems))
+
+
+def infeasible_limits(problems: list[str], opamps: int) -> Limits:
+    """Limits of a section that has no design at all: every figure is infinite."""
+    return Limits(feasible=False, reasons=tuple(problems), gbw_needed_hz=math.inf,
+                  spread=math.inf, q_sensitivity=math.inf, noise_gain=math.inf,
+                  opamps=opamps)
+
+
+def gbw_reason(needed_hz: float, model_gbw_hz: float, what: str) -> tuple[bool, str]:
+    """(ok, reason) of the GBW comparison, with both figures in the text."""
+    ok = model_gbw_hz >= needed_hz
+    verdict = "meets" if ok else "falls short of"
+    return ok, (f"GBW {model_gbw_hz:.4g} Hz {verdict} the {needed_hz:.4g} Hz needed "
+                f"({what})")

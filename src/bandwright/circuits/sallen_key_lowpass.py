@@ -1,0 +1,299 @@
+"""Sallen-Key second-order lowpass (one op-amp, non-inverting), equal-resistor design.
+
+Circuit (element list)::
+
+    in --R1-- mid --R2-- ninp --C2-- 0        U1: + = ninp, - = fb (or out), output out
+               |
+               +--C1-- out                     Rf: out--fb, Rg: fb--0 (only for gain K > 1)
+
+C1 is the feedback capacitor, C2 the grounded one. With K = 1 + Rf/Rg (K = 1: the op-amp is
+a follower, Rf and Rg are not fitted and the inverting input is tied to out):
+
+    H(s) = K / (s^2 R1 R2 C1 C2 + s [C2 (R1 + R2) + R1 C1 (1 - K)] + 1)
+
+Design
+------
+Equal resistors R1 = R2 = R and a capacitor ratio m = C1/C2 that gives Q at gain K:
+Q = sqrt(m) / (2 + m (1 - K)), solved as sqrt(m) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))).
+
+* K = 1 (the usual case in the wideband path): m = 4 Q^2 (references.md, "Lowpass/highpass").
+* K = 3 - 1/Q gives m = 1: the equal-component design (Sallen & Key 1955 [mem]), with the
+  gain tied to Q. Any other K >= 1 is allowed; its Q sensitivity to Rf/Rg grows with K, so
+  the wideband path normally runs this section at unity gain and gives the rest of the
+  gain to a gain stage.
+* Gains below 1 or negative are infeasible (``limits`` says why).
+
+``c_farads`` is the **smaller** of the two capacitors: C2 when m >= 1, else C1. The other
+is m (or 1/m) times larger and is not an E-series value; when parts are rounded, the ratio
+C1/C2 must stay >= the ideal one at unity gain (below 4 Q^2 no resistor pair reaches Q),
+and ``resistors_for_capacitors`` re-solves R1, R2 exactly for the rounded capacitors.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+
+from bandwright.circuits import _lphp_common as common
+from bandwright.circuits.base import Figures, Limits
+from bandwright.circuits.elements import Element, capacitor, opamp, resistor
+from bandwright.errors import InfeasibleDesign
+from bandwright.parts.opamp import OpAmp
+from bandwright.sections.section import Section
+
+__all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
+           "INVERTING", "design", "elements", "limits", "ideal_figures",
+           "resistors_for_capacitors", "noise_gain_numerator"]
+
+NAME = "sallen_key_lowpass"
+KIND = "lowpass"
+OPAMPS = 1
+PARTS: tuple[str, ...] = ("R1", "R2", "C1", "C2", "Rf", "Rg")
+#: Parts a design may leave out: at unity gain Rf and Rg are not fitted (follower).
+OPTIONAL_PARTS: tuple[str, ...] = ("Rf", "Rg")
+#: Net roles. "fb" exists only when Rf and Rg are fitted; otherwise the inverting input is "out".
+NETS: Mapping[str, str] = {"in": "in", "out": "out", "mid": "mid", "ninp": "ninp", "fb": "fb"}
+REFERENCE = ("R. P. Sallen, E. L. Key, 'A practical method of designing RC active filters', "
+             "IRE Trans. Circuit Theory CT-2, 1955 [mem]; equal-R unity-gain design "
+             "C1/C2 = 4Q^2")
+INVERTING = False
+
+# The impedance scale used by `limits`: every figure it reports is scale-free.
+_NOMINAL_C_FARADS = 1e-9
+
+
+def _gain_k(components: Mapping[str, float]) -> float:
+    if "Rf" in components and "Rg" in components:
+        return 1.0 + components["Rf"] / components["Rg"]
+    return 1.0
+
+
+def _coefficients(components: Mapping[str, float]) -> tuple[float, float, float]:
+    """(a2, a1, K) of the denominator a2 s^2 + a1 s + 1 and the gain K."""
+    r1, r2 = components["R1"], components["R2"]
+    c1, c2 = components["C1"], components["C2"]
+    k = _gain_k(components)
+    return r1 * r2 * c1 * c2, c2 * (r1 + r2) + r1 * c1 * (1 - k), k
+
+
+def ideal_figures(components: Mapping[str, float]) -> Figures:
+    """f0, Q and DC gain with an ideal op-amp.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        R1, R2 (ohms), C1, C2 (farads), optionally Rf, Rg (ohms).
+
+    Returns
+    -------
+    Figures
+        f0 = 1/(2 pi sqrt(R1 R2 C1 C2)), Q = sqrt(R1 R2 C1 C2)/[C2 (R1+R2) + R1 C1 (1-K)],
+        gain K (module docstring; Sallen & Key 1955 [mem], derived by nodal analysis).
+        Q is negative when the denominator's middle term is (an unstable design).
+    """
+    a2, a1, k = _coefficients(components)
+    return Figures(f0_hz=1 / (2 * math.pi * math.sqrt(a2)), q=math.sqrt(a2) / a1, gain=k)
+
+
+def noise_gain_numerator(components: Mapping[str, float]) -> tuple[float, float, float]:
+    """(n2, n1, n0) of the ideal noise gain NG(s) = N(s)/(s^2 + (w0/Q) s + w0^2).
+
+    Notes
+    -----
+    NG = K (s^2 R1R2C1C2 + s (R1C1 + R1C2 + R2C2) + 1) / D(s): a voltage in series with the
+    + input sees the passive network's own poles in its numerator (nodal analysis, checked
+    with sympy in the tests).
+    """
+    a2, _, k = _coefficients(components)
+    r1, r2 = components["R1"], components["R2"]
+    c1, c2 = components["C1"], components["C2"]
+    return k, k * (r1 * c1 + r1 * c2 + r2 * c2) / a2, k / a2
+
+
+def _require(section: Section) -> None:
+    common.require(section, kind=KIND, inverting=INVERTING, min_gain=1.0)
+
+
+def _gain_resistors(k: float) -> dict[str, float]:
+    if common.is_unity(k):
+        return {}
+    rf, rg = common.ratio_pair(k - 1.0)
+    return {"Rf": rf, "Rg": rg}
+
+
+def design(section: Section, *, c_farads: float) -> dict[str, float]:
+    """Ideal-op-amp part values for a lowpass section.
+
+    Parameters
+    ----------
+    section : Section
+        kind "lowpass", f0_hz > 0, q > 0, gain >= 1 (V/V, DC).
+    c_farads : float
+        The smaller of C1 and C2, farads.
+
+    Returns
+    -------
+    dict of str to float
+        R1, R2, C1, C2 and, for gain > 1, Rf and Rg (the smaller of them 10 kOhm).
+
+    Raises
+    ------
+    ValueError
+        If the section is not a lowpass or `c_farads` is not > 0.
+    InfeasibleDesign
+        If the gain is < 1, or f0 or Q is not > 0.
+
+    Notes
+    -----
+    Equal R; sqrt(C1/C2) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))), i.e. C1/C2 = 4Q^2 at K = 1
+    (references.md; Sallen & Key 1955 [mem]); R = 1 / (w0 sqrt(C1 C2)).
+    """
+    if not c_farads > 0:
+        raise ValueError(f"c_farads must be > 0; got {c_farads}")
+    _require(section)
+    k = 1.0 if common.is_unity(section.gain) else section.gain
+    q = section.q
+    # Rationalised root of (K-1) Q x^2 + x - 2Q = 0: no cancellation as K -> 1.
+    x = 4 * q / (1 + math.sqrt(1 + 8 * q * q * (k - 1)))
+    m = x * x                                                    # C1 / C2
+    c1, c2 = (m * c_farads, c_farads) if m >= 1 else (c_farads, c_farads / m)
+    r_ohms = 1 / (2 * math.pi * section.f0_hz * math.sqrt(c1 * c2))
+    return {"R1": r_ohms, "R2": r_ohms, "C1": c1, "C2": c2, **_gain_resistors(k)}
+
+
+def resistors_for_capacitors(section: Section, *, c1_farads: float,
+                             c2_farads: float) -> dict[str, float]:
+    """R1, R2 (and Rf, Rg) that give the section exactly with the given capacitors.
+
+    Parameters
+    ----------
+    section : Section
+        kind "lowpass", gain >= 1.
+    c1_farads, c2_farads : float
+        Feedback and grounded capacitor, farads (e.g. already rounded to a series).
+
+    Returns
+    -------
+    dict of str to float
+        R1, R2, C1, C2 (and Rf, Rg for gain > 1). Of two solutions the one with the
+        smaller R1/R2 spread.
+
+    Raises
+    ------
+    InfeasibleDesign
+        If no positive R1, R2 exist (at unity gain: C1/C2 < 4 Q^2).
+
+    Notes
+    -----
+    With u = R1 and R2 = 1/(w0^2 C1 C2 u), matching the middle coefficient gives
+    [C2 + C1 (1-K)] u^2 - u/(w0 Q) + 1/(w0^2 C1) = 0 (from the transfer function above).
+    """
+    _require(section)
+    k = 1.0 if common.is_unity(section.gain) else section.gain
+    w0 = 2 * math.pi * section.f0_hz
+    c1, c2 = c1_farads, c2_farads
+    a, b, c = c2 + c1 * (1 - k), -1 / (w0 * section.q), 1 / (w0 * w0 * c1)
+    if abs(a) < 1e-12 * c2:
+        roots = [-c / b]
+    else:
+        disc = b * b - 4 * a * c
+        if disc < 0:
+            raise InfeasibleDesign(
+                f"C1/C2 = {c1 / c2:.4g} is below the {4 * section.q ** 2:.4g} needed for "
+                f"Q = {section.q:.4g} at gain {k:.4g}" if common.is_unity(k) else
+                f"no resistor pair reaches Q = {section.q:.4g} with C1/C2 = {c1 / c2:.4g}")
+        sq = math.sqrt(disc)
+        roots = [(-b + sq) / (2 * a), (-b - sq) / (2 * a)]
+    best = None
+    for r1 in roots:
+        if r1 > 0:
+            r2 = 1 / (w0 * w0 * c1 * c2 * r1)
+            ratio = max(r1, r2) / min(r1, r2)
+            if best is None or ratio < best[0]:
+                best = (ratio, r1, r2)
+    if best is None:
+        raise InfeasibleDesign(f"no positive resistors reach Q = {section.q:.4g} with "
+                               f"C1/C2 = {c1 / c2:.4g}")
+    return {"R1": best[1], "R2": best[2], "C1": c1, "C2": c2, **_gain_resistors(k)}
+
+
+def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
+    """Element list of the section.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        R1, R2, C1, C2 and optionally both of Rf, Rg.
+    model : OpAmp
+        The op-amp model.
+
+    Returns
+    -------
+    tuple of Element
+
+    Raises
+    ------
+    ValueError
+        If only one of Rf, Rg is given, or a part is not in PARTS.
+    """
+    unknown = set(components) - set(PARTS)
+    if unknown:
+        raise ValueError(f"{NAME}: unknown parts {sorted(unknown)}; expected {PARTS}")
+    has_gain = ("Rf" in components, "Rg" in components)
+    if has_gain[0] != has_gain[1]:
+        raise ValueError(f"{NAME}: Rf and Rg go together (both or neither)")
+    inv = "fb" if has_gain[0] else "out"
+    out: list[Element] = [
+        resistor("R1", "in", "mid", components["R1"]),
+        resistor("R2", "mid", "ninp", components["R2"]),
+        capacitor("C1", "mid", "out", components["C1"]),
+        capacitor("C2", "ninp", "0", components["C2"]),
+    ]
+    if has_gain[0]:
+        out += [resistor("Rf", "out", "fb", components["Rf"]),
+                resistor("Rg", "fb", "0", components["Rg"])]
+    out.append(opamp("U1", "ninp", inv, "out", model))
+    return tuple(out)
+
+
+def limits(section: Section, model: OpAmp) -> Limits:
+    """What this topology needs and offers for one section.
+
+    Parameters
+    ----------
+    section : Section
+        The lowpass section.
+    model : OpAmp
+        The op-amp model.
+
+    Returns
+    -------
+    Limits
+        Infeasible for a gain < 1 or negative, a spread above ``MAX_SPREAD`` or too little
+        GBW. ``gbw_needed_hz`` keeps the first-order finite-GBW shifts of f0 and Q within
+        10 % (derived, see ``circuits._lphp_common``; at unity gain it is 10 Q f0, a tenth
+        of the common-practice 100 Q f0 that assumes no predistortion). ``spread`` is the
+        larger of C1/C2 (the resistors are equal) and Rf/Rg. ``noise_gain`` is |NG(j w0)|,
+        1 + 2 Q^2 at unity gain: far above K near f0.
+    """
+    problems = common.section_problems(section, kind=KIND, inverting=INVERTING, min_gain=1.0)
+    if problems:
+        return common.infeasible_limits(problems, OPAMPS)
+    parts = design(section, c_farads=_NOMINAL_C_FARADS)
+    fig = ideal_figures(parts)
+    ng = noise_gain_numerator(parts)
+    needed = common.gbw_needed_hz(section.f0_hz, common.finite_gbw_shift(fig.f0_hz, fig.q, ng))
+    spread = common.spread(parts, separate=OPTIONAL_PARTS)
+    q_sens = common.max_log_sensitivity(lambda p: ideal_figures(p).q, parts)
+    gbw_ok, gbw_text = common.gbw_reason(needed, model.gbw_hz, "first-order f0 and Q shift "
+                                         "<= 10 %")
+    reasons = [f"C1/C2 = {parts['C1'] / parts['C2']:.4g}, R1 = R2, gain {fig.gain:.4g} V/V"
+               + (" (follower)" if "Rf" not in parts else ""), gbw_text,
+               f"max |S^Q| = {q_sens:.3g}"]
+    spread_ok = spread <= common.MAX_SPREAD
+    if not spread_ok:
+        reasons.append(f"component spread {spread:.4g} exceeds {common.MAX_SPREAD:g}")
+    return Limits(feasible=gbw_ok and spread_ok, reasons=tuple(reasons), gbw_needed_hz=needed,
+                  spread=spread, q_sensitivity=q_sens,
+                  noise_gain=common.noise_gain_at(section.f0_hz, fig.f0_hz, fig.q, ng),
+                  opamps=OPAMPS)
