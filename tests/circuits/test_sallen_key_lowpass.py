@@ -272,7 +272,8 @@ def test_follower_element_list_and_part_checks():
         skl.elements({**FOLLOWER_PARTS, "R9": 1.0}, IDEAL)
 
 
-@pytest.mark.parametrize("gain,ratio_factor", [(1.0, 1.2), (1.0, 3.0), (2.0, 1.5), (2.0, 0.9)])
+@pytest.mark.parametrize("gain,ratio_factor", [(1.0, 1.0), (1.0, 1.2), (1.0, 3.0),
+                                                     (2.0, 1.5), (2.0, 0.9)])
 def test_resistors_for_rounded_capacitors_hit_target(gain, ratio_factor):
     """[nodal] re-solved R1, R2 for a capacitor ratio off the design's still hit target."""
     q, f0_hz = 2.5, 3e3

@@ -197,6 +197,8 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
         roots = [-c / b]
     else:
         disc = b * b - 4 * a * c
+        if -1e-9 * b * b < disc < 0:
+            disc = 0.0  # round-off at exactly the minimum ratio (the design's own point)
         if disc < 0:
             raise InfeasibleDesign(
                 f"C1/C2 = {c1 / c2:.4g} is below the {4 * section.q ** 2:.4g} needed for "
