@@ -1,0 +1,228 @@
+"""Sallen-Key second-order highpass (one op-amp, non-inverting), equal-capacitor design.
+
+Circuit (element list)::
+
+    in --C1-- mid --C2-- ninp --R2-- 0        U1: + = ninp, - = fb (or out), output out
+               |
+               +--R1-- out                     Rf: out--fb, Rg: fb--0 (only for gain K > 1)
+
+R1 is the feedback resistor, R2 the grounded one; the RC dual of the Sallen-Key lowpass.
+With K = 1 + Rf/Rg (K = 1: follower, Rf and Rg not fitted):
+
+    H(s) = K s^2 R1 R2 C1 C2 / (s^2 R1 R2 C1 C2 + s [R1 (C1 + C2) + R2 C2 (1 - K)] + 1)
+
+Design
+------
+Equal capacitors C1 = C2 = C (``c_farads``) and a resistor ratio r = R2/R1 with
+Q = sqrt(r) / (2 + r (1 - K)), solved as sqrt(r) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))):
+
+* K = 1 (the usual case in the wideband path): R2/R1 = 4 Q^2 (references.md,
+  "Lowpass/highpass");
+* K = 3 - 1/Q gives R1 = R2: the equal-component design (Sallen & Key 1955 [mem]), gain
+  tied to Q. Other K >= 1 are allowed; the wideband path normally runs this section at
+  unity gain and gives the rest of the gain to a gain stage.
+
+R1 = 1 / (w0 C sqrt(r)), R2 = sqrt(r) / (w0 C). Gains below 1 or negative are infeasible.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+
+from bandwright.circuits import _lphp_common as common
+from bandwright.circuits.base import Figures, Limits
+from bandwright.circuits.elements import Element, capacitor, opamp, resistor
+from bandwright.parts.opamp import OpAmp
+from bandwright.sections.section import Section
+
+__all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
+           "INVERTING", "design", "elements", "limits", "ideal_figures",
+           "noise_gain_numerator"]
+
+NAME = "sallen_key_highpass"
+KIND = "highpass"
+OPAMPS = 1
+PARTS: tuple[str, ...] = ("C1", "C2", "R1", "R2", "Rf", "Rg")
+#: Parts a design may leave out: at unity gain Rf and Rg are not fitted (follower).
+OPTIONAL_PARTS: tuple[str, ...] = ("Rf", "Rg")
+#: Net roles. "fb" exists only when Rf and Rg are fitted; otherwise the inverting input is "out".
+NETS: Mapping[str, str] = {"in": "in", "out": "out", "mid": "mid", "ninp": "ninp", "fb": "fb"}
+REFERENCE = ("R. P. Sallen, E. L. Key, 'A practical method of designing RC active filters', "
+             "IRE Trans. Circuit Theory CT-2, 1955 [mem]; equal-C unity-gain design "
+             "R2/R1 = 4Q^2")
+INVERTING = False
+
+_NOMINAL_C_FARADS = 1e-9
+
+
+def _gain_k(components: Mapping[str, float]) -> float:
+    if "Rf" in components and "Rg" in components:
+        return 1.0 + components["Rf"] / components["Rg"]
+    return 1.0
+
+
+def _coefficients(components: Mapping[str, float]) -> tuple[float, float, float]:
+    """(a2, a1, K) of the denominator a2 s^2 + a1 s + 1 and the gain K."""
+    r1, r2 = components["R1"], components["R2"]
+    c1, c2 = components["C1"], components["C2"]
+    k = _gain_k(components)
+    return r1 * r2 * c1 * c2, r1 * (c1 + c2) + r2 * c2 * (1 - k), k
+
+
+def ideal_figures(components: Mapping[str, float]) -> Figures:
+    """f0, Q and high-frequency gain with an ideal op-amp.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        C1, C2 (farads), R1, R2 (ohms), optionally Rf, Rg (ohms).
+
+    Returns
+    -------
+    Figures
+        f0 = 1/(2 pi sqrt(R1 R2 C1 C2)), Q = sqrt(R1 R2 C1 C2)/[R1 (C1+C2) + R2 C2 (1-K)],
+        gain K (module docstring; derived by nodal analysis, checked with sympy).
+    """
+    a2, a1, k = _coefficients(components)
+    return Figures(f0_hz=1 / (2 * math.pi * math.sqrt(a2)), q=math.sqrt(a2) / a1, gain=k)
+
+
+def noise_gain_numerator(components: Mapping[str, float]) -> tuple[float, float, float]:
+    """(n2, n1, n0) of the ideal noise gain NG(s) = N(s)/(s^2 + (w0/Q) s + w0^2).
+
+    Notes
+    -----
+    NG = K (s^2 R1R2C1C2 + s (R1C1 + R1C2 + R2C2) + 1) / D(s) (nodal analysis, checked with
+    sympy in the tests): the same form as the Sallen-Key lowpass.
+    """
+    a2, _, k = _coefficients(components)
+    r1, r2 = components["R1"], components["R2"]
+    c1, c2 = components["C1"], components["C2"]
+    return k, k * (r1 * c1 + r1 * c2 + r2 * c2) / a2, k / a2
+
+
+def _require(section: Section) -> None:
+    common.require(section, kind=KIND, inverting=INVERTING, min_gain=1.0)
+
+
+def design(section: Section, *, c_farads: float) -> dict[str, float]:
+    """Ideal-op-amp part values for a highpass section.
+
+    Parameters
+    ----------
+    section : Section
+        kind "highpass", f0_hz > 0, q > 0, gain >= 1 (V/V, high-frequency).
+    c_farads : float
+        C1 = C2, farads.
+
+    Returns
+    -------
+    dict of str to float
+        C1, C2, R1, R2 and, for gain > 1, Rf and Rg (the smaller of them 10 kOhm).
+
+    Raises
+    ------
+    ValueError
+        If the section is not a highpass or `c_farads` is not > 0.
+    InfeasibleDesign
+        If the gain is < 1, or f0 or Q is not > 0.
+
+    Notes
+    -----
+    Equal C; sqrt(R2/R1) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))), i.e. R2/R1 = 4Q^2 at K = 1
+    (references.md; Sallen & Key 1955 [mem]).
+    """
+    if not c_farads > 0:
+        raise ValueError(f"c_farads must be > 0; got {c_farads}")
+    _require(section)
+    k = 1.0 if common.is_unity(section.gain) else section.gain
+    q = section.q
+    # Rationalised root of (K-1) Q x^2 + x - 2Q = 0: no cancellation as K -> 1.
+    x = 4 * q / (1 + math.sqrt(1 + 8 * q * q * (k - 1)))          # sqrt(R2 / R1)
+    w0 = 2 * math.pi * section.f0_hz
+    parts = {"C1": c_farads, "C2": c_farads, "R1": 1 / (w0 * c_farads * x),
+             "R2": x / (w0 * c_farads)}
+    if not common.is_unity(k):
+        rf, rg = common.ratio_pair(k - 1.0)
+        parts.update(Rf=rf, Rg=rg)
+    return parts
+
+
+def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
+    """Element list of the section.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        C1, C2, R1, R2 and optionally both of Rf, Rg.
+    model : OpAmp
+        The op-amp model.
+
+    Returns
+    -------
+    tuple of Element
+
+    Raises
+    ------
+    ValueError
+        If only one of Rf, Rg is given, or a part is not in PARTS.
+    """
+    unknown = set(components) - set(PARTS)
+    if unknown:
+        raise ValueError(f"{NAME}: unknown parts {sorted(unknown)}; expected {PARTS}")
+    has_gain = ("Rf" in components, "Rg" in components)
+    if has_gain[0] != has_gain[1]:
+        raise ValueError(f"{NAME}: Rf and Rg go together (both or neither)")
+    inv = "fb" if has_gain[0] else "out"
+    out: list[Element] = [
+        capacitor("C1", "in", "mid", components["C1"]),
+        capacitor("C2", "mid", "ninp", components["C2"]),
+        resistor("R1", "mid", "out", components["R1"]),
+        resistor("R2", "ninp", "0", components["R2"]),
+    ]
+    if has_gain[0]:
+        out += [resistor("Rf", "out", "fb", components["Rf"]),
+                resistor("Rg", "fb", "0", components["Rg"])]
+    out.append(opamp("U1", "ninp", inv, "out", model))
+    return tuple(out)
+
+
+def limits(section: Section, model: OpAmp) -> Limits:
+    """What this topology needs and offers for one section.
+
+    Parameters
+    ----------
+    section : Section
+        The highpass section.
+    model : OpAmp
+        The op-amp model.
+
+    Returns
+    -------
+    Limits
+        Infeasible for a gain < 1 or negative, a spread (R2/R1 = 4 Q^2 at unity gain) above
+        ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
+        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
+    """
+    problems = common.section_problems(section, kind=KIND, inverting=INVERTING, min_gain=1.0)
+    if problems:
+        return common.infeasible_limits(problems, OPAMPS)
+    parts = design(section, c_farads=_NOMINAL_C_FARADS)
+    fig = ideal_figures(parts)
+    ng = noise_gain_numerator(parts)
+    needed = common.gbw_needed_hz(section.f0_hz, common.finite_gbw_shift(fig.f0_hz, fig.q, ng))
+    spread = common.spread(parts, separate=OPTIONAL_PARTS)
+    q_sens = common.max_log_sensitivity(lambda p: ideal_figures(p).q, parts)
+    gbw_ok, gbw_text = common.gbw_reason(needed, model.gbw_hz, "first-order f0 and Q shift "
+                                         "<= 10 %")
+    reasons = [f"R2/R1 = {parts['R2'] / parts['R1']:.4g}, C1 = C2, gain {fig.gain:.4g} V/V"
+               + (" (follower)" if "Rf" not in parts else ""), gbw_text,
+               f"max |S^Q| = {q_sens:.3g}"]
+    spread_ok = spread <= common.MAX_SPREAD
+    if not spread_ok:
+        reasons.append(f"component spread {spread:.4g} exceeds {common.MAX_SPREAD:g}")
+    return Limits(feasible=gbw_ok and spread_ok, reasons=tuple(reasons), gbw_needed_hz=needed,
+                  spread=spread, q_sensitivity=q_sens,
+                  noise_gain=common.noise_gain_at(section.f0_hz, fig.f0_hz, fig.q, ng),
+                  opamps=OPAMPS)
