@@ -1,0 +1,252 @@
+"""Non-inverting flat gain stage: follower, amplifier or buffered divider (one op-amp).
+
+Three forms, chosen by the gain and told apart by the parts present (absent parts are not
+fitted, so every form's element list is valid for the nodal solver without zero-ohm or
+infinite resistors)::
+
+    gain = 1      follower            U1: + = in,  - = out
+    gain > 1      amplifier           U1: + = in,  - = fb;  Rf: out--fb, Rg: fb--0
+    0 < gain < 1  buffered divider    Ra: in--div, Rb: div--0;  U1: + = div, - = out
+
+gain = (Rb / (Ra + Rb)) · (1 + Rf/Rg), each factor 1 when its pair is absent (a combined
+divider and amplifier is also a valid element list). A gain within ``UNITY_RTOL`` of 1 is
+the follower.
+
+Resistors: the smaller of each pair is 10 kOhm (``BASE_R_OHMS``, common practice): it keeps
+the output load light and the Johnson noise modest; ``c_farads`` is ignored.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+
+from bandwright.circuits import _lphp_common as common
+from bandwright.circuits.base import Figures, Limits
+from bandwright.circuits.elements import Element, opamp, resistor
+from bandwright.parts.opamp import OpAmp
+from bandwright.sections.section import Section
+
+__all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
+           "INVERTING", "design", "elements", "limits", "ideal_figures", "noise_gain",
+           "bandwidth_hz", "gbw_needed_for_hz"]
+
+NAME = "noninverting_gain"
+KIND = "gain"
+OPAMPS = 1
+PARTS: tuple[str, ...] = ("Rf", "Rg", "Ra", "Rb")
+#: Every part is optional: a follower has none, an amplifier Rf and Rg, a divider Ra and Rb.
+OPTIONAL_PARTS: tuple[str, ...] = PARTS
+#: Net roles. "fb" exists only with Rf/Rg fitted, "div" only with Ra/Rb fitted.
+NETS: Mapping[str, str] = {"in": "in", "out": "out", "fb": "fb", "div": "div"}
+REFERENCE = ("Non-inverting amplifier, gain 1 + Rf/Rg; closed-loop bandwidth GBW / noise "
+             "gain: S. Franco, Design with Operational Amplifiers and Analog Integrated "
+             "Circuits, 4th ed., 2015, §1.4, §6.2 [mem]")
+INVERTING = False
+
+
+def _pairs(components: Mapping[str, float]) -> tuple[bool, bool]:
+    unknown = set(components) - set(PARTS)
+    if unknown:
+        raise ValueError(f"{NAME}: unknown parts {sorted(unknown)}; expected a subset of {PARTS}")
+    fb = ("Rf" in components, "Rg" in components)
+    div = ("Ra" in components, "Rb" in components)
+    if fb[0] != fb[1]:
+        raise ValueError(f"{NAME}: Rf and Rg go together (both or neither)")
+    if div[0] != div[1]:
+        raise ValueError(f"{NAME}: Ra and Rb go together (both or neither)")
+    return fb[0], div[0]
+
+
+def noise_gain(components: Mapping[str, float]) -> float:
+    """Noise gain 1 + Rf/Rg (1 for the follower and the divider), V/V.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        The fitted parts (ohms).
+
+    Returns
+    -------
+    float
+        1/beta of the loop (Franco 2015, §1.2 [mem]).
+    """
+    has_fb, _ = _pairs(components)
+    return 1.0 + components["Rf"] / components["Rg"] if has_fb else 1.0
+
+
+def ideal_figures(components: Mapping[str, float]) -> Figures:
+    """Flat gain with an ideal op-amp (f0 and Q are 0 for a gain stage).
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        The fitted parts (ohms).
+
+    Returns
+    -------
+    Figures
+        gain = Rb/(Ra + Rb) · (1 + Rf/Rg).
+    """
+    _, has_div = _pairs(components)
+    div = components["Rb"] / (components["Ra"] + components["Rb"]) if has_div else 1.0
+    return Figures(f0_hz=0.0, q=0.0, gain=div * noise_gain(components))
+
+
+def bandwidth_hz(components: Mapping[str, float], model: OpAmp) -> float:
+    """-3 dB bandwidth of the stage with the single-pole op-amp model, Hz.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        The fitted parts (ohms).
+    model : OpAmp
+        The op-amp model.
+
+    Returns
+    -------
+    float
+        GBW (1 + NG/A0) / NG; ~= GBW/NG (Franco 2015, §6.2 [mem]). Exact for
+        A(s) = A0/(1 + s A0/wt): the closed loop A/(1 + A/NG) has its one pole there.
+    """
+    ng = noise_gain(components)
+    return model.gbw_hz * (1 + ng / model.a0) / ng
+
+
+def gbw_needed_for_hz(section: Section, max_freq_hz: float) -> float:
+    """GBW keeping the gain error within ``GAIN_ERROR_LIMIT`` (1 %) up to `max_freq_hz`.
+
+    Parameters
+    ----------
+    section : Section
+        The gain section.
+    max_freq_hz : float
+        Highest signal frequency the stage must pass, Hz.
+
+    Returns
+    -------
+    float
+        NG · f_max / sqrt(1/(1 - 0.01)^2 - 1) ~= 7.02 NG f_max, Hz: the single-pole closed
+        loop falls as 1/sqrt(1 + (f/f_b)^2), f_b = GBW/NG (Franco 2015, §6.2 [mem]).
+    """
+    ng = noise_gain(design(section))
+    return ng * max_freq_hz / math.sqrt(1 / (1 - common.GAIN_ERROR_LIMIT) ** 2 - 1)
+
+
+def design(section: Section, *, c_farads: float | None = None) -> dict[str, float]:
+    """Part values for a non-inverting gain.
+
+    Parameters
+    ----------
+    section : Section
+        kind "gain", gain > 0 (V/V).
+    c_farads : float, optional
+        Ignored (no capacitors); accepted for the common topology interface.
+
+    Returns
+    -------
+    dict of str to float
+        {} for unity gain; Rf, Rg for gain > 1 (Rf/Rg = gain - 1); Ra, Rb for gain < 1
+        (Rb/(Ra+Rb) = gain). The smaller resistor of a pair is 10 kOhm.
+
+    Raises
+    ------
+    ValueError
+        If the section is not of kind "gain".
+    InfeasibleDesign
+        If the gain is not > 0.
+    """
+    common.require(section, kind=KIND, inverting=INVERTING)
+    g = section.gain
+    if common.is_unity(g):
+        return {}
+    if g > 1:
+        rf, rg = common.ratio_pair(g - 1.0)
+        return {"Rf": rf, "Rg": rg}
+    ra, rb = common.ratio_pair((1.0 - g) / g)
+    return {"Ra": ra, "Rb": rb}
+
+
+def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
+    """Element list of the stage (see the module docstring for the three forms).
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        A subset of PARTS: pairs Rf/Rg and Ra/Rb each fitted whole or not at all.
+    model : OpAmp
+        The op-amp model.
+
+    Returns
+    -------
+    tuple of Element
+
+    Raises
+    ------
+    ValueError
+        If a pair is half fitted or a part is unknown.
+    """
+    has_fb, has_div = _pairs(components)
+    out: list[Element] = []
+    plus = "in"
+    if has_div:
+        plus = "div"
+        out += [resistor("Ra", "in", "div", components["Ra"]),
+                resistor("Rb", "div", "0", components["Rb"])]
+    minus = "out"
+    if has_fb:
+        minus = "fb"
+        out += [resistor("Rf", "out", "fb", components["Rf"]),
+                resistor("Rg", "fb", "0", components["Rg"])]
+    out.append(opamp("U1", plus, minus, "out", model))
+    return tuple(out)
+
+
+def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) -> Limits:
+    """What this stage needs and offers.
+
+    Parameters
+    ----------
+    section : Section
+        The gain section.
+    model : OpAmp
+        The op-amp model.
+    max_freq_hz : float, optional
+        Highest signal frequency, Hz. A gain section carries no frequency, so without it
+        ``gbw_needed_hz`` is 0 (nothing can be said) and a reason says so.
+
+    Returns
+    -------
+    Limits
+        Infeasible for a gain <= 0, a resistor ratio above ``MAX_SPREAD`` or, with
+        `max_freq_hz`, too little GBW (``gbw_needed_for_hz``). ``noise_gain`` is 1 + Rf/Rg,
+        ``q_sensitivity`` 0 (no Q).
+    """
+    problems = common.section_problems(section, kind=KIND, inverting=INVERTING)
+    if problems:
+        return common.infeasible_limits(problems, OPAMPS)
+    parts = design(section)
+    ng = noise_gain(parts)
+    if not parts:
+        form = "follower"
+    elif "Rf" in parts:
+        form = f"amplifier, Rf/Rg = {parts['Rf'] / parts['Rg']:.4g}"
+    else:
+        form = f"buffered divider, Rb/(Ra+Rb) = {parts['Rb'] / (parts['Ra'] + parts['Rb']):.4g}"
+    reasons = [f"{form}; noise gain {ng:.4g}; bandwidth {bandwidth_hz(parts, model):.4g} Hz"]
+    ok = True
+    if max_freq_hz is None:
+        needed = 0.0
+        reasons.append("GBW need set by the highest signal frequency (pass max_freq_hz): "
+                       f"{ng / math.sqrt(1 / (1 - common.GAIN_ERROR_LIMIT) ** 2 - 1):.4g} x f_max")
+    else:
+        needed = gbw_needed_for_hz(section, max_freq_hz)
+        ok, text = common.gbw_reason(needed, model.gbw_hz,
+                                     f"gain error <= 1 % at {max_freq_hz:.4g} Hz")
+        reasons.append(text)
+    spread = common.spread(parts)
+    if spread > common.MAX_SPREAD:
+        ok = False
+        reasons.append(f"resistor ratio {spread:.4g} exceeds {common.MAX_SPREAD:g}")
+    return Limits(feasible=ok, reasons=tuple(reasons), gbw_needed_hz=needed, spread=spread,
+                  q_sensitivity=0.0, noise_gain=ng, opamps=OPAMPS)
