@@ -1,0 +1,216 @@
+"""Inverting flat gain stage (one op-amp): gain -Rf/Rin, any magnitude.
+
+Circuit (element list)::
+
+    in --Rin-- ninv --Rf-- out        U1: + = 0, - = ninv, output out
+
+gain = -Rf/Rin, noise gain 1 + Rf/Rin, input resistance Rin (it loads the stage ahead).
+Attenuation (|gain| < 1) needs nothing extra.
+
+Resistors: the smaller of Rf, Rin is 10 kOhm (``BASE_R_OHMS``, common practice), so the
+input resistance is never below 10 kOhm; ``c_farads`` is ignored.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+
+from bandwright.circuits import _lphp_common as common
+from bandwright.circuits.base import Figures, Limits
+from bandwright.circuits.elements import Element, opamp, resistor
+from bandwright.parts.opamp import OpAmp
+from bandwright.sections.section import Section
+
+__all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
+           "INVERTING", "design", "elements", "limits", "ideal_figures", "noise_gain",
+           "bandwidth_hz", "gbw_needed_for_hz"]
+
+NAME = "inverting_gain"
+KIND = "gain"
+OPAMPS = 1
+PARTS: tuple[str, ...] = ("Rin", "Rf")
+OPTIONAL_PARTS: tuple[str, ...] = ()
+NETS: Mapping[str, str] = {"in": "in", "out": "out", "ninv": "ninv"}
+REFERENCE = ("Inverting amplifier, gain -Rf/Rin, noise gain 1 + Rf/Rin; closed-loop "
+             "bandwidth GBW / noise gain: S. Franco, Design with Operational Amplifiers and "
+             "Analog Integrated Circuits, 4th ed., 2015, §1.3, §6.2 [mem]")
+INVERTING = True
+
+
+def _check_parts(components: Mapping[str, float]) -> None:
+    if set(components) != set(PARTS):
+        raise ValueError(f"{NAME}: parts must be exactly {PARTS}; got {sorted(components)}")
+
+
+def noise_gain(components: Mapping[str, float]) -> float:
+    """Noise gain 1 + Rf/Rin, V/V.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        Rin, Rf (ohms).
+
+    Returns
+    -------
+    float
+        1/beta of the loop (Franco 2015, §1.3 [mem]).
+    """
+    _check_parts(components)
+    return 1.0 + components["Rf"] / components["Rin"]
+
+
+def ideal_figures(components: Mapping[str, float]) -> Figures:
+    """Flat gain -Rf/Rin with an ideal op-amp (f0 and Q are 0 for a gain stage).
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        Rin, Rf (ohms).
+
+    Returns
+    -------
+    Figures
+    """
+    _check_parts(components)
+    return Figures(f0_hz=0.0, q=0.0, gain=-components["Rf"] / components["Rin"])
+
+
+def bandwidth_hz(components: Mapping[str, float], model: OpAmp) -> float:
+    """-3 dB bandwidth of the stage with the single-pole op-amp model, Hz.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        Rin, Rf (ohms).
+    model : OpAmp
+        The op-amp model.
+
+    Returns
+    -------
+    float
+        GBW (1 + NG/A0) / NG ~= GBW/NG, NG = 1 + Rf/Rin (Franco 2015, §6.2 [mem]). Exact
+        for A(s) = A0/(1 + s A0/wt): -(Rf/Rin) A/(A + NG) has its one pole there.
+    """
+    ng = noise_gain(components)
+    return model.gbw_hz * (1 + ng / model.a0) / ng
+
+
+def gbw_needed_for_hz(section: Section, max_freq_hz: float) -> float:
+    """GBW keeping the gain error within ``GAIN_ERROR_LIMIT`` (1 %) up to `max_freq_hz`.
+
+    Parameters
+    ----------
+    section : Section
+        The gain section.
+    max_freq_hz : float
+        Highest signal frequency the stage must pass, Hz.
+
+    Returns
+    -------
+    float
+        NG · f_max / sqrt(1/(1 - 0.01)^2 - 1) ~= 7.02 NG f_max, Hz (single-pole closed
+        loop, Franco 2015, §6.2 [mem]).
+    """
+    ng = noise_gain(design(section))
+    return ng * max_freq_hz / math.sqrt(1 / (1 - common.GAIN_ERROR_LIMIT) ** 2 - 1)
+
+
+def design(section: Section, *, c_farads: float | None = None) -> dict[str, float]:
+    """Part values for an inverting gain.
+
+    Parameters
+    ----------
+    section : Section
+        kind "gain", gain < 0 (V/V).
+    c_farads : float, optional
+        Ignored (no capacitors); accepted for the common topology interface.
+
+    Returns
+    -------
+    dict of str to float
+        Rin, Rf with Rf/Rin = |gain|, the smaller 10 kOhm.
+
+    Raises
+    ------
+    ValueError
+        If the section is not of kind "gain".
+    InfeasibleDesign
+        If the gain is not < 0.
+    """
+    common.require(section, kind=KIND, inverting=INVERTING)
+    rf, rin = common.ratio_pair(abs(section.gain))
+    return {"Rin": rin, "Rf": rf}
+
+
+def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
+    """Element list of the stage.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        Rin, Rf (ohms).
+    model : OpAmp
+        The op-amp model.
+
+    Returns
+    -------
+    tuple of Element
+
+    Raises
+    ------
+    ValueError
+        If a part is missing or unknown.
+    """
+    _check_parts(components)
+    return (
+        resistor("Rin", "in", "ninv", components["Rin"]),
+        resistor("Rf", "ninv", "out", components["Rf"]),
+        opamp("U1", "0", "ninv", "out", model),
+    )
+
+
+def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) -> Limits:
+    """What this stage needs and offers.
+
+    Parameters
+    ----------
+    section : Section
+        The gain section.
+    model : OpAmp
+        The op-amp model.
+    max_freq_hz : float, optional
+        Highest signal frequency, Hz. A gain section carries no frequency, so without it
+        ``gbw_needed_hz`` is 0 (nothing can be said) and a reason says so.
+
+    Returns
+    -------
+    Limits
+        Infeasible for a gain >= 0, a resistor ratio above ``MAX_SPREAD`` or, with
+        `max_freq_hz`, too little GBW. ``noise_gain`` is 1 + |gain| -- one more than the
+        non-inverting stage of the same |gain| -- and ``q_sensitivity`` 0 (no Q).
+    """
+    problems = common.section_problems(section, kind=KIND, inverting=INVERTING)
+    if problems:
+        return common.infeasible_limits(problems, OPAMPS)
+    parts = design(section)
+    ng = noise_gain(parts)
+    reasons = [f"Rf/Rin = {parts['Rf'] / parts['Rin']:.4g}; input resistance "
+               f"{parts['Rin']:.4g} ohm; noise gain {ng:.4g}; bandwidth "
+               f"{bandwidth_hz(parts, model):.4g} Hz"]
+    ok = True
+    if max_freq_hz is None:
+        needed = 0.0
+        reasons.append("GBW need set by the highest signal frequency (pass max_freq_hz): "
+                       f"{ng / math.sqrt(1 / (1 - common.GAIN_ERROR_LIMIT) ** 2 - 1):.4g} x f_max")
+    else:
+        needed = gbw_needed_for_hz(section, max_freq_hz)
+        ok, text = common.gbw_reason(needed, model.gbw_hz,
+                                     f"gain error <= 1 % at {max_freq_hz:.4g} Hz")
+        reasons.append(text)
+    spread = common.spread(parts)
+    if spread > common.MAX_SPREAD:
+        ok = False
+        reasons.append(f"resistor ratio {spread:.4g} exceeds {common.MAX_SPREAD:g}")
+    return Limits(feasible=ok, reasons=tuple(reasons), gbw_needed_hz=needed, spread=spread,
+                  q_sensitivity=0.0, noise_gain=ng, opamps=OPAMPS)
