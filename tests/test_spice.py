@@ -35,7 +35,7 @@ needs_ngspice = pytest.mark.skipif(not ngspice_available(), reason="ngspice not 
 # --- circuits ------------------------------------------------------------------------------
 
 def generic_opamp(*, name: str = "generic", gbw_hz: float = 3e6, dc_gain_db: float = 100.0,
-               e_w: float = 0.0, i_w: float = 0.0, corner_hz: float = 0.0) -> OpAmp:
+                  e_w: float = 0.0, i_w: float = 0.0, corner_hz: float = 0.0) -> OpAmp:
     """A made-up op-amp archetype (not a product)."""
     return OpAmp(name=name, gbw_hz=gbw_hz, dc_gain_db=dc_gain_db, slew_v_per_us=5.0,
                  swing_to_rail_v=1.0, noise_v_per_rthz=e_w, noise_a_per_rthz=i_w,
