@@ -7,8 +7,8 @@ them makes on a section before designing it.
 
 The finite-GBW criterion
 ------------------------
-For a single-op-amp circuit with open-loop gain A(s) the transfer is
-``H = H_ideal / (1 + NG(s)/A(s))``, NG being the noise gain 1/beta of the loop (Franco,
+For a single-op-amp circuit with open-loop gain A(s), the closed-loop poles are the roots
+of ``1 + A(s)/NG(s)``, the loop gain A·beta with NG = 1/beta the noise gain (Franco,
 *Design with Operational Amplifiers and Analog Integrated Circuits*, 4th ed., 2015, §1.2
 and §6.2 [mem]). With the integrator model ``A = wt/s`` (A0 -> inf) and
 ``NG = N(s)/D(s)``, D(s) = s^2 + b s + c the ideal denominator (b = w0/Q, c = w0^2) and
@@ -43,8 +43,8 @@ from bandwright.circuits.base import Limits
 from bandwright.errors import InfeasibleDesign
 from bandwright.sections.section import Section
 
-__all__ = ["GBW_SHIFT_LIMIT", "GAIN_ERROR_LIMIT", "MAX_SPREAD", "UNITY_RTOL", "BASE_R_OHMS", "is_unity",
-           "ratio_pair", "finite_gbw_shift", "gbw_needed_hz", "noise_gain_at",
+__all__ = ["GBW_SHIFT_LIMIT", "GAIN_ERROR_LIMIT", "MAX_SPREAD", "UNITY_RTOL", "BASE_R_OHMS",
+           "is_unity", "ratio_pair", "finite_gbw_shift", "gbw_needed_hz", "noise_gain_at",
            "spread", "max_log_sensitivity", "section_problems", "require", "infeasible_limits",
            "gbw_reason"]
 
@@ -64,7 +64,17 @@ BASE_R_OHMS = 10e3
 
 
 def is_unity(gain: float) -> bool:
-    """True when `gain` is 1 within ``UNITY_RTOL``."""
+    """True when `gain` is 1 within ``UNITY_RTOL``.
+
+    Parameters
+    ----------
+    gain : float
+        Gain, V/V.
+
+    Returns
+    -------
+    bool
+    """
     return abs(gain - 1.0) <= UNITY_RTOL
 
 
@@ -274,24 +284,71 @@ def section_problems(section: Section, *, kind: str, inverting: bool,
     return problems
 
 
-def require(section: Section, **kwargs) -> None:
-    """Raise InfeasibleDesign (or ValueError for a wrong kind) if `section_problems` finds any."""
-    problems = section_problems(section, **kwargs)
+def require(section: Section, *, kind: str, inverting: bool, min_gain: float = 0.0) -> None:
+    """Raise if `section_problems` finds any problem.
+
+    Parameters
+    ----------
+    section : Section
+        The section.
+    kind : str
+        The topology's KIND.
+    inverting : bool
+        True when the topology's gain is negative.
+    min_gain : float
+        Smallest |gain| the topology reaches.
+
+    Raises
+    ------
+    ValueError
+        If the section's kind is not `kind` (a caller's mistake).
+    InfeasibleDesign
+        For any other problem (a section this topology cannot build).
+    """
+    problems = section_problems(section, kind=kind, inverting=inverting, min_gain=min_gain)
     if problems:
-        if section.kind != kwargs["kind"]:
+        if section.kind != kind:
             raise ValueError(problems[0])
         raise InfeasibleDesign("; ".join(problems))
 
 
 def infeasible_limits(problems: list[str], opamps: int) -> Limits:
-    """Limits of a section that has no design at all: every figure is infinite."""
+    """Limits of a section that has no design at all: every figure is infinite.
+
+    Parameters
+    ----------
+    problems : list of str
+        The reasons.
+    opamps : int
+        Op-amp count of the topology.
+
+    Returns
+    -------
+    Limits
+        feasible False; gbw_needed_hz, spread, q_sensitivity and noise_gain ``math.inf``.
+    """
     return Limits(feasible=False, reasons=tuple(problems), gbw_needed_hz=math.inf,
                   spread=math.inf, q_sensitivity=math.inf, noise_gain=math.inf,
                   opamps=opamps)
 
 
 def gbw_reason(needed_hz: float, model_gbw_hz: float, what: str) -> tuple[bool, str]:
-    """(ok, reason) of the GBW comparison, with both figures in the text."""
+    """Compare the op-amp's GBW with the need.
+
+    Parameters
+    ----------
+    needed_hz : float
+        GBW needed, Hz.
+    model_gbw_hz : float
+        GBW of the op-amp model, Hz.
+    what : str
+        The criterion, for the text.
+
+    Returns
+    -------
+    (bool, str)
+        True when the GBW suffices, and the reason with both figures.
+    """
     ok = model_gbw_hz >= needed_hz
     verdict = "meets" if ok else "falls short of"
     return ok, (f"GBW {model_gbw_hz:.4g} Hz {verdict} the {needed_hz:.4g} Hz needed "
