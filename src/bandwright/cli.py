@@ -37,6 +37,9 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("--family", choices=FAMILIES, help="override design.family")
     pl.add_argument("--order", type=int, help="override design.order (1 to 20)")
     _common(pl)
+    au = sub.add_parser("audit", help="analyse and check a chain someone designed")
+    au.add_argument("chain", metavar="CHAIN.toml")
+    _common(au)
     return p
 
 
@@ -50,11 +53,11 @@ def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     err = Console(stderr=True, highlight=False, soft_wrap=True)
     try:
-        if args.order is not None and not 1 <= args.order <= 20:
+        if args.command == "plan" and args.order is not None and not 1 <= args.order <= 20:
             raise SpecError("--order", "", f"order {args.order} outside 1 to 20")
         if args.out is not None:
             check_out_dir(args.out, force=args.force)
-        return _run_plan(args)
+        return _run_plan(args) if args.command == "plan" else _run_audit(args)
     except SpecError as exc:
         err.print(f"bandwright: {exc}", markup=False)
         return 2
@@ -66,21 +69,46 @@ def main(argv: list[str] | None = None) -> int:
 def _run_plan(args: argparse.Namespace) -> int:
     # Imported here so that `--help` and usage errors stay fast.
     from bandwright.planner import plan
-    from bandwright.report.json_out import dumps
+    from bandwright.report.json_out import dumps, plan_to_dict
+    from bandwright.report.files import plan_files
     from bandwright.report.terminal import render_plan
     from bandwright.spec import load_spec
 
     req = load_spec(args.spec)
     result = plan(req, family=args.family, order=args.order)
-    text = dumps(result)
+    text = dumps(plan_to_dict(result))
     if args.out is not None:
-        write_out_dir(args.out, {"plan.json": text.encode()}, force=args.force)
+        write_out_dir(args.out, plan_files(result, text), force=args.force)
     if args.json:
         sys.stdout.write(text + "\n")
     else:
-        console = Console(width=max(100, Console().width), no_color="NO_COLOR" in os.environ,
-                          highlight=False)
+        console = _console()
         render_plan(result, console)
+        if args.out is not None:
+            console.print(f"Wrote {args.out}/")
+    return 1 if worst_status(result.checks) == "fail" else 0
+
+
+def _console() -> Console:
+    return Console(width=max(100, Console().width), no_color="NO_COLOR" in os.environ,
+                   highlight=False)
+
+
+def _run_audit(args: argparse.Namespace) -> int:
+    from bandwright.audit import audit
+    from bandwright.report.files import audit_files
+    from bandwright.report.json_out import audit_to_dict, dumps
+    from bandwright.report.terminal import render_audit
+
+    result = audit(args.chain)
+    text = dumps(audit_to_dict(result))
+    if args.out is not None:
+        write_out_dir(args.out, audit_files(result, text), force=args.force)
+    if args.json:
+        sys.stdout.write(text + "\n")
+    else:
+        console = _console()
+        render_audit(result, console)
         if args.out is not None:
             console.print(f"Wrote {args.out}/")
     return 1 if worst_status(result.checks) == "fail" else 0

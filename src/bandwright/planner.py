@@ -1,49 +1,105 @@
-"""The planner: candidates, the pick, and the chain's analyses and checks."""
+"""The planner: candidates → ordered, gain-scaled sections → circuits → chain → analyses →
+checks; the best candidate wins."""
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
 
-from bandwright.analysis.grid import response_grid
-from bandwright.analysis.response import Response, read_mask
+from bandwright.amplifier import resolve_amplifier
+from bandwright.analysis import Analyses, analyse
+from bandwright.analysis.grid import noise_band, noise_grid, passband_grid
 from bandwright.candidates import Candidate, make_candidates
+from bandwright.chain import Chain, Stage, build_chain
+from bandwright.chain.ordering import Ordering, choose_order, make_problem
+from bandwright.checks import all_checks
 from bandwright.checks.base import Check
-from bandwright.checks.mask import mask_checks
-from bandwright.sections.split import cascade_response
+from bandwright.circuits.assign import Assignment, assign
+from bandwright.circuits.nodal import noise as nodal_noise
+from bandwright.parts.opamp import OpAmp
+from bandwright.parts.windows import PartWindows
+from bandwright.sections.section import Section
 from bandwright.spec.requirement import Requirement
 
-__all__ = ["Plan", "plan"]
+__all__ = ["Plan", "Design", "plan", "build_design"]
+
+_GAIN_BACKOFF_STEPS = 8
 
 
-@dataclass(frozen=True, slots=True)
+@dataclass(frozen=True)
+class Design:
+    """One candidate carried all the way to a built chain (or as far as it could go).
+
+    Attributes
+    ----------
+    candidate : Candidate
+    ordering : Ordering or None
+    assignments : tuple of Assignment
+        In chain order.
+    chain : Chain or None
+        None when a section has no topology that builds it.
+    analyses : Analyses or None
+    checks : tuple of Check
+    """
+
+    candidate: Candidate
+    ordering: Ordering | None
+    assignments: tuple[Assignment, ...]
+    chain: Chain | None
+    analyses: Analyses | None
+    checks: tuple[Check, ...]
+
+    @property
+    def buildable(self) -> bool:
+        return self.chain is not None
+
+    @property
+    def failures(self) -> int:
+        return sum(c.status == "fail" for c in self.checks)
+
+    @property
+    def opamps(self) -> int:
+        if self.chain is None:
+            return 0
+        return sum(1 for st in self.chain.stages for e in st.elements if e.kind == "opamp")
+
+
+@dataclass(frozen=True)
 class Plan:
     """What `bandwright plan` found.
 
     Attributes
     ----------
     requirement : Requirement
-    candidates : tuple of Candidate
-        Ranked, best first.
-    chosen : Candidate
+    model : OpAmp
+    designs : tuple of Design
+        Every candidate, ranked, best first.
     why : str
-        Why the chosen candidate won.
-    response : Response
-        The chain's response on the report grid.
-    checks : tuple of Check
+        Why the first one won.
     """
 
     requirement: Requirement
-    candidates: tuple[Candidate, ...]
-    chosen: Candidate
+    model: OpAmp
+    designs: tuple[Design, ...]
     why: str
-    response: Response
-    checks: tuple[Check, ...]
+
+    @property
+    def chosen(self) -> Design:
+        return self.designs[0]
+
+    @property
+    def candidates(self) -> tuple[Candidate, ...]:
+        return tuple(d.candidate for d in self.designs)
+
+    @property
+    def checks(self) -> tuple[Check, ...]:
+        return self.chosen.checks
 
 
 def plan(requirement: Requirement, *, family: str | None = None,
-         order: int | None = None) -> Plan:
+         order: int | None = None, windows: PartWindows = PartWindows()) -> Plan:
     """Plan a chain for `requirement`.
 
     Parameters
@@ -53,27 +109,142 @@ def plan(requirement: Requirement, *, family: str | None = None,
         Overrides `design.family`.
     order : int, optional
         Overrides `design.order`.
+    windows : PartWindows, optional
+        Preferred part-value ranges.
+
+    Raises
+    ------
+    SpecError
+        When the amplifier the requirement names does not exist or cannot swing on its rails.
     """
+    model = resolve_amplifier(requirement.amplifier, path=requirement.path,
+                              supply=requirement.supply)
     candidates = make_candidates(requirement, family=family, order=order)
-    chosen = candidates[0]
-    why = _why(chosen, candidates)
-
-    def respond(f):
-        return cascade_response(chosen.sections, f)
-
-    grid = response_grid(requirement)
-    response = Response(freq_hz=grid, h=respond(grid))
-    checks = tuple(mask_checks(read_mask(respond, requirement), requirement))
-    return Plan(requirement=requirement, candidates=candidates, chosen=chosen, why=why,
-                response=response, checks=checks)
+    designs = [build_design(c, requirement, model, windows=windows) for c in candidates]
+    designs.sort(key=_rank)
+    return Plan(requirement=requirement, model=model, designs=tuple(designs),
+                why=_why(designs))
 
 
-def _why(chosen: Candidate, candidates: tuple[Candidate, ...]) -> str:
-    if len(candidates) == 1:
+def _rank(d: Design) -> tuple:
+    dr = d.analyses.dynamic_range_db if d.analyses is not None else -math.inf
+    return (not d.buildable, d.failures, d.opamps, len(d.candidate.sections),
+            d.candidate.highest_q, -dr)
+
+
+def _why(designs: list[Design]) -> str:
+    best = designs[0]
+    if len(designs) == 1:
         return "the only candidate for the family and order asked"
-    runner = candidates[1]
-    if len(chosen.sections) < len(runner.sections):
-        return (f"fewest sections ({len(chosen.sections)} against {len(runner.sections)} for "
-                f"the next, {runner.family} {runner.path})")
-    return (f"same number of sections as the next ({runner.family} {runner.path}), lower highest "
-            f"Q ({chosen.highest_q:.3g} against {runner.highest_q:.3g})")
+    nxt = designs[1]
+    name = f"{nxt.candidate.family} {nxt.candidate.path}"
+    if best.buildable != nxt.buildable:
+        return f"the {name} candidate cannot be built with this op-amp"
+    if best.failures != nxt.failures:
+        return f"fewer failing checks ({best.failures} against {nxt.failures} for {name})"
+    if best.opamps != nxt.opamps:
+        return f"fewer op-amps ({best.opamps} against {nxt.opamps} for {name})"
+    if len(best.candidate.sections) != len(nxt.candidate.sections):
+        return (f"fewer sections ({len(best.candidate.sections)} against "
+                f"{len(nxt.candidate.sections)} for {name})")
+    return (f"as many op-amps and sections as {name}, lower highest Q "
+            f"({best.candidate.highest_q:.3g} against {nxt.candidate.highest_q:.3g})")
+
+
+def _assign(section: Section, model: OpAmp, req: Requirement, windows: PartWindows
+            ) -> Assignment:
+    return assign(section, model, r_series=req.design.resistor_series,
+                  c_series=req.design.capacitor_series, windows=windows)
+
+
+def _with_gain(section: Section, gain: float) -> Section:
+    return Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q, gain=float(gain))
+
+
+def _assign_with_backoff(section: Section, gain: float, model: OpAmp, req: Requirement,
+                         windows: PartWindows) -> tuple[Assignment, float]:
+    """Assign at `gain`; when no topology reaches it, fall back to unity gain (a lowpass or
+    highpass, which usually runs at unity) or to halved gains, and return the factor left
+    over for the stages after it."""
+    first = _assign(_with_gain(section, gain), model, req, windows)
+    if first.realization is not None:
+        return first, 1.0
+    tries = [1.0] if section.kind in ("lowpass", "highpass") else []
+    tries += [gain / 2 ** k for k in range(1, _GAIN_BACKOFF_STEPS + 1)]
+    for g in tries:
+        a = _assign(_with_gain(section, g), model, req, windows)
+        if a.realization is not None:
+            return a, gain / g
+    return first, 1.0
+
+
+def _stage_noise_psd(a: Assignment, freq_hz: np.ndarray, temperature_c: float) -> np.ndarray:
+    return nodal_noise(a.realization.elements, freq_hz,
+                       temperature_c=temperature_c).total_psd
+
+
+def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
+                 windows: PartWindows = PartWindows()) -> Design:
+    """Order, scale, assign and analyse one candidate."""
+    secs = cand.sections
+    # Noise of each section as first assigned (equal gain split): the ordering's model.
+    first = [_assign(s, model, req, windows) for s in secs]
+    if any(a.realization is None for a in first):
+        return _unbuildable(cand, None, tuple(first))
+    nf = noise_grid(req)
+    psd = np.array([_stage_noise_psd(a, nf, req.environment.temperature_c) for a in first])
+    problem = make_problem(secs, psd, nf, total_gain=req.passband.gain,
+                           passband_hz=passband_grid(req), max_vpk=req.input.max_vpk,
+                           tones=[(t.freq_hz, t.vpk) for t in req.input.tones])
+    ordering = choose_order(problem, secs)
+    assignments, leftover = [], 1.0
+    for i, g in zip(ordering.order, ordering.gains):
+        # A gain one section could not take is carried into the next one.
+        a, leftover = _assign_with_backoff(secs[i], g * leftover, model, req, windows)
+        if a.realization is None:
+            return _unbuildable(cand, ordering, tuple(assignments) + (a,))
+        assignments.append(a)
+    if not math.isclose(leftover, 1.0, rel_tol=1e-9):
+        # Fold the leftover into the latest section that can take it before paying for
+        # a separate gain stage.
+        for k in range(len(assignments) - 1, -1, -1):
+            sec = assignments[k].section
+            a = _assign(_with_gain(sec, abs(sec.gain) * leftover), model, req, windows)
+            if a.realization is not None:
+                assignments[k], leftover = a, 1.0
+                break
+    if not math.isclose(leftover, 1.0, rel_tol=1e-9):
+        gain_sec = Section(kind="gain", f0_hz=0.0, q=0.0, gain=leftover)
+        a = _assign(gain_sec, model, req, windows)
+        if a.realization is None:
+            return _unbuildable(cand, ordering, tuple(assignments) + (a,))
+        assignments.append(a)
+    stages = tuple(_stage(i + 1, a, model) for i, a in enumerate(assignments))
+    chain = build_chain(stages, source_ohms=req.input.source_ohms)
+    an = analyse(chain, req)
+    checks = tuple(all_checks(chain, an, req, windows=windows))
+    return Design(candidate=cand, ordering=ordering, assignments=tuple(assignments),
+                  chain=chain, analyses=an, checks=checks)
+
+
+def _stage(position: int, a: Assignment, model: OpAmp) -> Stage:
+    r = a.realization
+    return Stage(position=position, topology=r.topology, target=r.target,
+                 components=r.components, elements=r.elements, model=model, built=r.built,
+                 ideal=r.ideal, reason=a.reason, rejected=a.rejected)
+
+
+def _unbuildable(cand: Candidate, ordering: Ordering | None,
+                 assignments: tuple[Assignment, ...]) -> Design:
+    checks = []
+    for pos, a in enumerate(assignments, start=1):
+        if a.realization is not None:
+            continue
+        s = a.section
+        why = "; ".join(f"{name}: {reason}" for name, reason in a.rejected)
+        checks.append(Check(
+            id="topology", status="fail", value=s.q, limit=None, unit="Q", stage=pos,
+            message=f"no circuit builds the {s.kind} section at {s.f0_hz:.5g} Hz, Q {s.q:.3g}, "
+                    f"gain {s.gain:.3g} — {why}"))
+    return Design(candidate=cand, ordering=ordering, assignments=assignments, chain=None,
+                  analyses=None, checks=tuple(checks))

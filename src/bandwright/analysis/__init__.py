@@ -1,0 +1,84 @@
+"""Analyses of a built chain: response, node levels, slew, load, noise."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from bandwright.analysis.grid import noise_band, noise_grid, passband_grid, response_grid
+from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
+from bandwright.analysis.noise import NoiseAnalysis, chain_noise
+from bandwright.analysis.response import MaskReading, Response, read_mask
+from bandwright.chain.graph import CHAIN_OUTPUT, Chain
+from bandwright.spec.requirement import Requirement
+
+__all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis"]
+
+
+@dataclass(frozen=True, slots=True)
+class Analyses:
+    """Everything the checks and the renderers read about one built chain.
+
+    Attributes
+    ----------
+    response : Response
+        The built chain's response on the report grid.
+    net_responses : dict of str to ndarray
+        Complex transfer to every op-amp output net on the same grid.
+    mask : MaskReading or None
+        None when the requirement states no passband (audit without a mask).
+    nodes : tuple of NodeLevel
+    noise : NoiseAnalysis
+    signal_out_vpk : float
+        Largest in-band output amplitude for `input.max_vpk`.
+    clip_scale : float
+        By how much the whole input (signal and tones) could grow before the first net
+        reaches its limit (min over nets of limit / peak).
+    snr_db : float
+        In-band output signal at `input.max_vpk` (rms) over integrated output noise.
+    dynamic_range_db : float
+        Largest undistorted in-band output (rms, the input scaled by `clip_scale`) over
+        the integrated output noise.
+    """
+
+    response: Response
+    net_responses: dict[str, np.ndarray]
+    mask: MaskReading | None
+    nodes: tuple[NodeLevel, ...]
+    noise: NoiseAnalysis
+    signal_out_vpk: float
+    clip_scale: float
+    snr_db: float
+    dynamic_range_db: float
+
+
+def _db(ratio: float) -> float:
+    return 20 * math.log10(ratio) if ratio > 0 and math.isfinite(ratio) else -math.inf
+
+
+def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -> Analyses:
+    """Run every analysis on `chain` for `requirement`'s input, supply and noise band."""
+    grid = response_grid(requirement)
+    nets = net_transfers(chain, grid)
+    response = Response(freq_hz=grid, h=nets[CHAIN_OUTPUT])
+
+    def respond(f):
+        return net_transfers(chain, f)[CHAIN_OUTPUT]
+
+    mask = read_mask(respond, requirement) if with_mask else None
+    nodes = node_levels(chain, passband_hz=passband_grid(requirement), signal=requirement.input,
+                        supply=requirement.supply)
+    band = noise_band(requirement)
+    nf = noise_grid(requirement)
+    noise = chain_noise(chain, nf, band_hz=band, temperature_c=requirement.environment.temperature_c,
+                        transfer_out=respond(nf))
+    out_node = next(n for n in nodes if n.net == CHAIN_OUTPUT)
+    scale = min((n.limit_vpk / n.peak_vpk for n in nodes if n.peak_vpk > 0), default=math.inf)
+    sig_rms = out_node.signal_vpk / math.sqrt(2)
+    snr = _db(sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
+    dr = _db(scale * sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
+    return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
+                    signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
+                    dynamic_range_db=dr)

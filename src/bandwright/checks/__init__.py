@@ -1,0 +1,29 @@
+"""Checks: each a function of (chain, analyses, requirement) → Check records."""
+
+from __future__ import annotations
+
+from bandwright.analysis import Analyses
+from bandwright.chain.graph import Chain
+from bandwright.checks.base import Check, worst_status
+from bandwright.checks.chain_checks import (drive_checks, gbw_checks, headroom_checks,
+                                            noise_checks, parts_checks, slew_checks)
+from bandwright.checks.mask import mask_checks
+from bandwright.parts.windows import PartWindows
+from bandwright.spec.requirement import Requirement
+
+__all__ = ["Check", "worst_status", "all_checks"]
+
+
+def all_checks(chain: Chain, an: Analyses, requirement: Requirement, *,
+               windows: PartWindows = PartWindows()) -> list[Check]:
+    """Every check, in report order: mask, headroom, slew, drive, gbw, noise, parts."""
+    out: list[Check] = []
+    if an.mask is not None:
+        out += mask_checks(an.mask, requirement)
+    out += headroom_checks(an)
+    out += slew_checks(an)
+    out += drive_checks(an)
+    out += gbw_checks(chain)
+    out += noise_checks(an, requirement)
+    out += parts_checks(chain, windows)
+    return out

@@ -1,51 +1,150 @@
-"""The JSON object of design.md, built from a Plan (a renderer: no maths here)."""
+"""The JSON object of design.md, built from a Plan or an Audit (a renderer: no maths here)."""
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
+from pathlib import Path
 from typing import Any
 
+import numpy as np
+import scipy
+
 from bandwright import __version__
-from bandwright.planner import Plan
+from bandwright.chain.graph import Chain, global_net
 
-__all__ = ["plan_to_dict", "dumps"]
+__all__ = ["plan_to_dict", "audit_to_dict", "dumps", "chain_dict", "num"]
 
 
-def _num(x: float | None) -> float | None:
+def num(x: Any) -> float | None:
+    """A JSON-safe float: None for None, NaN and infinities (no NaN/inf in any output)."""
     if x is None:
         return None
     x = float(x)
     return x if math.isfinite(x) else None
 
 
-def plan_to_dict(p: Plan) -> dict[str, Any]:
-    """The plan as design.md's JSON object."""
-    c = p.chosen
+def _nums(a) -> list[float | None]:
+    return [num(x) for x in np.asarray(a, dtype=float)]
+
+
+def _requirement_hash(path: str) -> str | None:
+    try:
+        return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+    except OSError:
+        return None
+
+
+def _tool() -> dict[str, Any]:
+    return {"name": "bandwright", "version": __version__, "numpy": np.__version__,
+            "scipy": scipy.__version__}
+
+
+def _stage_dict(st, chain: Chain) -> dict[str, Any]:
+    last = st is chain.stages[-1]
+    inp = chain.input_of(st)
+    sign = -1.0 if st.built.gain < 0 else 1.0
     return {
-        "tool": {"name": "bandwright", "version": __version__},
-        "prototype": {"family": c.family, "order": c.order, "ripple_db": _num(c.ripple_db),
-                      "path": c.path},
-        "stages": [
-            {"position": i + 1, "kind": s.kind, "f0_hz": _num(s.f0_hz), "q": _num(s.q),
-             "gain": _num(s.gain), "topology": None, "components": None, "nets": None,
-             "actual": None}
-            for i, s in enumerate(c.sections)
-        ],
-        "checks": [
-            {"id": k.id, "stage": k.stage, "net": k.net, "status": k.status,
-             "value": _num(k.value), "limit": _num(k.limit), "unit": k.unit,
-             "message": k.message}
-            for k in p.checks
-        ],
-        "response": {"freq_hz": [_num(f) for f in p.response.freq_hz],
-                     "gain_db": [_num(g) for g in p.response.gain_db],
-                     "phase_deg": [_num(g) for g in p.response.phase_deg]},
-        "nodes": [],
-        "noise": None,
+        "position": st.position,
+        "kind": st.kind,
+        "f0_hz": num(st.target.f0_hz),
+        "q": num(st.target.q),
+        "gain": num(sign * abs(st.target.gain)),
+        "topology": st.topology,
+        "components": {n: num(v) for n, v in st.components},
+        "nets": {role: global_net(st, net, last=last, input_net=inp)
+                 for role, net in st.nets.items()},
+        "actual": {"f0_hz": num(st.built.f0_hz), "q": num(st.built.q),
+                   "gain": num(st.built.gain)},
+        "ideal_parts": None if st.ideal is None else
+        {"f0_hz": num(st.ideal.f0_hz), "q": num(st.ideal.q), "gain": num(st.ideal.gain)},
+        "amplifier": st.model.name,
+        "why": st.reason,
+        "rejected": [{"topology": t, "reason": r} for t, r in st.rejected],
     }
 
 
-def dumps(p: Plan) -> str:
-    """Exactly one JSON object, sorted keys off (design order), no NaN."""
-    return json.dumps(plan_to_dict(p), indent=1, allow_nan=False)
+def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
+    """The parts of the JSON object that a plan and an audit share."""
+    nz = an.noise
+    return {
+        "stages": [_stage_dict(st, chain) for st in chain.stages],
+        "checks": _checks(checks),
+        "response": {"freq_hz": _nums(an.response.freq_hz),
+                     "gain_db": _nums(an.response.gain_db),
+                     "phase_deg": _nums(an.response.phase_deg)},
+        "nodes": [{"net": n.net, "stage": n.stage, "peak_vpk": num(n.peak_vpk),
+                   "limit_vpk": num(n.limit_vpk), "margin_db": num(n.margin_db),
+                   "signal_vpk": num(n.signal_vpk),
+                   "slew_needed_v_per_us": num(n.slew_needed_v_per_us),
+                   "load_ohms": num(n.load_ohms)} for n in an.nodes],
+        "noise": {"freq_hz": _nums(nz.freq_hz), "output_v_per_rthz": _nums(nz.output_v_per_rthz),
+                  "integrated_vrms": num(nz.integrated_vrms), "band_hz": list(nz.band_hz),
+                  "input_referred_v_per_rthz": _nums(nz.input_referred_v_per_rthz),
+                  "contributions": [{"source": s, "vrms": num(v)}
+                                    for s, v in nz.contributions_vrms],
+                  "snr_db": num(an.snr_db), "dynamic_range_db": num(an.dynamic_range_db)},
+    }
+
+
+def _checks(checks) -> list[dict[str, Any]]:
+    return [{"id": k.id, "stage": k.stage, "net": k.net, "status": k.status,
+             "value": num(k.value), "limit": num(k.limit), "unit": k.unit,
+             "message": k.message} for k in checks]
+
+
+def _candidate_dict(d) -> dict[str, Any]:
+    c = d.candidate
+    an = d.analyses
+    margin = min((n.margin_db for n in an.nodes), default=None) if an else None
+    return {"family": c.family, "path": c.path, "order": c.order, "sections": len(c.sections),
+            "highest_q": num(c.highest_q), "buildable": d.buildable, "opamps": d.opamps,
+            "failed_checks": d.failures, "worst_margin_db": num(margin),
+            "noise_vrms": num(an.noise.integrated_vrms) if an else None,
+            "dynamic_range_db": num(an.dynamic_range_db) if an else None, "note": c.note}
+
+
+def plan_to_dict(p) -> dict[str, Any]:
+    """The plan as design.md's JSON object (plus a few keys of our own)."""
+    d = p.chosen
+    c = d.candidate
+    out: dict[str, Any] = {
+        "tool": _tool(),
+        "requirement": {"path": p.requirement.path,
+                        "sha256": _requirement_hash(p.requirement.path)},
+        "prototype": {"family": c.family, "order": c.order, "ripple_db": num(c.ripple_db),
+                      "path": c.path},
+        "why": p.why,
+        "candidates": [_candidate_dict(x) for x in p.designs],
+    }
+    if d.chain is None:
+        out.update({"stages": [{"position": i + 1, "kind": a.section.kind,
+                                "f0_hz": num(a.section.f0_hz), "q": num(a.section.q),
+                                "gain": num(a.section.gain), "topology": None,
+                                "components": None, "nets": None, "actual": None,
+                                "rejected": [{"topology": t, "reason": r} for t, r in a.rejected]}
+                               for i, a in enumerate(d.assignments)],
+                    "checks": _checks(d.checks), "response": None, "nodes": [],
+                    "noise": None})
+        return out
+    out.update(chain_dict(d.chain, d.analyses, d.checks))
+    o = d.ordering
+    out["ordering"] = {"method": o.method, "order_as_generated": [i + 1 for i in o.order],
+                       "gain_over_generated_db": num(o.gain_over_generated_db),
+                       "gain_over_increasing_q_db": num(o.gain_over_increasing_q_db)}
+    return out
+
+
+def audit_to_dict(a) -> dict[str, Any]:
+    """An audit as the same JSON object (prototype null: the chain came from a file)."""
+    out: dict[str, Any] = {"tool": _tool(),
+                           "requirement": {"path": a.path, "sha256": _requirement_hash(a.path)},
+                           "prototype": None}
+    out.update(chain_dict(a.chain, a.analyses, a.checks))
+    return out
+
+
+def dumps(doc: dict[str, Any]) -> str:
+    """Exactly one JSON object, no NaN."""
+    return json.dumps(doc, indent=1, allow_nan=False)

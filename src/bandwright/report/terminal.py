@@ -1,62 +1,156 @@
-"""The terminal report (rich): what was understood, the candidates, the chain, the checks."""
+"""The terminal report (rich). Reads Plan / Audit, Analyses and Checks; computes nothing."""
 
 from __future__ import annotations
 
+import math
+
+from rich import box
 from rich.console import Console
 from rich.table import Table
-from rich import box
 
-from bandwright.planner import Plan
+from bandwright.parts.notation import format_value
 
-__all__ = ["render_plan", "fmt_hz"]
+__all__ = ["render_plan", "render_audit", "fmt_hz"]
+
+_VERDICT = {"pass": "ok", "warn": "WARN", "fail": "FAIL"}
 
 
 def fmt_hz(f: float) -> str:
-    """Frequency with an SI prefix: 40.0 kHz, 3.16 Hz, 1.20 MHz."""
+    """Frequency with an SI prefix: 40 kHz, 3.16 Hz, 1.2 MHz."""
     for scale, unit in ((1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz")):
         if abs(f) >= scale:
             return f"{f / scale:.4g} {unit}"
     return f"{f * 1e3:.4g} mHz"
 
 
-def render_plan(p: Plan, console: Console) -> None:
-    """Print the plan to `console` (100 columns suffice; readable without colour)."""
-    req = p.requirement
+def _db(x: float) -> str:
+    return f"{20 * math.log10(abs(x)):+.2f}" if x else "—"
+
+
+def _table(title: str, *cols: str) -> Table:
+    t = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left", title_style="bold",
+              pad_edge=False)
+    for c in cols:
+        t.add_column(c, overflow="fold")
+    return t
+
+
+def _requirement(req, model, console: Console) -> None:
     pb = req.passband
-    console.print(f"[bold]bandwright plan[/bold]  {req.path}")
     console.print(
-        f"Band asked: {fmt_hz(pb.low_hz)} to {fmt_hz(pb.high_hz)} (centre {fmt_hz(pb.center_hz)}, "
-        f"width {fmt_hz(pb.bandwidth_hz)}, fractional {pb.bandwidth_hz / pb.center_hz:.3g}); "
-        f"gain {pb.gain_db:g} dB; at most {pb.max_loss_db:.4g} dB loss in band")
+        f"Band: {fmt_hz(pb.low_hz)} to {fmt_hz(pb.high_hz)} (centre {fmt_hz(pb.center_hz)}, width "
+        f"{fmt_hz(pb.bandwidth_hz)}, {pb.bandwidth_hz / pb.center_hz:.3g} of centre); gain "
+        f"{pb.gain_db:g} dB ± {pb.gain_tolerance_db:g}; at most {pb.max_loss_db:.4g} dB loss in band")
     for sp in req.stopband:
-        console.print(f"  stop: at least {sp.min_loss_db:g} dB down at {fmt_hz(sp.freq_hz)}")
+        console.print(f"Stop: at least {sp.min_loss_db:g} dB down at {fmt_hz(sp.freq_hz)}")
+    inp = req.input
+    tones = ", ".join(f"{t.vpk:g} Vpk at {fmt_hz(t.freq_hz)}" for t in inp.tones) or "none"
+    console.print(f"Input: up to {inp.max_vpk:g} Vpk in band from {format_value(inp.source_ohms, 'Ω')}"
+                  f"; tones: {tones}")
+    console.print(f"Rails {req.supply.rails_v[0]:g} / {req.supply.rails_v[1]:+g} V; op-amp "
+                  f"'{model.name}': {model.gbw_hz / 1e6:.3g} MHz GBW, {model.slew_v_per_us:g} V/µs, "
+                  f"{model.noise_v_per_rthz * 1e9:.3g} nV/√Hz; {req.environment.temperature_c:g} °C")
 
-    cand = Table(title="Ways to meet it", box=box.SIMPLE_HEAD, title_justify="left")
-    for col in ("rank", "family", "path", "order", "sections", "highest Q", "how the order came"):
-        cand.add_column(col, overflow="fold")
-    for i, c in enumerate(p.candidates):
-        mark = "→" if c is p.chosen else ""
-        cand.add_row(f"{mark}{i + 1}", c.family, c.path, str(c.order), str(len(c.sections)),
-                     f"{c.highest_q:.3g}", c.note)
+
+def render_plan(p, console: Console) -> None:
+    """Print the plan to `console` (fits 100 columns; readable without colour)."""
+    console.print(f"[bold]bandwright plan[/bold] — {p.requirement.path}")
+    _requirement(p.requirement, p.model, console)
+    cand = _table("Candidates (best first)", "#", "family", "path", "order", "sections",
+                  "op-amps", "worst margin", "noise out", "dyn. range", "state")
+    for i, d in enumerate(p.designs):
+        c, an = d.candidate, d.analyses
+        margin = f"{min(n.margin_db for n in an.nodes):+.1f} dB" if an else "—"
+        noise = f"{an.noise.integrated_vrms * 1e6:.3g} µV" if an else "—"
+        dr = f"{an.dynamic_range_db:.1f} dB" if an else "—"
+        state = ("cannot build" if not d.buildable else
+                 f"{d.failures} failing" if d.failures else "meets all")
+        cand.add_row(("→" if i == 0 else "") + str(i + 1), c.family, c.path, str(c.order),
+                     str(len(c.sections)), str(d.opamps) if d.buildable else "—", margin, noise,
+                     dr, state)
     console.print(cand)
-    console.print(f"Chosen: {p.chosen.family} {p.chosen.path}, because {p.why}.")
+    d = p.chosen
+    console.print(f"Chosen: {d.candidate.family} {d.candidate.path}, order {d.candidate.order} "
+                  f"({d.candidate.note}) — {p.why}.")
+    if d.chain is None:
+        _unbuilt(d, console)
+    else:
+        _chain(d.chain, d.analyses, console)
+        o = d.ordering
+        console.print(
+            f"Section order ({o.method}): {o.gain_over_generated_db:+.1f} dB of dynamic range over "
+            f"the order as generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
+            f"(planning model, equal-maxima gains).")
+    _checks(d.checks, console)
 
-    secs = Table(title="Sections", box=box.SIMPLE_HEAD, title_justify="left")
-    for col in ("#", "kind", "f0", "Q", "gain V/V", "gain dB"):
-        secs.add_column(col, justify="right" if col != "kind" else "left")
-    import math
-    for i, s in enumerate(p.chosen.sections):
-        secs.add_row(str(i + 1), s.kind, fmt_hz(s.f0_hz), f"{s.q:.4g}", f"{s.gain:.4g}",
-                     f"{20 * math.log10(abs(s.gain)):.2f}")
-    console.print(secs)
 
-    chk = Table(title="Checks", box=box.SIMPLE_HEAD, title_justify="left")
-    for col in ("check", "verdict", "value", "limit", "why"):
-        chk.add_column(col, overflow="fold")
-    for k in p.checks:
-        verdict = {"pass": "ok", "warn": "WARN", "fail": "FAIL"}[k.status]
-        chk.add_row(k.id, verdict, _fmt(k.value, k.unit), _fmt(k.limit, k.unit), k.message)
-    console.print(chk)
+def render_audit(a, console: Console) -> None:
+    """Print an audit to `console`."""
+    console.print(f"[bold]bandwright audit[/bold] — {a.path}")
+    _requirement(a.requirement, a.chain.stages[0].model, console)
+    _chain(a.chain, a.analyses, console)
+    _checks(a.checks, console)
+
+
+def _unbuilt(d, console: Console) -> None:
+    t = _table("Sections (no circuit found for at least one)", "#", "kind", "f0", "Q", "gain",
+               "what stops it")
+    for i, a in enumerate(d.assignments):
+        s = a.section
+        why = "; ".join(f"{n}: {r}" for n, r in a.rejected) if a.realization is None else \
+            f"built as {a.realization.topology}"
+        t.add_row(str(i + 1), s.kind, fmt_hz(s.f0_hz), f"{s.q:.4g}", f"{s.gain:.3g}", why)
+    console.print(t)
+
+
+def _chain(chain, an, console: Console) -> None:
+    t = _table("Chain, input to output", "#", "kind", "topology", "f0 asked→built",
+               "Q asked→built", "gain dB asked→built")
+    for st in chain.stages:
+        tg, b = st.target, st.built
+        f0 = "—" if st.kind == "gain" else f"{fmt_hz(tg.f0_hz)} → {fmt_hz(b.f0_hz)}"
+        q = "—" if st.kind == "gain" else f"{tg.q:.4g} → {b.q:.4g}"
+        t.add_row(str(st.position), st.kind, st.topology, f0, q,
+                  f"{_db(tg.gain)} → {_db(b.gain)}")
+    console.print(t)
+    for st in chain.stages:
+        parts = "  ".join(f"{n}={format_value(v, 'Ω' if n.startswith('R') else 'F')}"
+                          for n, v in st.components)
+        console.print(f"[bold]Stage {st.position}[/bold] {st.topology}: {parts}")
+        if st.reason:
+            console.print(f"  why: {st.reason}")
+        for name, why in st.rejected:
+            console.print(f"  not {name}: {why}")
+    lv = _table("Node levels, worst case (signal anywhere in band + every tone)", "net", "stage",
+                "peak", "limit", "margin", "slew needed", "least load")
+    for n in an.nodes:
+        load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
+        lv.add_row(n.net, str(n.stage), f"{n.peak_vpk:.3g} Vpk", f"{n.limit_vpk:.3g} Vpk",
+                   f"{n.margin_db:+.1f} dB", f"{n.slew_needed_v_per_us:.3g} V/µs", load)
+    console.print(lv)
+    nz = an.noise
+    console.print(
+        f"Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over {fmt_hz(nz.band_hz[0])}–"
+        f"{fmt_hz(nz.band_hz[1])}; SNR at full input {an.snr_db:.1f} dB; dynamic range "
+        f"{an.dynamic_range_db:.1f} dB (input could grow {20 * math.log10(an.clip_scale):+.1f} dB "
+        f"before the first net clips)")
+    top = _table("Largest noise sources at the output", "source", "µV rms", "share of power")
+    total2 = nz.integrated_vrms**2
+    for name, v in nz.contributions_vrms[:6]:
+        top.add_row(name, f"{v * 1e6:.3g}", f"{100 * v * v / total2:.1f} %")
+    console.print(top)
+
+
+def _checks(checks, console: Console) -> None:
+    t = _table("Checks", "check", "where", "verdict", "value", "limit", "reason")
+    for k in checks:
+        where = k.net or (f"stage {k.stage}" if k.stage else "chain")
+        t.add_row(k.id, where, _VERDICT[k.status], _fmt(k.value, k.unit), _fmt(k.limit, k.unit),
+                  k.message)
+    console.print(t)
+    fails = sum(k.status == "fail" for k in checks)
+    warns = sum(k.status == "warn" for k in checks)
+    console.print(f"{len(checks)} checks: {fails} failed, {warns} warnings.")
 
 
 def _fmt(x: float | None, unit: str) -> str:

@@ -14,7 +14,8 @@ from bandwright.spec.requirement import (
 )
 from bandwright.types import FAMILIES
 
-__all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS",
+__all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "read_passband",
+           "read_stop",
            "read_amplifier", "read_common_tables"]
 
 SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
@@ -41,10 +42,10 @@ def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requi
     top = TableReader(path, "", doc, TOP_TABLES)
     if not top.has("passband"):
         raise SpecError(path, "passband", "missing table [passband]")
-    passband = _read_passband(TableReader(path, "passband", doc["passband"],
+    passband = read_passband(TableReader(path, "passband", doc["passband"],
                                           ("center_hz", "bandwidth_hz", "low_hz", "high_hz",
                                            "max_loss_db", "gain_db", "gain_tolerance_db")))
-    stopband = tuple(_read_stop(path, i, t, passband) for i, t in enumerate(top.tables("stopband")))
+    stopband = tuple(read_stop(path, i, t, passband) for i, t in enumerate(top.tables("stopband")))
     design = _read_design(TableReader(path, "design", doc.get("design", {}),
                                       ("family", "order", "resistor_series", "capacitor_series")))
     if not stopband and design.order is None:
@@ -107,7 +108,7 @@ def read_amplifier(path: str, prefix: str, table: Any) -> AmplifierChoice:
     return AmplifierChoice(archetype=amp.string("archetype"), overrides=tuple(overrides))
 
 
-def _read_passband(pb: TableReader) -> Passband:
+def read_passband(pb: TableReader) -> Passband:
     by_centre = pb.has("center_hz") or pb.has("bandwidth_hz")
     by_edges = pb.has("low_hz") or pb.has("high_hz")
     if by_centre and by_edges:
@@ -134,7 +135,7 @@ def _read_passband(pb: TableReader) -> Passband:
                     gain_tolerance_db=gain_tol)
 
 
-def _read_stop(path: str, i: int, table: Any, passband: Passband) -> StopbandPoint:
+def read_stop(path: str, i: int, table: Any, passband: Passband) -> StopbandPoint:
     st = TableReader(path, f"stopband[{i}]", table, ("freq_hz", "min_loss_db"))
     f = st.number("freq_hz", required=True, positive=True)
     a = st.number("min_loss_db", required=True, positive=True, high=300.0)

@@ -1,0 +1,29 @@
+"""The op-amp a requirement or an audit stage asks for, as a model; errors name the key."""
+
+from __future__ import annotations
+
+from bandwright.analysis.levels import swing_limit_vpk
+from bandwright.errors import SpecError
+from bandwright.parts.catalogue import ARCHETYPES, make_opamp
+from bandwright.parts.opamp import OpAmp
+from bandwright.spec.requirement import AmplifierChoice, Supply
+
+__all__ = ["resolve_amplifier"]
+
+
+def resolve_amplifier(choice: AmplifierChoice, *, path: str, key: str = "amplifier",
+                      supply: Supply | None = None) -> OpAmp:
+    """`[amplifier]` → OpAmp; an unknown archetype or rails inside the op-amp's own swing
+    loss are SpecErrors naming `path` and the key."""
+    try:
+        model = make_opamp(archetype=choice.archetype, overrides=dict(choice.overrides))
+    except KeyError:
+        raise SpecError(path, f"{key}.archetype", "unknown op-amp archetype; known: "
+                        + ", ".join(ARCHETYPES), value=choice.archetype) from None
+    except ValueError as exc:
+        raise SpecError(path, key, str(exc)) from None
+    if supply is not None and swing_limit_vpk(supply, model.swing_to_rail_v) <= 0:
+        raise SpecError(path, "supply.rails_v",
+                        f"rails leave no output swing: the op-amp needs "
+                        f"{model.swing_to_rail_v:g} V from each rail", value=list(supply.rails_v))
+    return model

@@ -1,0 +1,146 @@
+"""Transfers to every net of the chain, node levels, slew and load (design.md, "Headroom /
+slew")."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from bandwright.chain.graph import CHAIN_INPUT, Chain, flatten
+from bandwright.circuits.nodal import ac_solve
+from bandwright.spec.requirement import InputSignal, Supply
+
+__all__ = ["net_transfers", "NodeLevel", "node_levels", "swing_limit_vpk", "output_loads"]
+
+
+def net_transfers(chain: Chain, freq_hz: np.ndarray) -> dict[str, np.ndarray]:
+    """Complex transfer from the source (open circuit, ahead of source_ohms) to every op-amp
+    output net: the product of stage transfers along the path.
+
+    The op-amp model has zero output impedance, so a stage does not load the one before it
+    and the product is exact; only the first stage sees the source resistance.
+    """
+    f = np.asarray(freq_hz, dtype=float)
+    out: dict[str, np.ndarray] = {CHAIN_INPUT: np.ones(f.shape, dtype=complex)}
+    for st in chain.stages:
+        inp = chain.input_of(st)
+        rs = chain.source_ohms if inp == CHAIN_INPUT else 0.0
+        sol = ac_solve(st.elements, f, source_ohms=rs)
+        for _, net, d in chain.graph.out_edges(inp, data=True):
+            if d["stage"] is st:
+                out[net] = out[inp] * sol.at(d["local"])
+    del out[CHAIN_INPUT]
+    return out
+
+
+def swing_limit_vpk(supply: Supply, swing_to_rail_v: float) -> float:
+    """V_lim = min(V+, |V-|) - swing_to_rail (references.md, "Headroom / slew")."""
+    return min(supply.rails_v[1], -supply.rails_v[0]) - swing_to_rail_v
+
+
+@dataclass(frozen=True, slots=True)
+class NodeLevel:
+    """Worst-case level at one op-amp output net.
+
+    Attributes
+    ----------
+    net : str
+    stage : int
+    peak_vpk : float
+        In-band signal at its worst passband frequency plus every tone, amplitudes added.
+    limit_vpk : float
+        Swing limit of the op-amp driving the net.
+    signal_vpk : float
+        The in-band part of `peak_vpk`.
+    slew_needed_v_per_us : float
+        2π Σ f·V of the same worst case.
+    slew_v_per_us : float
+        The op-amp's slew rate.
+    load_ohms : float
+        Smallest load magnitude the output drives over the passband and the tones.
+    min_load_ohms : float
+        The op-amp's minimum load.
+    """
+
+    net: str
+    stage: int
+    peak_vpk: float
+    limit_vpk: float
+    signal_vpk: float
+    slew_needed_v_per_us: float
+    slew_v_per_us: float
+    load_ohms: float
+    min_load_ohms: float
+
+    @property
+    def margin_db(self) -> float:
+        """Headroom: 20 log10(limit / peak); negative when the net clips."""
+        if self.peak_vpk <= 0:
+            return math.inf
+        return 20 * math.log10(max(self.limit_vpk, 1e-30) / self.peak_vpk)
+
+
+def node_levels(chain: Chain, *, passband_hz: np.ndarray, signal: InputSignal,
+                supply: Supply) -> tuple[NodeLevel, ...]:
+    """Worst-case peak, slew and load at every op-amp output.
+
+    Notes
+    -----
+    Peak = V_in,max · max over the passband |T| + Σ_tones V_t |T(f_t)|; slew needed
+    2π (f* V_in,max |T(f*)| + Σ f_t V_t |T(f_t)|) with f* the passband frequency where
+    f |T| is largest; amplitudes add, the worst case of every phase (references.md,
+    "Headroom / slew"; Franco 2015, §6.5 [mem]).
+    """
+    pb = np.asarray(passband_hz, dtype=float)
+    tf = np.array([t.freq_hz for t in signal.tones], dtype=float)
+    tv = np.array([t.vpk for t in signal.tones], dtype=float)
+    freqs = np.concatenate([pb, tf])
+    transfers = net_transfers(chain, freqs)
+    loads = output_loads(chain, freqs)
+    out = []
+    for net in chain.output_nets:
+        st = chain.stage_of(net)
+        mag = np.abs(transfers[net])
+        sig = signal.max_vpk * float(mag[: pb.size].max())
+        tones = float(np.sum(tv * mag[pb.size:]))
+        slew = 2 * math.pi * (signal.max_vpk * float(np.max(pb * mag[: pb.size]))
+                              + float(np.sum(tf * tv * mag[pb.size:]))) / 1e6
+        out.append(NodeLevel(
+            net=net, stage=st.position, peak_vpk=sig + tones,
+            limit_vpk=swing_limit_vpk(supply, st.model.swing_to_rail_v), signal_vpk=sig,
+            slew_needed_v_per_us=slew, slew_v_per_us=st.model.slew_v_per_us,
+            load_ohms=loads[net], min_load_ohms=st.model.min_load_ohms))
+    return tuple(out)
+
+
+def output_loads(chain: Chain, freq_hz: np.ndarray) -> dict[str, float]:
+    """Smallest |V/I| each op-amp output sees over `freq_hz`: its feedback network and the
+    next stage's input, from a solve of the whole chain as one element list."""
+    flat = flatten(chain)
+    sol = ac_solve(flat, np.asarray(freq_hz, dtype=float), source_ohms=chain.source_ohms)
+    index = {n: i for i, n in enumerate(sol.nets)}
+    v = sol.voltages
+    zero = np.zeros(v.shape[:-1], dtype=complex)
+
+    def volt(n: str) -> np.ndarray:
+        return zero if n == "0" else v[..., index[n]]
+
+    out = {}
+    for net in chain.output_nets:
+        current = zero.copy()
+        for e in flat:
+            if e.kind == "opamp" or net not in e.nets:
+                continue
+            other = e.nets[1] if e.nets[0] == net else e.nets[0]
+            if other == net:
+                continue
+            y = (1 / e.value if e.kind == "R"
+                 else 2j * np.pi * np.asarray(freq_hz) * e.value)
+            current = current + (volt(net) - volt(other)) * y
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = np.abs(volt(net)) / np.abs(current)
+        z = z[np.isfinite(z)]
+        out[net] = float(z.min()) if z.size else math.inf
+    return out

@@ -1,0 +1,73 @@
+"""Output noise of the chain with every source's share (design.md, "Noise")."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from bandwright.chain.graph import CHAIN_OUTPUT, Chain, flatten
+from bandwright.circuits.nodal import NoiseResult, noise as nodal_noise
+
+__all__ = ["NoiseAnalysis", "chain_noise"]
+
+
+@dataclass(frozen=True, slots=True)
+class NoiseAnalysis:
+    """Noise at the chain output.
+
+    Attributes
+    ----------
+    freq_hz : ndarray
+        Grid over `band_hz`, edges included.
+    output_v_per_rthz : ndarray
+        Output noise density, V/√Hz.
+    contributions_vrms : tuple of (source, vrms)
+        Each source's integrated output noise over the band, largest first; the squares add
+        up to `integrated_vrms` squared.
+    contributions_psd : dict of str to ndarray
+        Each source's output PSD, V²/Hz.
+    integrated_vrms : float
+    band_hz : (float, float)
+    input_referred_v_per_rthz : ndarray
+        Output density over |T(f)| to the output (source open-circuit voltage).
+    """
+
+    freq_hz: np.ndarray
+    output_v_per_rthz: np.ndarray
+    contributions_vrms: tuple[tuple[str, float], ...]
+    contributions_psd: dict[str, np.ndarray]
+    integrated_vrms: float
+    band_hz: tuple[float, float]
+    input_referred_v_per_rthz: np.ndarray
+
+
+def chain_noise(chain: Chain, freq_hz: np.ndarray, *, band_hz: tuple[float, float],
+                temperature_c: float, transfer_out: np.ndarray) -> NoiseAnalysis:
+    """Adjoint noise analysis of the whole chain as one element list.
+
+    Notes
+    -----
+    Every resistor's 4kTR (source resistance included), every op-amp's e_n (white + 1/f) and
+    i_n into each input; output PSD S = Σ |G_i|² S_i (references.md, "Noise"; Motchenbacher &
+    Connelly 1993, ch. 2 [mem]); integrated by the trapezoid rule over `band_hz`.
+    """
+    res = nodal_noise(flatten(chain), freq_hz, out_net=CHAIN_OUTPUT,
+                      source_ohms=chain.source_ohms, temperature_c=temperature_c)
+    total = float(res.integrated_vrms(band_hz))
+    shares = []
+    for name, psd in res.contributions.items():
+        if not np.any(psd):
+            continue
+        part = float(NoiseResult(res.freq_hz, psd, {}).integrated_vrms(band_hz))
+        shares.append((name, part))
+    shares.sort(key=lambda t: -t[1])
+    density = res.density()
+    with np.errstate(divide="ignore", invalid="ignore"):
+        referred = density / np.abs(transfer_out)
+    return NoiseAnalysis(freq_hz=res.freq_hz, output_v_per_rthz=density,
+                         contributions_vrms=tuple(shares),
+                         contributions_psd={k: v for k, v in res.contributions.items()
+                                            if np.any(v)},
+                         integrated_vrms=total, band_hz=(float(band_hz[0]), float(band_hz[1])),
+                         input_referred_v_per_rthz=referred)

@@ -1,0 +1,216 @@
+"""`bandwright audit`: a chain someone designed (chain.toml) → Stages → the same analyses and
+checks as a plan."""
+
+from __future__ import annotations
+
+import difflib
+import math
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+import numpy as np
+
+from bandwright.amplifier import resolve_amplifier
+from bandwright.analysis import Analyses, analyse
+from bandwright.chain import Chain, Stage, build_chain
+from bandwright.checks import all_checks
+from bandwright.checks.base import Check
+from bandwright.circuits import TOPOLOGY_NAMES, topology
+from bandwright.circuits.figures import section_figures, transfer_polynomials
+from bandwright.errors import SpecError
+from bandwright.parts.notation import parse_value
+from bandwright.sections.section import Section
+from bandwright.spec.loader import (HALF_POWER_DB, read_passband, read_stop,
+                                    read_amplifier, read_common_tables)
+from bandwright.spec.reader import TableReader, read_toml
+from bandwright.spec.requirement import Passband, Requirement
+
+__all__ = ["Audit", "audit", "load_chain"]
+
+AUDIT_TABLES = ("passband", "stopband", "stage", "input", "supply", "amplifier", "environment",
+                "noise")
+# Values outside these are typing errors, not parts (1 mΩ … 1 TΩ, 1 fF … 1 F).
+_R_RANGE = (1e-3, 1e12)
+_C_RANGE = (1e-15, 1.0)
+
+
+@dataclass(frozen=True)
+class Audit:
+    """An audited chain with its analyses and checks.
+
+    Attributes
+    ----------
+    path : str
+    requirement : Requirement
+        The file's tables; when it states no passband, one is read off the built response
+        (its -3 dB band around the peak) for the grids, and no mask check runs.
+    has_mask : bool
+    chain : Chain
+    analyses : Analyses
+    checks : tuple of Check
+    """
+
+    path: str
+    requirement: Requirement
+    has_mask: bool
+    chain: Chain
+    analyses: Analyses
+    checks: tuple[Check, ...]
+
+
+def _stage_parts(path: str, key: str, topo, table) -> dict[str, float]:
+    if not isinstance(table, dict):
+        raise SpecError(path, key, "expected a table of part = value", value=table)
+    optional = set(getattr(topo, "OPTIONAL_PARTS", ()))
+    required = [p for p in topo.PARTS if p not in optional]
+    for name in table:
+        if name not in topo.PARTS:
+            close = difflib.get_close_matches(name, topo.PARTS, n=1, cutoff=0.5)
+            hint = f"; did you mean '{close[0]}'?" if close else ""
+            raise SpecError(path, f"{key}.{name}", f"{topo.NAME} has no part {name} (its parts: "
+                            f"{', '.join(topo.PARTS)}){hint}")
+    for name in required:
+        if name not in table:
+            raise SpecError(path, f"{key}.{name}", f"missing: {topo.NAME} needs "
+                            f"{', '.join(required)}")
+    out = {}
+    for name, raw in table.items():
+        k = f"{key}.{name}"
+        try:
+            v = parse_value(raw)
+        except (ValueError, TypeError) as exc:
+            raise SpecError(path, k, str(exc), value=raw) from None
+        lo, hi = _R_RANGE if name.startswith("R") else _C_RANGE
+        if not v > 0:
+            raise SpecError(path, k, "must be > 0", value=raw)
+        if not lo <= v <= hi:
+            unit = "Ω" if name.startswith("R") else "F"
+            raise SpecError(path, k, f"outside the plausible range {lo:g} … {hi:g} {unit}",
+                            value=raw)
+        out[name] = v
+    return out
+
+
+def _near_hz(elements) -> float:
+    """Pole frequency of the circuit with ideal op-amps (the pair the figures report)."""
+    num, den = transfer_polynomials(elements)
+    den = den[np.abs(den) > 1e-12 * np.abs(den).max()] if den.size else den
+    roots = np.roots(np.trim_zeros(den, "b")[::-1])
+    if roots.size == 0:
+        return 1.0
+    return float(np.exp(np.mean(np.log(np.abs(roots)))) / (2 * math.pi))
+
+
+def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]:
+    """Parse and validate an audit file; returns (requirement-or-None, common tables, stage
+    specs (position, topology module, parts, amplifier choice))."""
+    p = str(path)
+    doc = read_toml(path)
+    top = TableReader(p, "", doc, AUDIT_TABLES)
+    common = read_common_tables(p, doc)
+    passband = None
+    if top.has("passband"):
+        passband = read_passband(TableReader(p, "passband", doc["passband"],
+                                              ("center_hz", "bandwidth_hz", "low_hz", "high_hz",
+                                               "max_loss_db", "gain_db", "gain_tolerance_db")))
+    stops = tuple(read_stop(p, i, t, passband) for i, t in enumerate(top.tables("stopband"))) \
+        if passband is not None else ()
+    if top.tables("stopband") and passband is None:
+        raise SpecError(p, "stopband", "stopband points need a [passband] to be relative to")
+    stage_tables = top.tables("stage")
+    if not stage_tables:
+        raise SpecError(p, "stage", "no [[stage]] tables: an audit needs the chain's stages")
+    specs = []
+    for i, t in enumerate(stage_tables):
+        key = f"stage[{i}]"
+        st = TableReader(p, key, t, ("topology", "parts", "amplifier"))
+        name = st.string("topology")
+        if name is None:
+            raise SpecError(p, f"{key}.topology", f"missing; one of {', '.join(TOPOLOGY_NAMES)}")
+        if name not in TOPOLOGY_NAMES:
+            close = difflib.get_close_matches(name, TOPOLOGY_NAMES, n=1, cutoff=0.5)
+            hint = f"; did you mean '{close[0]}'?" if close else \
+                f"; known: {', '.join(TOPOLOGY_NAMES)}"
+            raise SpecError(p, f"{key}.topology", "unknown topology" + hint, value=name)
+        topo = topology(name)
+        if not st.has("parts"):
+            raise SpecError(p, f"{key}.parts", f"missing; {name} needs {', '.join(topo.PARTS)}")
+        parts = _stage_parts(p, f"{key}.parts", topo, t["parts"])
+        amp = read_amplifier(p, f"{key}.amplifier", t["amplifier"]) if st.has("amplifier") \
+            else None
+        specs.append((i + 1, topo, parts, amp, key))
+    req = None
+    if passband is not None:
+        req = Requirement(path=p, passband=passband, stopband=stops, input=common["input"],
+                          supply=common["supply"], amplifier=common["amplifier"],
+                          environment=common["environment"], noise=common["noise"])
+    return req, common, specs
+
+
+def _build_stage(path: str, position: int, topo, parts, model, key: str) -> Stage:
+    try:
+        elements = tuple(topo.elements(parts, model))
+        ideal_model = replace(model, gbw_hz=math.inf)
+        ideal_el = tuple(topo.elements(parts, ideal_model))
+        near = _near_hz(ideal_el) if topo.KIND != "gain" else 1.0
+        ideal = section_figures(ideal_el, kind=topo.KIND, near_hz=near)
+        built = section_figures(elements, kind=topo.KIND, near_hz=near)
+    except (ValueError, np.linalg.LinAlgError) as exc:
+        raise SpecError(path, f"{key}.parts", f"these parts do not make a working {topo.NAME}: "
+                        f"{exc}") from None
+    target = Section(kind=topo.KIND, f0_hz=ideal.f0_hz, q=ideal.q, gain=abs(ideal.gain))
+    return Stage(position=position, topology=topo.NAME, target=target,
+                 components=tuple((n, parts[n]) for n in topo.PARTS if n in parts),
+                 elements=elements, model=model, built=built, ideal=None,
+                 reason="as given in the audit file")
+
+
+def _passband_from_response(chain: Chain, req_common: dict) -> Passband:
+    """The -3 dB band around the built response's peak (for grids only, no mask)."""
+    from bandwright.analysis.levels import net_transfers
+    fs = [st.built.f0_hz for st in chain.stages if st.kind != "gain" and st.built.f0_hz > 0]
+    lo, hi = (min(fs) / 20, max(fs) * 20) if fs else (1.0, 1e6)
+    f = np.geomspace(lo, hi, 4001)
+    mag = np.abs(net_transfers(chain, f)["out"])
+    k = int(np.argmax(mag))
+    inside = mag >= mag[k] / math.sqrt(2)
+    i0 = k
+    while i0 > 0 and inside[i0 - 1]:
+        i0 -= 1
+    i1 = k
+    while i1 < f.size - 1 and inside[i1 + 1]:
+        i1 += 1
+    low, high = f[i0], f[i1]
+    if not high > low:
+        low, high = f[max(k - 1, 0)], f[min(k + 1, f.size - 1)]
+    return Passband(low_hz=float(low), high_hz=float(high), max_loss_db=HALF_POWER_DB,
+                    gain_db=float(20 * math.log10(mag[k])))
+
+
+def audit(path: str | Path) -> Audit:
+    """Read an audit file and run every analysis and check on the chain it describes.
+
+    Raises
+    ------
+    SpecError
+        Bad file: syntax, unknown topology, missing or extra part, bad value (naming the
+        stage and the part).
+    """
+    p = str(path)
+    req, common, specs = load_chain(path)
+    default = resolve_amplifier(common["amplifier"], path=p, supply=common["supply"])
+    stages = []
+    for position, topo, parts, amp, key in specs:
+        model = default if amp is None else resolve_amplifier(amp, path=p, key=f"{key}.amplifier",
+                                                              supply=common["supply"])
+        stages.append(_build_stage(p, position, topo, parts, model, key))
+    chain = build_chain(stages, source_ohms=common["input"].source_ohms)
+    has_mask = req is not None
+    if req is None:
+        req = Requirement(path=p, passband=_passband_from_response(chain, common),
+                          input=common["input"], supply=common["supply"],
+                          amplifier=common["amplifier"], environment=common["environment"],
+                          noise=common["noise"])
+    an = analyse(chain, req, with_mask=has_mask)
+    return Audit(path=p, requirement=req, has_mask=has_mask, chain=chain, analyses=an,
+                 checks=tuple(all_checks(chain, an, req)))

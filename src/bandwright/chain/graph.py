@@ -1,0 +1,102 @@
+"""The chain as a graph: nets are nodes, stages are edges (design.md, "The chain is a graph").
+
+Global net names: the chain input is "in", the chain output (last stage's "out") is "out",
+and every other op-amp output of stage k is "s{k}_{local}" (e.g. "s2_out", "s3_lowpass").
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Sequence
+
+import networkx as nx
+
+from bandwright.chain.stage import Stage, stage_output_nets
+from bandwright.circuits.elements import GROUND, Element
+
+__all__ = ["Chain", "build_chain", "global_net", "flatten", "CHAIN_INPUT", "CHAIN_OUTPUT"]
+
+CHAIN_INPUT = "in"
+CHAIN_OUTPUT = "out"
+
+
+def global_net(stage: Stage, local: str, *, last: bool, input_net: str) -> str:
+    """The chain-wide name of a stage's local net."""
+    if local == GROUND:
+        return GROUND
+    if local == "in":
+        return input_net
+    if local == "out" and last:
+        return CHAIN_OUTPUT
+    return f"s{stage.position}_{local}"
+
+
+@dataclass(frozen=True)
+class Chain:
+    """Stages in order and the graph that joins them.
+
+    Attributes
+    ----------
+    stages : tuple of Stage
+    graph : networkx.DiGraph
+        Nodes are nets; an edge (input net → op-amp output net) per stage output carries
+        ``stage`` (the Stage) and ``local`` (the net's local name inside the stage).
+    source_ohms : float
+        Source resistance ahead of the chain input.
+    """
+
+    stages: tuple[Stage, ...]
+    graph: nx.DiGraph
+    source_ohms: float
+
+    @property
+    def output_nets(self) -> tuple[str, ...]:
+        """Every op-amp output net, in chain order (the JSON `nodes[]`)."""
+        return tuple(n for n in nx.topological_sort(self.graph) if n != CHAIN_INPUT)
+
+    def input_of(self, stage: Stage) -> str:
+        """Global net that feeds `stage`."""
+        for a, _, d in self.graph.edges(data=True):
+            if d["stage"] is stage:
+                return a
+        raise KeyError(stage.position)
+
+    def stage_of(self, net: str) -> Stage:
+        (a, _, d), = self.graph.in_edges(net, data=True)
+        return d["stage"]
+
+    def path_to(self, net: str) -> list[tuple[Stage, str, str]]:
+        """(stage, its input net, local net) for every edge from the chain input to `net`."""
+        path = nx.shortest_path(self.graph, CHAIN_INPUT, net)
+        out = []
+        for a, b in zip(path[:-1], path[1:]):
+            d = self.graph.edges[a, b]
+            out.append((d["stage"], a, d["local"]))
+        return out
+
+
+def build_chain(stages: Sequence[Stage], *, source_ohms: float = 0.0) -> Chain:
+    """Join `stages` in order: each stage's input is the previous stage's "out"."""
+    g = nx.DiGraph()
+    g.add_node(CHAIN_INPUT)
+    prev = CHAIN_INPUT
+    for i, st in enumerate(stages):
+        last = i == len(stages) - 1
+        for local in stage_output_nets(st):
+            net = global_net(st, local, last=last, input_net=prev)
+            g.add_edge(prev, net, stage=st, local=local)
+        prev = global_net(st, "out", last=last, input_net=prev)
+    return Chain(stages=tuple(stages), graph=g, source_ohms=float(source_ohms))
+
+
+def flatten(chain: Chain) -> tuple[Element, ...]:
+    """The whole chain as one element list (global nets; names suffixed "_s{k}")."""
+    out: list[Element] = []
+    for i, st in enumerate(chain.stages):
+        last = i == len(chain.stages) - 1
+        inp = chain.input_of(st)
+        for e in st.elements:
+            nets = tuple(global_net(st, n, last=last, input_net=inp) for n in e.nets)
+            out.append(Element(name=f"{e.name}_s{st.position}", kind=e.kind, nets=nets,
+                               value=e.value, model=e.model))
+    return tuple(out)

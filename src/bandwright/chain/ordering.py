@@ -1,0 +1,223 @@
+"""Section order and gain distribution for the most dynamic range.
+
+Model (Schaumann & Van Valkenburg 2001, ch. 6, equal-maxima scaling [mem]; Moschytz 1975
+[mem]; Halfin, BSTJ 49(2), 1970):
+
+* the transfer to the output of the k-th stage depends only on the SET S of sections up to
+  and including it, so its worst-case peak for unit-gain sections is P(S) =
+  V_in · max_passband |Π_S H| + Σ_tones V_t |Π_S H(f_t)|;
+* equal maxima: the gains make every op-amp output peak at the output's own level
+  L = G · P(all), so the gain up to S is G · P(all) / P(S): every node has the same
+  headroom margin and the gains are fixed by the order;
+* the noise a stage adds at its own output, n_i²(f), reaches the chain output through the
+  sections after it and their gain, P(S)/P(all) · Π_{j∉S} H_j; its share is
+  c(i, S) = (P(S)/P(all))² ∫ n_i² Π_{j∉S} |H_j|² df — a function of (i, S) only, so the
+  order that minimises Σ c is found exactly by dynamic programming over subsets
+  (best(S) = min_{i∈S} best(S∖i) + c(i, S); Held & Karp, J. SIAM 10, 1962), and by brute
+  force over every permutation for a handful of sections.
+
+Output noise at a fixed output level is what separates orders, so the least noise is the
+most dynamic range.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+
+from bandwright.sections.section import Section, section_response
+
+__all__ = ["OrderingProblem", "Ordering", "make_problem", "order_cost", "best_order_dp",
+           "best_order_brute", "best_order", "stage_gains", "choose_order",
+           "EXHAUSTIVE_MAX"]
+
+EXHAUSTIVE_MAX = 8
+MAX_SECTIONS = 12
+
+
+@dataclass(frozen=True)
+class OrderingProblem:
+    """Precomputed tables for every subset of sections.
+
+    Attributes
+    ----------
+    n : int
+    peak : ndarray, shape (2^n,)
+        P(S) for unit-gain sections, V.
+    after_noise : ndarray, shape (n, 2^n)
+        c(i, S) divided by nothing: ∫ n_i² Π_{j∉S}|H_j|² df, V² (entries with i ∉ S unused).
+    total_gain : float
+        G, V/V (magnitude).
+    """
+
+    n: int
+    peak: np.ndarray
+    after_noise: np.ndarray
+    total_gain: float
+
+    def cost(self, i: int, subset: int) -> float:
+        """c(i, S): stage i's noise power at the output when S (with i) comes first."""
+        full = (1 << self.n) - 1
+        return float((self.peak[subset] / self.peak[full]) ** 2 * self.after_noise[i, subset])
+
+
+def _subset_products(log_mag: np.ndarray) -> np.ndarray:
+    """Σ_{j∈S} log_mag[j] for every subset S (bit j set), shape (2^n, F)."""
+    n = log_mag.shape[0]
+    out = np.zeros((1 << n,) + log_mag.shape[1:])
+    for j in range(n):
+        lo = 1 << j
+        out[lo: 2 * lo] = out[:lo] + log_mag[j]
+    return out
+
+
+def make_problem(sections: Sequence[Section], noise_psd: np.ndarray, noise_freq_hz: np.ndarray,
+                 *, total_gain: float, passband_hz: np.ndarray, max_vpk: float,
+                 tones: Sequence[tuple[float, float]] = ()) -> OrderingProblem:
+    """Tables for `sections` (their shapes; gains are ignored).
+
+    Parameters
+    ----------
+    sections : sequence of Section
+    noise_psd : ndarray, shape (n, F)
+        Each section's own output noise PSD on `noise_freq_hz`, V²/Hz.
+    noise_freq_hz : ndarray, shape (F,)
+    total_gain : float
+    passband_hz : ndarray
+        Where the in-band signal may sit.
+    max_vpk : float
+        In-band input amplitude.
+    tones : sequence of (freq_hz, vpk)
+    """
+    n = len(sections)
+    if n > MAX_SECTIONS:
+        raise ValueError(f"at most {MAX_SECTIONS} sections can be ordered, got {n}")
+    unit = [Section(kind=s.kind, f0_hz=s.f0_hz, q=s.q, gain=1.0) for s in sections]
+    tf = np.array([t[0] for t in tones], dtype=float)
+    tv = np.array([t[1] for t in tones], dtype=float)
+    pf = np.concatenate([np.asarray(passband_hz, dtype=float), tf])
+    with np.errstate(divide="ignore"):
+        lm = np.log(np.abs(np.array([section_response(s, pf) for s in unit])))
+        ln = 2 * np.log(np.abs(np.array([section_response(s, noise_freq_hz) for s in unit])))
+    mag = np.exp(_subset_products(lm))                       # (2^n, Fp + T)
+    npb = len(passband_hz)
+    peak = max_vpk * mag[:, :npb].max(axis=1) + (mag[:, npb:] * tv).sum(axis=1)
+    full = (1 << n) - 1
+    after = np.exp(_subset_products(ln)[full ^ np.arange(1 << n)])  # Π_{j∉S} |H_j|²
+    # One section at a time keeps the peak memory at 2^n × F, not n × 2^n × F.
+    after_noise = np.array([np.trapezoid(noise_psd[i] * after, noise_freq_hz, axis=-1)
+                            for i in range(n)])
+    return OrderingProblem(n=n, peak=peak, after_noise=after_noise, total_gain=float(total_gain))
+
+
+def order_cost(problem: OrderingProblem, order: Sequence[int]) -> float:
+    """Output noise power (V²) of the chain in `order` under equal-maxima gains."""
+    subset, total = 0, 0.0
+    for i in order:
+        subset |= 1 << i
+        total += problem.cost(i, subset)
+    return total
+
+
+def best_order_brute(problem: OrderingProblem) -> tuple[tuple[int, ...], float]:
+    """Every permutation (use for up to EXHAUSTIVE_MAX sections)."""
+    best, best_cost = None, math.inf
+    for perm in itertools.permutations(range(problem.n)):
+        c = order_cost(problem, perm)
+        if c < best_cost:
+            best, best_cost = perm, c
+    return tuple(best), best_cost
+
+
+def best_order_dp(problem: OrderingProblem) -> tuple[tuple[int, ...], float]:
+    """Exact minimum by dynamic programming over subsets, O(2^n · n)."""
+    n = problem.n
+    size = 1 << n
+    best = np.full(size, math.inf)
+    last = np.full(size, -1, dtype=int)
+    best[0] = 0.0
+    full = size - 1
+    ratio2 = (problem.peak / problem.peak[full]) ** 2
+    for subset in range(1, size):
+        members = [i for i in range(n) if subset >> i & 1]
+        prev = np.array([subset ^ (1 << i) for i in members])
+        costs = best[prev] + ratio2[subset] * problem.after_noise[members, subset]
+        k = int(np.argmin(costs))
+        best[subset], last[subset] = costs[k], members[k]
+    order, subset = [], full
+    while subset:
+        i = int(last[subset])
+        order.append(i)
+        subset ^= 1 << i
+    return tuple(reversed(order)), float(best[full])
+
+
+def best_order(problem: OrderingProblem) -> tuple[tuple[int, ...], float]:
+    """Exhaustive up to EXHAUSTIVE_MAX sections, dynamic programming beyond."""
+    if problem.n <= EXHAUSTIVE_MAX:
+        return best_order_brute(problem)
+    return best_order_dp(problem)
+
+
+def stage_gains(problem: OrderingProblem, order: Sequence[int]) -> tuple[float, ...]:
+    """Equal-maxima gains (V/V, magnitudes) of the sections in `order`: the first
+    G·P(all)/P(S1), then P(S_{k-1})/P(S_k); their product is G."""
+    full = (1 << problem.n) - 1
+    gains, subset, prev_peak = [], 0, None
+    for i in order:
+        subset |= 1 << i
+        p = problem.peak[subset]
+        gains.append(problem.total_gain * problem.peak[full] / p if prev_peak is None
+                     else prev_peak / p)
+        prev_peak = p
+    return tuple(float(g) for g in gains)
+
+
+@dataclass(frozen=True, slots=True)
+class Ordering:
+    """The chosen order and what it gained.
+
+    Attributes
+    ----------
+    order : tuple of int
+        Indices into the generated section list.
+    gains : tuple of float
+        Equal-maxima gain of each section in `order`.
+    noise_vrms : float
+        Model output noise of the chosen order.
+    generated_vrms, increasing_q_vrms : float
+        Model output noise of the order as generated and of increasing-Q order.
+    method : str
+        "exhaustive" or "dynamic programming".
+    """
+
+    order: tuple[int, ...]
+    gains: tuple[float, ...]
+    noise_vrms: float
+    generated_vrms: float
+    increasing_q_vrms: float
+    method: str
+
+    @property
+    def gain_over_generated_db(self) -> float:
+        return 20 * math.log10(self.generated_vrms / self.noise_vrms)
+
+    @property
+    def gain_over_increasing_q_db(self) -> float:
+        return 20 * math.log10(self.increasing_q_vrms / self.noise_vrms)
+
+
+def choose_order(problem: OrderingProblem, sections: Sequence[Section]) -> Ordering:
+    """Best order, with the generated and increasing-Q orders for comparison."""
+    order, cost = best_order(problem)
+    gen = tuple(range(problem.n))
+    inc_q = tuple(sorted(gen, key=lambda i: sections[i].q))
+    return Ordering(order=order, gains=stage_gains(problem, order), noise_vrms=math.sqrt(cost),
+                    generated_vrms=math.sqrt(order_cost(problem, gen)),
+                    increasing_q_vrms=math.sqrt(order_cost(problem, inc_q)),
+                    method="exhaustive" if problem.n <= EXHAUSTIVE_MAX else
+                    "dynamic programming over subsets")

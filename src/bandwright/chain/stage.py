@@ -1,0 +1,67 @@
+"""A stage: one built circuit in the chain, as the planner or an audit file gives it."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from bandwright.circuits import topology
+from bandwright.circuits.base import Figures
+from bandwright.circuits.elements import Element, opamp_output_nets
+from bandwright.parts.opamp import OpAmp
+from bandwright.sections.section import Section
+
+__all__ = ["Stage", "stage_output_nets"]
+
+
+@dataclass(frozen=True, slots=True)
+class Stage:
+    """One circuit of the chain.
+
+    Attributes
+    ----------
+    position : int
+        1-based place in the chain.
+    topology : str
+        Topology module name.
+    target : Section
+        What it must do (planned) or what its parts give with an ideal op-amp (audited).
+    components : tuple of (name, value)
+        Part values as built (ohms, farads).
+    elements : tuple of Element
+        Its element list, local nets ("in", "out", internal roles).
+    model : OpAmp
+    built : Figures
+        f0, Q and signed gain of the built circuit with this op-amp.
+    ideal : Figures or None
+        Figures of the exact (unrounded) design with this op-amp; None for an audit.
+    reason : str
+        Why this topology (planned) or "as given" (audited).
+    rejected : tuple of (topology, reason)
+    """
+
+    position: int
+    topology: str
+    target: Section
+    components: tuple[tuple[str, float], ...]
+    elements: tuple[Element, ...]
+    model: OpAmp
+    built: Figures
+    ideal: Figures | None = None
+    reason: str = ""
+    rejected: tuple[tuple[str, str], ...] = ()
+
+    @property
+    def kind(self) -> str:
+        return self.target.kind
+
+    @property
+    def nets(self) -> dict[str, str]:
+        """Role → local net of the topology (only nets its element list uses)."""
+        used = {n for e in self.elements for n in e.nets}
+        return {role: net for role, net in topology(self.topology).NETS.items() if net in used}
+
+
+def stage_output_nets(stage: Stage) -> tuple[str, ...]:
+    """The stage's op-amp output nets (local names), "out" last."""
+    outs = [n for n in opamp_output_nets(stage.elements) if n != "out"]
+    return tuple(dict.fromkeys(outs)) + ("out",)

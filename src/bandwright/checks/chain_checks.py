@@ -1,0 +1,108 @@
+"""Checks of a built chain: headroom, slew, drive, gbw, noise, parts (design.md check ids)."""
+
+from __future__ import annotations
+
+import math
+
+from bandwright.analysis import Analyses
+from bandwright.chain.graph import Chain
+from bandwright.checks.base import Check
+from bandwright.circuits import topology
+from bandwright.parts.notation import format_value
+from bandwright.parts.windows import PartWindows, violations
+from bandwright.spec.requirement import Requirement
+
+__all__ = ["headroom_checks", "slew_checks", "drive_checks", "gbw_checks", "noise_checks",
+           "parts_checks", "WARN_MARGIN_DB"]
+
+# Less than this much headroom is a warning: op-amp swing figures are typical, not minimum.
+WARN_MARGIN_DB = 1.0
+
+
+def headroom_checks(an: Analyses) -> list[Check]:
+    """One check per op-amp output net: worst-case peak against the swing limit."""
+    out = []
+    for n in an.nodes:
+        m = n.margin_db
+        status = "fail" if m < 0 else ("warn" if m < WARN_MARGIN_DB else "pass")
+        what = "clips" if m < 0 else "peaks"
+        out.append(Check(
+            id="headroom", status=status, value=n.peak_vpk, limit=n.limit_vpk, unit="Vpk",
+            stage=n.stage, net=n.net,
+            message=f"{n.net} {what} at {n.peak_vpk:.3g} Vpk in the worst case "
+                    f"(signal {n.signal_vpk:.3g} + tones); limit {n.limit_vpk:.3g} Vpk, "
+                    f"margin {m:+.1f} dB"))
+    return out
+
+
+def slew_checks(an: Analyses) -> list[Check]:
+    """Slew rate the worst-case output needs, 2π Σ f·V, against the op-amp's."""
+    out = []
+    for n in an.nodes:
+        need, have = n.slew_needed_v_per_us, n.slew_v_per_us
+        ratio = have / need if need > 0 else math.inf
+        status = "fail" if ratio < 1 else ("warn" if ratio < 2 else "pass")
+        out.append(Check(
+            id="slew", status=status, value=need, limit=have, unit="V/us", stage=n.stage,
+            net=n.net,
+            message=f"{n.net} needs {need:.3g} V/µs, the op-amp slews {have:.3g} V/µs"
+                    + (" — large-signal distortion" if ratio < 1 else "")))
+    return out
+
+
+def drive_checks(an: Analyses) -> list[Check]:
+    """The smallest load each op-amp output drives against its minimum load."""
+    out = []
+    for n in an.nodes:
+        ok = n.load_ohms >= n.min_load_ohms
+        load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "no load"
+        out.append(Check(
+            id="drive", status="pass" if ok else "fail",
+            value=n.load_ohms if math.isfinite(n.load_ohms) else None,
+            limit=n.min_load_ohms, unit="ohm", stage=n.stage, net=n.net,
+            message=f"{n.net} drives {load} at the least (feedback network and next input); "
+                    f"the op-amp wants at least {format_value(n.min_load_ohms, 'Ω')}"))
+    return out
+
+
+def gbw_checks(chain: Chain) -> list[Check]:
+    """Per stage: the GBW its topology needs at this f0 and Q against the op-amp's."""
+    out = []
+    for st in chain.stages:
+        lim = topology(st.topology).limits(st.target, st.model)
+        need, have = lim.gbw_needed_hz, st.model.gbw_hz
+        ok = have >= need
+        out.append(Check(
+            id="gbw", status="pass" if ok else "fail", value=need, limit=have, unit="Hz",
+            stage=st.position,
+            message=f"stage {st.position} ({st.topology}) needs {need / 1e6:.3g} MHz GBW, "
+                    f"the op-amp has {have / 1e6:.3g} MHz"))
+    return out
+
+
+def noise_checks(an: Analyses, requirement: Requirement) -> list[Check]:
+    """Integrated output noise against `noise.max_output_vrms` (when given)."""
+    limit = requirement.noise.max_output_vrms
+    got = an.noise.integrated_vrms
+    lo, hi = an.noise.band_hz
+    top = ", ".join(f"{n} {v * 1e6:.3g} µV" for n, v in an.noise.contributions_vrms[:3])
+    msg = (f"{got * 1e6:.4g} µV rms at the output over {lo:.4g}–{hi:.4g} Hz; largest: {top}")
+    if limit is None:
+        return [Check(id="noise", status="pass", value=got, limit=None, unit="Vrms",
+                      message=msg + " (no budget given)")]
+    ok = got <= limit
+    return [Check(id="noise", status="pass" if ok else "fail", value=got, limit=limit,
+                  unit="Vrms", message=msg + f"; budget {limit * 1e6:.4g} µV rms")]
+
+
+def parts_checks(chain: Chain, windows: PartWindows = PartWindows()) -> list[Check]:
+    """Per stage: part values outside the preferred windows (a warning)."""
+    out = []
+    for st in chain.stages:
+        v = violations(dict(st.components), windows)
+        out.append(Check(
+            id="parts", status="warn" if v else "pass", value=float(len(v)), limit=0.0,
+            unit="parts", stage=st.position,
+            message="; ".join(v) if v else f"stage {st.position}: every part inside the "
+                                           f"preferred windows"))
+    return out

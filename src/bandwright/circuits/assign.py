@@ -1,0 +1,123 @@
+"""Topology by reasons: try every topology of a section's kind, keep why each lost."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from bandwright.circuits import topologies_of_kind
+from bandwright.circuits.base import Limits
+from bandwright.circuits.realize import Realization, realize
+from bandwright.errors import InfeasibleDesign
+from bandwright.parts.opamp import OpAmp
+from bandwright.parts.windows import PartWindows, violations
+from bandwright.sections.section import Section
+
+__all__ = ["Assignment", "assign", "BUILT_F0_TOLERANCE", "BUILT_Q_TOLERANCE"]
+
+# A built section must land this close to its target (rounded parts, finite GBW) before it
+# counts as realised; the mask check then judges the whole chain.
+BUILT_F0_TOLERANCE = 0.01
+BUILT_Q_TOLERANCE = 0.05
+BUILT_GAIN_TOLERANCE = 0.05
+
+
+@dataclass(frozen=True, slots=True)
+class Assignment:
+    """The topology chosen for one section, and why.
+
+    Attributes
+    ----------
+    section : Section
+    realization : Realization or None
+        None when no topology can build the section.
+    limits : Limits or None
+        The chosen topology's limits.
+    reason : str
+        Why the chosen topology won (or why none could).
+    rejected : tuple of (topology, reason)
+        Every other topology of the kind, with the reason it lost.
+    window_notes : tuple of str
+        Parts outside the preferred windows (a `parts` warning).
+    """
+
+    section: Section
+    realization: Realization | None
+    limits: Limits | None
+    reason: str
+    rejected: tuple[tuple[str, str], ...]
+    window_notes: tuple[str, ...] = ()
+
+
+def _rank(lim: Limits) -> tuple[float, float, float]:
+    # Cheapest first: fewest op-amps, then lowest Q sensitivity, then lowest noise gain.
+    return (lim.opamps, lim.q_sensitivity, lim.noise_gain)
+
+
+def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: str = "E12",
+           windows: PartWindows = PartWindows()) -> Assignment:
+    """Choose the cheapest topology that really builds `section` with op-amp `model`.
+
+    Every topology of the section's kind is asked for its limits (Q and gain reach, GBW
+    needed, spread, sensitivity); the feasible ones are built in rank order (fewest op-amps,
+    lowest Q sensitivity, lowest noise gain) and the first whose built f0, Q and gain land
+    within 1 %, 5 % and 5 % of the target wins. A design inside the part windows is preferred
+    to one outside them.
+    """
+    rejected: list[tuple[str, str]] = []
+    feasible = []
+    for topo in topologies_of_kind(section.kind):
+        # Each topology is asked for the gain with its own sign: an inverting circuit
+        # realises -|G|; the chain's reference gain is a magnitude (design.md).
+        sign = -1.0 if getattr(topo, "INVERTING", False) else 1.0
+        signed = Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q,
+                         gain=sign * abs(section.gain))
+        try:
+            lim = topo.limits(signed, model)
+        except (ValueError, InfeasibleDesign) as exc:
+            rejected.append((topo.NAME, str(exc)))
+            continue
+        if lim.feasible:
+            feasible.append((topo, lim))
+        else:
+            rejected.append((topo.NAME, "; ".join(lim.reasons) or "not feasible"))
+    feasible.sort(key=lambda tl: _rank(tl[1]))
+    built = []
+    for topo, lim in feasible:
+        try:
+            real = realize(topo, section, model, r_series=r_series, c_series=c_series,
+                           windows=windows)
+        except (ValueError, InfeasibleDesign, np.linalg.LinAlgError) as exc:
+            rejected.append((topo.NAME, f"could not be built: {exc}"))
+            continue
+        df, dq, dg = real.errors()
+        if abs(df) > BUILT_F0_TOLERANCE or abs(dq) > BUILT_Q_TOLERANCE or \
+                abs(dg) > BUILT_GAIN_TOLERANCE:
+            rejected.append((topo.NAME, f"built with series parts it lands {df:+.2%} in f0, "
+                             f"{dq:+.2%} in Q, {dg:+.2%} in gain"))
+            continue
+        notes = tuple(violations(dict(real.components), windows))
+        built.append((topo, lim, real, notes))
+        if not notes:
+            break
+    if not built:
+        why = "no topology of kind " + section.kind + " can build this section"
+        return Assignment(section=section, realization=None, limits=None, reason=why,
+                          rejected=tuple(rejected))
+    clean = [b for b in built if not b[3]]
+    topo, lim, real, notes = clean[0] if clean else built[0]
+    for other in built:
+        if other[0] is not topo:
+            rejected.append((other[0].NAME, "parts fall outside the preferred windows"
+                             if other[3] else "ranked below the chosen one"))
+    names_done = {n for n, _ in rejected} | {topo.NAME}
+    for t, l in feasible:
+        if t.NAME not in names_done:
+            rejected.append((t.NAME, f"feasible, but costlier: {l.opamps} op-amp(s), "
+                             f"|S_Q| {l.q_sensitivity:.3g}, noise gain {l.noise_gain:.3g}"))
+    reason = (f"{lim.opamps} op-amp(s), Q sensitivity {lim.q_sensitivity:.3g}, noise gain "
+              f"{lim.noise_gain:.3g}; needs {lim.gbw_needed_hz / 1e6:.3g} MHz GBW, the op-amp "
+              f"has {model.gbw_hz / 1e6:.3g} MHz")
+    return Assignment(section=section, realization=real, limits=lim, reason=reason,
+                      rejected=tuple(rejected), window_notes=notes)

@@ -1,0 +1,315 @@
+"""From a section to a built circuit: impedance level, GBW predistortion, series rounding.
+
+Every figure here is read from the element list by ``figures.section_figures`` (the poles
+of the solved transfer, op-amp model included), never from a topology's own formulas, so
+the built figures include finite GBW and rounded parts.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from types import ModuleType
+from typing import Mapping
+
+import numpy as np
+
+from bandwright.circuits.base import Figures
+from bandwright.circuits.elements import Element
+from bandwright.circuits.figures import section_figures, section_figures_batch
+from bandwright.circuits.nodal import passive_names
+from bandwright.errors import InfeasibleDesign
+from bandwright.parts.eseries import nearest, neighbours
+from bandwright.parts.opamp import OpAmp
+from bandwright.parts.windows import PartWindows, impedance_scale
+from bandwright.sections.section import Section
+
+__all__ = ["Realization", "realize", "figure_error", "choose_capacitor", "predistort",
+           "round_to_series"]
+
+_REFERENCE_C_FARADS = 1e-9
+_PREDISTORT_STEPS = 12
+_SEARCH_SWEEPS = 4
+_GAIN_DEADBAND = 1e-3
+_SOLVE_STEPS = 20
+_GRID_MAX = 6561  # 3^8: every ±1 combination of an eight-part section
+_NEIGHBOURS = 2
+
+
+@dataclass(frozen=True, slots=True)
+class Realization:
+    """One section built with one topology.
+
+    Attributes
+    ----------
+    topology : str
+    target : Section
+        What the section must do (gain as a magnitude; the sign is the topology's).
+    predistorted : Section
+        The target handed to the design equations so that the op-amp's finite GBW lands
+        the circuit on `target`.
+    ideal_components : tuple of (name, value)
+        Exact values of the predistorted design.
+    components : tuple of (name, value)
+        Values rounded to the series, as built.
+    elements : tuple of Element
+        The built element list.
+    ideal : Figures
+        f0, Q, gain of the exact-valued design with this op-amp.
+    built : Figures
+        f0, Q, gain of the rounded design with this op-amp.
+    """
+
+    topology: str
+    target: Section
+    predistorted: Section
+    ideal_components: tuple[tuple[str, float], ...]
+    components: tuple[tuple[str, float], ...]
+    elements: tuple[Element, ...]
+    ideal: Figures
+    built: Figures
+
+    def errors(self) -> tuple[float, float, float]:
+        """Relative built error of f0, Q and |gain| against the target."""
+        return _relative(self.built, self.target)
+
+
+def _relative(fig: Figures, target: Section) -> tuple[float, float, float]:
+    if target.kind == "gain":
+        return 0.0, 0.0, abs(fig.gain) / abs(target.gain) - 1
+    return (fig.f0_hz / target.f0_hz - 1, fig.q / target.q - 1,
+            abs(fig.gain) / abs(target.gain) - 1)
+
+
+def figure_error(fig: Figures, target: Section) -> float:
+    """Weighted squared error of a section's figures, in (dB / 8.686)².
+
+    Notes
+    -----
+    A relative f0 error δ moves the band-edge response of a section by about 8.686·Q·δ dB
+    (references.md, "Tolerance"; Schaumann & Van Valkenburg 2001, ch. 3 [mem]); a relative
+    Q error ε moves it by about 8.686·ε/2 dB at the -3 dB points, and a gain error γ by
+    8.686·γ dB everywhere. The weights make each term the dB it costs.
+    """
+    df, dq, dg = _relative(fig, target)
+    if not all(map(math.isfinite, (df, dq, dg))) or (target.kind != "gain" and fig.q <= 0):
+        return math.inf
+    q = max(target.q, 0.5)
+    return (q * df) ** 2 + (dq / 2) ** 2 + dg**2
+
+
+def _figures(topo: ModuleType, components: Mapping[str, float], model: OpAmp,
+             target: Section) -> tuple[tuple[Element, ...], Figures]:
+    elements = tuple(topo.elements(components, model))
+    near = target.f0_hz if target.kind != "gain" else 1.0
+    return elements, section_figures(elements, kind=target.kind, near_hz=near)
+
+
+def choose_capacitor(topo: ModuleType, section: Section, *, series: str,
+                     windows: PartWindows) -> float:
+    """A series capacitor value that puts the design's resistors mid-window.
+
+    Impedance scaling (R·k, C/k) leaves f0, Q and gain unchanged (Schaumann & Van
+    Valkenburg 2001, §6 [mem]); the value is then rounded to the capacitor series and kept
+    inside the capacitor window.
+    """
+    if not any(p.startswith("C") for p in topo.PARTS):
+        return _REFERENCE_C_FARADS
+    values = topo.design(section, c_farads=_REFERENCE_C_FARADS)
+    k = impedance_scale(values, windows)
+    c = float(np.clip(_REFERENCE_C_FARADS / k, windows.c_min_farads, windows.c_max_farads))
+    return float(nearest(c, series))
+
+
+def predistort(topo: ModuleType, target: Section, model: OpAmp, *, c_farads: float
+               ) -> tuple[Section, dict[str, float]]:
+    """Design targets that land the circuit on `target` with this op-amp.
+
+    A fixed-point iteration: design for f0', Q', G'; read the circuit's f0, Q, G from its
+    poles; scale f0', Q', G' by target/actual; repeat. Converges in a few steps while the
+    GBW error is small (it is first order in f0/GBW: Franco 2015, §6 [mem]); stops early when
+    the design equations refuse a predistorted target.
+    """
+    asked = target
+    values = topo.design(asked, c_farads=c_farads)
+    for _ in range(_PREDISTORT_STEPS):
+        _, fig = _figures(topo, values, model, target)
+        df, dq, dg = _relative(fig, target)
+        if max(abs(df), abs(dq), abs(dg) if abs(dg) > _GAIN_DEADBAND else 0.0) < 1e-7 \
+                or fig.q <= 0:
+            break
+        # A gain error under 0.1 % is left alone: chasing the 1/A0 error of a follower
+        # would ask for a 1e-5 gain resistor ratio.
+        new = Section(kind=target.kind, f0_hz=asked.f0_hz / (1 + df) if target.f0_hz else 0.0,
+                      q=asked.q / (1 + dq) if target.q else 0.0,
+                      gain=abs(asked.gain) / (1 + dg) if abs(dg) > _GAIN_DEADBAND
+                      else abs(asked.gain))
+        try:
+            new_values = topo.design(new, c_farads=c_farads)
+        except (ValueError, InfeasibleDesign):
+            break
+        asked, values = new, new_values
+    return asked, dict(values)
+
+
+def _series_of(name: str, r_series: str, c_series: str) -> str:
+    return c_series if name.startswith("C") else r_series
+
+
+def _error_batch(f0_hz, q, gain, target: Section) -> np.ndarray:
+    """``figure_error`` for arrays of figures (NaN and unstable samples → inf)."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        if target.kind == "gain":
+            e = (np.abs(gain) / abs(target.gain) - 1) ** 2
+        else:
+            qq = max(target.q, 0.5)
+            e = ((qq * (f0_hz / target.f0_hz - 1)) ** 2 + ((q / target.q - 1) / 2) ** 2
+                 + (np.abs(gain) / abs(target.gain) - 1) ** 2)
+            e = np.where(q > 0, e, np.inf)
+    return np.where(np.isfinite(e), e, np.inf)
+
+
+def _residuals(f0_hz, q, gain, target: Section) -> np.ndarray:
+    """Per-sample residual vectors whose squared norm is `figure_error`, shape (S, 3)."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        g = np.abs(gain) / abs(target.gain) - 1
+        if target.kind == "gain":
+            return np.stack([np.zeros_like(g), np.zeros_like(g), g], axis=-1)
+        return np.stack([max(target.q, 0.5) * (f0_hz / target.f0_hz - 1),
+                         (q / target.q - 1) / 2, g], axis=-1)
+
+
+def solve_resistors(elements: tuple[Element, ...], starts: np.ndarray, target: Section
+                    ) -> tuple[np.ndarray, np.ndarray]:
+    """Resistor values (continuous) that best land `target`, for each row of `starts`.
+
+    Parameters
+    ----------
+    elements : tuple of Element
+    starts : ndarray, shape (K, P)
+        Part values in ``passive_names(elements)`` order; capacitors stay as given.
+    target : Section
+
+    Returns
+    -------
+    values : ndarray, shape (K, P)
+    error : ndarray, shape (K,)
+        ``figure_error`` of each solution.
+
+    Notes
+    -----
+    Gauss-Newton on log R with a finite-difference Jacobian, every start and every probe
+    evaluated in one batch (``section_figures_batch``); minimum-norm steps keep the
+    resistors near their start when they have more freedom than the figures need.
+    """
+    names = passive_names(elements)
+    free = np.flatnonzero([n.startswith("R") for n in names])
+    x = np.log(np.asarray(starts, dtype=float))
+    k_count, n_free = x.shape[0], free.size
+    near = target.f0_hz if target.kind != "gain" else 1.0
+    h = 1e-5
+    for _ in range(_SOLVE_STEPS if n_free else 0):
+        probes = np.repeat(x[:, None, :], 1 + n_free, axis=1)       # (K, 1+F, P)
+        probes[:, np.arange(1, n_free + 1), free] += h
+        f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near,
+                                         values=np.exp(probes.reshape(-1, x.shape[1])))
+        r = _residuals(f0, q, g, target).reshape(k_count, 1 + n_free, 3)
+        jac = np.swapaxes(r[:, 1:] - r[:, :1], 1, 2) / h             # (K, 3, F)
+        ok = np.all(np.isfinite(r), axis=(1, 2))
+        jac = np.where(ok[:, None, None], jac, 0.0)
+        rhs = np.where(ok[:, None], -r[:, 0], 0.0)
+        step = np.linalg.pinv(jac) @ rhs[..., None]
+        step = np.clip(step[..., 0], -0.5, 0.5)
+        x[:, free] += step
+        if np.max(np.abs(step)) < 1e-9:
+            break
+    vals = np.exp(x)
+    f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near, values=vals)
+    return vals, _error_batch(f0, q, g, target)
+
+
+def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], target: Section,
+                 series_of, movable) -> tuple[dict[str, float], float]:
+    """Best combination of series values around `start` (rounded) for the parts in
+    `movable`, recentring while it improves."""
+    names = passive_names(elements)
+    current = {n: float(nearest(start[n], series_of(n))) for n in names}
+    moving = [n for n in names if movable(n)]
+    steps = _NEIGHBOURS if (2 * _NEIGHBOURS + 1) ** len(moving) <= _GRID_MAX else 1
+    if (2 * steps + 1) ** len(moving) > _GRID_MAX:
+        steps = 0
+    near = target.f0_hz if target.kind != "gain" else 1.0
+    best_err = math.inf
+    for _ in range(_SEARCH_SWEEPS):
+        axes = [neighbours(current[n], series_of(n), count=steps) if n in moving
+                else np.array([current[n]]) for n in names]
+        grid = np.stack([a.ravel() for a in np.meshgrid(*axes, indexing="ij")], axis=-1)
+        f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near, values=grid)
+        err = _error_batch(f0, q, g, target)
+        k = int(np.argmin(err))
+        if not err[k] < best_err - 1e-15:
+            break
+        best_err = float(err[k])
+        current = {n: float(v) for n, v in zip(names, grid[k])}
+    return current, best_err
+
+
+def round_to_series(topo: ModuleType, values: Mapping[str, float], target: Section,
+                    model: OpAmp, *, r_series: str, c_series: str
+                    ) -> tuple[dict[str, float], tuple[Element, ...], Figures]:
+    """Round every part to its series with the smallest `figure_error`.
+
+    Two searches, the better one kept: (a) every combination of each part's neighbouring
+    series values around the exact design (±2 steps for up to five parts, ±1 beyond);
+    (b) capacitors rounded first (their series is the coarse one), the resistors solved
+    again for those capacitors (``solve_resistors``), then the resistors' neighbouring
+    values searched the same way.
+    """
+    def series_of(n: str) -> str:
+        return _series_of(n, r_series, c_series)
+
+    elements = tuple(topo.elements(values, model))
+    names = passive_names(elements)
+    near = target.f0_hz if target.kind != "gain" else 1.0
+    best_a, err_a = _grid_search(elements, values, target, series_of, lambda n: True)
+    # Capacitor combinations: each capacitor at its nearest series value or one step either
+    # side; the resistors are solved again for each and the best start is rounded.
+    axes = [neighbours(values[n], c_series, count=1) if n.startswith("C")
+            else np.array([values[n]]) for n in names]
+    combos = np.stack([a.ravel() for a in np.meshgrid(*axes, indexing="ij")], axis=-1)
+    solved, errs = solve_resistors(elements, combos, target)
+    start_b = dict(zip(names, solved[int(np.argmin(errs))]))
+    best_b, err_b = _grid_search(elements, start_b, target, series_of,
+                                 lambda n: n.startswith("R"))
+    current = best_a if err_a <= err_b else best_b
+    elements = tuple(topo.elements(current, model))
+    return current, elements, section_figures(elements, kind=target.kind, near_hz=near)
+
+
+def realize(topo: ModuleType, target: Section, model: OpAmp, *, r_series: str = "E96",
+            c_series: str = "E12", windows: PartWindows = PartWindows()) -> Realization:
+    """Build `target` with topology module `topo` and op-amp `model`.
+
+    Parameters
+    ----------
+    topo : module
+        A ``circuits/<name>.py`` module.
+    target : Section
+    model : OpAmp
+    r_series, c_series : str
+        IEC 60063 series for resistors and capacitors.
+    windows : PartWindows
+        Preferred value ranges.
+    """
+    target = Section(kind=target.kind, f0_hz=target.f0_hz, q=target.q, gain=abs(target.gain))
+    c = choose_capacitor(topo, target, series=c_series, windows=windows)
+    asked, exact = predistort(topo, target, model, c_farads=c)
+    _, ideal = _figures(topo, exact, model, target)
+    rounded, elements, built = round_to_series(topo, exact, target, model,
+                                               r_series=r_series, c_series=c_series)
+    order = tuple(topo.PARTS)
+    return Realization(
+        topology=topo.NAME, target=target, predistorted=asked,
+        ideal_components=tuple((n, float(exact[n])) for n in order if n in exact),
+        components=tuple((n, float(rounded[n])) for n in order if n in rounded),
+        elements=elements, ideal=ideal, built=built)

@@ -1,0 +1,121 @@
+"""The files `--out DIR` holds: plan.json, chain.cir, chain.toml, bom.csv."""
+
+from __future__ import annotations
+
+import csv
+import io
+from typing import Any
+
+from bandwright.chain.graph import Chain, flatten
+from bandwright.parts.eseries import is_member
+from bandwright.parts.notation import format_value
+from bandwright.parts.tolerance import default_tolerance_pct, dielectric
+from bandwright.report.spice import spice_deck
+
+__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv"]
+
+_AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
+             "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
+
+
+def _toml_value(v: Any) -> str:
+    if isinstance(v, str):
+        return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    if isinstance(v, (list, tuple)):
+        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
+    return repr(float(v)) if isinstance(v, float) else str(v)
+
+
+def _amplifier_lines(model, header: str) -> list[str]:
+    lines = [header, f"# op-amp model '{model.name}', every figure written out"]
+    lines += [f"{k} = {_toml_value(float(getattr(model, k)))}" for k in _AMP_KEYS]
+    return lines
+
+
+def chain_toml(chain: Chain, req, *, title: str) -> str:
+    """The chain in the audit format (design.md), so that `bandwright audit` reproduces it."""
+    out = [f"# {title}", "# Audit file written by bandwright: `bandwright audit chain.toml`.", ""]
+    pb = req.passband
+    if pb is not None:
+        out += ["[passband]", f"low_hz = {pb.low_hz!r}", f"high_hz = {pb.high_hz!r}",
+                f"max_loss_db = {pb.max_loss_db!r}", f"gain_db = {pb.gain_db!r}",
+                f"gain_tolerance_db = {pb.gain_tolerance_db!r}", ""]
+        for sp in req.stopband:
+            out += ["[[stopband]]", f"freq_hz = {sp.freq_hz!r}", f"min_loss_db = {sp.min_loss_db!r}",
+                    ""]
+    inp = req.input
+    out += ["[input]", f"max_vpk = {inp.max_vpk!r}", f"source_ohms = {inp.source_ohms!r}"]
+    for t in inp.tones:
+        out += ["[[input.tone]]", f"freq_hz = {t.freq_hz!r}", f"vpk = {t.vpk!r}"]
+    out += ["", "[supply]", f"rails_v = {_toml_value(list(req.supply.rails_v))}", ""]
+    models = {st.model for st in chain.stages}
+    shared = len(models) == 1
+    if shared:
+        out += _amplifier_lines(chain.stages[0].model, "[amplifier]") + [""]
+    out += ["[environment]", f"temperature_c = {req.environment.temperature_c!r}", ""]
+    if req.noise.band_hz or req.noise.max_output_vrms:
+        out += ["[noise]"]
+        if req.noise.band_hz:
+            out.append(f"band_hz = {_toml_value(list(req.noise.band_hz))}")
+        if req.noise.max_output_vrms:
+            out.append(f"max_output_vrms = {req.noise.max_output_vrms!r}")
+        out.append("")
+    for st in chain.stages:
+        out += ["[[stage]]", f"topology = {_toml_value(st.topology)}",
+                "parts = { " + ", ".join(f"{n} = {_toml_value(format_value(v, significant=6))}"
+                                          for n, v in st.components) + " }"]
+        if not shared:
+            out += _amplifier_lines(st.model, "[stage.amplifier]")
+        out.append("")
+    return "\n".join(out)
+
+
+def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None) -> str:
+    """Bill of materials: one row per distinct part, with designators and quantity."""
+    rows: dict[tuple, list[str]] = {}
+    for e in flatten(chain):
+        if e.kind == "opamp":
+            key = ("op-amp", e.model.name, "", "", "")
+        else:
+            series = r_series if e.kind == "R" else c_series
+            if series is None or not is_member(e.value, series):
+                series = next((s for s in ("E6", "E12", "E24", "E48", "E96", "E192")
+                               if is_member(e.value, s)), "")
+            tol = f"{default_tolerance_pct(series):g} %" if series else ""
+            unit = "Ω" if e.kind == "R" else "F"
+            key = ("resistor" if e.kind == "R" else "capacitor", format_value(e.value, unit),
+                   series, tol, dielectric(e.value) if e.kind == "C" else "")
+        rows.setdefault(key, []).append(e.name)
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["designators", "part", "value", "series", "tolerance", "dielectric", "quantity"])
+    for key, refs in rows.items():
+        w.writerow([" ".join(refs), key[0], key[1], key[2], key[3], key[4], len(refs)])
+    return buf.getvalue()
+
+
+def _files(chain: Chain, req, json_text: str, json_name: str, title: str,
+           r_series: str | None, c_series: str | None) -> dict[str, bytes]:
+    return {
+        json_name: (json_text + "\n").encode(),
+        "chain.cir": spice_deck(flatten(chain), source_ohms=chain.source_ohms,
+                                temperature_c=req.environment.temperature_c, title=title).encode(),
+        "chain.toml": chain_toml(chain, req, title=title).encode(),
+        "bom.csv": bom_csv(chain, r_series=r_series, c_series=c_series).encode(),
+    }
+
+
+def plan_files(p, json_text: str) -> dict[str, bytes]:
+    """Every file of a plan's --out folder."""
+    d = p.chosen
+    if d.chain is None:
+        return {"plan.json": (json_text + "\n").encode()}
+    title = f"bandwright plan of {p.requirement.path}"
+    return _files(d.chain, p.requirement, json_text, "plan.json", title,
+                  p.requirement.design.resistor_series, p.requirement.design.capacitor_series)
+
+
+def audit_files(a, json_text: str) -> dict[str, bytes]:
+    """Every file of an audit's --out folder."""
+    return _files(a.chain, a.requirement, json_text, "audit.json",
+                  f"bandwright audit of {a.path}", None, None)
