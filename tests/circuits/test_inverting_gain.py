@@ -46,9 +46,11 @@ def test_interface():
     (-1.0, {"Rin": 10e3, "Rf": 10e3}),
     (-20.0, {"Rin": 10e3, "Rf": 200e3}),
     (-0.1, {"Rin": 100e3, "Rf": 10e3}),
+    (20.0, {"Rin": 10e3, "Rf": 200e3}),                 # sign ignored (magnitudes)
 ])
 def test_design_values(g, want):
-    """Rf/Rin = |gain|, the smaller 10 kOhm, so the input resistance is >= 10 kOhm."""
+    """Rf/Rin = |gain|, the smaller 10 kOhm, so the input resistance is >= 10 kOhm; the
+    sign of the section's gain is ignored (the stage always inverts)."""
     parts = ivg.design(_gain(g), c_farads=1e-9)
     assert parts.keys() == want.keys()
     for k, v in want.items():
@@ -115,20 +117,20 @@ def test_limits_figures():
 
 
 @pytest.mark.parametrize("section,words", [
-    (_gain(2.0), "inverts"),
+    (_gain(0.0), "non-zero"),
     (Section("highpass", 1e3, 1.0, -2.0), "builds 'gain'"),
     (_gain(-5000.0), "ratio 5000"),
 ])
 def test_limits_reject(section, words):
-    """Positive gain, wrong kind, a resistor ratio beyond 1000: infeasible."""
+    """Zero gain, wrong kind, a resistor ratio beyond 1000: infeasible."""
     lim = ivg.limits(section, IDEAL)
     assert not lim.feasible and any(words in r for r in lim.reasons)
 
 
 def test_design_and_element_errors():
-    """Positive gain: InfeasibleDesign; wrong kind, missing part: ValueError."""
+    """Zero gain: InfeasibleDesign; wrong kind, missing part: ValueError."""
     with pytest.raises(InfeasibleDesign):
-        ivg.design(_gain(3.0))
+        ivg.design(_gain(0.0))
     with pytest.raises(ValueError):
         ivg.design(Section("lowpass", 1e3, 1.0, -1.0))
     with pytest.raises(ValueError):

@@ -174,12 +174,12 @@ def test_limits_feasible_section_reports_figures():
 
 
 @pytest.mark.parametrize("section,words", [
-    (Section("highpass", 1e3, 1.0, 1.0), "inverts"),
+    (Section("highpass", 1e3, 1.0, math.inf), "finite"),
     (Section("lowpass", 1e3, 1.0, -1.0), "builds 'highpass'"),
     (Section("highpass", 1e3, math.nan, -1.0), "Q = nan"),
 ])
 def test_limits_reject_what_the_topology_cannot_build(section, words):
-    """Positive gain, wrong kind, Q not finite: infeasible, with the reason."""
+    """Infinite gain, wrong kind, Q not finite: infeasible, with the reason."""
     lim = mhp.limits(section, IDEAL)
     assert not lim.feasible
     assert any(words in r for r in lim.reasons)
@@ -195,10 +195,17 @@ def test_limits_reject_slow_opamp_and_large_spread():
     assert not wide.feasible and any("spread 1089" in r for r in wide.reasons)
 
 
+def test_gain_sign_is_ignored_and_the_circuit_inverts():
+    """The chain's gains are magnitudes (design.md): +3 designs as -3, built gain -3 [nodal]."""
+    pos = mhp.design(Section("highpass", 1e3, 1.5, 3.0), c_farads=1e-9)
+    assert pos == mhp.design(Section("highpass", 1e3, 1.5, -3.0), c_farads=1e-9)
+    assert rel(numeric_figures(mhp, pos, IDEAL, 1e3).gain, -3.0) < 1e-9
+
+
 def test_design_and_element_errors():
-    """Positive gain: InfeasibleDesign; wrong kind, c <= 0, missing part: ValueError."""
+    """Zero gain: InfeasibleDesign; wrong kind, c <= 0, missing part: ValueError."""
     with pytest.raises(InfeasibleDesign):
-        mhp.design(Section("highpass", 1e3, 1.0, 2.0), c_farads=1e-9)
+        mhp.design(Section("highpass", 1e3, 1.0, 0.0), c_farads=1e-9)
     with pytest.raises(ValueError):
         mhp.design(Section("lowpass", 1e3, 1.0, -1.0), c_farads=1e-9)
     with pytest.raises(ValueError):

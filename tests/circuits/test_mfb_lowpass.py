@@ -185,12 +185,12 @@ def test_limits_feasible_section_reports_figures():
 
 
 @pytest.mark.parametrize("section,words", [
-    (Section("lowpass", 1e3, 1.0, 1.0), "inverts"),
+    (Section("lowpass", 1e3, 1.0, 0.0), "non-zero"),
     (Section("highpass", 1e3, 1.0, -1.0), "builds 'lowpass'"),
     (Section("lowpass", -5.0, 1.0, -1.0), "f0"),
 ])
 def test_limits_reject_what_the_topology_cannot_build(section, words):
-    """Positive gain, wrong kind, f0 <= 0: infeasible, with the reason."""
+    """Zero gain, wrong kind, f0 <= 0: infeasible, with the reason."""
     lim = mlp.limits(section, IDEAL)
     assert not lim.feasible
     assert any(words in r for r in lim.reasons)
@@ -206,10 +206,18 @@ def test_limits_reject_slow_opamp_and_large_spread():
     assert not wide.feasible and any("spread 1152" in r for r in wide.reasons)
 
 
+def test_gain_sign_is_ignored_and_the_circuit_inverts():
+    """The chain's gains are magnitudes (design.md): +3 designs as -3, built gain -3 [nodal]."""
+    pos = mlp.design(Section("lowpass", 1e3, 1.5, 3.0), c_farads=1e-9)
+    assert pos == mlp.design(Section("lowpass", 1e3, 1.5, -3.0), c_farads=1e-9)
+    assert rel(numeric_figures(mlp, pos, IDEAL, 1e3).gain, -3.0) < 1e-9
+    assert mlp.limits(Section("lowpass", 1e3, 1.5, 3.0), IDEAL).feasible
+
+
 def test_design_and_element_errors():
-    """Positive gain: InfeasibleDesign; wrong kind, c <= 0, missing part: ValueError."""
+    """Zero gain: InfeasibleDesign; wrong kind, c <= 0, missing part: ValueError."""
     with pytest.raises(InfeasibleDesign):
-        mlp.design(Section("lowpass", 1e3, 1.0, 2.0), c_farads=1e-9)
+        mlp.design(Section("lowpass", 1e3, 1.0, 0.0), c_farads=1e-9)
     with pytest.raises(ValueError):
         mlp.design(Section("bandpass", 1e3, 1.0, -1.0), c_farads=1e-9)
     with pytest.raises(ValueError):

@@ -44,13 +44,16 @@ def test_interface():
 @pytest.mark.parametrize("g,want", [
     (1.0, {}),
     (1.0 + 5e-10, {}),                                  # float round-off of unity
+    (1.0005, {}),                                       # within UNITY_RTOL = 0.1 %
+    (-4.0, {"Rf": 30e3, "Rg": 10e3}),                   # sign ignored (magnitudes)
     (4.0, {"Rf": 30e3, "Rg": 10e3}),
     (1.5, {"Rf": 10e3, "Rg": 20e3}),
     (0.25, {"Ra": 30e3, "Rb": 10e3}),
     (0.8, {"Ra": 10e3, "Rb": 40e3}),
 ])
 def test_design_forms_and_values(g, want):
-    """Follower / amplifier / divider; the smaller resistor of a pair is 10 kOhm (documented)."""
+    """Follower / amplifier / divider; the smaller resistor of a pair is 10 kOhm; |gain|
+    within 0.1 % of 1 is the follower; the sign is ignored (all documented)."""
     parts = nig.design(_gain(g), c_farads=1e-9)
     assert parts.keys() == want.keys()
     for k, v in want.items():
@@ -121,22 +124,27 @@ def test_limits_figures():
     assert no_freq.gbw_needed_hz == 0.0 and any("max_freq_hz" in r for r in no_freq.reasons)
 
 
+def test_near_unity_gain_is_noted():
+    """A |gain| built at unity says so in the reasons."""
+    lim = nig.limits(_gain(0.9995), IDEAL)
+    assert lim.feasible and any("built at unity" in r for r in lim.reasons)
+
+
 @pytest.mark.parametrize("section,words", [
-    (_gain(-2.0), "does not invert"),
     (_gain(0.0), "non-zero"),
     (Section("lowpass", 1e3, 1.0, 2.0), "builds 'gain'"),
-    (_gain(1.0005), "ratio 2000"),
+    (_gain(2000.0), "ratio 1999"),
 ])
 def test_limits_reject(section, words):
-    """Negative or zero gain, wrong kind, a resistor ratio beyond 1000: infeasible."""
+    """Zero gain, wrong kind, a resistor ratio beyond 1000: infeasible."""
     lim = nig.limits(section, IDEAL)
     assert not lim.feasible and any(words in r for r in lim.reasons)
 
 
 def test_design_and_element_errors():
-    """Negative gain: InfeasibleDesign; wrong kind, half pair, unknown part: ValueError."""
+    """Zero gain: InfeasibleDesign; wrong kind, half pair, unknown part: ValueError."""
     with pytest.raises(InfeasibleDesign):
-        nig.design(_gain(-1.0))
+        nig.design(_gain(0.0))
     with pytest.raises(ValueError):
         nig.design(Section("highpass", 1e3, 1.0, 1.0))
     with pytest.raises(ValueError):

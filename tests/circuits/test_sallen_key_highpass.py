@@ -203,15 +203,21 @@ def test_limits_feasible_section_reports_figures():
 
 
 @pytest.mark.parametrize("section,words", [
-    (Section("highpass", 1e3, 1.0, -1.0), "does not invert"),
     (Section("highpass", 1e3, 1.0, 0.5), "gain stage"),
     (Section("lowpass", 1e3, 1.0, 1.0), "builds 'highpass'"),
 ])
 def test_limits_reject_what_the_topology_cannot_build(section, words):
-    """Negative gain, attenuation, wrong kind: infeasible, with the reason."""
+    """Attenuation, wrong kind: infeasible, with the reason."""
     lim = skh.limits(section, IDEAL)
     assert not lim.feasible
     assert any(words in r for r in lim.reasons)
+
+
+def test_gain_sign_is_ignored_and_the_circuit_does_not_invert():
+    """The chain's gains are magnitudes (design.md): -2 designs as +2, built gain +2 [nodal]."""
+    neg = skh.design(Section("highpass", 1e3, 1.5, -2.0), c_farads=1e-9)
+    assert neg == skh.design(Section("highpass", 1e3, 1.5, 2.0), c_farads=1e-9)
+    assert rel(numeric_figures(skh, neg, IDEAL, 1e3).gain, 2.0) < 1e-9
 
 
 def test_limits_reject_slow_opamp_and_large_spread():

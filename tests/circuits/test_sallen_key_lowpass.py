@@ -229,17 +229,36 @@ def test_limits_feasible_section_reports_figures():
 
 
 @pytest.mark.parametrize("section,words", [
-    (Section("lowpass", 1e3, 1.0, -1.0), "does not invert"),
     (Section("lowpass", 1e3, 1.0, 0.5), "gain stage"),
+    (Section("lowpass", 1e3, 1.0, -0.5), "gain stage"),
     (Section("highpass", 1e3, 1.0, 1.0), "builds 'lowpass'"),
     (Section("lowpass", 1e3, 0.0, 1.0), "Q = 0"),
 ])
 def test_limits_reject_what_the_topology_cannot_build(section, words):
-    """Negative gain, attenuation, wrong kind, Q <= 0: infeasible, with the reason."""
+    """Attenuation, wrong kind, Q <= 0: infeasible, with the reason."""
     lim = skl.limits(section, IDEAL)
     assert not lim.feasible
     assert any(words in r for r in lim.reasons)
     assert math.isinf(lim.gbw_needed_hz)
+
+
+def test_gain_sign_is_ignored_and_the_circuit_does_not_invert():
+    """The chain's gains are magnitudes (design.md): -2 designs as +2, built gain +2 [nodal]."""
+    neg = skl.design(Section("lowpass", 1e3, 1.5, -2.0), c_farads=1e-9)
+    assert neg == skl.design(Section("lowpass", 1e3, 1.5, 2.0), c_farads=1e-9)
+    assert rel(numeric_figures(skl, neg, IDEAL, 1e3).gain, 2.0) < 1e-9
+    assert skl.limits(Section("lowpass", 1e3, 1.5, -2.0), IDEAL).feasible
+
+
+def test_gain_within_a_tenth_of_a_percent_of_unity_is_a_follower_with_a_note():
+    """UNITY_RTOL = 1/MAX_SPREAD: closer to 1 would need Rf/Rg < 1/1000 (documented)."""
+    section = Section("lowpass", 1e3, 1.5, 1.0005)
+    assert "Rf" not in skl.design(section, c_farads=1e-9)
+    lim = skl.limits(section, IDEAL)
+    assert lim.feasible and any("built at unity" in r for r in lim.reasons)
+    assert not any("built at unity" in r
+                   for r in skl.limits(Section("lowpass", 1e3, 1.5, 1.0), IDEAL).reasons)
+    assert "Rf" in skl.design(Section("lowpass", 1e3, 1.5, 1.002), c_farads=1e-9)
 
 
 def test_limits_reject_slow_opamp_and_large_spread():

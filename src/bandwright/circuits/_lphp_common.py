@@ -45,8 +45,8 @@ from bandwright.sections.section import Section
 
 __all__ = ["GBW_SHIFT_LIMIT", "GAIN_ERROR_LIMIT", "MAX_SPREAD", "UNITY_RTOL", "BASE_R_OHMS",
            "is_unity", "ratio_pair", "finite_gbw_shift", "gbw_needed_hz", "noise_gain_at",
-           "spread", "max_log_sensitivity", "section_problems", "require", "infeasible_limits",
-           "gbw_reason"]
+           "spread", "max_log_sensitivity", "section_problems", "design_gain", "unity_note",
+           "require", "infeasible_limits", "gbw_reason"]
 
 #: Largest first-order relative shift of f0 or Q allowed from finite GBW (criterion above).
 GBW_SHIFT_LIMIT = 0.1
@@ -55,9 +55,12 @@ GAIN_ERROR_LIMIT = 0.01
 #: Largest component spread (largest/smallest R, or C) accepted. Beyond about 1000:1 one part
 #: ends up near stray capacitance or at an impractical resistance (common practice).
 MAX_SPREAD = 1000.0
-#: A gain this close to 1 (relative) is unity: the difference is float round-off, some six
-#: orders below any part tolerance, and would otherwise ask for a gigaohm resistor.
-UNITY_RTOL = 1e-9
+#: A gain this close to 1 (relative) is built at unity (follower). Any other circuit would
+#: need a gain-resistor ratio below 1/MAX_SPREAD, which ``limits`` refuses; and a gain this
+#: near 1 is the size of the finite-A0 loss of a real op-amp (A0 >= 60 dB) that a
+#: predistortion loop asks to make up, which must not turn a follower into a 10 GOhm
+#: divider. ``limits`` notes the difference whenever it is not zero.
+UNITY_RTOL = 1.0 / MAX_SPREAD
 #: The smaller resistor of a gain-setting pair (design choice: 10 kOhm keeps the op-amp
 #: load light and the Johnson noise modest; common practice).
 BASE_R_OHMS = 10e3
@@ -243,9 +246,11 @@ def max_log_sensitivity(fn: Callable[[Mapping[str, float]], float],
     return worst
 
 
-def section_problems(section: Section, *, kind: str, inverting: bool,
-                     min_gain: float = 0.0) -> list[str]:
-    """Reasons a section cannot be built by a topology of `kind` and gain sign, or [].
+def section_problems(section: Section, *, kind: str, min_gain: float = 0.0) -> list[str]:
+    """Reasons a section cannot be built by a topology of `kind`, or [].
+
+    The sign of ``section.gain`` is not checked: the chain's gains are magnitudes and a
+    topology's sign is its ``INVERTING`` flag (design.md; ``circuits.assign``).
 
     Parameters
     ----------
@@ -253,8 +258,6 @@ def section_problems(section: Section, *, kind: str, inverting: bool,
         The section.
     kind : str
         The topology's KIND.
-    inverting : bool
-        True when the topology's gain is negative.
     min_gain : float
         Smallest |gain| the topology reaches (non-inverting Sallen-Key: 1).
 
@@ -271,20 +274,52 @@ def section_problems(section: Section, *, kind: str, inverting: bool,
             problems.append(f"f0 = {section.f0_hz!r} Hz: must be finite and > 0")
         if not (section.q > 0 and math.isfinite(section.q)):
             problems.append(f"Q = {section.q!r}: must be finite and > 0")
-    g = section.gain
+    g = abs(section.gain)
     if not (math.isfinite(g) and g != 0):
-        problems.append(f"gain = {g!r}: must be finite and non-zero")
-    elif inverting and g > 0:
-        problems.append(f"gain = {g:.6g} V/V: this topology inverts (gain < 0 only)")
-    elif not inverting and g < 0:
-        problems.append(f"gain = {g:.6g} V/V: this topology does not invert (gain > 0 only)")
-    elif abs(g) < min_gain and not is_unity(abs(g) / min_gain):
-        problems.append(f"gain = {g:.6g} V/V: below the {min_gain:g} V/V this topology "
+        problems.append(f"gain = {section.gain!r}: must be finite and non-zero")
+    elif g < min_gain and not is_unity(g / min_gain):
+        problems.append(f"|gain| = {g:.6g} V/V: below the {min_gain:g} V/V this topology "
                         "reaches; run it at unity and put the attenuation in a gain stage")
     return problems
 
 
-def require(section: Section, *, kind: str, inverting: bool, min_gain: float = 0.0) -> None:
+def design_gain(section: Section) -> float:
+    """The |gain| a design is built for: |section.gain|, or exactly 1 within ``UNITY_RTOL``.
+
+    Parameters
+    ----------
+    section : Section
+        The section.
+
+    Returns
+    -------
+    float
+        Gain magnitude, V/V.
+    """
+    g = abs(section.gain)
+    return 1.0 if is_unity(g) else g
+
+
+def unity_note(section: Section) -> list[str]:
+    """A note when a gain that is not exactly 1 is built at unity, else [].
+
+    Parameters
+    ----------
+    section : Section
+        The section.
+
+    Returns
+    -------
+    list of str
+    """
+    g = abs(section.gain)
+    if g != 1.0 and is_unity(g):
+        return [f"|gain| {g:.7g} V/V built at unity ({100 * (g - 1):+.3g} %, within "
+                f"{100 * UNITY_RTOL:g} %)"]
+    return []
+
+
+def require(section: Section, *, kind: str, min_gain: float = 0.0) -> None:
     """Raise if `section_problems` finds any problem.
 
     Parameters
@@ -293,8 +328,6 @@ def require(section: Section, *, kind: str, inverting: bool, min_gain: float = 0
         The section.
     kind : str
         The topology's KIND.
-    inverting : bool
-        True when the topology's gain is negative.
     min_gain : float
         Smallest |gain| the topology reaches.
 
@@ -305,7 +338,7 @@ def require(section: Section, *, kind: str, inverting: bool, min_gain: float = 0
     InfeasibleDesign
         For any other problem (a section this topology cannot build).
     """
-    problems = section_problems(section, kind=kind, inverting=inverting, min_gain=min_gain)
+    problems = section_problems(section, kind=kind, min_gain=min_gain)
     if problems:
         if section.kind != kind:
             raise ValueError(problems[0])

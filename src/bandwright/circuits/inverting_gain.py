@@ -5,7 +5,8 @@ Circuit (element list)::
     in --Rin-- ninv --Rf-- out        U1: + = 0, - = ninv, output out
 
 gain = -Rf/Rin, noise gain 1 + Rf/Rin, input resistance Rin (it loads the stage ahead).
-Attenuation (|gain| < 1) needs nothing extra.
+Attenuation (|gain| < 1) needs nothing extra. The sign of a section's gain is ignored: the
+stage always gives -|gain| (``INVERTING``).
 
 Resistors: the smaller of Rf, Rin is 10 kOhm (``BASE_R_OHMS``, common practice), so the
 input resistance is never below 10 kOhm; ``c_farads`` is ignored.
@@ -122,7 +123,7 @@ def design(section: Section, *, c_farads: float | None = None) -> dict[str, floa
     Parameters
     ----------
     section : Section
-        kind "gain", gain < 0 (V/V).
+        kind "gain", gain != 0 (V/V); the sign is ignored (the stage gives -|gain|).
     c_farads : float, optional
         Ignored (no capacitors); accepted for the common topology interface.
 
@@ -136,9 +137,9 @@ def design(section: Section, *, c_farads: float | None = None) -> dict[str, floa
     ValueError
         If the section is not of kind "gain".
     InfeasibleDesign
-        If the gain is not < 0.
+        If the gain is 0.
     """
-    common.require(section, kind=KIND, inverting=INVERTING)
+    common.require(section, kind=KIND)
     rf, rin = common.ratio_pair(abs(section.gain))
     return {"Rin": rin, "Rf": rf}
 
@@ -186,11 +187,11 @@ def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) 
     Returns
     -------
     Limits
-        Infeasible for a gain >= 0, a resistor ratio above ``MAX_SPREAD`` or, with
+        Infeasible for a zero gain, a resistor ratio above ``MAX_SPREAD`` or, with
         `max_freq_hz`, too little GBW. ``noise_gain`` is 1 + |gain| -- one more than the
         non-inverting stage of the same |gain| -- and ``q_sensitivity`` 0 (no Q).
     """
-    problems = common.section_problems(section, kind=KIND, inverting=INVERTING)
+    problems = common.section_problems(section, kind=KIND)
     if problems:
         return common.infeasible_limits(problems, OPAMPS)
     parts = design(section)

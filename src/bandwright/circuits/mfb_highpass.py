@@ -99,7 +99,7 @@ def noise_gain_numerator(components: Mapping[str, float]) -> tuple[float, float,
 
 
 def _require(section: Section) -> None:
-    common.require(section, kind=KIND, inverting=INVERTING)
+    common.require(section, kind=KIND)
 
 
 def design(section: Section, *, c_farads: float) -> dict[str, float]:
@@ -108,7 +108,8 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     Parameters
     ----------
     section : Section
-        kind "highpass", f0_hz > 0, q > 0, gain < 0 (V/V, high-frequency).
+        kind "highpass", f0_hz > 0, q > 0, gain != 0 (V/V, high-frequency). The sign is
+        ignored: the circuit inverts (``INVERTING``), its gain is -|gain|.
     c_farads : float
         C1 = C2, farads (C3 = C/K).
 
@@ -122,7 +123,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     ValueError
         If the section is not a highpass or `c_farads` is not > 0.
     InfeasibleDesign
-        If the gain is not negative, or f0 or Q is not > 0.
+        If the gain is 0, or f0 or Q is not > 0.
 
     Notes
     -----
@@ -182,12 +183,12 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Returns
     -------
     Limits
-        Infeasible for a positive gain, a spread (R2/R1 = Q^2 (2K+1)^2 / K) above
+        Infeasible for a spread (R2/R1 = Q^2 (2K+1)^2 / K) above
         ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
         finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
         The noise gain rises to 1 + K above f0, so a wideband op-amp noise floor passes.
     """
-    problems = common.section_problems(section, kind=KIND, inverting=INVERTING)
+    problems = common.section_problems(section, kind=KIND)
     if problems:
         return common.infeasible_limits(problems, OPAMPS)
     parts = design(section, c_farads=_NOMINAL_C_FARADS)

@@ -106,7 +106,7 @@ def noise_gain_numerator(components: Mapping[str, float]) -> tuple[float, float,
 
 
 def _require(section: Section) -> None:
-    common.require(section, kind=KIND, inverting=INVERTING)
+    common.require(section, kind=KIND)
 
 
 def design(section: Section, *, c_farads: float) -> dict[str, float]:
@@ -115,7 +115,8 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     Parameters
     ----------
     section : Section
-        kind "lowpass", f0_hz > 0, q > 0, gain < 0 (V/V, DC).
+        kind "lowpass", f0_hz > 0, q > 0, gain != 0 (V/V, DC). The sign is ignored: the
+        circuit inverts (``INVERTING``), its DC gain is -|gain|.
     c_farads : float
         The smaller of C1 and C2, farads.
 
@@ -129,7 +130,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     ValueError
         If the section is not a lowpass or `c_farads` is not > 0.
     InfeasibleDesign
-        If the gain is not negative, or f0 or Q is not > 0.
+        If the gain is 0, or f0 or Q is not > 0.
 
     Notes
     -----
@@ -155,7 +156,7 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
     Parameters
     ----------
     section : Section
-        kind "lowpass", gain < 0.
+        kind "lowpass", gain != 0 (sign ignored).
     c1_farads, c2_farads : float
         Grounded and feedback capacitor, farads (e.g. already rounded to a series).
 
@@ -239,11 +240,11 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Returns
     -------
     Limits
-        Infeasible for a positive gain, a spread (C1/C2 = 4 Q^2 (1 + K), or the resistors)
+        Infeasible for a spread (C1/C2 = 4 Q^2 (1 + K), or the resistors)
         above ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
         finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
     """
-    problems = common.section_problems(section, kind=KIND, inverting=INVERTING)
+    problems = common.section_problems(section, kind=KIND)
     if problems:
         return common.infeasible_limits(problems, OPAMPS)
     parts = design(section, c_farads=_NOMINAL_C_FARADS)

@@ -9,8 +9,9 @@ infinite resistors)::
     0 < gain < 1  buffered divider    Ra: in--div, Rb: div--0;  U1: + = div, - = out
 
 gain = (Rb / (Ra + Rb)) · (1 + Rf/Rg), each factor 1 when its pair is absent (a combined
-divider and amplifier is also a valid element list). A gain within ``UNITY_RTOL`` of 1 is
-the follower.
+divider and amplifier is also a valid element list). A |gain| within ``UNITY_RTOL``
+(0.1 %) of 1 is the follower (``limits`` notes the difference). The sign of a section's
+gain is ignored: the stage does not invert (``INVERTING``).
 
 Resistors: the smaller of each pair is 10 kOhm (``BASE_R_OHMS``, common practice): it keeps
 the output load light and the Johnson noise modest; ``c_farads`` is ignored.
@@ -139,7 +140,7 @@ def design(section: Section, *, c_farads: float | None = None) -> dict[str, floa
     Parameters
     ----------
     section : Section
-        kind "gain", gain > 0 (V/V).
+        kind "gain", gain != 0 (V/V); the sign is ignored (the stage does not invert).
     c_farads : float, optional
         Ignored (no capacitors); accepted for the common topology interface.
 
@@ -154,11 +155,11 @@ def design(section: Section, *, c_farads: float | None = None) -> dict[str, floa
     ValueError
         If the section is not of kind "gain".
     InfeasibleDesign
-        If the gain is not > 0.
+        If the gain is 0.
     """
-    common.require(section, kind=KIND, inverting=INVERTING)
-    g = section.gain
-    if common.is_unity(g):
+    common.require(section, kind=KIND)
+    g = common.design_gain(section)
+    if g == 1.0:
         return {}
     if g > 1:
         rf, rg = common.ratio_pair(g - 1.0)
@@ -218,11 +219,11 @@ def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) 
     Returns
     -------
     Limits
-        Infeasible for a gain <= 0, a resistor ratio above ``MAX_SPREAD`` or, with
+        Infeasible for a zero gain, a resistor ratio above ``MAX_SPREAD`` or, with
         `max_freq_hz`, too little GBW (``gbw_needed_for_hz``). ``noise_gain`` is 1 + Rf/Rg,
         ``q_sensitivity`` 0 (no Q).
     """
-    problems = common.section_problems(section, kind=KIND, inverting=INVERTING)
+    problems = common.section_problems(section, kind=KIND)
     if problems:
         return common.infeasible_limits(problems, OPAMPS)
     parts = design(section)
@@ -233,7 +234,8 @@ def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) 
         form = f"amplifier, Rf/Rg = {parts['Rf'] / parts['Rg']:.4g}"
     else:
         form = f"buffered divider, Rb/(Ra+Rb) = {parts['Rb'] / (parts['Ra'] + parts['Rb']):.4g}"
-    reasons = [f"{form}; noise gain {ng:.4g}; bandwidth {bandwidth_hz(parts, model):.4g} Hz"]
+    reasons = [f"{form}; noise gain {ng:.4g}; bandwidth {bandwidth_hz(parts, model):.4g} Hz",
+               *common.unity_note(section)]
     ok = True
     if max_freq_hz is None:
         needed = 0.0

@@ -22,7 +22,9 @@ Q = sqrt(r) / (2 + r (1 - K)), solved as sqrt(r) = 4Q / (1 + sqrt(1 + 8 Q^2 (K -
   tied to Q. Other K >= 1 are allowed; the wideband path normally runs this section at
   unity gain and gives the rest of the gain to a gain stage.
 
-R1 = 1 / (w0 C sqrt(r)), R2 = sqrt(r) / (w0 C). Gains below 1 or negative are infeasible.
+R1 = 1 / (w0 C sqrt(r)), R2 = sqrt(r) / (w0 C). |gain| below 1 is infeasible.
+The sign of a section's gain is ignored: the circuit does not invert (``INVERTING``). A
+|gain| within ``UNITY_RTOL`` (0.1 %) of 1 is built at unity.
 """
 
 from __future__ import annotations
@@ -103,7 +105,7 @@ def noise_gain_numerator(components: Mapping[str, float]) -> tuple[float, float,
 
 
 def _require(section: Section) -> None:
-    common.require(section, kind=KIND, inverting=INVERTING, min_gain=1.0)
+    common.require(section, kind=KIND, min_gain=1.0)
 
 
 def design(section: Section, *, c_farads: float) -> dict[str, float]:
@@ -112,7 +114,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     Parameters
     ----------
     section : Section
-        kind "highpass", f0_hz > 0, q > 0, gain >= 1 (V/V, high-frequency).
+        kind "highpass", f0_hz > 0, q > 0, |gain| >= 1 (V/V, high-frequency; sign ignored).
     c_farads : float
         C1 = C2, farads.
 
@@ -126,7 +128,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     ValueError
         If the section is not a highpass or `c_farads` is not > 0.
     InfeasibleDesign
-        If the gain is < 1, or f0 or Q is not > 0.
+        If |gain| < 1, or f0 or Q is not > 0.
 
     Notes
     -----
@@ -136,7 +138,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     if not c_farads > 0:
         raise ValueError(f"c_farads must be > 0; got {c_farads}")
     _require(section)
-    k = 1.0 if common.is_unity(section.gain) else section.gain
+    k = common.design_gain(section)
     q = section.q
     # Rationalised root of (K-1) Q x^2 + x - 2Q = 0: no cancellation as K -> 1.
     x = 4 * q / (1 + math.sqrt(1 + 8 * q * q * (k - 1)))          # sqrt(R2 / R1)
@@ -201,11 +203,11 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Returns
     -------
     Limits
-        Infeasible for a gain < 1 or negative, a spread (R2/R1 = 4 Q^2 at unity gain) above
+        Infeasible for |gain| < 1, a spread (R2/R1 = 4 Q^2 at unity gain) above
         ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
         finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
     """
-    problems = common.section_problems(section, kind=KIND, inverting=INVERTING, min_gain=1.0)
+    problems = common.section_problems(section, kind=KIND, min_gain=1.0)
     if problems:
         return common.infeasible_limits(problems, OPAMPS)
     parts = design(section, c_farads=_NOMINAL_C_FARADS)
@@ -218,7 +220,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
                                          "<= 10 %")
     reasons = [f"R2/R1 = {parts['R2'] / parts['R1']:.4g}, C1 = C2, gain {fig.gain:.4g} V/V"
                + (" (follower)" if "Rf" not in parts else ""), gbw_text,
-               f"max |S^Q| = {q_sens:.3g}"]
+               f"max |S^Q| = {q_sens:.3g}", *common.unity_note(section)]
     spread_ok = spread <= common.MAX_SPREAD
     if not spread_ok:
         reasons.append(f"component spread {spread:.4g} exceeds {common.MAX_SPREAD:g}")

@@ -21,7 +21,9 @@ Q = sqrt(m) / (2 + m (1 - K)), solved as sqrt(m) = 4Q / (1 + sqrt(1 + 8 Q^2 (K -
   gain tied to Q. Any other K >= 1 is allowed; its Q sensitivity to Rf/Rg grows with K, so
   the wideband path normally runs this section at unity gain and gives the rest of the
   gain to a gain stage.
-* Gains below 1 or negative are infeasible (``limits`` says why).
+* |gain| below 1 is infeasible (``limits`` says why). The sign of a section's gain is
+  ignored: the circuit does not invert (``INVERTING``), and the chain's gains are
+  magnitudes. A |gain| within ``UNITY_RTOL`` (0.1 %) of 1 is built at unity.
 
 ``c_farads`` is the **smaller** of the two capacitors: C2 when m >= 1, else C1. The other
 is m (or 1/m) times larger and is not an E-series value; when parts are rounded, the ratio
@@ -111,7 +113,7 @@ def noise_gain_numerator(components: Mapping[str, float]) -> tuple[float, float,
 
 
 def _require(section: Section) -> None:
-    common.require(section, kind=KIND, inverting=INVERTING, min_gain=1.0)
+    common.require(section, kind=KIND, min_gain=1.0)
 
 
 def _gain_resistors(k: float) -> dict[str, float]:
@@ -127,7 +129,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     Parameters
     ----------
     section : Section
-        kind "lowpass", f0_hz > 0, q > 0, gain >= 1 (V/V, DC).
+        kind "lowpass", f0_hz > 0, q > 0, |gain| >= 1 (V/V, DC; sign ignored).
     c_farads : float
         The smaller of C1 and C2, farads.
 
@@ -141,7 +143,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     ValueError
         If the section is not a lowpass or `c_farads` is not > 0.
     InfeasibleDesign
-        If the gain is < 1, or f0 or Q is not > 0.
+        If |gain| < 1, or f0 or Q is not > 0.
 
     Notes
     -----
@@ -151,7 +153,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     if not c_farads > 0:
         raise ValueError(f"c_farads must be > 0; got {c_farads}")
     _require(section)
-    k = 1.0 if common.is_unity(section.gain) else section.gain
+    k = common.design_gain(section)
     q = section.q
     # Rationalised root of (K-1) Q x^2 + x - 2Q = 0: no cancellation as K -> 1.
     x = 4 * q / (1 + math.sqrt(1 + 8 * q * q * (k - 1)))
@@ -168,7 +170,7 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
     Parameters
     ----------
     section : Section
-        kind "lowpass", gain >= 1.
+        kind "lowpass", |gain| >= 1 (sign ignored).
     c1_farads, c2_farads : float
         Feedback and grounded capacitor, farads (e.g. already rounded to a series).
 
@@ -189,7 +191,7 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
     [C2 + C1 (1-K)] u^2 - u/(w0 Q) + 1/(w0^2 C1) = 0 (from the transfer function above).
     """
     _require(section)
-    k = 1.0 if common.is_unity(section.gain) else section.gain
+    k = common.design_gain(section)
     w0 = 2 * math.pi * section.f0_hz
     c1, c2 = c1_farads, c2_farads
     a, b, c = c2 + c1 * (1 - k), -1 / (w0 * section.q), 1 / (w0 * w0 * c1)
@@ -271,14 +273,14 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Returns
     -------
     Limits
-        Infeasible for a gain < 1 or negative, a spread above ``MAX_SPREAD`` or too little
+        Infeasible for |gain| < 1, a spread above ``MAX_SPREAD`` or too little
         GBW. ``gbw_needed_hz`` keeps the first-order finite-GBW shifts of f0 and Q within
         10 % (derived, see ``circuits._lphp_common``; at unity gain it is 10 Q f0, a tenth
         of the common-practice 100 Q f0 that assumes no predistortion). ``spread`` is the
         larger of C1/C2 (the resistors are equal) and Rf/Rg. ``noise_gain`` is |NG(j w0)|,
         1 + 2 Q^2 at unity gain: far above K near f0.
     """
-    problems = common.section_problems(section, kind=KIND, inverting=INVERTING, min_gain=1.0)
+    problems = common.section_problems(section, kind=KIND, min_gain=1.0)
     if problems:
         return common.infeasible_limits(problems, OPAMPS)
     parts = design(section, c_farads=_NOMINAL_C_FARADS)
@@ -291,7 +293,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
                                          "<= 10 %")
     reasons = [f"C1/C2 = {parts['C1'] / parts['C2']:.4g}, R1 = R2, gain {fig.gain:.4g} V/V"
                + (" (follower)" if "Rf" not in parts else ""), gbw_text,
-               f"max |S^Q| = {q_sens:.3g}"]
+               f"max |S^Q| = {q_sens:.3g}", *common.unity_note(section)]
     spread_ok = spread <= common.MAX_SPREAD
     if not spread_ok:
         reasons.append(f"component spread {spread:.4g} exceeds {common.MAX_SPREAD:g}")
