@@ -95,13 +95,19 @@ def _reciprocal(x: np.ndarray) -> np.ndarray:
 
 
 def _scaled_polynomials(elements: Sequence[Element], *, out_net: str, input_net: str,
-                        source_ohms: float, values: np.ndarray | None
+                        source_ohms: float, values: np.ndarray | None,
+                        gbw_scale: np.ndarray | None = None
                         ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Coefficients (ascending) of num and den in sigma = s / w_c, and w_c.
 
     Both are divided by the largest |den coefficient|, per sample.
     """
-    system = mna_system(elements, input_net=input_net, source_ohms=source_ohms, values=values)
+    if gbw_scale is not None and values is None:
+        # A GBW spread alone still makes a batch: every sample gets the nominal parts.
+        nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+        values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
+    system = mna_system(elements, input_net=input_net, source_ohms=source_ohms, values=values,
+                        gbw_scale=gbw_scale)
     k_out = system.index(out_net)
     if k_out < 0:
         raise ValueError("out_net cannot be ground")
@@ -133,7 +139,8 @@ def _scaled_polynomials(elements: Sequence[Element], *, out_net: str, input_net:
 
 def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
                          input_net: str = "in", source_ohms: float = 0.0,
-                         values: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+                         values: np.ndarray | None = None,
+                         gbw_scale: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Numerator and denominator of the transfer to `out_net` as polynomials in s.
 
     Parameters
@@ -148,6 +155,9 @@ def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
         Source resistance, ohms (0: ideal source).
     values : ndarray of float, shape (S, P), optional
         Part-value samples in ``passive_names(elements)`` order.
+    gbw_scale : ndarray of float, shape (S,) or (S, A), optional
+        Per-sample factor on the GBW of every op-amp, or of each op-amp in element order
+        (see ``circuits.nodal.mna_system``).
 
     Returns
     -------
@@ -172,7 +182,8 @@ def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
     as ``circuits.nodal.transfer``: from the open-circuit source voltage to `out_net`.
     """
     num, den, w_c = _scaled_polynomials(elements, out_net=out_net, input_net=input_net,
-                                        source_ohms=source_ohms, values=values)
+                                        source_ohms=source_ohms, values=values,
+                                        gbw_scale=gbw_scale)
     powers = w_c[..., None] ** -np.arange(num.shape[-1])
     return num * powers, den * powers
 
@@ -307,7 +318,8 @@ def _batch_degree(coefs: np.ndarray) -> int:
 
 
 def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
-                          values: np.ndarray, out_net: str = "out", input_net: str = "in"
+                          values: np.ndarray, out_net: str = "out", input_net: str = "in",
+                          gbw_scale: np.ndarray | None = None
                           ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``section_figures`` for many part-value samples at once.
 
@@ -319,6 +331,8 @@ def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_
     values : ndarray, shape (S, P)
         Part values in ``passive_names(elements)`` order.
     out_net, input_net : str
+    gbw_scale : ndarray of float, shape (S,) or (S, A), optional
+        Per-sample factor on the op-amps' GBW (see ``circuits.nodal.mna_system``).
 
     Returns
     -------
@@ -333,7 +347,7 @@ def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_
     sample; the figures are the same to rounding (tested).
     """
     num, den, w_c = _scaled_polynomials(elements, out_net=out_net, input_net=input_net,
-                                        source_ohms=0.0, values=values)
+                                        source_ohms=0.0, values=values, gbw_scale=gbw_scale)
     num = num[..., : _batch_degree(num) + 1]
     den = den[..., : _batch_degree(den) + 1]
     s_count = den.shape[0]

@@ -156,7 +156,8 @@ def _check_values(elements: Sequence[Element], values: np.ndarray | None) -> np.
 
 
 def mna_system(elements: Sequence[Element], *, input_net: str = "in", source_ohms: float = 0.0,
-               values: np.ndarray | None = None) -> MnaSystem:
+               values: np.ndarray | None = None,
+               gbw_scale: np.ndarray | None = None) -> MnaSystem:
     """Stamp an element list into MNA matrices, vectorised over part-value samples.
 
     Parameters
@@ -169,17 +170,23 @@ def mna_system(elements: Sequence[Element], *, input_net: str = "in", source_ohm
         Source resistance, ohms (0: ideal source straight onto `input_net`).
     values : ndarray of float, shape (S, P), optional
         Part values overriding those of the elements, columns in ``passive_names`` order.
+    gbw_scale : ndarray of float, shape (S,) or (S, A), optional
+        Per-sample factor on the GBW of every op-amp (S,), or of each of the A op-amps in
+        element order (S, A) -- a production spread of GBW for Monte Carlo. Op-amps with
+        infinite GBW (ideal) are left ideal. The sample count must match `values`.
 
     Returns
     -------
     MnaSystem
-        ``g`` and ``c`` have shape (M, M) without `values`, (S, M, M) with them.
+        ``g`` and ``c`` have shape (M, M) without `values` and `gbw_scale`, (S, M, M) with
+        either.
 
     Raises
     ------
     ValueError
         On an unknown element kind, a non-positive part value, an op-amp without a model or
-        driving ground, a negative source resistance, or a `values` array of the wrong shape.
+        driving ground, a negative source resistance, a `values` array of the wrong shape, or
+        a `gbw_scale` of the wrong shape or not finite and > 0.
 
     Notes
     -----
@@ -255,7 +262,37 @@ def mna_system(elements: Sequence[Element], *, input_net: str = "in", source_ohm
         g_fix[out, row] += 1.0  # the output current enters KCL at the output net
     g = g + g_fix[:size, :size]
     c = c + c_fix[:size, :size]
+    if gbw_scale is not None:
+        c = _scale_gbw(c, opamps, opamp_rows, idx, gbw_scale, n_samples=v.shape[0]
+                       if v.ndim == 2 else None)
+        g = np.broadcast_to(g, c.shape).copy()
     return MnaSystem(nets=nets, g=g, c=c, rhs=rhs[:size].copy(), opamp_rows=opamp_rows)
+
+
+def _scale_gbw(c: np.ndarray, opamps: list[Element], opamp_rows: dict[str, int],
+               idx: dict[str, int], gbw_scale: np.ndarray, *, n_samples: int | None
+               ) -> np.ndarray:
+    """`c` with each finite op-amp's 1/wt entry divided by its per-sample GBW factor.
+
+    The entry 1/wt sits alone at (op-amp row, output net): dividing it by k is the same
+    op-amp with GBW k times larger, A0 unchanged.
+    """
+    k = np.asarray(gbw_scale, dtype=float)
+    n_a = len(opamps)
+    if k.ndim == 1:
+        k = np.repeat(k[:, None], n_a, axis=1)
+    if k.ndim != 2 or k.shape[1] != n_a or (n_samples is not None and k.shape[0] != n_samples):
+        want = f"({n_samples if n_samples is not None else 'S'},) or (S, {n_a})"
+        raise ValueError(f"gbw_scale must have shape {want}; got {np.shape(gbw_scale)}")
+    if np.any(~np.isfinite(k)) or np.any(k <= 0):
+        raise ValueError("every gbw_scale must be finite and > 0")
+    size = c.shape[-1]
+    # One (A, M, M) tensor of the 1/wt stamps so that the batch is a single einsum.
+    stamps = np.zeros((n_a, size, size))
+    for a, e in enumerate(opamps):
+        if math.isfinite(e.model.gbw_hz):
+            stamps[a, opamp_rows[e.name], idx[e.nets[2]]] = 1.0 / (2 * math.pi * e.model.gbw_hz)
+    return c + np.einsum("sa,aij->sij", 1.0 / k - 1.0, stamps)
 
 
 def _admittance(system: MnaSystem, freq_hz: np.ndarray) -> np.ndarray:
