@@ -21,6 +21,9 @@ __all__ = ["Candidate", "make_candidates", "WIDEBAND_RATIO", "MAX_ORDER"]
 # Winder 2002, ch. 6: edges more than an octave apart → highpass + lowpass cascade.
 WIDEBAND_RATIO = 2.0
 MAX_ORDER = 20
+# The prototype is designed for this share of the passband loss allowed; the rest is left
+# for rounded parts and finite GBW, which the built chain's mask check then judges.
+LOSS_SHARE = 0.9
 
 Path = Literal["bandpass", "wideband"]
 
@@ -74,28 +77,28 @@ def make_candidates(req: Requirement, *, family: str | None = None,
 
 def _bandpass_candidate(req: Requirement, family: str, order: int | None) -> Candidate:
     pb = req.passband
+    loss_db = LOSS_SHARE * pb.max_loss_db
     if order is None:
         omegas = bandpass_omega([p.freq_hz for p in req.stopband], pb.center_hz, pb.bandwidth_hz)
-        order = minimum_order(family, omegas, pb.max_loss_db,
-                              [p.min_loss_db for p in req.stopband])
-        decided = _decider(req, family, omegas, order)
+        order = minimum_order(family, omegas, loss_db, [p.min_loss_db for p in req.stopband])
+        decided = _decider(req, family, omegas, order, loss_db)
         if order > MAX_ORDER:
             decided += f"; capped at the largest supported order, {MAX_ORDER}"
             order = MAX_ORDER
     else:
         decided = "order given"
-    proto = prototype(family, order, pb.max_loss_db)
+    proto = prototype(family, order, loss_db)
     secs = bandpass_sections(proto, center_hz=pb.center_hz, bandwidth_hz=pb.bandwidth_hz,
                              gain=pb.gain)
-    return Candidate(path="bandpass", family=family, order=order, ripple_db=pb.max_loss_db,
-                     sections=secs, note=decided)
+    return Candidate(path="bandpass", family=family, order=order, ripple_db=loss_db,
+                     sections=secs, note=decided + f"; designed for {loss_db:.3g} dB of the "
+                     f"{pb.max_loss_db:g} dB allowed")
 
 
-def _decider(req: Requirement, family: str, omegas, order: int) -> str:
+def _decider(req: Requirement, family: str, omegas, order: int, loss_db: float) -> str:
     """Name the stopband point that sets the order."""
-    pb = req.passband
     best = max(range(len(req.stopband)),
-               key=lambda i: order_for_point(family, float(omegas[i]), pb.max_loss_db,
+               key=lambda i: order_for_point(family, float(omegas[i]), loss_db,
                                              req.stopband[i].min_loss_db))
     p = req.stopband[best]
     return (f"order {order} set by {p.min_loss_db:g} dB at {p.freq_hz:g} Hz "
@@ -129,17 +132,18 @@ def _wideband_candidate(req: Requirement, family: str, order: int | None) -> Can
         g = 20 * np.log10(np.abs(cascade_response(secs, grid)))
         return float(pb.gain_db - g.min())
 
-    a_db = pb.max_loss_db
+    budget = LOSS_SHARE * pb.max_loss_db
+    a_db = budget
     for _ in range(4):
         n_hp = _side_order(family, [pb.low_hz / p.freq_hz for p in lo_pts],
                            [p.min_loss_db for p in lo_pts], a_db, order)
         n_lp = _side_order(family, [p.freq_hz / pb.high_hz for p in hi_pts],
                            [p.min_loss_db for p in hi_pts], a_db, order)
-        lo, hi = 0.02 * pb.max_loss_db, pb.max_loss_db
-        if worst_loss(build(hi, n_hp, n_lp)) > pb.max_loss_db:
+        lo, hi = 0.02 * budget, budget
+        if worst_loss(build(hi, n_hp, n_lp)) > budget:
             for _ in range(40):  # bisection on the edge loss of each side
                 mid = math.sqrt(lo * hi)
-                if worst_loss(build(mid, n_hp, n_lp)) > pb.max_loss_db:
+                if worst_loss(build(mid, n_hp, n_lp)) > budget:
                     hi = mid
                 else:
                     lo = mid
@@ -151,6 +155,7 @@ def _wideband_candidate(req: Requirement, family: str, order: int | None) -> Can
         a_db = new_a
     secs = build(a_db, n_hp, n_lp)
     note = (f"highpass order {n_hp} + lowpass order {n_lp}, each side's edge loss "
-            f"{a_db:.3g} dB so the skirts together stay within {pb.max_loss_db:g} dB")
+            f"{a_db:.3g} dB so the skirts together lose at most {budget:.3g} dB of the "
+            f"{pb.max_loss_db:g} dB allowed")
     return Candidate(path="wideband", family=family, order=n_hp + n_lp, ripple_db=a_db,
                      sections=secs, note=note)

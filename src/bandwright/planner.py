@@ -4,20 +4,21 @@ checks; the best candidate wins."""
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
-from bandwright.analysis.grid import noise_band, noise_grid, passband_grid
+from bandwright.analysis.grid import noise_grid, passband_grid
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.ordering import Ordering, choose_order, make_problem
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
 from bandwright.circuits.assign import Assignment, assign
-from bandwright.circuits.nodal import noise as nodal_noise
+from bandwright.circuits.nodal import input_impedance_min, noise as nodal_noise
+from bandwright.parts.notation import format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
@@ -26,6 +27,9 @@ from bandwright.spec.requirement import Requirement
 __all__ = ["Plan", "Design", "plan", "build_design"]
 
 _GAIN_BACKOFF_STEPS = 8
+# A first stage whose input impedance comes within 20× of the source resistance (about
+# 0.4 dB of loading, and an input pole for capacitive inputs) gets a follower ahead of it.
+SOURCE_LOADING_LIMIT = 0.05
 
 
 @dataclass(frozen=True)
@@ -153,8 +157,12 @@ def _why(designs: list[Design]) -> str:
 
 def _assign(section: Section, model: OpAmp, req: Requirement, windows: PartWindows
             ) -> Assignment:
+    # Every stage is driven by an op-amp (or the source, behind a follower when needed):
+    # its input must not load that op-amp below its minimum load, in band or at a tone.
+    freqs = np.concatenate([passband_grid(req), [t.freq_hz for t in req.input.tones]])
     return assign(section, model, r_series=req.design.resistor_series,
-                  c_series=req.design.capacitor_series, windows=windows)
+                  c_series=req.design.capacitor_series, windows=windows,
+                  input_floor=(freqs, model.min_load_ohms))
 
 
 def _with_gain(section: Section, gain: float) -> Section:
@@ -193,7 +201,10 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
         return _unbuildable(cand, None, tuple(first))
     nf = noise_grid(req)
     psd = np.array([_stage_noise_psd(a, nf, req.environment.temperature_c) for a in first])
-    problem = make_problem(secs, psd, nf, total_gain=req.passband.gain,
+    # The sections' own gains already hold the reference gain and the shape's peak (an
+    # even-order Chebyshev peaks above its centre), so their product is the chain's gain.
+    total = float(np.prod([abs(s.gain) for s in secs]))
+    problem = make_problem(secs, psd, nf, total_gain=total,
                            passband_hz=passband_grid(req), max_vpk=req.input.max_vpk,
                            tones=[(t.freq_hz, t.vpk) for t in req.input.tones])
     ordering = choose_order(problem, secs)
@@ -219,6 +230,15 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
         if a.realization is None:
             return _unbuildable(cand, ordering, tuple(assignments) + (a,))
         assignments.append(a)
+    rs = req.input.source_ohms
+    if rs > 0:
+        z_in = input_impedance_min(assignments[0].realization.elements, passband_grid(req))
+        if rs / z_in > SOURCE_LOADING_LIMIT:
+            buf = _assign(Section(kind="gain", f0_hz=0.0, q=0.0, gain=1.0), model, req, windows)
+            buf = replace(buf, reason=f"follower: the first section's input impedance falls to "
+                          f"{format_value(z_in, 'Ω')} in band, too low for the "
+                          f"{format_value(rs, 'Ω')} source")
+            assignments.insert(0, buf)
     stages = tuple(_stage(i + 1, a, model) for i, a in enumerate(assignments))
     chain = build_chain(stages, source_ohms=req.input.source_ohms)
     an = analyse(chain, req)

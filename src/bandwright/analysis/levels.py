@@ -9,7 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from bandwright.chain.graph import CHAIN_INPUT, Chain, flatten
-from bandwright.circuits.nodal import ac_solve
+from bandwright.circuits.nodal import ac_solve, drawn_impedance
 from bandwright.spec.requirement import InputSignal, Supply
 
 __all__ = ["net_transfers", "NodeLevel", "node_levels", "swing_limit_vpk", "output_loads"]
@@ -120,27 +120,10 @@ def output_loads(chain: Chain, freq_hz: np.ndarray) -> dict[str, float]:
     next stage's input, from a solve of the whole chain as one element list."""
     flat = flatten(chain)
     sol = ac_solve(flat, np.asarray(freq_hz, dtype=float), source_ohms=chain.source_ohms)
-    index = {n: i for i, n in enumerate(sol.nets)}
-    v = sol.voltages
-    zero = np.zeros(v.shape[:-1], dtype=complex)
-
-    def volt(n: str) -> np.ndarray:
-        return zero if n == "0" else v[..., index[n]]
-
     out = {}
     for net in chain.output_nets:
-        current = zero.copy()
-        for e in flat:
-            if e.kind == "opamp" or net not in e.nets:
-                continue
-            other = e.nets[1] if e.nets[0] == net else e.nets[0]
-            if other == net:
-                continue
-            y = (1 / e.value if e.kind == "R"
-                 else 2j * np.pi * np.asarray(freq_hz) * e.value)
-            current = current + (volt(net) - volt(other)) * y
-        with np.errstate(divide="ignore", invalid="ignore"):
-            z = np.abs(volt(net)) / np.abs(current)
+        z = drawn_impedance(flat, sol, net)
         z = z[np.isfinite(z)]
         out[net] = float(z.min()) if z.size else math.inf
     return out
+

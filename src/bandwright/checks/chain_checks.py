@@ -29,9 +29,8 @@ def headroom_checks(an: Analyses) -> list[Check]:
         out.append(Check(
             id="headroom", status=status, value=n.peak_vpk, limit=n.limit_vpk, unit="Vpk",
             stage=n.stage, net=n.net,
-            message=f"{n.net} {what} at {n.peak_vpk:.3g} Vpk in the worst case "
-                    f"(signal {n.signal_vpk:.3g} + tones); limit {n.limit_vpk:.3g} Vpk, "
-                    f"margin {m:+.1f} dB"))
+            message=f"{what} at {n.peak_vpk:.3g} Vpk (in-band {n.signal_vpk:.3g} + tones "
+                    f"{n.peak_vpk - n.signal_vpk:.3g}); margin {m:+.1f} dB"))
     return out
 
 
@@ -45,8 +44,8 @@ def slew_checks(an: Analyses) -> list[Check]:
         out.append(Check(
             id="slew", status=status, value=need, limit=have, unit="V/us", stage=n.stage,
             net=n.net,
-            message=f"{n.net} needs {need:.3g} V/µs, the op-amp slews {have:.3g} V/µs"
-                    + (" — large-signal distortion" if ratio < 1 else "")))
+            message=f"needs {need:.3g} V/µs of the op-amp's {have:.3g} V/µs"
+                    + (" — the output will distort on large signals" if ratio < 1 else "")))
     return out
 
 
@@ -60,8 +59,8 @@ def drive_checks(an: Analyses) -> list[Check]:
             id="drive", status="pass" if ok else "fail",
             value=n.load_ohms if math.isfinite(n.load_ohms) else None,
             limit=n.min_load_ohms, unit="ohm", stage=n.stage, net=n.net,
-            message=f"{n.net} drives {load} at the least (feedback network and next input); "
-                    f"the op-amp wants at least {format_value(n.min_load_ohms, 'Ω')}"))
+            message=f"least load {load} (feedback network and next input), op-amp minimum "
+                    f"{format_value(n.min_load_ohms, 'Ω')}"))
     return out
 
 
@@ -75,8 +74,8 @@ def gbw_checks(chain: Chain) -> list[Check]:
         out.append(Check(
             id="gbw", status="pass" if ok else "fail", value=need, limit=have, unit="Hz",
             stage=st.position,
-            message=f"stage {st.position} ({st.topology}) needs {need / 1e6:.3g} MHz GBW, "
-                    f"the op-amp has {have / 1e6:.3g} MHz"))
+            message=f"{st.topology} needs {format_value(need, 'Hz')} GBW here, the op-amp has "
+                    f"{format_value(have, 'Hz')}"))
     return out
 
 
@@ -103,6 +102,5 @@ def parts_checks(chain: Chain, windows: PartWindows = PartWindows()) -> list[Che
         out.append(Check(
             id="parts", status="warn" if v else "pass", value=float(len(v)), limit=0.0,
             unit="parts", stage=st.position,
-            message="; ".join(v) if v else f"stage {st.position}: every part inside the "
-                                           f"preferred windows"))
+            message="; ".join(v) if v else "every part inside the preferred windows"))
     return out

@@ -8,8 +8,10 @@ import numpy as np
 
 from bandwright.circuits import topologies_of_kind
 from bandwright.circuits.base import Limits
+from bandwright.circuits.nodal import input_impedance_min
 from bandwright.circuits.realize import Realization, realize
 from bandwright.errors import InfeasibleDesign
+from bandwright.parts.notation import format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
@@ -56,14 +58,17 @@ def _rank(lim: Limits) -> tuple[float, float, float]:
 
 
 def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: str = "E12",
-           windows: PartWindows = PartWindows()) -> Assignment:
+           windows: PartWindows = PartWindows(),
+           input_floor: tuple[np.ndarray, float] | None = None) -> Assignment:
     """Choose the cheapest topology that really builds `section` with op-amp `model`.
 
     Every topology of the section's kind is asked for its limits (Q and gain reach, GBW
     needed, spread, sensitivity); the feasible ones are built in rank order (fewest op-amps,
     lowest Q sensitivity, lowest noise gain) and the first whose built f0, Q and gain land
     within 1 %, 5 % and 5 % of the target wins. A design inside the part windows is preferred
-    to one outside them.
+    to one outside them. With `input_floor` = (freq_hz, ohms), a design whose input
+    impedance falls below `ohms` at those frequencies is rejected: the stage before it
+    could not drive it.
     """
     rejected: list[tuple[str, str]] = []
     feasible = []
@@ -91,6 +96,14 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
         except (ValueError, InfeasibleDesign, np.linalg.LinAlgError) as exc:
             rejected.append((topo.NAME, f"could not be built: {exc}"))
             continue
+        if input_floor is not None:
+            z_in = input_impedance_min(real.elements, input_floor[0])
+            if z_in < input_floor[1]:
+                rejected.append((topo.NAME, f"its input impedance falls to "
+                                 f"{format_value(z_in, 'Ω')}, below the "
+                                 f"{format_value(input_floor[1], 'Ω')} the stage before can "
+                                 f"drive"))
+                continue
         df, dq, dg = real.errors()
         if abs(df) > BUILT_F0_TOLERANCE or abs(dq) > BUILT_Q_TOLERANCE or \
                 abs(dg) > BUILT_GAIN_TOLERANCE:

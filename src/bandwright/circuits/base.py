@@ -35,7 +35,9 @@ class Limits:
     gbw_needed_hz : float
         The op-amp GBW this topology needs for this section, margin included.
     spread : float
-        Largest over smallest resistor value (component spread) of the ideal design.
+        Component spread of the ideal design: the largest max/min ratio among its resistors
+        or among its capacitors (a capacitor ratio counts: an equal-R Sallen-Key lowpass
+        keeps all its spread in C1/C2).
     q_sensitivity : float
         Largest |S_x^Q| over the passive parts (ideal op-amp).
     noise_gain : float

@@ -52,6 +52,8 @@ __all__ = [
     "ac_solve",
     "transfer",
     "noise",
+    "drawn_impedance",
+    "input_impedance_min",
 ]
 
 BOLTZMANN_J_PER_K = 1.380649e-23  # exact since the 2019 SI redefinition
@@ -586,3 +588,34 @@ def noise(elements: Sequence[Element], freq_hz: np.ndarray, *, out_net: str = "o
         contributions[f"{e.name} current-"] = gain_sq(minus) * e.model.current_noise_psd(f)
     total = np.sum(np.stack(list(contributions.values())), axis=0)
     return NoiseResult(freq_hz=f, total_psd=total, contributions=contributions)
+
+
+def drawn_impedance(elements, sol, net: str) -> np.ndarray:
+    """|V/I| at `net`: its voltage over the current it sends into every R and C attached to it
+    (op-amp inputs draw none), per frequency of the solution `sol` of `elements`."""
+    index = {n: i for i, n in enumerate(sol.nets)}
+    v = sol.voltages
+    zero = np.zeros(v.shape[:-1], dtype=complex)
+
+    def volt(n: str) -> np.ndarray:
+        return zero if n == "0" else v[..., index[n]]
+
+    current = zero.copy()
+    for e in elements:
+        if e.kind == "opamp" or net not in e.nets:
+            continue
+        other = e.nets[1] if e.nets[0] == net else e.nets[0]
+        if other == net:
+            continue
+        y = 1 / e.value if e.kind == "R" else 2j * np.pi * sol.freq_hz * e.value
+        current = current + (volt(net) - volt(other)) * y
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.abs(volt(net)) / np.abs(current)
+
+
+def input_impedance_min(elements, freq_hz: np.ndarray) -> float:
+    """Smallest |Z_in| of a stage over `freq_hz`, driven by an ideal source at net "in"."""
+    sol = ac_solve(elements, np.asarray(freq_hz, dtype=float))
+    z = drawn_impedance(elements, sol, "in")
+    z = z[np.isfinite(z)]
+    return float(z.min()) if z.size else math.inf

@@ -31,6 +31,7 @@ _REFERENCE_C_FARADS = 1e-9
 _PREDISTORT_STEPS = 12
 _SEARCH_SWEEPS = 4
 _GAIN_DEADBAND = 1e-3
+_F0_WEIGHT_FLOOR = 2.0
 _SOLVE_STEPS = 20
 _GRID_MAX = 6561  # 3^8: every ±1 combination of an eight-part section
 _NEIGHBOURS = 2
@@ -89,12 +90,14 @@ def figure_error(fig: Figures, target: Section) -> float:
     A relative f0 error δ moves the band-edge response of a section by about 8.686·Q·δ dB
     (references.md, "Tolerance"; Schaumann & Van Valkenburg 2001, ch. 3 [mem]); a relative
     Q error ε moves it by about 8.686·ε/2 dB at the -3 dB points, and a gain error γ by
-    8.686·γ dB everywhere. The weights make each term the dB it costs.
+    8.686·γ dB everywhere. The weights make each term the dB it costs. Q is floored at 2
+    for the f0 weight: a low-Q section inside a steep cascade still moves the cascade's
+    band edge, whose slope is that of the whole chain.
     """
     df, dq, dg = _relative(fig, target)
     if not all(map(math.isfinite, (df, dq, dg))) or (target.kind != "gain" and fig.q <= 0):
         return math.inf
-    q = max(target.q, 0.5)
+    q = max(target.q, _F0_WEIGHT_FLOOR)
     return (q * df) ** 2 + (dq / 2) ** 2 + dg**2
 
 
@@ -162,7 +165,7 @@ def _error_batch(f0_hz, q, gain, target: Section) -> np.ndarray:
         if target.kind == "gain":
             e = (np.abs(gain) / abs(target.gain) - 1) ** 2
         else:
-            qq = max(target.q, 0.5)
+            qq = max(target.q, _F0_WEIGHT_FLOOR)
             e = ((qq * (f0_hz / target.f0_hz - 1)) ** 2 + ((q / target.q - 1) / 2) ** 2
                  + (np.abs(gain) / abs(target.gain) - 1) ** 2)
             e = np.where(q > 0, e, np.inf)
@@ -175,7 +178,7 @@ def _residuals(f0_hz, q, gain, target: Section) -> np.ndarray:
         g = np.abs(gain) / abs(target.gain) - 1
         if target.kind == "gain":
             return np.stack([np.zeros_like(g), np.zeros_like(g), g], axis=-1)
-        return np.stack([max(target.q, 0.5) * (f0_hz / target.f0_hz - 1),
+        return np.stack([max(target.q, _F0_WEIGHT_FLOOR) * (f0_hz / target.f0_hz - 1),
                          (q / target.q - 1) / 2, g], axis=-1)
 
 
@@ -271,6 +274,9 @@ def round_to_series(topo: ModuleType, values: Mapping[str, float], target: Secti
     elements = tuple(topo.elements(values, model))
     names = passive_names(elements)
     near = target.f0_hz if target.kind != "gain" else 1.0
+    if not names:  # a follower: nothing to round
+        return dict(values), elements, section_figures(elements, kind=target.kind,
+                                                       near_hz=near)
     best_a, err_a = _grid_search(elements, values, target, series_of, lambda n: True)
     # Capacitor combinations: each capacitor at its nearest series value or one step either
     # side; the resistors are solved again for each and the best start is rounded.

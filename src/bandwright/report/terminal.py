@@ -27,11 +27,15 @@ def _db(x: float) -> str:
     return f"{20 * math.log10(abs(x)):+.2f}" if x else "—"
 
 
-def _table(title: str, *cols: str) -> Table:
+def _table(title: str, *cols: str, wrap: tuple[str, ...] = ()) -> Table:
+    """A plain table; only the columns named in `wrap` may fold, the others never break."""
     t = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left", title_style="bold",
               pad_edge=False)
     for c in cols:
-        t.add_column(c, overflow="fold")
+        if c in wrap:
+            t.add_column(c, overflow="fold", ratio=1)
+        else:
+            t.add_column(c, no_wrap=True)
     return t
 
 
@@ -56,19 +60,22 @@ def render_plan(p, console: Console) -> None:
     """Print the plan to `console` (fits 100 columns; readable without colour)."""
     console.print(f"[bold]bandwright plan[/bold] — {p.requirement.path}")
     _requirement(p.requirement, p.model, console)
-    cand = _table("Candidates (best first)", "#", "family", "path", "order", "sections",
-                  "op-amps", "worst margin", "noise out", "dyn. range", "state")
+    cand = _table("Candidates (best first)", "#", "family, path, order", "sections",
+                  "op-amps", "margin", "noise", "DR", "verdict")
     for i, d in enumerate(p.designs):
         c, an = d.candidate, d.analyses
         margin = f"{min(n.margin_db for n in an.nodes):+.1f} dB" if an else "—"
+        # (margin: worst headroom; noise: integrated output noise; DR: dynamic range)
         noise = f"{an.noise.integrated_vrms * 1e6:.3g} µV" if an else "—"
         dr = f"{an.dynamic_range_db:.1f} dB" if an else "—"
-        state = ("cannot build" if not d.buildable else
-                 f"{d.failures} failing" if d.failures else "meets all")
-        cand.add_row(("→" if i == 0 else "") + str(i + 1), c.family, c.path, str(c.order),
+        state = ("no circuit" if not d.buildable else
+                 f"{d.failures} fail" if d.failures else "meets all")
+        cand.add_row(("→" if i == 0 else "") + str(i + 1), f"{c.family} {c.path} {c.order}",
                      str(len(c.sections)), str(d.opamps) if d.buildable else "—", margin, noise,
                      dr, state)
     console.print(cand)
+    console.print("margin: worst node headroom; noise: output noise over the noise band; "
+                  "DR: dynamic range")
     d = p.chosen
     console.print(f"Chosen: {d.candidate.family} {d.candidate.path}, order {d.candidate.order} "
                   f"({d.candidate.note}) — {p.why}.")
@@ -94,7 +101,7 @@ def render_audit(a, console: Console) -> None:
 
 def _unbuilt(d, console: Console) -> None:
     t = _table("Sections (no circuit found for at least one)", "#", "kind", "f0", "Q", "gain",
-               "what stops it")
+               "what stops it", wrap=("what stops it",))
     for i, a in enumerate(d.assignments):
         s = a.section
         why = "; ".join(f"{n}: {r}" for n, r in a.rejected) if a.realization is None else \
@@ -142,7 +149,8 @@ def _chain(chain, an, console: Console) -> None:
 
 
 def _checks(checks, console: Console) -> None:
-    t = _table("Checks", "check", "where", "verdict", "value", "limit", "reason")
+    t = _table("Checks", "check", "where", "verdict", "value", "limit", "reason",
+               wrap=("reason",))
     for k in checks:
         where = k.net or (f"stage {k.stage}" if k.stage else "chain")
         t.add_row(k.id, where, _VERDICT[k.status], _fmt(k.value, k.unit), _fmt(k.limit, k.unit),
@@ -153,5 +161,12 @@ def _checks(checks, console: Console) -> None:
     console.print(f"{len(checks)} checks: {fails} failed, {warns} warnings.")
 
 
+_SHOWN_UNIT = {"ohm": "Ω", "V/us": "V/µs", "Hz": "Hz", "Vrms": "V", "Vpk": "V"}
+
+
 def _fmt(x: float | None, unit: str) -> str:
-    return "—" if x is None else f"{x:.4g} {unit}".strip()
+    if x is None:
+        return "—"
+    if unit in ("ohm", "Hz", "Vrms", "Vpk"):
+        return format_value(x, _SHOWN_UNIT[unit])
+    return f"{x:.4g} {_SHOWN_UNIT.get(unit, unit)}".strip()

@@ -1,0 +1,92 @@
+"""Audits: a chain file reproduces a plan; bad chain files exit 2 naming stage and part."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from bandwright.audit import audit
+from bandwright.errors import SpecError
+
+from conftest import SCENARIOS, run_cli
+
+CHAIN = """
+[input]
+max_vpk = 0.5
+source_ohms = 50
+[supply]
+rails_v = [-5, 5]
+[amplifier]
+archetype = "general"
+
+[[stage]]
+topology = "sallen_key_highpass"
+parts = { C1 = "10n", C2 = "10n", R1 = "11.3k", R2 = "45.3k" }
+
+[[stage]]
+topology = "mfb_lowpass"
+parts = { R1 = "10k", R2 = "10k", R3 = "4k99", C1 = "10n", C2 = "1n" }
+"""
+
+
+def test_plan_out_chain_toml_audits_to_the_same_figures(tmp_path):
+    """design.md: `bandwright audit DIR/chain.toml` reproduces the plan's figures."""
+    out = tmp_path / "o"
+    r = run_cli("plan", SCENARIOS / "audio_band.toml", "--out", out, "--json")
+    assert r.returncode in (0, 1), r.stderr
+    planned = json.loads(r.stdout)
+    a = run_cli("audit", out / "chain.toml", "--json")
+    assert a.returncode == r.returncode, a.stderr
+    audited = json.loads(a.stdout)
+    np.testing.assert_allclose(audited["response"]["gain_db"], planned["response"]["gain_db"],
+                               rtol=1e-9, atol=1e-9)
+    assert [(c["id"], c["net"], c["status"]) for c in audited["checks"]] == \
+        [(c["id"], c["net"], c["status"]) for c in planned["checks"]
+         if c["id"] != "yield"]
+    for p, q in zip(planned["stages"], audited["stages"]):
+        assert p["topology"] == q["topology"] and p["components"] == q["components"]
+        for k in ("f0_hz", "q", "gain"):
+            assert q["actual"][k] == pytest.approx(p["actual"][k], rel=1e-9)
+    assert planned["noise"]["integrated_vrms"] == pytest.approx(
+        audited["noise"]["integrated_vrms"], rel=1e-9)
+
+
+def test_audit_without_mask_reports_per_stage_figures(write_spec):
+    a = audit(write_spec(CHAIN, "chain.toml"))
+    assert not a.has_mask
+    assert [st.topology for st in a.chain.stages] == ["sallen_key_highpass", "mfb_lowpass"]
+    assert all(c.id != "mask" for c in a.checks)
+    assert a.chain.stages[1].built.gain < 0  # the MFB lowpass inverts
+
+
+BAD = [
+    ("unknown topology", CHAIN.replace('"mfb_lowpass"', '"mfb_lowpas"'), "stage[1].topology",
+     "did you mean 'mfb_lowpass'"),
+    ("missing part", CHAIN.replace('R3 = "4k99", ', ""), "stage[1].parts.R3", "missing"),
+    ("extra part", CHAIN.replace('R3 = "4k99"', 'R3 = "4k99", R9 = "1k"'),
+     "stage[1].parts.R9", "no part R9"),
+    ("negative part", CHAIN.replace('"4k99"', '"-5k"'), "stage[1].parts.R3", ""),
+    ("zero part", CHAIN.replace('"4k99"', '"0"'), "stage[1].parts.R3", "> 0"),
+    ("absurd part", CHAIN.replace('"4k99"', '"1e30"'), "stage[1].parts.R3", "plausible"),
+    ("junk part", CHAIN.replace('"4k99"', '"four"'), "stage[1].parts.R3", ""),
+    ("no stages", CHAIN.split("[[stage]]")[0], "stage", "no [[stage]]"),
+    ("unknown stage key", CHAIN.replace('topology = "mfb_lowpass"',
+                                        'topology = "mfb_lowpass"\ntopo = 1'),
+     "stage[1].topo", "unknown key"),
+]
+
+
+@pytest.mark.parametrize("name,text,key,word", BAD, ids=[b[0] for b in BAD])
+def test_bad_chain_file_names_stage_and_part(name, text, key, word, tmp_path):
+    p = tmp_path / "chain.toml"
+    p.write_text(text)
+    with pytest.raises(SpecError) as info:
+        audit(p)
+    assert info.value.key == key
+    assert word in str(info.value)
+    r = run_cli("audit", p, "--out", tmp_path / "o")
+    assert r.returncode == 2 and "Traceback" not in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1
+    assert not (tmp_path / "o").exists()
