@@ -10,19 +10,25 @@ from bandwright.errors import SpecError
 from bandwright.spec.reader import TableReader, read_toml
 from bandwright.spec.requirement import (
     AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
-    Requirement, StopbandPoint, Supply, Tone,
+    Requirement, StopbandPoint, Supply, Tolerance, Tone,
 )
 from bandwright.types import FAMILIES
 
 __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "read_passband",
            "read_stop",
-           "read_amplifier", "read_common_tables"]
+           "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
+           "DISTRIBUTIONS"]
 
 SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
                   "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
-              "noise")
+              "noise", "tolerance")
+TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
+                  "seed", "min_yield")
+DISTRIBUTIONS = ("uniform", "gaussian")
+_MAX_TOLERANCE_PCT = 50.0
+_MAX_SAMPLES = 1_000_000
 HALF_POWER_DB = 10 * math.log10(2)
 
 
@@ -53,10 +59,12 @@ def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requi
                         "least one stopband point, or the order")
     common = read_common_tables(path, doc)
     noise = common["noise"]
+    tolerance = read_tolerance(TableReader(path, "tolerance", doc.get("tolerance", {}),
+                                           TOLERANCE_KEYS))
     return Requirement(path=path, passband=passband, stopband=stopband, design=design,
                        input=common["input"], supply=common["supply"],
                        amplifier=common["amplifier"], environment=common["environment"],
-                       noise=noise)
+                       noise=noise, tolerance=tolerance)
 
 
 def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
@@ -146,6 +154,39 @@ def read_stop(path: str, i: int, table: Any, passband: Passband) -> StopbandPoin
         raise st.error("min_loss_db", f"must exceed passband.max_loss_db = "
                        f"{passband.max_loss_db:g} dB")
     return StopbandPoint(freq_hz=f, min_loss_db=a)
+
+
+def _percent(t: TableReader, name: str, default: float | None, *, zero_ok: bool
+             ) -> float | None:
+    """A ± percentage below 50 (a part off by half its value is not a tolerance)."""
+    v = t.number(name, default)
+    if v is None or (zero_ok and v == 0):
+        return v
+    if not 0 < v < _MAX_TOLERANCE_PCT:
+        low = ">= 0" if zero_ok else "> 0"
+        raise t.error(name, f"must be {low} and < {_MAX_TOLERANCE_PCT:g} (percent)")
+    return v
+
+
+def read_tolerance(t: TableReader) -> Tolerance:
+    """`[tolerance]`: part and GBW spreads, distribution, samples, seed, min_yield.
+
+    Part tolerances left out stay None: the planner then uses the tolerance customary for
+    the design's series (``parts.tolerance``).
+    """
+    base = Tolerance()
+    min_yield = t.number("min_yield", base.min_yield)
+    if not 0 < min_yield <= 1:
+        raise t.error("min_yield", "must be > 0 and <= 1 (a share, e.g. 0.95)")
+    return Tolerance(
+        resistor_pct=_percent(t, "resistor_pct", None, zero_ok=False),
+        capacitor_pct=_percent(t, "capacitor_pct", None, zero_ok=False),
+        distribution=t.string("distribution", base.distribution, choices=DISTRIBUTIONS),
+        gbw_spread_pct=_percent(t, "gbw_spread_pct", base.gbw_spread_pct, zero_ok=True),
+        samples=t.integer("samples", base.samples, low=10, high=_MAX_SAMPLES),
+        seed=t.integer("seed", base.seed, low=0, high=2**32 - 1),
+        min_yield=min_yield,
+    )
 
 
 def _read_design(d: TableReader) -> DesignChoice:

@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 
 __all__ = [
     "Passband", "StopbandPoint", "DesignChoice", "Tone", "InputSignal", "Supply",
-    "AmplifierChoice", "Environment", "NoiseBudget", "Requirement",
+    "AmplifierChoice", "Environment", "NoiseBudget", "Tolerance", "Requirement",
 ]
 
 
@@ -94,6 +94,36 @@ class NoiseBudget:
 
 
 @dataclass(frozen=True, slots=True)
+class Tolerance:
+    """`[tolerance]`: production spreads for the Monte Carlo yield.
+
+    Attributes
+    ----------
+    resistor_pct, capacitor_pct : float or None
+        Part tolerance, ± percent; None: the tolerance customary for
+        `design.resistor_series` / `design.capacitor_series` (``parts.tolerance``).
+    distribution : {"uniform", "gaussian"}
+        Uniform over ± tolerance, or Gaussian with the tolerance at 3 sigma.
+    gbw_spread_pct : float
+        Spread of every op-amp's GBW, ± percent, same distribution (0: none).
+    samples : int
+        Monte Carlo samples.
+    seed : int
+        Seed of the random generator: the same seed repeats a run exactly.
+    min_yield : float
+        Share of built chains that must meet the requirement (0 to 1).
+    """
+
+    resistor_pct: float | None = None
+    capacitor_pct: float | None = None
+    distribution: str = "uniform"
+    gbw_spread_pct: float = 20.0
+    samples: int = 2000
+    seed: int = 1
+    min_yield: float = 0.95
+
+
+@dataclass(frozen=True, slots=True)
 class Requirement:
     """A whole bandpass requirement, as read from `path`."""
 
@@ -106,3 +136,4 @@ class Requirement:
     amplifier: AmplifierChoice = field(default_factory=AmplifierChoice)
     environment: Environment = field(default_factory=Environment)
     noise: NoiseBudget = field(default_factory=NoiseBudget)
+    tolerance: Tolerance = field(default_factory=Tolerance)
