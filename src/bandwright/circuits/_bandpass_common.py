@@ -1,0 +1,234 @@
+"""Shared rules of the five bandpass topologies.
+
+Private helpers for ``mfb_bandpass``, ``sallen_key_bandpass``, ``dual_amp_bandpass``,
+``tow_thomas`` and ``state_variable``: argument checks, the input divider that lowers a
+section's natural centre gain, and the assembly of a ``Limits`` record from the figures
+each topology computes in closed form.
+
+The criteria
+------------
+*Finite GBW.* Each topology states the first-order relative shifts of f0 and Q caused by
+a single-pole op-amp, per unit e = f0/GBW (derived with sympy on its element list, see its
+``gbw_shift``). The planner predistorts for them, which is reliable while the first-order
+model is: ``GBW_SHIFT_LIMIT`` (10 %) bounds the larger of the two shifts, and the GBW that
+meets it is the topology's ``gbw_needed_hz`` (for Tow-Thomas this is the "4 Q e <= 0.1"
+rule). The multiple-feedback section uses its own loop-gain rule of thumb instead.
+
+*Tolerance.* With every part off by the tolerance t in its worst direction, Q moves by
+about ``sum_x |S_x^Q| t`` (first order; Schaumann & Van Valkenburg, *Design of Analog
+Filters*, 2001, ch. 3 [mem]). A section is accepted while that worst-case shift stays at
+or below ``TOLERANCE_Q_SHIFT_LIMIT`` (50 %): beyond it the damping of a positive-feedback
+section can approach zero and the section ring or oscillate (common practice; the exact
+bound is our choice and is stated in every reason).
+
+*Spread.* Largest over smallest resistor at most ``MAX_SPREAD`` (1000:1, three decades):
+beyond that one resistor ends up comparable with stray and load impedances, or very large
+(common practice).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+
+from bandwright.circuits.base import Limits
+from bandwright.parts.notation import format_value
+from bandwright.sections.section import Section
+
+__all__ = ["GBW_SHIFT_LIMIT", "TOLERANCE_Q_SHIFT_LIMIT", "MAX_SPREAD", "DEFAULT_TOLERANCE",
+           "GAIN_RTOL", "check_section", "check_capacitor", "divider", "design_gain",
+           "is_fitted", "resistor_spread", "hz", "assemble_limits"]
+
+#: Largest first-order relative shift of f0 or Q from finite GBW accepted (criterion above).
+GBW_SHIFT_LIMIT = 0.1
+#: Largest worst-case first-order relative Q shift from part tolerances accepted.
+TOLERANCE_Q_SHIFT_LIMIT = 0.5
+#: Largest resistor spread accepted (common practice).
+MAX_SPREAD = 1000.0
+#: Part tolerance assumed by ``limits`` when the caller gives none (E96, 1 %; common practice).
+DEFAULT_TOLERANCE = 0.01
+#: A requested gain within this relative distance of the natural one is the natural one:
+#: the difference is float round-off and would otherwise ask for a teraohm divider leg.
+GAIN_RTOL = 1e-9
+
+
+def check_section(section: Section) -> None:
+    """Raise ValueError unless `section` is a bandpass with finite f0 > 0, Q > 0, gain != 0.
+
+    Parameters
+    ----------
+    section : Section
+        The section to check.
+    """
+    if section.kind != "bandpass":
+        raise ValueError(f"section kind {section.kind!r}: these topologies build 'bandpass'")
+    if not (math.isfinite(section.f0_hz) and section.f0_hz > 0):
+        raise ValueError(f"f0 = {section.f0_hz!r} Hz: must be finite and > 0")
+    if not (math.isfinite(section.q) and section.q > 0):
+        raise ValueError(f"Q = {section.q!r}: must be finite and > 0")
+    if not (math.isfinite(section.gain) and section.gain != 0):
+        raise ValueError(f"gain = {section.gain!r} V/V: must be finite and non-zero")
+
+
+def check_capacitor(c_farads: float) -> None:
+    """Raise ValueError unless `c_farads` is finite and > 0."""
+    if not (math.isfinite(c_farads) and c_farads > 0):
+        raise ValueError(f"c_farads = {c_farads!r}: must be finite and > 0")
+
+
+def design_gain(section: Section, natural_gain: float) -> float:
+    """The |gain| a topology designs for: |section.gain|, or its natural gain if that is less.
+
+    Parameters
+    ----------
+    section : Section
+        The section.
+    natural_gain : float
+        The largest |centre gain| the topology reaches for this Q (> 0).
+
+    Returns
+    -------
+    float
+        min(|gain|, natural_gain); a request within ``GAIN_RTOL`` of the natural gain is
+        returned as the natural gain. The shortfall, if any, is reported by ``limits``.
+    """
+    g = abs(section.gain)
+    if g >= natural_gain * (1 - GAIN_RTOL):
+        return natural_gain
+    return g
+
+
+def divider(r_ohms: float, ratio: float) -> tuple[float, float]:
+    """Two resistors that divide by `ratio` and have Thevenin resistance `r_ohms`.
+
+    Parameters
+    ----------
+    r_ohms : float
+        Resistance the divider presents to the node it drives (r_top ∥ r_bottom), ohms.
+    ratio : float
+        Wanted r_bottom / (r_top + r_bottom), in (0, 1].
+
+    Returns
+    -------
+    (float, float)
+        (r_top, r_bottom) in ohms; r_bottom is ``math.inf`` (not fitted) when `ratio` is 1
+        within ``GAIN_RTOL``.
+
+    Notes
+    -----
+    Thevenin equivalent of a divider: V = ratio · V_in behind r_top ∥ r_bottom, so
+    r_top = r / ratio and r_bottom = r / (1 - ratio).
+    """
+    if not 0 < ratio <= 1 + GAIN_RTOL:
+        raise ValueError(f"divider ratio {ratio!r}: must be in (0, 1]")
+    if ratio >= 1 - GAIN_RTOL:
+        return r_ohms, math.inf
+    return r_ohms / ratio, r_ohms / (1 - ratio)
+
+
+def is_fitted(components: Mapping[str, float], name: str) -> bool:
+    """True when part `name` is present with a finite value (absent or inf: not fitted)."""
+    return name in components and math.isfinite(components[name])
+
+
+def resistor_spread(components: Mapping[str, float]) -> float:
+    """Largest over smallest fitted resistor (names starting with "R").
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        Part name -> value; infinite values (parts not fitted) are skipped.
+
+    Returns
+    -------
+    float
+        The spread, >= 1.
+    """
+    values = [v for k, v in components.items() if k.startswith("R") and math.isfinite(v)]
+    return max(values) / min(values) if values else 1.0
+
+
+def hz(value: float) -> str:
+    """A frequency for a reason text: "2.1 GHz", "400 Hz", "inf Hz"."""
+    if not math.isfinite(value):
+        return f"{value} Hz"
+    text = format_value(value)
+    if text[-1].isalpha():
+        return f"{text[:-1]} {text[-1]}Hz"
+    return f"{text} Hz"
+
+
+def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
+                    gbw_needed_hz: float, gbw_rule: str, spread: float,
+                    sensitivities: Mapping[str, float], noise_gain: float,
+                    natural_gain: float, accept_gain_shortfall: bool, tolerance: float,
+                    max_spread: float, tolerance_q_max: float | None = None,
+                    problems: tuple[str, ...] = ()) -> Limits:
+    """Build the Limits record of a section from a topology's figures.
+
+    Parameters
+    ----------
+    section : Section
+        The section asked for.
+    model_gbw_hz : float
+        GBW of the op-amp, Hz.
+    opamps : int
+        Number of op-amps of the topology.
+    gbw_needed_hz : float
+        GBW the topology needs for this section, Hz.
+    gbw_rule : str
+        The criterion behind `gbw_needed_hz`, quoted in the reason.
+    spread : float
+        Resistor spread of the ideal design.
+    sensitivities : mapping of str to float
+        S_x^Q of every passive part at the design point.
+    noise_gain : float
+        Noise gain at f0 (largest over op-amps).
+    natural_gain : float
+        Largest |centre gain| the topology reaches at this Q.
+    accept_gain_shortfall : bool
+        When True, a requested gain above `natural_gain` is a note, not a failure.
+    tolerance : float
+        Relative part tolerance (0.01 for 1 %).
+    max_spread : float
+        Largest spread accepted.
+    tolerance_q_max : float, optional
+        Largest Q the topology keeps within the tolerance criterion at `tolerance`, quoted
+        in the reason when the criterion fails.
+    problems : tuple of str
+        Reasons found by the topology itself that make it infeasible.
+
+    Returns
+    -------
+    Limits
+    """
+    failures: list[str] = list(problems)
+    notes: list[str] = []
+    if not math.isfinite(gbw_needed_hz) or model_gbw_hz < gbw_needed_hz:
+        failures.append(f"needs {hz(gbw_needed_hz)} GBW ({gbw_rule}), the op-amp has "
+                        f"{hz(model_gbw_hz)}")
+    else:
+        notes.append(f"needs {hz(gbw_needed_hz)} GBW ({gbw_rule}), the op-amp has "
+                     f"{hz(model_gbw_hz)}")
+    g = abs(section.gain)
+    if g > natural_gain * (1 + GAIN_RTOL):
+        text = (f"gain {g:.4g} V/V exceeds the {natural_gain:.4g} V/V this section reaches at "
+                f"Q {section.q:.4g}; designed for {natural_gain:.4g} V/V, "
+                f"{20 * math.log10(g / natural_gain):.2f} dB to be made up by a gain stage")
+        (notes if accept_gain_shortfall else failures).append(text)
+    if spread > max_spread:
+        failures.append(f"resistor spread {spread:.4g}:1 exceeds {max_spread:.4g}:1")
+    total = sum(abs(v) for v in sensitivities.values())
+    shift = total * tolerance
+    if shift > TOLERANCE_Q_SHIFT_LIMIT:
+        failures.append(
+            f"Q {section.q:.4g}: with {100 * tolerance:.3g} % parts Q may move by "
+            f"{100 * shift:.0f} % (sum of |S_x^Q| = {total:.4g}); at most "
+            f"{100 * TOLERANCE_Q_SHIFT_LIMIT:.0f} % is accepted"
+            + (f", which this section keeps up to Q {tolerance_q_max:.3g}"
+               if tolerance_q_max else ""))
+    return Limits(feasible=not failures, reasons=tuple(failures + notes),
+                  gbw_needed_hz=float(gbw_needed_hz), spread=float(spread),
+                  q_sensitivity=float(max(abs(v) for v in sensitivities.values())),
+                  noise_gain=float(noise_gain), opamps=opamps)
+
