@@ -1,0 +1,482 @@
+"""Plots of a plan or an audit (matplotlib, Agg; PNG and SVG for ``--out DIR``).
+
+Every figure drawn here is read from the Analyses object or the Checks; the only curves
+evaluated here are reference curves: the ideal response of the sections (their standard
+biquads, ``sections.split.cascade_response``) and the level each tone reaches at each net
+(the analysis's own ``net_transfers`` at the tone frequencies). No pyplot: every plot is
+its own ``matplotlib.figure.Figure``, so nothing leaks into global state.
+
+Plots
+-----
+``response``  built chain response against the mask, ideal response beside it, passband zoom.
+``levels``    worst-case level at every op-amp output across frequency against its swing
+              limit, tones marked; headroom margin per net.
+``noise``     output noise density, the largest contributors and the rest, band marked.
+``yield``     Monte Carlo response envelope against the mask (only when yield ran).
+``poles``     section poles in the s-plane, built and target; f0 against Q.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+
+import matplotlib
+import numpy as np
+from matplotlib.figure import Figure
+from matplotlib.patches import Patch, Rectangle
+from matplotlib.ticker import EngFormatter, MaxNLocator, NullFormatter, NullLocator
+
+from bandwright.analysis.levels import net_transfers
+from bandwright.report.subject import Subject, net_label, stage_label, subject_of
+from bandwright.report.terminal import fmt_hz
+from bandwright.sections.split import cascade_response
+
+__all__ = ["plot_files", "plot_figures", "PLOT_NAMES", "DPI", "SIZE_PX", "source_label"]
+
+#: Resolution and pixel size of every PNG.
+DPI = 110
+SIZE_PX = (1000, 600)
+PLOT_NAMES = ("response", "levels", "noise", "yield", "poles")
+
+# Our own plain palette: one colour per stage, fixed so a stage keeps its colour across plots.
+STAGE_COLOURS = ("#1f4e79", "#c26a00", "#2e7d32", "#7b1fa2", "#00838f", "#8d5524",
+                 "#b0245a", "#4e5d6c", "#8a8a00", "#3949ab")
+BUILT = "#12355b"
+IDEAL = "#8c8c8c"
+FORBIDDEN = "#d64541"
+LIMIT = "#b3261e"
+STATUS_COLOUR = {"pass": "#3b7d3b", "warn": "#c98a00", "fail": "#c0392b"}
+TOP_CONTRIBUTORS = 5
+CONTRIBUTOR_COLOURS = ("#d0541f", "#2a7ab0", "#5b8c2a", "#9c4fa8", "#b8860b")
+
+
+def _figure(ncols: int = 1, width_ratios=None) -> tuple[Figure, list]:
+    fig = Figure(figsize=(SIZE_PX[0] / DPI, SIZE_PX[1] / DPI), dpi=DPI, layout="constrained")
+    axes = fig.subplots(1, ncols, width_ratios=width_ratios, squeeze=False)[0]
+    return fig, list(axes)
+
+
+def _save(fig: Figure) -> tuple[bytes, bytes]:
+    png = io.BytesIO()
+    fig.savefig(png, format="png", dpi=DPI)
+    svg = io.BytesIO()
+    # Text stays text (smaller, searchable in the HTML); a fixed salt and no date keep the
+    # SVG identical from run to run.
+    with matplotlib.rc_context({"svg.fonttype": "none", "svg.hashsalt": "bandwright"}):
+        fig.savefig(svg, format="svg", metadata={"Date": None})
+    return png.getvalue(), svg.getvalue()
+
+
+def _stage_colour(position: int) -> str:
+    return STAGE_COLOURS[(position - 1) % len(STAGE_COLOURS)]
+
+
+def _log_freq_axis(ax, lo_hz: float, hi_hz: float) -> None:
+    """Log frequency axis with SI labels; within a decade or so, a few plain ticks."""
+    ax.set_xscale("log")
+    ax.set_xlim(lo_hz, hi_hz)
+    fmt = EngFormatter(unit="Hz", sep=" ")
+    if hi_hz / lo_hz < 12:
+        ticks = [t for t in MaxNLocator(5).tick_values(lo_hz, hi_hz) if lo_hz <= t <= hi_hz]
+        ax.xaxis.set_major_locator(matplotlib.ticker.FixedLocator(ticks))
+        ax.xaxis.set_minor_locator(NullLocator())
+    else:
+        ax.xaxis.set_minor_formatter(NullFormatter())
+    ax.xaxis.set_major_formatter(fmt)
+    ax.set_xlabel("frequency (log scale)")
+    ax.grid(True, which="major", color="#d0d0d0", linewidth=0.6)
+    ax.grid(True, which="minor", color="#ececec", linewidth=0.4)
+
+
+def _plain_log_y(ax, lo: float, hi: float) -> None:
+    """Log y axis labelled with plain numbers (3, 4, 6 rather than powers of ten)."""
+    ax.set_yscale("log")
+    ax.set_ylim(lo, hi)
+    fmt = matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}")
+    ax.yaxis.set_major_formatter(fmt)
+    ax.yaxis.set_minor_formatter(fmt if hi / lo < 30 else NullFormatter())
+    ax.tick_params(axis="y", which="minor", labelsize=8)
+
+
+# --------------------------------------------------------------------------- response
+
+
+def _mask_patches(ax, s: Subject, x_lo: float, x_hi: float, y_lo: float, y_hi: float, *,
+                  label_points: bool = False) -> None:
+    """Shade what the requirement forbids: below the passband floor, above its ceiling,
+    and above each stopband limit from its point outward."""
+    pb = s.requirement.passband
+    kw = dict(facecolor=FORBIDDEN, alpha=0.16, edgecolor=FORBIDDEN, linewidth=0.0)
+    floor = pb.gain_db - pb.max_loss_db
+    ceiling = pb.gain_db + pb.gain_tolerance_db
+    ax.add_patch(Rectangle((pb.low_hz, y_lo), pb.high_hz - pb.low_hz, floor - y_lo, **kw))
+    ax.add_patch(Rectangle((pb.low_hz, ceiling), pb.high_hz - pb.low_hz, y_hi - ceiling, **kw))
+    ax.hlines([floor, ceiling], pb.low_hz, pb.high_hz, colors=FORBIDDEN, linewidth=0.9)
+    for sp in s.requirement.stopband:
+        top = pb.gain_db - sp.min_loss_db
+        a, b = (x_lo, sp.freq_hz) if sp.freq_hz < pb.low_hz else (sp.freq_hz, x_hi)
+        ax.add_patch(Rectangle((a, top), b - a, y_hi - top, **kw))
+        ax.plot([sp.freq_hz], [top], marker="v", color=FORBIDDEN, markersize=7, linestyle="")
+        if label_points and x_lo < sp.freq_hz < x_hi:
+            ax.annotate(f"{sp.min_loss_db:g} dB down\nat {fmt_hz(sp.freq_hz)}", (sp.freq_hz, top),
+                        xytext=(0, -10), textcoords="offset points", fontsize=7.5,
+                        ha="center", va="top", color=LIMIT)
+
+
+def _response_axes(ax, s: Subject, f, built_db, ideal_db, x_lo, x_hi, y_lo, y_hi, *,
+                   label_points: bool = False) -> None:
+    if s.has_mask:
+        _mask_patches(ax, s, x_lo, x_hi, y_lo, y_hi, label_points=label_points)
+    ax.plot(f, ideal_db, color=IDEAL, linestyle="--", linewidth=1.3)
+    ax.plot(f, built_db, color=BUILT, linewidth=1.8)
+    _log_freq_axis(ax, x_lo, x_hi)
+    ax.set_ylim(y_lo, y_hi)
+    ax.set_ylabel("gain (dB)")
+
+
+def _response(s: Subject) -> Figure:
+    an = s.analyses
+    pb = s.requirement.passband
+    f = an.response.freq_hz
+    built_db = an.response.gain_db
+    # The reference curve: the unrounded sections with ideal op-amps.
+    ideal_db = 20 * np.log10(np.maximum(np.abs(cascade_response(s.ideal_sections, f)), 1e-20))
+    fig, (ax, zoom) = _figure(2, width_ratios=(1.75, 1.0))
+    stops = [sp.min_loss_db for sp in s.requirement.stopband] if s.has_mask else []
+    y_hi = max(pb.gain_db + 10.0, float(built_db.max()) + 5.0)
+    y_lo = pb.gain_db - max(stops + [40.0]) - 30.0
+    _response_axes(ax, s, f, built_db, ideal_db, f[0], f[-1], y_lo, y_hi, label_points=True)
+    title = "Chain response, as built" if s.has_mask else \
+        "Chain response, as built (the audit file states no mask)"
+    ax.set_title(title, loc="left", fontsize=11)
+    # Passband zoom: a quarter of the band's log width either side of it.
+    r = (pb.high_hz / pb.low_hz) ** 0.25
+    z_lo, z_hi = max(pb.low_hz / r, f[0]), min(pb.high_hz * r, f[-1])
+    inside = (f >= z_lo) & (f <= z_hi)
+    floor = pb.gain_db - pb.max_loss_db
+    ceiling = pb.gain_db + pb.gain_tolerance_db
+    band = (f >= pb.low_hz) & (f <= pb.high_hz)
+    zy_hi = max(ceiling + 1.0, float(built_db[inside].max()) + 0.5)
+    # Show the whole in-band curve, however far it misses, but no more than 30 dB below.
+    zy_lo = max(min(floor - 2.0 * max(pb.max_loss_db, 0.5),
+                    float(built_db[band].min()) - 1.0), floor - 30.0)
+    _response_axes(zoom, s, f, built_db, ideal_db, z_lo, z_hi, zy_lo, zy_hi)
+    zoom.set_title("Passband, zoomed", loc="left", fontsize=11)
+    if s.has_mask:
+        zoom.annotate(f"allowed: {floor:.4g} to {ceiling:.4g} dB\nfrom {fmt_hz(pb.low_hz)} to "
+                      f"{fmt_hz(pb.high_hz)}", (0.02, 0.02), xycoords="axes fraction",
+                      fontsize=8, color="#333333",
+                      bbox=dict(boxstyle="round,pad=0.3", facecolor="white", alpha=0.85,
+                                edgecolor="#bbbbbb"))
+    handles = [matplotlib.lines.Line2D([], [], color=BUILT, linewidth=1.8,
+                                       label="built chain (rounded parts, finite GBW)"),
+               matplotlib.lines.Line2D([], [], color=IDEAL, linestyle="--", linewidth=1.3,
+                                       label="ideal sections")]
+    if s.has_mask:
+        handles += [Patch(facecolor=FORBIDDEN, alpha=0.16, label="forbidden by the requirement"),
+                    matplotlib.lines.Line2D([], [], color=FORBIDDEN, marker="v", linestyle="",
+                                            label="stopband point (checked there)")]
+    ax.legend(handles=handles, loc="lower center", fontsize=8, framealpha=0.9)
+    return fig
+
+
+# --------------------------------------------------------------------------- levels
+
+
+def _levels(s: Subject) -> Figure:
+    an, chain, req = s.analyses, s.chain, s.requirement
+    f = an.response.freq_hz
+    tones = req.input.tones
+    tone_f = np.array([t.freq_hz for t in tones], dtype=float)
+    tone_v = np.array([t.vpk for t in tones], dtype=float)
+    # The same transfers the node-level analysis uses, at the tone frequencies.
+    tone_t = net_transfers(chain, tone_f) if tones else {}
+    fig, (ax, bars) = _figure(2, width_ratios=(1.75, 1.0))
+    lows, limit = [], max(n.limit_vpk for n in an.nodes)
+    for n in an.nodes:
+        colour = _stage_colour(n.stage)
+        local = chain.graph.in_edges(n.net, data=True)
+        style = "-" if next(iter(local))[2]["local"] == "out" else ":"
+        level = req.input.max_vpk * np.abs(an.net_responses[n.net])
+        ax.plot(f, level, color=colour, linestyle=style, linewidth=1.5,
+                label=f"{net_label(chain, n.net)}: in-band signal")
+        lows.append(n.signal_vpk)
+        if tones:
+            tl = tone_v * np.abs(tone_t[n.net])
+            ax.plot(tone_f, tl, linestyle="", marker="D", markersize=5, color=colour,
+                    markeredgecolor="white", markeredgewidth=0.5)
+            lows.extend(tl[tl > 0])
+    ax.axhline(limit, color=LIMIT, linestyle="--", linewidth=1.2,
+               label=f"swing limit {limit:.3g} Vpk")
+    for n in an.nodes:
+        if not math.isclose(n.limit_vpk, limit):
+            ax.axhline(n.limit_vpk, color=LIMIT, linestyle=":", linewidth=1.0)
+    for ft, vt in zip(tone_f, tone_v):
+        ax.axvline(ft, color="#9a9a9a", linewidth=0.8, linestyle="-.")
+        ax.annotate(f"tone {vt:g} Vpk", (ft, 1.0), xycoords=("data", "axes fraction"),
+                    xytext=(3, -12), textcoords="offset points", fontsize=8, color="#555555")
+    if tones:
+        ax.plot([], [], linestyle="", marker="D", color="#555555",
+                label="each tone's level at the net")
+    lo_hz = min([f[0]] + [x / 1.5 for x in tone_f])
+    hi_hz = max([f[-1]] + [x * 1.5 for x in tone_f])
+    _log_freq_axis(ax, lo_hz, hi_hz)
+    ax.set_yscale("log")
+    floor = min([limit * 1e-3] + [0.3 * v for v in lows if v > 0])
+    ax.set_ylim(floor, limit * 3.0)
+    ax.yaxis.set_major_formatter(EngFormatter(unit="V", sep=" "))
+    ax.set_ylabel("level at the net (peak, log scale)")
+    ax.set_title(f"Node levels: input {req.input.max_vpk:g} Vpk at each frequency",
+                 loc="left", fontsize=11)
+    ax.legend(loc="lower center", fontsize=7.5, framealpha=0.9)
+    # Headroom per net, coloured by its check.
+    status = {k.net: k.status for k in s.checks if k.id == "headroom" and k.net}
+    names = [f"stage {n.stage} {next(iter(chain.graph.in_edges(n.net, data=True)))[2]['local']}"
+             for n in an.nodes]
+    margins = [n.margin_db if math.isfinite(n.margin_db) else 0.0 for n in an.nodes]
+    y = np.arange(len(an.nodes))[::-1]
+    bars.barh(y, margins, color=[STATUS_COLOUR[status.get(n.net, "pass")] for n in an.nodes],
+              height=0.5)
+    bars.set_yticks(y, names, fontsize=8)
+    bars.axvline(0.0, color="#333333", linewidth=0.8)
+    span = max([abs(m) for m in margins] + [1.0])
+    bars.set_xlim(min(0.0, min(margins)) - 0.05 * span, max(0.0, max(margins)) + 0.8 * span)
+    for yi, m, n in zip(y, margins, an.nodes):
+        bars.annotate(f"{m:+.1f} dB\n{n.peak_vpk:.3g} / {n.limit_vpk:.3g} Vpk",
+                      (max(m, 0.0), yi), xytext=(4, 0), textcoords="offset points",
+                      va="center", fontsize=7.5)
+    bars.set_xlabel("headroom margin (dB)")
+    bars.set_title("Headroom, worst case (signal + tones)", loc="left", fontsize=11)
+    bars.grid(True, axis="x", color="#e0e0e0")
+    return fig
+
+
+# --------------------------------------------------------------------------- noise
+
+
+def source_label(chain, name: str) -> str:
+    """A noise source in words: "stage 1 R2, thermal", "stage 2 U1, current noise into −".
+
+    Parameters
+    ----------
+    chain : Chain
+    name : str
+        A key of ``NoiseAnalysis.contributions_psd`` ("R2_s1", "U1_s2 voltage",
+        "U1_s2 current-", "Rsource").
+    """
+    if name == "Rsource":
+        return "source resistance, thermal"
+    part, _, what = name.partition(" ")
+    ref, _, pos = part.rpartition("_s")
+    if not pos.isdigit():
+        return name
+    where = f"stage {pos} {ref}"
+    return {"": f"{where}, thermal", "voltage": f"{where}, voltage noise",
+            "current+": f"{where}, current noise into +",
+            "current-": f"{where}, current noise into −"}.get(what, f"{where} {what}")
+
+
+def _noise(s: Subject) -> Figure:
+    nz, chain = s.analyses.noise, s.chain
+    f = nz.freq_hz
+    scale, unit = (1e9, "nV") if float(np.max(nz.output_v_per_rthz)) < 1e-6 else (1e6, "µV")
+    fig, (ax,) = _figure(1)
+    ax.plot(f, scale * nz.output_v_per_rthz, color="#111111", linewidth=2.2,
+            label=f"total: {nz.integrated_vrms * 1e6:.4g} µV rms over the band")
+    top = nz.contributions_vrms[:TOP_CONTRIBUTORS]
+    for k, (name, vrms) in enumerate(top):
+        ax.plot(f, scale * np.sqrt(nz.contributions_psd[name]), linewidth=1.3,
+                color=CONTRIBUTOR_COLOURS[k % len(CONTRIBUTOR_COLOURS)],
+                label=f"{source_label(chain, name)}: {vrms * 1e6:.3g} µV rms")
+    rest = [name for name, _ in nz.contributions_vrms[TOP_CONTRIBUTORS:]]
+    if rest:
+        psd = np.sum([nz.contributions_psd[name] for name in rest], axis=0)
+        rest_vrms = math.sqrt(sum(v * v for _, v in nz.contributions_vrms[TOP_CONTRIBUTORS:]))
+        ax.plot(f, scale * np.sqrt(psd), color="#7a7a7a", linestyle=":", linewidth=1.5,
+                label=f"{len(rest)} other sources together: {rest_vrms * 1e6:.3g} µV rms")
+    lo, hi = nz.band_hz
+    r = (hi / lo) ** 0.06
+    _log_freq_axis(ax, lo / r, hi * r)
+    ax.axvspan(lo, hi, color="#2f6f9f", alpha=0.06, label="integration band")
+    for edge in (lo, hi):
+        ax.axvline(edge, color="#2f6f9f", linewidth=1.0, linestyle="--")
+    dens = scale * nz.output_v_per_rthz
+    curves = [scale * np.sqrt(nz.contributions_psd[name]) for name, _ in top]
+    lo_y = min([float(np.min(c[c > 0])) for c in curves if np.any(c > 0)] + [float(dens.min())])
+    _plain_log_y(ax, 0.7 * lo_y, 1.4 * float(dens.max()))
+    ax.set_ylabel(f"output noise density ({unit}/√Hz, log scale)")
+    ax.set_title(f"Output noise density, {s.requirement.environment.temperature_c:g} °C; "
+                 "largest contributions", loc="left", fontsize=11)
+    ax.legend(loc="best", fontsize=8, framealpha=0.9)
+    return fig
+
+
+# --------------------------------------------------------------------------- yield
+
+
+def _envelope(yr):
+    """(freq_hz, low_db, high_db, median_db or None, label) from a yield result, or None.
+
+    The Monte Carlo result is read by what it holds, not by its class: a response
+    envelope on a frequency grid as percentile curves.
+    """
+    env = getattr(yr, "envelope", None) or yr
+    f = getattr(env, "freq_hz", None)
+    if f is None:
+        return None
+    for lo_name, hi_name in (("low_db", "high_db"), ("lower_db", "upper_db"),
+                             ("min_db", "max_db"), ("p_low_db", "p_high_db")):
+        lo, hi = getattr(env, lo_name, None), getattr(env, hi_name, None)
+        if lo is not None and hi is not None:
+            return (np.asarray(f), np.asarray(lo), np.asarray(hi),
+                    getattr(env, "median_db", None), getattr(env, "label", None))
+    pct = getattr(env, "percentiles_db", None) or getattr(env, "gain_db_percentiles", None)
+    if isinstance(pct, dict) and len(pct) >= 2:
+        keys = sorted(pct)
+        mid = pct.get(50) or pct.get(50.0)
+        return (np.asarray(f), np.asarray(pct[keys[0]]), np.asarray(pct[keys[-1]]), mid,
+                f"{keys[0]:g}–{keys[-1]:g} percentile")
+    return None
+
+
+def _yield(s: Subject) -> Figure | None:
+    yr = s.yield_result
+    if yr is None:
+        return None
+    env = _envelope(yr)
+    if env is None:
+        return None
+    f, lo, hi, mid, label = env
+    pb = s.requirement.passband
+    fig, (ax,) = _figure(1)
+    stops = [sp.min_loss_db for sp in s.requirement.stopband]
+    y_hi = max(pb.gain_db + 10.0, float(np.max(hi)) + 5.0)
+    y_lo = pb.gain_db - max(stops + [40.0]) - 30.0
+    if s.has_mask:
+        _mask_patches(ax, s, f[0], f[-1], y_lo, y_hi)
+    ax.fill_between(f, lo, hi, color=BUILT, alpha=0.3, linewidth=0,
+                    label=f"Monte Carlo envelope ({label or 'spread of samples'})")
+    if mid is not None:
+        ax.plot(f, np.asarray(mid), color=BUILT, linewidth=1.2, label="median sample")
+    ax.plot(s.analyses.response.freq_hz, s.analyses.response.gain_db, color="#111111",
+            linewidth=1.0, linestyle="--", label="nominal parts")
+    _log_freq_axis(ax, float(f[0]), float(f[-1]))
+    ax.set_ylim(y_lo, y_hi)
+    ax.set_ylabel("gain (dB)")
+    y = getattr(yr, "yield_fraction", None)
+    if y is None:
+        y = getattr(yr, "yield_", None)
+    title = "Response spread over part tolerances"
+    if isinstance(y, (int, float)):
+        title += f": {100 * y:.1f} % of boards meet the requirement"
+    ax.set_title(title, loc="left", fontsize=11)
+    ax.legend(loc="lower center", fontsize=8)
+    return fig
+
+
+# --------------------------------------------------------------------------- poles
+
+
+def _poles_of(f0_hz: float, q: float) -> np.ndarray:
+    """p = −ω0/(2Q) ± jω0 √(1 − 1/(4Q²)), in Hz (divided by 2π): the roots of
+    s² + (ω0/Q)s + ω0² (Schaumann & Van Valkenburg 2001, ch. 4 [mem])."""
+    w0 = 2 * math.pi * f0_hz
+    root = np.sqrt(complex(1 - 1 / (4 * q * q)))
+    return np.array([-w0 / (2 * q) + 1j * w0 * root, -w0 / (2 * q) - 1j * w0 * root]) / (2 * math.pi)
+
+
+def _poles(s: Subject) -> Figure | None:
+    stages = [st for st in s.chain.stages if st.kind != "gain" and st.built.q > 0]
+    if not stages:
+        return None
+    fmax = max(max(st.built.f0_hz, st.target.f0_hz) for st in stages)
+    scale, unit = (1e3, "kHz") if fmax >= 2e3 else (1.0, "Hz")
+    fig, (ax, fq) = _figure(2, width_ratios=(1.0, 1.2))
+    for st in stages:
+        c = _stage_colour(st.position)
+        built = _poles_of(st.built.f0_hz, st.built.q) / scale
+        target = _poles_of(st.target.f0_hz, st.target.q) / scale
+        ax.plot(target.real, target.imag, linestyle="", marker="o", markersize=9,
+                markerfacecolor="none", markeredgecolor=c)
+        ax.plot(built.real, built.imag, linestyle="", marker="x", markersize=8, color=c,
+                label=f"{stage_label(st)}: f0 {fmt_hz(st.built.f0_hz)}, Q {st.built.q:.3g}")
+        fq.plot([st.target.f0_hz], [st.target.q], linestyle="", marker="o", markersize=9,
+                markerfacecolor="none", markeredgecolor=c)
+        fq.plot([st.built.f0_hz], [st.built.q], linestyle="", marker="x", markersize=8,
+                color=c)
+        fq.annotate(f"{st.position}", (st.built.f0_hz, st.built.q), xytext=(6, 4),
+                    textcoords="offset points", fontsize=8, color=c)
+    ax.axvline(0.0, color="#555555", linewidth=0.8)
+    ax.axhline(0.0, color="#555555", linewidth=0.8)
+    ax.plot([], [], linestyle="", marker="o", markerfacecolor="none", markeredgecolor="#555555",
+            label="target (○), built (×)")
+    lim = 1.15 * fmax / scale
+    ax.set_ylim(-lim, lim)
+    left = min(min(_poles_of(st.built.f0_hz, st.built.q).real.min() for st in stages) / scale,
+               -0.05 * lim)
+    ax.set_xlim(1.15 * left, 0.15 * lim)
+    ax.set_xlabel(f"real part σ/2π ({unit})")
+    ax.set_ylabel(f"imaginary part ω/2π ({unit})")
+    ax.set_title("Section poles (s-plane)", loc="left", fontsize=11)
+    ax.grid(True, color="#e6e6e6")
+    f_all = [st.built.f0_hz for st in stages] + [st.target.f0_hz for st in stages]
+    q_all = [st.built.q for st in stages] + [st.target.q for st in stages]
+    _log_freq_axis(fq, min(f_all) / 1.6, max(f_all) * 1.6)
+    fq.set_xlabel("pole frequency f0 (log scale)")
+    _plain_log_y(fq, min(q_all) / 1.6, max(q_all) * 1.6)
+    fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncols=2,
+               fontsize=8, frameon=False)
+    fq.set_ylabel("pole Q (log scale)")
+    fq.set_title("f0 and Q of each section", loc="left", fontsize=11)
+    return fig
+
+
+# --------------------------------------------------------------------------- files
+
+_BUILDERS = {"response": _response, "levels": _levels, "noise": _noise, "yield": _yield,
+             "poles": _poles}
+
+
+def plot_figures(obj) -> dict[str, Figure]:
+    """Every plot that applies, as matplotlib Figures (name → Figure).
+
+    Parameters
+    ----------
+    obj : Plan, Audit or Subject
+
+    Returns
+    -------
+    dict of str to Figure
+        Keys from ``PLOT_NAMES``; "yield" only when a Monte Carlo result exists, none when
+        the plan could not build a chain.
+    """
+    s = obj if isinstance(obj, Subject) else subject_of(obj)
+    if s.chain is None or s.analyses is None:
+        return {}
+    out = {}
+    for name, build in _BUILDERS.items():
+        fig = build(s)
+        if fig is not None:
+            out[name] = fig
+    return out
+
+
+def plot_files(obj) -> dict[str, bytes]:
+    """Every plot as PNG and SVG bytes: {"response.png": ..., "response.svg": ..., ...}.
+
+    Parameters
+    ----------
+    obj : Plan, Audit or Subject
+
+    Returns
+    -------
+    dict of str to bytes
+        PNGs are ``SIZE_PX`` pixels at ``DPI``.
+    """
+    out: dict[str, bytes] = {}
+    for name, fig in plot_figures(obj).items():
+        png, svg = _save(fig)
+        out[f"{name}.png"] = png
+        out[f"{name}.svg"] = svg
+    return out
