@@ -8,11 +8,17 @@ each topology computes in closed form.
 The criteria
 ------------
 *Finite GBW.* Each topology states the first-order relative shifts of f0 and Q caused by
-a single-pole op-amp, per unit e = f0/GBW (derived with sympy on its element list, see its
-``gbw_shift``). The planner predistorts for them, which is reliable while the first-order
-model is: ``GBW_SHIFT_LIMIT`` (10 %) bounds the larger of the two shifts, and the GBW that
-meets it is the topology's ``gbw_needed_hz`` (for Tow-Thomas this is the "4 Q e <= 0.1"
-rule). The multiple-feedback section uses its own loop-gain rule of thumb instead.
+single-pole op-amps, per unit e = f0/GBW (derived with sympy on its element list, see its
+``gbw_shift``: df0/f0 ~= k_f e, dQ/Q ~= k_q e). What matters in a bandpass is how far the
+pole moves against the section's own bandwidth f0/Q: the centre moves by Q |k_f| e
+bandwidths and the bandwidth changes by |k_q| e. The planner predistorts for both at the
+nominal GBW, but GBW spreads from unit to unit and the first-order model drifts as the
+shifts grow, so the shifts themselves are kept small: ``GBW_SHIFT_LIMIT`` (10 %) bounds
+max(Q |k_f|, |k_q|) e, and the GBW that meets it, f0 max(Q |k_f|, |k_q|) / 0.1, is the
+topology's ``gbw_needed_hz`` (for Tow-Thomas this is the rule 4 Q e <= 0.1 of the
+references). The multiple-feedback section keeps the loop-gain rule of thumb of the
+references instead (open-loop gain 20 dB above the noise gain 1 + 2Q^2), which under this
+measure is Q |k_f| e = Q^2/(10 (1 + 2Q^2)) ~= 0.05.
 
 *Tolerance.* With every part off by the tolerance t in its worst direction, Q moves by
 about ``sum_x |S_x^Q| t`` (first order; Schaumann & Van Valkenburg, *Design of Analog
@@ -36,8 +42,8 @@ from bandwright.parts.notation import format_value
 from bandwright.sections.section import Section
 
 __all__ = ["GBW_SHIFT_LIMIT", "TOLERANCE_Q_SHIFT_LIMIT", "MAX_SPREAD", "DEFAULT_TOLERANCE",
-           "GAIN_RTOL", "check_section", "check_capacitor", "divider", "design_gain",
-           "is_fitted", "resistor_spread", "hz", "assemble_limits"]
+           "GAIN_RTOL", "tolerance_shift", "check_section", "check_capacitor", "divider",
+           "design_gain", "is_fitted", "resistor_spread", "hz", "assemble_limits"]
 
 #: Largest first-order relative shift of f0 or Q from finite GBW accepted (criterion above).
 GBW_SHIFT_LIMIT = 0.1
@@ -47,6 +53,26 @@ TOLERANCE_Q_SHIFT_LIMIT = 0.5
 MAX_SPREAD = 1000.0
 #: Part tolerance assumed by ``limits`` when the caller gives none (E96, 1 %; common practice).
 DEFAULT_TOLERANCE = 0.01
+
+
+def tolerance_shift(sensitivities: Mapping[str, float], r_tolerance: float,
+                    c_tolerance: float) -> float:
+    """Worst-case first-order relative Q shift: sum of |S_x^Q| t_x over the parts.
+
+    Parameters
+    ----------
+    sensitivities : mapping of str to float
+        S_x^Q by part name ("R..." resistors, "C..." capacitors).
+    r_tolerance, c_tolerance : float
+        Relative tolerances of the resistors and of the capacitors.
+
+    Returns
+    -------
+    float
+        sum |S_x^Q| t_x (Schaumann & Van Valkenburg 2001, ch. 3 [mem]).
+    """
+    return sum(abs(v) * (c_tolerance if k.startswith("C") else r_tolerance)
+               for k, v in sensitivities.items())
 #: A requested gain within this relative distance of the natural one is the natural one:
 #: the difference is float round-off and would otherwise ask for a teraohm divider leg.
 GAIN_RTOL = 1e-9
@@ -161,8 +187,9 @@ def hz(value: float) -> str:
 def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
                     gbw_needed_hz: float, gbw_rule: str, spread: float,
                     sensitivities: Mapping[str, float], noise_gain: float,
-                    natural_gain: float, accept_gain_shortfall: bool, tolerance: float,
-                    max_spread: float, tolerance_q_max: float | None = None,
+                    natural_gain: float, accept_gain_shortfall: bool, r_tolerance: float,
+                    c_tolerance: float | None, max_spread: float,
+                    tolerance_q_max: float | None = None,
                     problems: tuple[str, ...] = ()) -> Limits:
     """Build the Limits record of a section from a topology's figures.
 
@@ -188,12 +215,14 @@ def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
         Largest |centre gain| the topology reaches at this Q.
     accept_gain_shortfall : bool
         When True, a requested gain above `natural_gain` is a note, not a failure.
-    tolerance : float
-        Relative part tolerance (0.01 for 1 %).
+    r_tolerance : float
+        Relative resistor tolerance (0.01 for 1 %).
+    c_tolerance : float or None
+        Relative capacitor tolerance; None: the same as `r_tolerance`.
     max_spread : float
         Largest spread accepted.
     tolerance_q_max : float, optional
-        Largest Q the topology keeps within the tolerance criterion at `tolerance`, quoted
+        Largest Q the topology keeps within the tolerance criterion, quoted
         in the reason when the criterion fails.
     problems : tuple of str
         Reasons found by the topology itself that make it infeasible.
@@ -218,12 +247,16 @@ def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
         (notes if accept_gain_shortfall else failures).append(text)
     if spread > max_spread:
         failures.append(f"resistor spread {spread:.4g}:1 exceeds {max_spread:.4g}:1")
-    total = sum(abs(v) for v in sensitivities.values())
-    shift = total * tolerance
+    if c_tolerance is None:
+        c_tolerance = r_tolerance
+    shift = tolerance_shift(sensitivities, r_tolerance, c_tolerance)
     if shift > TOLERANCE_Q_SHIFT_LIMIT:
+        parts = (f"{100 * r_tolerance:.3g} % parts" if c_tolerance == r_tolerance else
+                 f"{100 * r_tolerance:.3g} % resistors and {100 * c_tolerance:.3g} % "
+                 "capacitors")
         failures.append(
-            f"Q {section.q:.4g}: with {100 * tolerance:.3g} % parts Q may move by "
-            f"{100 * shift:.0f} % (sum of |S_x^Q| = {total:.4g}); at most "
+            f"Q {section.q:.4g}: with {parts} Q may move by {100 * shift:.0f} % in the "
+            f"worst case (sum of |S_x^Q| t_x, first order); at most "
             f"{100 * TOLERANCE_Q_SHIFT_LIMIT:.0f} % is accepted"
             + (f", which this section keeps up to Q {tolerance_q_max:.3g}"
                if tolerance_q_max else ""))

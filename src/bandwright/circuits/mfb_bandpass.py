@@ -216,7 +216,8 @@ def gbw_needed_hz(section: Section) -> float:
     return 10.0 * noise_gain(section) * section.f0_hz
 
 
-def limits(section: Section, model: OpAmp, *, tolerance: float = common.DEFAULT_TOLERANCE,
+def limits(section: Section, model: OpAmp, *,
+           r_tolerance: float = common.DEFAULT_TOLERANCE, c_tolerance: float | None = None,
            max_spread: float = common.MAX_SPREAD,
            accept_gain_shortfall: bool = False) -> Limits:
     """What this topology can do for `section` with op-amp `model`.
@@ -227,8 +228,10 @@ def limits(section: Section, model: OpAmp, *, tolerance: float = common.DEFAULT_
         A bandpass section.
     model : OpAmp
         The op-amp.
-    tolerance : float
-        Relative part tolerance for the Q-shift criterion (0.01 = 1 %).
+    r_tolerance : float
+        Relative resistor tolerance for the Q-shift criterion (0.01 = 1 %).
+    c_tolerance : float or None
+        Relative capacitor tolerance (None: the same as `r_tolerance`).
     max_spread : float
         Largest resistor spread accepted.
     accept_gain_shortfall : bool
@@ -249,5 +252,6 @@ def limits(section: Section, model: OpAmp, *, tolerance: float = common.DEFAULT_
         gbw_rule="open-loop gain 20 dB above the noise gain 1 + 2Q² at f0",
         spread=spread, sensitivities=q_sensitivities(section),
         noise_gain=noise_gain(section), natural_gain=natural_gain(section.q),
-        accept_gain_shortfall=accept_gain_shortfall, tolerance=tolerance,
+        accept_gain_shortfall=accept_gain_shortfall, r_tolerance=r_tolerance,
+        c_tolerance=c_tolerance,
         max_spread=max_spread)
