@@ -85,7 +85,8 @@ def test_design_equations_give_target_symbolically(h_symbolic, p):
 
 
 def test_lowpass_and_inverter_nets(p):
-    """[sympy] lowpass net = (H0/Q) w0^2/D [TT: low tones pass with gain H0/Q]; inverter = -lowpass."""
+    """[sympy] lowpass net = (H0/Q) w0^2/D ([TT]: low tones pass with gain H0/Q);
+    inverter net = -lowpass."""
     q, g, design = _symbolic_design()
     volts = {net: transfer(tt.elements(unit_parts(tt), IDEAL), net, values=design)
              for net in ("lowpass", "inverter")}
