@@ -48,8 +48,8 @@ from bandwright.circuits.elements import Element
 from bandwright.circuits.nodal import mna_system
 from bandwright.types import StageKind
 
-__all__ = ["transfer_polynomials", "polynomial_degree", "section_figures",
-           "section_figures_batch"]
+__all__ = ["transfer_polynomials", "transfer_polynomials_many", "polynomial_degree",
+           "section_figures", "section_figures_batch"]
 
 # Coefficients below this fraction of the largest one (in sigma = s/w_c) are rounding
 # noise of the FFT interpolation: a genuine coefficient that small would stand for a pole
@@ -186,6 +186,86 @@ def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
                                         gbw_scale=gbw_scale)
     powers = w_c[..., None] ** -np.arange(num.shape[-1])
     return num * powers, den * powers
+
+
+def transfer_polynomials_many(elements: Sequence[Element], *, out_nets: Sequence[str],
+                              input_net: str = "in", source_ohms: float = 0.0,
+                              values: np.ndarray | None = None,
+                              gbw_scale: np.ndarray | None = None
+                              ) -> tuple[np.ndarray, np.ndarray]:
+    """Numerators of the transfers to several nets, over their one shared denominator.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The element list.
+    out_nets : sequence of str
+        Output nets (not ground).
+    input_net : str
+        Net driven by the (1 V open-circuit) source.
+    source_ohms : float
+        Source resistance, ohms (0: ideal source).
+    values : ndarray of float, shape (S, P), optional
+        Part-value samples in ``passive_names(elements)`` order.
+    gbw_scale : ndarray of float, shape (S,) or (S, A), optional
+        Per-sample factor on the op-amps' GBW (see ``circuits.nodal.mna_system``).
+
+    Returns
+    -------
+    nums : ndarray of float, shape (N, d + 1) or (N, S, d + 1)
+        Numerator of the transfer to each of the N `out_nets`, ascending powers of s.
+    den : ndarray of float, shape (d + 1,) or (S, d + 1)
+        The common denominator, scaled as in ``transfer_polynomials``.
+
+    Raises
+    ------
+    ValueError
+        On bad arguments, or an output net that is ground.
+    numpy.linalg.LinAlgError
+        If the circuit is singular at an interpolation point.
+
+    Notes
+    -----
+    By Cramer's rule the numerator of net k is det(Y) x_k ([1]_): one determinant and one
+    solve of ``(G + s C) x = rhs`` at the d + 1 points on the circle |s| = w_c serve every
+    net, where ``transfer_polynomials`` takes one determinant per net. The DFT then
+    interpolates the coefficients exactly as there ([2]_). Matches
+    ``transfer_polynomials`` net by net to rounding (tested).
+    """
+    if gbw_scale is not None and values is None:
+        nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+        values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
+    system = mna_system(elements, input_net=input_net, source_ohms=source_ohms, values=values,
+                        gbw_scale=gbw_scale)
+    ks = [system.index(n) for n in out_nets]
+    if any(k < 0 for k in ks):
+        raise ValueError("an output net cannot be ground")
+    if values is None:
+        v = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+    else:
+        v = np.asarray(values, dtype=float)
+    w_c = _scale_rad_s(elements, v)
+    n_points = polynomial_degree(elements) + 1
+    sigma = np.exp(2j * np.pi * np.arange(n_points) / n_points)
+    g, c = system.g, system.c
+    # The same constant equilibration as _scaled_polynomials, applied to the real G and C
+    # once rather than to the complex matrix at every point.
+    mag = np.abs(g) + w_c[..., None, None] * np.abs(c)
+    row = _reciprocal(np.max(mag, axis=-1))
+    mag = mag * row[..., :, None]
+    col = _reciprocal(np.max(mag, axis=-2))
+    scale = row[..., :, None] * col[..., None, :]
+    s = w_c[..., None] * sigma
+    y = (g * scale)[..., None, :, :] + s[..., :, None, None] * (c * scale)[..., None, :, :]
+    det = np.linalg.det(y)
+    rhs = np.broadcast_to((system.rhs * row)[..., None, :, None], y.shape[:-1] + (1,))
+    z = np.linalg.solve(y, rhs)[..., 0]                      # D2^-1 x at every point
+    den = np.fft.fft(det, axis=-1) / n_points
+    norm = np.max(np.abs(den), axis=-1, keepdims=True)
+    powers = w_c[..., None] ** -np.arange(n_points)
+    nums = np.stack([(np.fft.fft(det * z[..., k] * col[..., k, None], axis=-1) / n_points
+                      / norm).real * powers for k in ks])
+    return nums, (den / norm).real * powers
 
 
 def _trim(coefs: np.ndarray) -> np.ndarray:
