@@ -15,7 +15,7 @@ SCENARIO = SCENARIOS / "ultrasonic_ranging.toml"
 def test_plan_prints_family_order_and_sections():
     r = run_cli("plan", SCENARIO)
     assert r.returncode in (0, 1), r.stderr
-    for word in ("butterworth", "Sections", "Checks"):
+    for word in ("butterworth", "Chain, input to output", "Checks", "Node levels"):
         assert word in r.stdout
 
 

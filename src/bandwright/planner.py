@@ -13,11 +13,17 @@ from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
+from bandwright.chain.stage import with_parts
+from bandwright.chain.trim import trim_stage
 from bandwright.chain.ordering import Ordering, choose_order, make_problem
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
 from bandwright.circuits.assign import Assignment, assign
-from bandwright.circuits.nodal import input_impedance_min, noise as nodal_noise
+from bandwright.circuits.nodal import (input_impedance_max, input_impedance_min,
+                                       noise as nodal_noise)
+from bandwright.circuits import topologies_of_kind
+from bandwright.errors import InfeasibleDesign
+from bandwright.parts.catalogue import archetype, suggest_faster
 from bandwright.parts.notation import format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
@@ -30,6 +36,11 @@ _GAIN_BACKOFF_STEPS = 8
 # A first stage whose input impedance comes within 20× of the source resistance (about
 # 0.4 dB of loading, and an input pole for capacitive inputs) gets a follower ahead of it.
 SOURCE_LOADING_LIMIT = 0.05
+# A first stage whose input impedance is flat over the band (a resistor, in effect) takes the
+# source resistance into its own design when it would otherwise err by more than 0.01 dB.
+FLAT_INPUT_RATIO = 1.1
+SOURCE_ABSORB_LIMIT = 1e-3
+_TRIM_PASSES = 2
 
 
 @dataclass(frozen=True)
@@ -155,14 +166,15 @@ def _why(designs: list[Design]) -> str:
             f"({best.candidate.highest_q:.3g} against {nxt.candidate.highest_q:.3g})")
 
 
-def _assign(section: Section, model: OpAmp, req: Requirement, windows: PartWindows
-            ) -> Assignment:
+def _assign(section: Section, model: OpAmp, req: Requirement, windows: PartWindows,
+            source_ohms: float = 0.0, rounded: bool = True) -> Assignment:
     # Every stage is driven by an op-amp (or the source, behind a follower when needed):
     # its input must not load that op-amp below its minimum load, in band or at a tone.
     freqs = np.concatenate([passband_grid(req), [t.freq_hz for t in req.input.tones]])
     return assign(section, model, r_series=req.design.resistor_series,
                   c_series=req.design.capacitor_series, windows=windows,
-                  input_floor=(freqs, model.min_load_ohms))
+                  input_floor=(freqs, model.min_load_ohms), source_ohms=source_ohms,
+                  rounded=rounded)
 
 
 def _with_gain(section: Section, gain: float) -> Section:
@@ -170,17 +182,18 @@ def _with_gain(section: Section, gain: float) -> Section:
 
 
 def _assign_with_backoff(section: Section, gain: float, model: OpAmp, req: Requirement,
-                         windows: PartWindows) -> tuple[Assignment, float]:
+                         windows: PartWindows, rounded: bool = True
+                         ) -> tuple[Assignment, float]:
     """Assign at `gain`; when no topology reaches it, fall back to unity gain (a lowpass or
     highpass, which usually runs at unity) or to halved gains, and return the factor left
     over for the stages after it."""
-    first = _assign(_with_gain(section, gain), model, req, windows)
+    first = _assign(_with_gain(section, gain), model, req, windows, rounded=rounded)
     if first.realization is not None:
         return first, 1.0
     tries = [1.0] if section.kind in ("lowpass", "highpass") else []
     tries += [gain / 2 ** k for k in range(1, _GAIN_BACKOFF_STEPS + 1)]
     for g in tries:
-        a = _assign(_with_gain(section, g), model, req, windows)
+        a = _assign(_with_gain(section, g), model, req, windows, rounded=rounded)
         if a.realization is not None:
             return a, gain / g
     return first, 1.0
@@ -196,9 +209,10 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
     """Order, scale, assign and analyse one candidate."""
     secs = cand.sections
     # Noise of each section as first assigned (equal gain split): the ordering's model.
-    first = [_assign(s, model, req, windows) for s in secs]
+    first = [_assign_with_backoff(s, s.gain, model, req, windows, rounded=False)[0]
+             for s in secs]
     if any(a.realization is None for a in first):
-        return _unbuildable(cand, None, tuple(first))
+        return _unbuildable(cand, None, tuple(first), model)
     nf = noise_grid(req)
     psd = np.array([_stage_noise_psd(a, nf, req.environment.temperature_c) for a in first])
     # The sections' own gains already hold the reference gain and the shape's peak (an
@@ -213,7 +227,7 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
         # A gain one section could not take is carried into the next one.
         a, leftover = _assign_with_backoff(secs[i], g * leftover, model, req, windows)
         if a.realization is None:
-            return _unbuildable(cand, ordering, tuple(assignments) + (a,))
+            return _unbuildable(cand, ordering, tuple(assignments) + (a,), model)
         assignments.append(a)
     if not math.isclose(leftover, 1.0, rel_tol=1e-9):
         # Fold the leftover into the latest section that can take it before paying for
@@ -228,23 +242,66 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
         gain_sec = Section(kind="gain", f0_hz=0.0, q=0.0, gain=leftover)
         a = _assign(gain_sec, model, req, windows)
         if a.realization is None:
-            return _unbuildable(cand, ordering, tuple(assignments) + (a,))
+            return _unbuildable(cand, ordering, tuple(assignments) + (a,), model)
         assignments.append(a)
     rs = req.input.source_ohms
     if rs > 0:
-        z_in = input_impedance_min(assignments[0].realization.elements, passband_grid(req))
+        band = passband_grid(req)
+        z_in = input_impedance_min(assignments[0].realization.elements, band)
+        z_top = input_impedance_max(assignments[0].realization.elements, band)
+        if z_top / z_in < FLAT_INPUT_RATIO and rs / z_in > SOURCE_ABSORB_LIMIT:
+            # A resistive input: design the first section with the source as part of it.
+            again = _assign(assignments[0].section, model, req, windows, source_ohms=rs)
+            if again.realization is not None:
+                assignments[0] = again
+                z_in = math.inf
         if rs / z_in > SOURCE_LOADING_LIMIT:
             buf = _assign(Section(kind="gain", f0_hz=0.0, q=0.0, gain=1.0), model, req, windows)
             buf = replace(buf, reason=f"follower: the first section's input impedance falls to "
                           f"{format_value(z_in, 'Ω')} in band, too low for the "
                           f"{format_value(rs, 'Ω')} source")
             assignments.insert(0, buf)
-    stages = tuple(_stage(i + 1, a, model) for i, a in enumerate(assignments))
-    chain = build_chain(stages, source_ohms=req.input.source_ohms)
+    chain = _trim_gain(assignments, req, model, windows)
     an = analyse(chain, req)
     checks = tuple(all_checks(chain, an, req, windows=windows))
     return Design(candidate=cand, ordering=ordering, assignments=tuple(assignments),
                   chain=chain, analyses=an, checks=checks)
+
+
+def _chain_of(assignments: list[Assignment], req: Requirement, model: OpAmp) -> Chain:
+    stages = tuple(_stage(i + 1, a, model) for i, a in enumerate(assignments))
+    return build_chain(stages, source_ohms=req.input.source_ohms)
+
+
+def _trim_gain(assignments: list[Assignment], req: Requirement, model: OpAmp,
+               windows: PartWindows) -> Chain:
+    """Build the chain, then trim stages' parts so its passband sits on the mask.
+
+    Rounded parts leave each section a little off; in a staggered chain those errors add up
+    to a passband error no single section shows. Stages are trimmed from the output back
+    (``chain.trim.trim_stage``), each judged by the whole chain's passband.
+    """
+    chain = _chain_of(assignments, req, model)
+    pb = req.passband
+    band = passband_grid(req)
+    for _ in range(_TRIM_PASSES):
+        changed = False
+        for k in range(len(chain.stages) - 1, -1, -1):
+            new = trim_stage(chain, k, band, gain_db=pb.gain_db, max_loss_db=pb.max_loss_db,
+                             tol_db=pb.gain_tolerance_db, r_series=req.design.resistor_series,
+                             c_series=req.design.capacitor_series)
+            if new is None:
+                continue
+            st = chain.stages[k]
+            rs = chain.source_ohms if k == 0 else 0.0
+            stages = list(chain.stages)
+            stages[k] = with_parts(st, new, source_ohms=rs,
+                                   note="parts trimmed for the chain's passband")
+            chain = build_chain(stages, source_ohms=chain.source_ohms)
+            changed = True
+        if not changed:
+            break
+    return chain
 
 
 def _stage(position: int, a: Assignment, model: OpAmp) -> Stage:
@@ -254,8 +311,28 @@ def _stage(position: int, a: Assignment, model: OpAmp) -> Stage:
                  ideal=r.ideal, reason=a.reason, rejected=a.rejected)
 
 
+def _nearest_fix(section: Section, model: OpAmp) -> str:
+    """What would build the section: the slowest op-amp class whose GBW covers the least
+    GBW any topology of its kind needs, or a wider band when none does."""
+    needs = []
+    for topo in topologies_of_kind(section.kind):
+        try:
+            needs.append(topo.limits(section, model).gbw_needed_hz)
+        except (ValueError, InfeasibleDesign):
+            continue
+    need = min((n for n in needs if math.isfinite(n)), default=math.inf)
+    if not math.isfinite(need) or need <= model.gbw_hz:
+        return ""
+    name = suggest_faster(need)
+    if name is None:
+        return (f"; no op-amp class reaches the {format_value(need, 'Hz')} GBW it needs: "
+                f"widen the band (lower Q) or lower the order")
+    return (f"; it needs {format_value(need, 'Hz')} GBW at the least: an op-amp of the "
+            f"'{name}' class ({format_value(archetype(name).gbw_hz, 'Hz')}) would do")
+
+
 def _unbuildable(cand: Candidate, ordering: Ordering | None,
-                 assignments: tuple[Assignment, ...]) -> Design:
+                 assignments: tuple[Assignment, ...], model: OpAmp) -> Design:
     checks = []
     for pos, a in enumerate(assignments, start=1):
         if a.realization is not None:
@@ -265,6 +342,6 @@ def _unbuildable(cand: Candidate, ordering: Ordering | None,
         checks.append(Check(
             id="topology", status="fail", value=s.q, limit=None, unit="Q", stage=pos,
             message=f"no circuit builds the {s.kind} section at {s.f0_hz:.5g} Hz, Q {s.q:.3g}, "
-                    f"gain {s.gain:.3g} — {why}"))
+                    f"gain {s.gain:.3g}{_nearest_fix(s, model)} — {why}"))
     return Design(candidate=cand, ordering=ordering, assignments=assignments, chain=None,
                   analyses=None, checks=tuple(checks))

@@ -8,31 +8,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from bandwright.chain.graph import CHAIN_INPUT, Chain, flatten
+from bandwright.chain.graph import Chain, flatten, net_transfers
 from bandwright.circuits.nodal import ac_solve, drawn_impedance
 from bandwright.spec.requirement import InputSignal, Supply
 
 __all__ = ["net_transfers", "NodeLevel", "node_levels", "swing_limit_vpk", "output_loads"]
-
-
-def net_transfers(chain: Chain, freq_hz: np.ndarray) -> dict[str, np.ndarray]:
-    """Complex transfer from the source (open circuit, ahead of source_ohms) to every op-amp
-    output net: the product of stage transfers along the path.
-
-    The op-amp model has zero output impedance, so a stage does not load the one before it
-    and the product is exact; only the first stage sees the source resistance.
-    """
-    f = np.asarray(freq_hz, dtype=float)
-    out: dict[str, np.ndarray] = {CHAIN_INPUT: np.ones(f.shape, dtype=complex)}
-    for st in chain.stages:
-        inp = chain.input_of(st)
-        rs = chain.source_ohms if inp == CHAIN_INPUT else 0.0
-        sol = ac_solve(st.elements, f, source_ohms=rs)
-        for _, net, d in chain.graph.out_edges(inp, data=True):
-            if d["stage"] is st:
-                out[net] = out[inp] * sol.at(d["local"])
-    del out[CHAIN_INPUT]
-    return out
 
 
 def swing_limit_vpk(supply: Supply, swing_to_rail_v: float) -> float:

@@ -10,11 +10,14 @@ from dataclasses import dataclass
 from typing import Sequence
 
 import networkx as nx
+import numpy as np
 
 from bandwright.chain.stage import Stage, stage_output_nets
 from bandwright.circuits.elements import GROUND, Element
+from bandwright.circuits.nodal import ac_solve
 
-__all__ = ["Chain", "build_chain", "global_net", "flatten", "CHAIN_INPUT", "CHAIN_OUTPUT"]
+__all__ = ["Chain", "build_chain", "global_net", "flatten", "net_transfers", "CHAIN_INPUT",
+           "CHAIN_OUTPUT"]
 
 CHAIN_INPUT = "in"
 CHAIN_OUTPUT = "out"
@@ -100,3 +103,23 @@ def flatten(chain: Chain) -> tuple[Element, ...]:
             out.append(Element(name=f"{e.name}_s{st.position}", kind=e.kind, nets=nets,
                                value=e.value, model=e.model))
     return tuple(out)
+
+
+def net_transfers(chain: Chain, freq_hz: np.ndarray) -> dict[str, np.ndarray]:
+    """Complex transfer from the source (open circuit, ahead of source_ohms) to every op-amp
+    output net: the product of stage transfers along the path.
+
+    The op-amp model has zero output impedance, so a stage does not load the one before it
+    and the product is exact; only the first stage sees the source resistance.
+    """
+    f = np.asarray(freq_hz, dtype=float)
+    out: dict[str, np.ndarray] = {CHAIN_INPUT: np.ones(f.shape, dtype=complex)}
+    for st in chain.stages:
+        inp = chain.input_of(st)
+        rs = chain.source_ohms if inp == CHAIN_INPUT else 0.0
+        sol = ac_solve(st.elements, f, source_ohms=rs)
+        for _, net, d in chain.graph.out_edges(inp, data=True):
+            if d["stage"] is st:
+                out[net] = out[inp] * sol.at(d["local"])
+    del out[CHAIN_INPUT]
+    return out

@@ -6,11 +6,12 @@ from dataclasses import dataclass
 
 from bandwright.circuits import topology
 from bandwright.circuits.base import Figures
+from bandwright.circuits.figures import section_figures
 from bandwright.circuits.elements import Element, opamp_output_nets
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
-__all__ = ["Stage", "stage_output_nets"]
+__all__ = ["Stage", "stage_output_nets", "with_parts"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -65,3 +66,19 @@ def stage_output_nets(stage: Stage) -> tuple[str, ...]:
     """The stage's op-amp output nets (local names), "out" last."""
     outs = [n for n in opamp_output_nets(stage.elements) if n != "out"]
     return tuple(dict.fromkeys(outs)) + ("out",)
+
+
+def with_parts(stage: Stage, components: dict[str, float], *, source_ohms: float = 0.0,
+               note: str = "") -> Stage:
+    """The same stage with other part values; built figures read again from its element
+    list (with `source_ohms` ahead of it, as the chain drives it)."""
+    topo = topology(stage.topology)
+    elements = tuple(topo.elements(components, stage.model))
+    near = stage.target.f0_hz if stage.kind != "gain" else 1.0
+    built = section_figures(elements, kind=stage.kind, near_hz=near, source_ohms=source_ohms)
+    order = [n for n in topo.PARTS if n in components]
+    return Stage(position=stage.position, topology=stage.topology, target=stage.target,
+                 components=tuple((n, float(components[n])) for n in order),
+                 elements=elements, model=stage.model, built=built, ideal=stage.ideal,
+                 reason=stage.reason + (f"; {note}" if note and note not in stage.reason else ""),
+                 rejected=stage.rejected)

@@ -59,7 +59,8 @@ def _rank(lim: Limits) -> tuple[float, float, float]:
 
 def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: str = "E12",
            windows: PartWindows = PartWindows(),
-           input_floor: tuple[np.ndarray, float] | None = None) -> Assignment:
+           input_floor: tuple[np.ndarray, float] | None = None,
+           source_ohms: float = 0.0, rounded: bool = True) -> Assignment:
     """Choose the cheapest topology that really builds `section` with op-amp `model`.
 
     Every topology of the section's kind is asked for its limits (Q and gain reach, GBW
@@ -92,7 +93,7 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
     for topo, lim in feasible:
         try:
             real = realize(topo, section, model, r_series=r_series, c_series=c_series,
-                           windows=windows)
+                           windows=windows, source_ohms=source_ohms, rounded=rounded)
         except (ValueError, InfeasibleDesign, np.linalg.LinAlgError) as exc:
             rejected.append((topo.NAME, f"could not be built: {exc}"))
             continue

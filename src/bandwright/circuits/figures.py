@@ -292,7 +292,8 @@ def _pick_pair(poles: np.ndarray, w_near: float) -> tuple[complex, ...]:
 
 
 def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
-                    out_net: str = "out", input_net: str = "in") -> Figures:
+                    out_net: str = "out", input_net: str = "in",
+                    source_ohms: float = 0.0) -> Figures:
     """Pole frequency, Q and gain of a section as built, from its transfer polynomials.
 
     Parameters
@@ -307,7 +308,10 @@ def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: fl
     out_net : str
         Output net.
     input_net : str
-        Input net (ideal source).
+        Input net.
+    source_ohms : float
+        Resistance of the source driving `input_net` (0: ideal); the figures are then those
+        of the section as the source sees it.
 
     Returns
     -------
@@ -345,7 +349,7 @@ def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: fl
     if kind not in ("bandpass", "lowpass", "highpass", "gain"):
         raise ValueError(f"unknown section kind {kind!r}")
     num, den, w_c = _scaled_polynomials(elements, out_net=out_net, input_net=input_net,
-                                        source_ohms=0.0, values=None)
+                                        source_ohms=source_ohms, values=None)
     w_c = float(w_c)
     num, den = _trim(num), _trim(den)
     if kind == "gain":
@@ -399,7 +403,7 @@ def _batch_degree(coefs: np.ndarray) -> int:
 
 def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
                           values: np.ndarray, out_net: str = "out", input_net: str = "in",
-                          gbw_scale: np.ndarray | None = None
+                          gbw_scale: np.ndarray | None = None, source_ohms: float = 0.0
                           ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``section_figures`` for many part-value samples at once.
 
@@ -427,7 +431,8 @@ def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_
     sample; the figures are the same to rounding (tested).
     """
     num, den, w_c = _scaled_polynomials(elements, out_net=out_net, input_net=input_net,
-                                        source_ohms=0.0, values=values, gbw_scale=gbw_scale)
+                                        source_ohms=source_ohms, values=values,
+                                        gbw_scale=gbw_scale)
     num = num[..., : _batch_degree(num) + 1]
     den = den[..., : _batch_degree(den) + 1]
     s_count = den.shape[0]

@@ -54,6 +54,7 @@ __all__ = [
     "noise",
     "drawn_impedance",
     "input_impedance_min",
+    "input_impedance_max",
 ]
 
 BOLTZMANN_J_PER_K = 1.380649e-23  # exact since the 2019 SI redefinition
@@ -613,9 +614,19 @@ def drawn_impedance(elements, sol, net: str) -> np.ndarray:
         return np.abs(volt(net)) / np.abs(current)
 
 
-def input_impedance_min(elements, freq_hz: np.ndarray) -> float:
-    """Smallest |Z_in| of a stage over `freq_hz`, driven by an ideal source at net "in"."""
+def _input_impedance(elements, freq_hz: np.ndarray) -> np.ndarray:
     sol = ac_solve(elements, np.asarray(freq_hz, dtype=float))
     z = drawn_impedance(elements, sol, "in")
-    z = z[np.isfinite(z)]
+    return z[np.isfinite(z)]
+
+
+def input_impedance_min(elements, freq_hz: np.ndarray) -> float:
+    """Smallest |Z_in| of a stage over `freq_hz`, driven by an ideal source at net "in"."""
+    z = _input_impedance(elements, freq_hz)
     return float(z.min()) if z.size else math.inf
+
+
+def input_impedance_max(elements, freq_hz: np.ndarray) -> float:
+    """Largest |Z_in| of a stage over `freq_hz` (inf when it draws no current)."""
+    z = _input_impedance(elements, freq_hz)
+    return float(z.max()) if z.size else math.inf

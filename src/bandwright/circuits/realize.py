@@ -33,7 +33,10 @@ _SEARCH_SWEEPS = 4
 _GAIN_DEADBAND = 1e-3
 _F0_WEIGHT_FLOOR = 2.0
 _SOLVE_STEPS = 20
-_GRID_MAX = 6561  # 3^8: every ±1 combination of an eight-part section
+_GRID_MAX = 729  # 3^6: every ±1 combination of a six-part section
+_WIDE_GRID_MAX = 3125  # 5^5: every ±2 combination of a five-part section
+_BLOCK = 5
+_CAP_STARTS = 3
 _NEIGHBOURS = 2
 
 
@@ -59,6 +62,8 @@ class Realization:
         f0, Q, gain of the exact-valued design with this op-amp.
     built : Figures
         f0, Q, gain of the rounded design with this op-amp.
+    source_ohms : float
+        Source resistance the design absorbed (first stage only), ohms.
     """
 
     topology: str
@@ -69,6 +74,7 @@ class Realization:
     elements: tuple[Element, ...]
     ideal: Figures
     built: Figures
+    source_ohms: float = 0.0
 
     def errors(self) -> tuple[float, float, float]:
         """Relative built error of f0, Q and |gain| against the target."""
@@ -102,10 +108,11 @@ def figure_error(fig: Figures, target: Section) -> float:
 
 
 def _figures(topo: ModuleType, components: Mapping[str, float], model: OpAmp,
-             target: Section) -> tuple[tuple[Element, ...], Figures]:
+             target: Section, source_ohms: float = 0.0) -> tuple[tuple[Element, ...], Figures]:
     elements = tuple(topo.elements(components, model))
     near = target.f0_hz if target.kind != "gain" else 1.0
-    return elements, section_figures(elements, kind=target.kind, near_hz=near)
+    return elements, section_figures(elements, kind=target.kind, near_hz=near,
+                                     source_ohms=source_ohms)
 
 
 def choose_capacitor(topo: ModuleType, section: Section, *, series: str,
@@ -124,8 +131,8 @@ def choose_capacitor(topo: ModuleType, section: Section, *, series: str,
     return float(nearest(c, series))
 
 
-def predistort(topo: ModuleType, target: Section, model: OpAmp, *, c_farads: float
-               ) -> tuple[Section, dict[str, float]]:
+def predistort(topo: ModuleType, target: Section, model: OpAmp, *, c_farads: float,
+               source_ohms: float = 0.0) -> tuple[Section, dict[str, float]]:
     """Design targets that land the circuit on `target` with this op-amp.
 
     A fixed-point iteration: design for f0', Q', G'; read the circuit's f0, Q, G from its
@@ -136,7 +143,7 @@ def predistort(topo: ModuleType, target: Section, model: OpAmp, *, c_farads: flo
     asked = target
     values = topo.design(asked, c_farads=c_farads)
     for _ in range(_PREDISTORT_STEPS):
-        _, fig = _figures(topo, values, model, target)
+        _, fig = _figures(topo, values, model, target, source_ohms)
         df, dq, dg = _relative(fig, target)
         if max(abs(df), abs(dq), abs(dg) if abs(dg) > _GAIN_DEADBAND else 0.0) < 1e-7 \
                 or fig.q <= 0:
@@ -182,8 +189,8 @@ def _residuals(f0_hz, q, gain, target: Section) -> np.ndarray:
                          (q / target.q - 1) / 2, g], axis=-1)
 
 
-def solve_resistors(elements: tuple[Element, ...], starts: np.ndarray, target: Section
-                    ) -> tuple[np.ndarray, np.ndarray]:
+def solve_resistors(elements: tuple[Element, ...], starts: np.ndarray, target: Section,
+                    source_ohms: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
     """Resistor values (continuous) that best land `target`, for each row of `starts`.
 
     Parameters
@@ -215,7 +222,8 @@ def solve_resistors(elements: tuple[Element, ...], starts: np.ndarray, target: S
         probes = np.repeat(x[:, None, :], 1 + n_free, axis=1)       # (K, 1+F, P)
         probes[:, np.arange(1, n_free + 1), free] += h
         f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near,
-                                         values=np.exp(probes.reshape(-1, x.shape[1])))
+                                         values=np.exp(probes.reshape(-1, x.shape[1])),
+                                         source_ohms=source_ohms)
         r = _residuals(f0, q, g, target).reshape(k_count, 1 + n_free, 3)
         jac = np.swapaxes(r[:, 1:] - r[:, :1], 1, 2) / h             # (K, 3, F)
         ok = np.all(np.isfinite(r), axis=(1, 2))
@@ -227,38 +235,50 @@ def solve_resistors(elements: tuple[Element, ...], starts: np.ndarray, target: S
         if np.max(np.abs(step)) < 1e-9:
             break
     vals = np.exp(x)
-    f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near, values=vals)
+    f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near, values=vals,
+                                     source_ohms=source_ohms)
     return vals, _error_batch(f0, q, g, target)
 
 
 def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], target: Section,
-                 series_of, movable) -> tuple[dict[str, float], float]:
+                 series_of, movable, source_ohms: float = 0.0) -> tuple[dict[str, float], float]:
     """Best combination of series values around `start` (rounded) for the parts in
-    `movable`, recentring while it improves."""
+    `movable`.
+
+    Every combination of each moving part's neighbouring values is evaluated in one batch:
+    ±2 steps while that stays within ``_WIDE_GRID_MAX`` points, else ±1 within
+    ``_GRID_MAX``; a section with more
+    parts than a ±1 grid allows is searched block by block (``_BLOCK`` parts at a time, the
+    others held), sweeping while the error falls.
+    """
     names = passive_names(elements)
     current = {n: float(nearest(start[n], series_of(n))) for n in names}
     moving = [n for n in names if movable(n)]
-    steps = _NEIGHBOURS if (2 * _NEIGHBOURS + 1) ** len(moving) <= _GRID_MAX else 1
-    if (2 * steps + 1) ** len(moving) > _GRID_MAX:
-        steps = 0
+    steps = _NEIGHBOURS if (2 * _NEIGHBOURS + 1) ** len(moving) <= _WIDE_GRID_MAX else 1
+    blocks = [moving] if 3 ** len(moving) <= _GRID_MAX else \
+        [moving[i:i + _BLOCK] for i in range(0, len(moving), _BLOCK)]
     near = target.f0_hz if target.kind != "gain" else 1.0
     best_err = math.inf
-    for _ in range(_SEARCH_SWEEPS):
-        axes = [neighbours(current[n], series_of(n), count=steps) if n in moving
-                else np.array([current[n]]) for n in names]
-        grid = np.stack([a.ravel() for a in np.meshgrid(*axes, indexing="ij")], axis=-1)
-        f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near, values=grid)
-        err = _error_batch(f0, q, g, target)
-        k = int(np.argmin(err))
-        if not err[k] < best_err - 1e-15:
+    for _ in range(_SEARCH_SWEEPS * len(blocks)):
+        improved = False
+        for block in blocks:
+            axes = [neighbours(current[n], series_of(n), count=steps) if n in block
+                    else np.array([current[n]]) for n in names]
+            grid = np.stack([a.ravel() for a in np.meshgrid(*axes, indexing="ij")], axis=-1)
+            f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near,
+                                             values=grid, source_ohms=source_ohms)
+            err = _error_batch(f0, q, g, target)
+            k = int(np.argmin(err))
+            if err[k] < best_err - 1e-15:
+                best_err, improved = float(err[k]), True
+                current = {n: float(v) for n, v in zip(names, grid[k])}
+        if not improved:
             break
-        best_err = float(err[k])
-        current = {n: float(v) for n, v in zip(names, grid[k])}
     return current, best_err
 
 
 def round_to_series(topo: ModuleType, values: Mapping[str, float], target: Section,
-                    model: OpAmp, *, r_series: str, c_series: str
+                    model: OpAmp, *, r_series: str, c_series: str, source_ohms: float = 0.0
                     ) -> tuple[dict[str, float], tuple[Element, ...], Figures]:
     """Round every part to its series with the smallest `figure_error`.
 
@@ -276,24 +296,34 @@ def round_to_series(topo: ModuleType, values: Mapping[str, float], target: Secti
     near = target.f0_hz if target.kind != "gain" else 1.0
     if not names:  # a follower: nothing to round
         return dict(values), elements, section_figures(elements, kind=target.kind,
-                                                       near_hz=near)
-    best_a, err_a = _grid_search(elements, values, target, series_of, lambda n: True)
+                                                       near_hz=near, source_ohms=source_ohms)
+    best_a, err_a = _grid_search(elements, values, target, series_of, lambda n: True,
+                                 source_ohms)
     # Capacitor combinations: each capacitor at its nearest series value or one step either
     # side; the resistors are solved again for each and the best start is rounded.
     axes = [neighbours(values[n], c_series, count=1) if n.startswith("C")
             else np.array([values[n]]) for n in names]
     combos = np.stack([a.ravel() for a in np.meshgrid(*axes, indexing="ij")], axis=-1)
-    solved, errs = solve_resistors(elements, combos, target)
-    start_b = dict(zip(names, solved[int(np.argmin(errs))]))
-    best_b, err_b = _grid_search(elements, start_b, target, series_of,
-                                 lambda n: n.startswith("R"))
+    solved, errs = solve_resistors(elements, combos, target, source_ohms)
+    # Many capacitor pairs can be solved exactly with continuous resistors; which one rounds
+    # best is only known after rounding, so the best few are all rounded.
+    best_b, err_b = {}, math.inf
+    for k in np.argsort(errs)[:_CAP_STARTS]:
+        if not np.isfinite(errs[k]):
+            continue
+        cand, err = _grid_search(elements, dict(zip(names, solved[k])), target, series_of,
+                                 lambda n: n.startswith("R"), source_ohms)
+        if err < err_b:
+            best_b, err_b = cand, err
     current = best_a if err_a <= err_b else best_b
     elements = tuple(topo.elements(current, model))
-    return current, elements, section_figures(elements, kind=target.kind, near_hz=near)
+    return current, elements, section_figures(elements, kind=target.kind, near_hz=near,
+                                         source_ohms=source_ohms)
 
 
 def realize(topo: ModuleType, target: Section, model: OpAmp, *, r_series: str = "E96",
-            c_series: str = "E12", windows: PartWindows = PartWindows()) -> Realization:
+            c_series: str = "E12", windows: PartWindows = PartWindows(),
+            source_ohms: float = 0.0, rounded: bool = True) -> Realization:
     """Build `target` with topology module `topo` and op-amp `model`.
 
     Parameters
@@ -306,16 +336,26 @@ def realize(topo: ModuleType, target: Section, model: OpAmp, *, r_series: str = 
         IEC 60063 series for resistors and capacitors.
     windows : PartWindows
         Preferred value ranges.
+    source_ohms : float
+        Resistance of the source driving the section (the first stage of a chain): the
+        design absorbs it, e.g. an input resistor shrinks by it.
+    rounded : bool
+        False skips the series search (exact values as built): a quick look, e.g. for the
+        noise model of the section ordering.
     """
     target = Section(kind=target.kind, f0_hz=target.f0_hz, q=target.q, gain=abs(target.gain))
     c = choose_capacitor(topo, target, series=c_series, windows=windows)
-    asked, exact = predistort(topo, target, model, c_farads=c)
-    _, ideal = _figures(topo, exact, model, target)
-    rounded, elements, built = round_to_series(topo, exact, target, model,
-                                               r_series=r_series, c_series=c_series)
+    asked, exact = predistort(topo, target, model, c_farads=c, source_ohms=source_ohms)
+    _, ideal = _figures(topo, exact, model, target, source_ohms)
+    if rounded:
+        parts, elements, built = round_to_series(topo, exact, target, model,
+                                                 r_series=r_series, c_series=c_series,
+                                                 source_ohms=source_ohms)
+    else:
+        parts, elements, built = exact, tuple(topo.elements(exact, model)), ideal
     order = tuple(topo.PARTS)
     return Realization(
         topology=topo.NAME, target=target, predistorted=asked,
         ideal_components=tuple((n, float(exact[n])) for n in order if n in exact),
-        components=tuple((n, float(rounded[n])) for n in order if n in rounded),
-        elements=elements, ideal=ideal, built=built)
+        components=tuple((n, float(parts[n])) for n in order if n in parts),
+        elements=elements, ideal=ideal, built=built, source_ohms=float(source_ohms))
