@@ -1,0 +1,712 @@
+"""Monte Carlo yield of a built chain: how many boards built from toleranced parts meet the
+requirement, which parts decide it, and what tighter parts would give.
+
+Every sample draws every resistor, capacitor and op-amp GBW of the whole chain at once;
+each stage is reduced to its transfer polynomials for the whole batch
+(``circuits.figures.transfer_polynomials``, one batched determinant per stage and net) and
+evaluated as |H(jw)|^2 on every frequency of every sample in numpy; the chain's transfer to
+a net is the product along its path (the op-amp outputs are ideal sources, so stages do not
+load each other: ``analysis.levels.net_transfers``). Samples run in chunks of
+``CHUNK_SAMPLES`` so that memory stays bounded whatever the sample count.
+
+A sample passes when it meets the mask exactly as ``checks.mask`` reads it (passband loss and
+gain on the passband grid, edges included; each stopband point) and every op-amp output
+keeps its worst-case peak inside its swing (``analysis.levels.node_levels``).
+
+References
+----------
+.. [1] E. B. Wilson, "Probable inference, the law of succession, and statistical
+   inference", J. Amer. Statist. Assoc. 22(158), 1927, pp. 209-212 -- the score interval.
+.. [2] I. M. Sobol', "Global sensitivity indices for nonlinear mathematical models and
+   their Monte Carlo estimates", Math. Comput. Simulation 55, 2001 -- first-order index
+   Var(E[Y | X_i]) / Var(Y) [mem].
+.. [3] K. Pearson, "On the general theory of skew correlation and non-linear regression",
+   Drapers' Company Research Memoirs, 1905 -- the correlation ratio eta^2, the same
+   quantity estimated by binning [mem].
+.. [4] R. Schaumann, M. E. Van Valkenburg, *Design of Analog Filters*, Oxford UP, 2001,
+   ch. 3 -- tolerances and sensitivity of active filters [mem].
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from statistics import NormalDist
+from typing import Callable
+
+import numpy as np
+
+from bandwright.analysis.grid import passband_grid, response_grid
+from bandwright.analysis.levels import swing_limit_vpk
+from bandwright.analysis.sensitivity import StageSensitivity, chain_sensitivities
+from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
+from bandwright.chain.stage import stage_output_nets
+from bandwright.circuits.figures import transfer_polynomials_many
+from bandwright.parts.tolerance import default_tolerance_pct
+from bandwright.spec.requirement import Requirement, Tolerance
+
+__all__ = ["Spreads", "SampleColumn", "Driver", "Offer", "YieldResult", "resolve_spreads",
+           "sample_columns", "sample_values", "monte_carlo", "tighter_offer", "plan_yield",
+           "wilson_interval", "CHUNK_SAMPLES", "ENVELOPE_PERCENTILES", "RESISTOR_STEPS_PCT",
+           "CAPACITOR_STEPS_PCT"]
+
+#: Samples evaluated together: bounds memory (about 40 MB per chunk for a six-stage chain
+#: on 600 frequencies) while keeping numpy's batches large.
+CHUNK_SAMPLES = 2000
+#: Percentiles of the response envelope.
+ENVELOPE_PERCENTILES = (1.0, 50.0, 99.0)
+# The envelope is read from at most this many samples (the first ones): percentiles of
+# 20,000 i.i.d. samples are already far finer than a plot shows, and memory stays bounded.
+_ENVELOPE_MAX = 20_000
+# Bins of each part's deviation for the first-order failure index.
+_BINS = 10
+# A first-order index below this share is noise of the estimate, not a driver.
+_DRIVER_FLOOR = 0.01
+_MAX_DRIVERS = 6
+# Deviations in a Gaussian draw beyond 1 - 1e-3 of a part's value would be a
+# non-physical (zero or negative) part; a 3-sigma tolerance below 50 % never gets there
+# except at ~1e-9 probability, and the clip keeps the solver finite if it does.
+_MIN_FACTOR = 1e-3
+#: Tighter tolerances offered, loosest first, and the series each customarily goes with
+#: (common practice; ``parts.tolerance``).
+RESISTOR_STEPS_PCT = (20.0, 10.0, 5.0, 2.0, 1.0, 0.5, 0.25, 0.1)
+CAPACITOR_STEPS_PCT = (20.0, 10.0, 5.0, 2.0, 1.0)
+_GRADE = {20.0: "E6", 10.0: "E12", 5.0: "E24", 2.0: "E48", 1.0: "E96", 0.5: "E192"}
+# Mask comparisons use the same float slack as checks.mask.
+_SLACK_DB = 1e-9
+_Z95 = 1.959963984540054  # two-sided 95 % normal quantile
+
+Progress = Callable[[int, int], None]
+
+
+@dataclass(frozen=True, slots=True)
+class Spreads:
+    """Tolerances of one Monte Carlo run, resolved to numbers.
+
+    Attributes
+    ----------
+    resistor_pct, capacitor_pct, gbw_spread_pct : float
+        ± percent.
+    distribution : {"uniform", "gaussian"}
+        Gaussian: the tolerance is 3 sigma.
+    resistor_source, capacitor_source : str
+        Where the figure came from ("[tolerance]" or "customary for E96").
+    """
+
+    resistor_pct: float
+    capacitor_pct: float
+    gbw_spread_pct: float
+    distribution: str
+    resistor_source: str = "[tolerance]"
+    capacitor_source: str = "[tolerance]"
+
+    def sigma_rel(self, kind: str) -> float:
+        """Relative standard deviation of a part of `kind` ("R", "C" or "GBW")."""
+        pct = {"R": self.resistor_pct, "C": self.capacitor_pct,
+               "GBW": self.gbw_spread_pct}[kind] / 100
+        # Uniform on ±t: sigma = t / sqrt(3); Gaussian with t at 3 sigma: t / 3.
+        return pct / math.sqrt(3) if self.distribution == "uniform" else pct / 3
+
+
+def resolve_spreads(requirement: Requirement) -> Spreads:
+    """The requirement's `[tolerance]`, with the series' customary tolerance where a part
+    tolerance is not given (common practice, ``parts.tolerance.default_tolerance_pct``)."""
+    t: Tolerance = requirement.tolerance
+    rs, cs = requirement.design.resistor_series, requirement.design.capacitor_series
+    r = t.resistor_pct if t.resistor_pct is not None else default_tolerance_pct(rs)
+    c = t.capacitor_pct if t.capacitor_pct is not None else default_tolerance_pct(cs)
+    return Spreads(resistor_pct=float(r), capacitor_pct=float(c),
+                   gbw_spread_pct=float(t.gbw_spread_pct), distribution=t.distribution,
+                   resistor_source="[tolerance]" if t.resistor_pct is not None
+                   else f"customary for {rs}",
+                   capacitor_source="[tolerance]" if t.capacitor_pct is not None
+                   else f"customary for {cs}")
+
+
+@dataclass(frozen=True, slots=True)
+class SampleColumn:
+    """One randomised quantity: a part, or the GBW of one op-amp.
+
+    Attributes
+    ----------
+    stage : int
+        Stage position.
+    part : str
+        Part name in its stage ("R2"), or "<op-amp> GBW" ("U1 GBW").
+    kind : {"R", "C", "GBW"}
+    nominal : float
+        Ohms, farads, or Hz.
+    """
+
+    stage: int
+    part: str
+    kind: str
+    nominal: float
+
+
+def sample_columns(chain: Chain) -> tuple[SampleColumn, ...]:
+    """Every randomised quantity of `chain`, in draw order: stage by stage, its R and C in
+    ``passive_names`` order, then its op-amps with finite GBW."""
+    cols = []
+    for st in chain.stages:
+        cols += [SampleColumn(st.position, e.name, e.kind, e.value)
+                 for e in st.elements if e.kind in ("R", "C")]
+        cols += [SampleColumn(st.position, f"{e.name} GBW", "GBW", e.model.gbw_hz)
+                 for e in st.elements if e.kind == "opamp" and math.isfinite(e.model.gbw_hz)]
+    return tuple(cols)
+
+
+def _draw(rng: np.random.Generator, count: int, n_cols: int, distribution: str) -> np.ndarray:
+    """Normalised deviations u: uniform on [-1, 1], or Gaussian with sigma 1/3 (tolerance at
+    3 sigma); a part's value is nominal * (1 + tolerance * u)."""
+    if distribution == "uniform":
+        return rng.uniform(-1.0, 1.0, size=(count, n_cols))
+    return rng.standard_normal(size=(count, n_cols)) / 3.0
+
+
+def _chunks(samples: int) -> list[int]:
+    return [min(CHUNK_SAMPLES, samples - s) for s in range(0, samples, CHUNK_SAMPLES)]
+
+
+def _tolerances(cols: tuple[SampleColumn, ...], spreads: Spreads) -> np.ndarray:
+    pct = {"R": spreads.resistor_pct, "C": spreads.capacitor_pct, "GBW": spreads.gbw_spread_pct}
+    return np.array([pct[c.kind] / 100 for c in cols])
+
+
+def _factors(u: np.ndarray, tol: np.ndarray) -> np.ndarray:
+    return np.maximum(1.0 + u * tol, _MIN_FACTOR)
+
+
+def sample_values(chain: Chain, spreads: Spreads, *, samples: int, seed: int) -> np.ndarray:
+    """The values `monte_carlo` draws for the same arguments, shape (samples, columns).
+
+    Columns as ``sample_columns(chain)``: ohms, farads, and GBW in Hz. For writing the same
+    boards elsewhere (a SPICE run) and for tests; the Monte Carlo itself never holds every
+    sample at once.
+    """
+    cols = sample_columns(chain)
+    rng = np.random.default_rng(seed)
+    tol = _tolerances(cols, spreads)
+    nominal = np.array([c.nominal for c in cols])
+    out = [nominal * _factors(_draw(rng, n, len(cols), spreads.distribution), tol)
+           for n in _chunks(samples)]
+    return np.vstack(out)
+
+
+@dataclass(frozen=True, slots=True)
+class Driver:
+    """A part whose spread decides pass or fail.
+
+    Attributes
+    ----------
+    stage : int
+    part : str
+    index : float
+        Share of the variance of pass/fail explained by this part's value alone (first-order
+        index, bias-corrected; 0 to 1).
+    worst_fail_rate : float
+        Failure rate of the samples whose deviation of this part falls in its worst tenth.
+    worst_side : {"high", "low", "middle"}
+        Where that tenth lies.
+    """
+
+    stage: int
+    part: str
+    index: float
+    worst_fail_rate: float
+    worst_side: str
+
+
+@dataclass(frozen=True, slots=True)
+class Offer:
+    """Tighter parts that reach the yield target (or the best that the steps reach).
+
+    Attributes
+    ----------
+    resistor_pct, capacitor_pct : float
+    yield_fraction : float
+    interval : (float, float)
+    reaches : bool
+        Whether `yield_fraction` reaches the target.
+    message : str
+    """
+
+    resistor_pct: float
+    capacitor_pct: float
+    yield_fraction: float
+    interval: tuple[float, float]
+    reaches: bool
+    message: str
+
+
+@dataclass(frozen=True)
+class YieldResult:
+    """Outcome of one Monte Carlo run of a chain.
+
+    Attributes
+    ----------
+    samples, seed : int
+    spreads : Spreads
+    passed : ndarray of bool, shape (samples,)
+        Per sample: meets the mask and the headroom.
+    mask_ok, headroom_ok : ndarray of bool, shape (samples,)
+    fail_counts : dict of str to int
+        Failing samples per reason: "passband loss", "passband gain", "stopband",
+        "headroom" (a sample may fail several).
+    yield_fraction : float
+    interval : (float, float)
+        Wilson score interval, 95 % ([1]_).
+    min_yield : float
+    nominal_passes : bool
+        Whether the chain with nominal parts passes the same test.
+    freq_hz : ndarray, shape (F,)
+        Grid of the envelope.
+    envelope_db : ndarray, shape (3, F)
+        Percentiles ``ENVELOPE_PERCENTILES`` of the chain gain over the samples, dB.
+    drivers : tuple of Driver
+        Largest first-order indices first.
+    explained : float
+        Sum of every part's first-order index: how much of pass/fail single parts explain
+        (the rest is parts acting together).
+    sensitivities : tuple of StageSensitivity
+    offer : Offer or None
+        Set by ``plan_yield`` when the yield is below `min_yield`.
+    """
+
+    samples: int
+    seed: int
+    spreads: Spreads
+    passed: np.ndarray
+    mask_ok: np.ndarray
+    headroom_ok: np.ndarray
+    fail_counts: dict[str, int]
+    yield_fraction: float
+    interval: tuple[float, float]
+    min_yield: float
+    nominal_passes: bool
+    freq_hz: np.ndarray
+    envelope_db: np.ndarray
+    drivers: tuple[Driver, ...]
+    explained: float
+    sensitivities: tuple[StageSensitivity, ...] = ()
+    offer: Offer | None = None
+
+    @property
+    def meets_target(self) -> bool:
+        return self.yield_fraction >= self.min_yield
+
+
+def wilson_interval(passed: int, samples: int, *, z: float = _Z95) -> tuple[float, float]:
+    """Wilson score interval of a binomial proportion.
+
+    Parameters
+    ----------
+    passed, samples : int
+        Successes and trials (samples > 0).
+    z : float
+        Normal quantile of the two-sided confidence (1.96: 95 %).
+
+    Returns
+    -------
+    (float, float)
+        Lower and upper bound, inside [0, 1].
+
+    Notes
+    -----
+    (p + z^2/2n -/+ z sqrt(p(1-p)/n + z^2/4n^2)) / (1 + z^2/n), p = passed / n (Wilson 1927
+    [1]_). Unlike p -/+ z sqrt(p(1-p)/n) it stays inside [0, 1] and keeps its coverage near
+    p = 0 and p = 1, where yields live.
+    """
+    if samples <= 0 or not 0 <= passed <= samples:
+        raise ValueError(f"need 0 <= passed <= samples, samples > 0; got {passed}, {samples}")
+    n = float(samples)
+    p = passed / n
+    z2 = z * z
+    centre = (p + z2 / (2 * n)) / (1 + z2 / n)
+    half = z / (1 + z2 / n) * math.sqrt(p * (1 - p) / n + z2 / (4 * n * n))
+    return max(0.0, centre - half), min(1.0, centre + half)
+
+
+def _mag_sq(num: np.ndarray, den: np.ndarray, w_rad_s: np.ndarray) -> np.ndarray:
+    """|N(jw)|^2 / |D(jw)|^2 for (S, d+1) ascending coefficients at (F,) frequencies.
+
+    N(jw) = E(w^2) + j w O(w^2), E and O the even and odd parts with alternating signs, so
+    |N|^2 = E^2 + w^2 O^2 -- real arithmetic only (design.md, "|H|^2 ... is cheapest").
+    """
+    x = w_rad_s * w_rad_s
+    return _abs_sq(num, x) / _abs_sq(den, x)
+
+
+def _abs_sq(coefs: np.ndarray, x: np.ndarray) -> np.ndarray:
+    signs = np.where(np.arange(coefs.shape[-1]) // 2 % 2 == 0, 1.0, -1.0)
+    c = coefs * signs
+    even, odd = c[:, 0::2], c[:, 1::2]
+    return _horner(even, x) ** 2 + x * _horner(odd, x) ** 2
+
+
+def _horner(c: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """sum_m c[:, m] x^m on the grid (S, F); a loop over the few coefficients only."""
+    out = np.empty((c.shape[0], x.size))
+    out[:] = c[:, -1:]
+    for m in range(c.shape[1] - 2, -1, -1):
+        out *= x
+        out += c[:, m:m + 1]
+    return out
+
+
+@dataclass(frozen=True)
+class _Grid:
+    """Every frequency a run evaluates, and where each reading sits in it."""
+
+    freq_hz: np.ndarray
+    passband: np.ndarray
+    stop: np.ndarray
+    tones: np.ndarray
+    envelope: np.ndarray
+    levels: np.ndarray  # passband then tones: what node levels read
+
+    @staticmethod
+    def of(requirement: Requirement, envelope_hz: np.ndarray) -> "_Grid":
+        pb = passband_grid(requirement)
+        sf = np.array([p.freq_hz for p in requirement.stopband], dtype=float)
+        tf = np.array([t.freq_hz for t in requirement.input.tones], dtype=float)
+        env = np.asarray(envelope_hz, dtype=float)
+        allf, inv = np.unique(np.concatenate([pb, sf, tf, env]), return_inverse=True)
+        cuts = np.cumsum([pb.size, sf.size, tf.size])
+        i_pb, i_sf, i_tf, i_env = np.split(inv, cuts)
+        return _Grid(freq_hz=allf, passband=i_pb, stop=i_sf, tones=i_tf, envelope=i_env,
+                     levels=np.concatenate([i_pb, i_tf]))
+
+
+def _chain_mag_sq(chain: Chain, grid: _Grid, values: list[np.ndarray],
+                  gbw: list[np.ndarray | None]) -> dict[str, np.ndarray]:
+    """|T|^2 from the source to every op-amp output net, for one chunk of samples.
+
+    "out" of a stage is evaluated on the whole grid (the next stage multiplies it); other
+    op-amp outputs only where node levels read them (``grid.levels``), which is what their
+    entries hold.
+    """
+    w_all = 2 * np.pi * grid.freq_hz
+    w_lvl = w_all[grid.levels]
+    out: dict[str, np.ndarray] = {}
+    before = None  # |T|^2 at the stage input on the whole grid; None = 1 (the source)
+    for k, st in enumerate(chain.stages):
+        inp = chain.input_of(st)
+        rs = chain.source_ohms if inp == CHAIN_INPUT else 0.0
+        nets = {d["local"]: net for _, net, d in chain.graph.out_edges(inp, data=True)
+                if d["stage"] is st}
+        locals_ = stage_output_nets(st)
+        nums, den = transfer_polynomials_many(st.elements, out_nets=locals_, source_ohms=rs,
+                                              values=values[k], gbw_scale=gbw[k])
+        for local, num in zip(locals_, nums):
+            if local == "out":
+                m2 = _mag_sq(num, den, w_all)
+                out[nets[local]] = m2 if before is None else before * m2
+            else:
+                m2 = _mag_sq(num, den, w_lvl)
+                out[nets[local]] = m2 if before is None else before[:, grid.levels] * m2
+        before = out[nets["out"]]
+    return out
+
+
+def _verdicts(t2: dict[str, np.ndarray], chain: Chain, grid: _Grid, requirement: Requirement
+              ) -> dict[str, np.ndarray]:
+    """Per-sample pass flags of every mask criterion and of headroom (as checks.mask and
+    checks.chain_checks.headroom_checks read them)."""
+    pb = requirement.passband
+    out_t2 = t2[CHAIN_OUTPUT]
+    with np.errstate(divide="ignore"):
+        pb_db = 10 * np.log10(out_t2[:, grid.passband])
+        stop_db = 10 * np.log10(out_t2[:, grid.stop])
+    loss_ok = (pb.gain_db - pb_db.min(axis=1)) <= pb.max_loss_db + _SLACK_DB
+    gain_err = pb_db.max(axis=1) - pb.gain_db
+    gain_ok = np.abs(gain_err) <= pb.gain_tolerance_db + _SLACK_DB
+    need = np.array([p.min_loss_db for p in requirement.stopband])
+    stop_ok = np.all(pb.gain_db - stop_db >= need - _SLACK_DB, axis=1)
+    n_pb = grid.passband.size
+    tv = np.array([t.vpk for t in requirement.input.tones], dtype=float)
+    head_ok = np.ones(out_t2.shape[0], dtype=bool)
+    for net in chain.output_nets:
+        m2 = t2[net]
+        # "out" nets hold the whole grid, others only the level frequencies.
+        lv = m2[:, grid.levels] if m2.shape[1] == grid.freq_hz.size else m2
+        mag = np.sqrt(lv)
+        peak = requirement.input.max_vpk * mag[:, :n_pb].max(axis=1) + mag[:, n_pb:] @ tv
+        limit = swing_limit_vpk(requirement.supply, chain.stage_of(net).model.swing_to_rail_v)
+        head_ok &= peak <= limit
+    return {"passband loss": loss_ok, "passband gain": gain_ok, "stopband": stop_ok,
+            "headroom": head_ok}
+
+
+def _bin_edges(distribution: str) -> np.ndarray:
+    """Inner edges of `_BINS` equally likely bins of u."""
+    q = np.arange(1, _BINS) / _BINS
+    if distribution == "uniform":
+        return 2 * q - 1
+    nd = NormalDist(0.0, 1.0 / 3.0)
+    return np.array([nd.inv_cdf(float(p)) for p in q])
+
+
+def _drivers(counts: np.ndarray, fails: np.ndarray, cols: tuple[SampleColumn, ...]
+             ) -> tuple[tuple[Driver, ...], float]:
+    """First-order index of every column from per-bin sample and failure counts.
+
+    eta^2 = sum_b n_b (p_b - p)^2 / (n p (1 - p)): the share of the variance of the
+    pass/fail indicator that the bin of one part's deviation explains -- Pearson's
+    correlation ratio [3]_, which estimates Sobol's first-order index
+    Var(E[fail | x_i]) / Var(fail) [2]_. Under no dependence its expectation is
+    (B - 1)/(n - 1) (B bins), which is subtracted.
+    """
+    n = counts.sum(axis=1)[0] if counts.size else 0
+    total_fail = fails.sum(axis=1)[0] if fails.size else 0
+    if n < 2 or total_fail == 0 or total_fail == n:
+        return (), 0.0
+    p = total_fail / n
+    with np.errstate(divide="ignore", invalid="ignore"):
+        pb = np.where(counts > 0, fails / counts, p)
+    eta2 = np.sum(counts * (pb - p) ** 2, axis=1) / (n * p * (1 - p))
+    index = np.maximum(eta2 - (_BINS - 1) / (n - 1), 0.0)
+    order = np.argsort(-index, kind="stable")
+    out = []
+    for i in order[:_MAX_DRIVERS]:
+        if index[i] < _DRIVER_FLOOR:
+            break
+        b = int(np.argmax(pb[i]))
+        side = "low" if b < _BINS // 2 - 1 else ("high" if b > _BINS // 2 else "middle")
+        out.append(Driver(stage=cols[i].stage, part=cols[i].part, index=float(index[i]),
+                          worst_fail_rate=float(pb[i, b]), worst_side=side))
+    return tuple(out), float(index.sum())
+
+
+def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | None = None,
+                samples: int | None = None, seed: int | None = None,
+                envelope_hz: np.ndarray | None = None, progress: Progress | None = None,
+                with_sensitivities: bool = True) -> YieldResult:
+    """Yield of `chain` against `requirement` with toleranced parts.
+
+    Parameters
+    ----------
+    chain : Chain
+        The chain as built.
+    requirement : Requirement
+        Mask, input, supply; `[tolerance]` gives the spreads, samples, seed and target.
+    spreads : Spreads, optional
+        Overrides the requirement's tolerances (``resolve_spreads``).
+    samples, seed : int, optional
+        Override `tolerance.samples` and `tolerance.seed`.
+    envelope_hz : ndarray, optional
+        Grid of the response envelope (default: the report grid, ``response_grid``).
+    progress : callable(done, total), optional
+        Called after each chunk of samples.
+    with_sensitivities : bool
+        Also compute ``chain_sensitivities`` (stored in the result).
+
+    Returns
+    -------
+    YieldResult
+
+    Notes
+    -----
+    Each part is nominal x (1 + t u): u uniform on [-1, 1], or Gaussian with sigma 1/3
+    (tolerance t at 3 sigma); every op-amp's GBW the same with the GBW spread, independently
+    per op-amp. The draws come from ``numpy.random.default_rng(seed)`` chunk by chunk in a
+    fixed order (``sample_values``), so a seed repeats a run exactly. Yield is the share of
+    samples passing; its interval is Wilson's ([1]_). Which parts decide it: the
+    first-order index of each part (``_drivers``): the share of the variance of pass/fail
+    explained by that part's value alone, estimated from ten equally likely bins of its
+    deviation -- it catches parts that fail in both directions (f0 too high or too low),
+    which a linear correlation would miss.
+    """
+    tol_req = requirement.tolerance
+    spreads = spreads or resolve_spreads(requirement)
+    samples = int(samples if samples is not None else tol_req.samples)
+    seed = int(seed if seed is not None else tol_req.seed)
+    if samples < 1:
+        raise ValueError(f"samples must be >= 1; got {samples}")
+    env_f = response_grid(requirement) if envelope_hz is None else np.asarray(envelope_hz, float)
+    grid = _Grid.of(requirement, env_f)
+    cols = sample_columns(chain)
+    tol = _tolerances(cols, spreads)
+    spans = _stage_spans(chain, cols)
+    rng = np.random.default_rng(seed)
+    edges = _bin_edges(spreads.distribution)
+
+    passed, mask_ok, head_ok = [], [], []
+    fail_counts = {"passband loss": 0, "passband gain": 0, "stopband": 0, "headroom": 0}
+    counts = np.zeros((len(cols), _BINS))
+    fails = np.zeros((len(cols), _BINS))
+    env_rows: list[np.ndarray] = []
+    kept = 0
+    done = 0
+    chunks = _chunks(samples)
+    nominal_ok = True
+    for ci, n in enumerate(chunks):
+        u = _draw(rng, n, len(cols), spreads.distribution)
+        if ci == 0:
+            # The nominal board rides along as one extra row.
+            u_eval = np.vstack([np.zeros((1, len(cols))), u])
+        else:
+            u_eval = u
+        fac = _factors(u_eval, tol)
+        values, gbw = _stage_inputs(chain, spans, fac)
+        t2 = _chain_mag_sq(chain, grid, values, gbw)
+        v = _verdicts(t2, chain, grid, requirement)
+        first = 1 if ci == 0 else 0
+        if ci == 0:
+            nominal_ok = bool(all(x[0] for x in v.values()))
+        v = {k: x[first:] for k, x in v.items()}
+        m_ok = v["passband loss"] & v["passband gain"] & v["stopband"]
+        ok = m_ok & v["headroom"]
+        for k, x in v.items():
+            fail_counts[k] += int(np.count_nonzero(~x))
+        passed.append(ok)
+        mask_ok.append(m_ok)
+        head_ok.append(v["headroom"])
+        b = np.searchsorted(edges, u, side="right")          # (n, cols) bin index
+        onehot = b[:, :, None] == np.arange(_BINS)            # (n, cols, B)
+        counts += onehot.sum(axis=0)
+        fails += onehot[~ok].sum(axis=0)
+        if kept < _ENVELOPE_MAX:
+            take = min(n, _ENVELOPE_MAX - kept)
+            t_out = t2[CHAIN_OUTPUT][first:first + take][:, grid.envelope]
+            with np.errstate(divide="ignore"):
+                env_rows.append((10 * np.log10(t_out)).astype(np.float32))
+            kept += take
+        done += n
+        if progress is not None:
+            progress(done, samples)
+    passed_a = np.concatenate(passed)
+    k = int(np.count_nonzero(passed_a))
+    env = np.percentile(np.vstack(env_rows), ENVELOPE_PERCENTILES, axis=0).astype(float)
+    drivers, explained = _drivers(counts, fails, cols)
+    sens = chain_sensitivities(chain) if with_sensitivities else ()
+    return YieldResult(
+        samples=samples, seed=seed, spreads=spreads, passed=passed_a,
+        mask_ok=np.concatenate(mask_ok), headroom_ok=np.concatenate(head_ok),
+        fail_counts=fail_counts, yield_fraction=k / samples,
+        interval=wilson_interval(k, samples), min_yield=float(tol_req.min_yield),
+        nominal_passes=nominal_ok, freq_hz=env_f, envelope_db=env, drivers=drivers,
+        explained=explained, sensitivities=sens)
+
+
+def _stage_spans(chain: Chain, cols: tuple[SampleColumn, ...]) -> list[tuple[list[int], list[int]]]:
+    """Per stage: column indices of its passives (``passive_names`` order) and its op-amps'
+    GBW (element order)."""
+    spans = []
+    for st in chain.stages:
+        mine = [i for i, c in enumerate(cols) if c.stage == st.position]
+        spans.append(([i for i in mine if cols[i].kind != "GBW"],
+                      [i for i in mine if cols[i].kind == "GBW"]))
+    return spans
+
+
+def _stage_inputs(chain: Chain, spans, fac: np.ndarray
+                  ) -> tuple[list[np.ndarray], list[np.ndarray | None]]:
+    """Part values (S, P) and GBW factors (S, A) of every stage from the factor matrix."""
+    values, gbw = [], []
+    for st, (pcols, gcols) in zip(chain.stages, spans):
+        nominal = np.array([e.value for e in st.elements if e.kind in ("R", "C")])
+        values.append(nominal * fac[:, pcols])
+        ops = [e for e in st.elements if e.kind == "opamp"]
+        if not gcols:
+            gbw.append(None)
+            continue
+        # Ideal op-amps have no column; the solver leaves them ideal whatever their factor.
+        g = np.ones((fac.shape[0], len(ops)))
+        finite = [a for a, e in enumerate(ops) if math.isfinite(e.model.gbw_hz)]
+        g[:, finite] = fac[:, gcols]
+        gbw.append(g)
+    return values, gbw
+
+
+def _grade(pct: float) -> str:
+    g = _GRADE.get(pct)
+    return f"{pct:g} %" + (f" (the customary {g} grade)" if g else "")
+
+
+def _fmt_yield(y: float, ci: tuple[float, float]) -> str:
+    return f"{100 * y:.1f} % (95 % interval {100 * ci[0]:.1f}–{100 * ci[1]:.1f} %)"
+
+
+def tighter_offer(chain: Chain, requirement: Requirement, result: YieldResult, *,
+                  progress: Progress | None = None) -> Offer | None:
+    """Tighter resistors and/or capacitors that bring the yield up to `min_yield`.
+
+    Parameters
+    ----------
+    chain : Chain
+    requirement : Requirement
+    result : YieldResult
+        The run at the requirement's tolerances.
+    progress : callable, optional
+
+    Returns
+    -------
+    Offer or None
+        None when the yield already meets the target, or the nominal chain fails (no
+        tolerance helps then).
+
+    Notes
+    -----
+    First the tightest steps of both (``RESISTOR_STEPS_PCT``, ``CAPACITOR_STEPS_PCT``):
+    if even they miss the target, the offer says so. Otherwise greedy over the steps: each
+    step tightens the class (resistors or capacitors) whose parts explain more of the
+    failures (sum of first-order indices of the current run), or the other class when one
+    has no tighter step, and re-runs the Monte Carlo on the same chain with the same seed
+    (common random numbers: only the scale of each deviation changes, so the comparison is
+    not blurred by new draws). It stops at the first run that meets the target. The parts
+    keep their values: a tighter grade of the same series value (E96 values are E192
+    values; E12 capacitors come in every grade).
+    """
+    if result.meets_target or not result.nominal_passes:
+        return None
+    sp = result.spreads
+
+    def run(r_pct: float, c_pct: float) -> YieldResult:
+        trial = replace(sp, resistor_pct=r_pct, capacitor_pct=c_pct, resistor_source="offer",
+                        capacitor_source="offer")
+        return monte_carlo(chain, requirement, spreads=trial, samples=result.samples,
+                           seed=result.seed, envelope_hz=result.freq_hz, progress=progress,
+                           with_sensitivities=False)
+
+    # The tightest parts first: when even they miss the target, say so after one run.
+    r_min = min(sp.resistor_pct, RESISTOR_STEPS_PCT[-1])
+    c_min = min(sp.capacitor_pct, CAPACITOR_STEPS_PCT[-1])
+    best = run(r_min, c_min)
+    if not best.meets_target:
+        return Offer(resistor_pct=r_min, capacitor_pct=c_min,
+                     yield_fraction=best.yield_fraction, interval=best.interval, reaches=False,
+                     message=f"even resistors {_grade(r_min)} and capacitors {_grade(c_min)} "
+                             f"give only {_fmt_yield(best.yield_fraction, best.interval)}: "
+                             f"the chain itself is too sensitive or too close to the mask "
+                             f"(see the parts that decide it)")
+    r, c = sp.resistor_pct, sp.capacitor_pct
+    current = result
+    while True:
+        r_next = next((x for x in RESISTOR_STEPS_PCT if x < r - 1e-12), None)
+        c_next = next((x for x in CAPACITOR_STEPS_PCT if x < c - 1e-12), None)
+        if r_next is None and c_next is None:
+            current = best
+            break
+        share_r = sum(d.index for d in current.drivers if d.part.startswith("R"))
+        share_c = sum(d.index for d in current.drivers if d.part.startswith("C"))
+        if c_next is None or (r_next is not None and share_r >= share_c):
+            r = r_next
+        else:
+            c = c_next
+        current = run(r, c) if (r, c) != (r_min, c_min) else best
+        if current.meets_target:
+            break
+    return Offer(resistor_pct=r, capacitor_pct=c, yield_fraction=current.yield_fraction,
+                 interval=current.interval, reaches=True,
+                 message=f"resistors {_grade(r)} and capacitors {_grade(c)} give "
+                         f"{_fmt_yield(current.yield_fraction, current.interval)}")
+
+
+def plan_yield(chain: Chain, requirement: Requirement, *, progress: Progress | None = None
+               ) -> YieldResult:
+    """``monte_carlo`` at the requirement's tolerances, plus ``tighter_offer`` when the yield
+    is below the target."""
+    result = monte_carlo(chain, requirement, progress=progress)
+    offer = tighter_offer(chain, requirement, result, progress=progress)
+    return result if offer is None else replace(result, offer=offer)
