@@ -5,12 +5,14 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from typing import Callable
 
 import numpy as np
 
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
+from bandwright.analysis.montecarlo import YieldResult, plan_yield
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.stage import with_parts
@@ -18,6 +20,7 @@ from bandwright.chain.trim import trim_stage
 from bandwright.chain.ordering import Ordering, choose_order, make_problem
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
+from bandwright.checks.yield_check import yield_checks
 from bandwright.circuits.assign import Assignment, assign
 from bandwright.circuits.nodal import (input_impedance_max, input_impedance_min,
                                        noise as nodal_noise)
@@ -30,7 +33,7 @@ from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
 from bandwright.spec.requirement import Requirement
 
-__all__ = ["Plan", "Design", "plan", "build_design"]
+__all__ = ["Plan", "Design", "plan", "build_design", "with_yield"]
 
 _GAIN_BACKOFF_STEPS = 8
 # A first stage whose input impedance comes within 20× of the source resistance (about
@@ -57,6 +60,8 @@ class Design:
         None when a section has no topology that builds it.
     analyses : Analyses or None
     checks : tuple of Check
+    yield_result : YieldResult or None
+        Monte Carlo yield; computed for the chosen design only (``with_yield``).
     """
 
     candidate: Candidate
@@ -65,6 +70,7 @@ class Design:
     chain: Chain | None
     analyses: Analyses | None
     checks: tuple[Check, ...]
+    yield_result: YieldResult | None = None
 
     @property
     def buildable(self) -> bool:
@@ -114,7 +120,8 @@ class Plan:
 
 
 def plan(requirement: Requirement, *, family: str | None = None,
-         order: int | None = None, windows: PartWindows = PartWindows()) -> Plan:
+         order: int | None = None, windows: PartWindows = PartWindows(),
+         progress: Callable[[str, int, int], None] | None = None) -> Plan:
     """Plan a chain for `requirement`.
 
     Parameters
@@ -126,6 +133,9 @@ def plan(requirement: Requirement, *, family: str | None = None,
         Overrides `design.order`.
     windows : PartWindows, optional
         Preferred part-value ranges.
+    progress : callable(stage, done, total), optional
+        Told how far the run is: stage "candidates" (designs built) and "yield" (Monte Carlo
+        samples evaluated).
 
     Raises
     ------
@@ -135,10 +145,28 @@ def plan(requirement: Requirement, *, family: str | None = None,
     model = resolve_amplifier(requirement.amplifier, path=requirement.path,
                               supply=requirement.supply)
     candidates = make_candidates(requirement, family=family, order=order)
-    designs = [build_design(c, requirement, model, windows=windows) for c in candidates]
+    designs = []
+    for c in candidates:
+        designs.append(build_design(c, requirement, model, windows=windows))
+        if progress is not None:
+            progress("candidates", len(designs), len(candidates))
     designs.sort(key=_rank)
+    # Monte Carlo on the chosen design only: on every candidate it would cost seconds.
+    designs[0] = with_yield(designs[0], requirement, progress=progress)
     return Plan(requirement=requirement, model=model, designs=tuple(designs),
                 why=_why(designs))
+
+
+def with_yield(design: Design, requirement: Requirement, *,
+               progress: Callable[[str, int, int], None] | None = None) -> Design:
+    """`design` with its Monte Carlo yield (``analysis.montecarlo.plan_yield``) and the
+    `yield` check added; unchanged when it has no chain."""
+    if design.chain is None:
+        return design
+    report = None if progress is None else (lambda done, total: progress("yield", done, total))
+    result = plan_yield(design.chain, requirement, progress=report)
+    return replace(design, yield_result=result,
+                   checks=design.checks + tuple(yield_checks(result)))
 
 
 def _rank(d: Design) -> tuple:

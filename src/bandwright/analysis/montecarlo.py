@@ -60,6 +60,9 @@ ENVELOPE_PERCENTILES = (1.0, 50.0, 99.0)
 _ENVELOPE_MAX = 20_000
 # Bins of each part's deviation for the first-order failure index.
 _BINS = 10
+# Worst excesses beyond ±20 dB (a board far off, or unstable) are clipped before their
+# variance is taken: they would otherwise decide every index alone.
+_EXCESS_CLIP_DB = 20.0
 # A first-order index below this share is noise of the estimate, not a driver.
 _DRIVER_FLOOR = 0.01
 _MAX_DRIVERS = 6
@@ -202,12 +205,13 @@ class Driver:
     stage : int
     part : str
     index : float
-        Share of the variance of pass/fail explained by this part's value alone (first-order
-        index, bias-corrected; 0 to 1).
+        Share of the variance of the worst excess over the requirement (dB) explained by
+        this part's value alone: its first-order index, bias-corrected, 0 to 1.
     worst_fail_rate : float
-        Failure rate of the samples whose deviation of this part falls in its worst tenth.
+        Failure rate of the samples whose deviation of this part falls in its worst tenth
+        (the tenth with the largest mean excess).
     worst_side : {"high", "low", "middle"}
-        Where that tenth lies.
+        Where that tenth lies: the part too high, too low, or near nominal.
     """
 
     stage: int
@@ -266,8 +270,8 @@ class YieldResult:
     drivers : tuple of Driver
         Largest first-order indices first.
     explained : float
-        Sum of every part's first-order index: how much of pass/fail single parts explain
-        (the rest is parts acting together).
+        Sum of every part's first-order index: how much of the excess single parts explain
+        (the rest is parts acting together, or the nonlinearity of the worst case).
     sensitivities : tuple of StageSensitivity
     offer : Offer or None
         Set by ``plan_yield`` when the yield is below `min_yield`.
@@ -412,20 +416,21 @@ def _chain_mag_sq(chain: Chain, grid: _Grid, values: list[np.ndarray],
 def _verdicts(t2: dict[str, np.ndarray], chain: Chain, grid: _Grid, requirement: Requirement
               ) -> dict[str, np.ndarray]:
     """Per-sample pass flags of every mask criterion and of headroom (as checks.mask and
-    checks.chain_checks.headroom_checks read them)."""
+    checks.chain_checks.headroom_checks read them), and under "excess" the worst violation
+    in dB (> 0: fails; < 0: the margin left)."""
     pb = requirement.passband
     out_t2 = t2[CHAIN_OUTPUT]
     with np.errstate(divide="ignore"):
         pb_db = 10 * np.log10(out_t2[:, grid.passband])
         stop_db = 10 * np.log10(out_t2[:, grid.stop])
-    loss_ok = (pb.gain_db - pb_db.min(axis=1)) <= pb.max_loss_db + _SLACK_DB
-    gain_err = pb_db.max(axis=1) - pb.gain_db
-    gain_ok = np.abs(gain_err) <= pb.gain_tolerance_db + _SLACK_DB
+    loss_x = (pb.gain_db - pb_db.min(axis=1)) - pb.max_loss_db
+    gain_x = np.abs(pb_db.max(axis=1) - pb.gain_db) - pb.gain_tolerance_db
     need = np.array([p.min_loss_db for p in requirement.stopband])
-    stop_ok = np.all(pb.gain_db - stop_db >= need - _SLACK_DB, axis=1)
+    stop_x = np.max(need - (pb.gain_db - stop_db), axis=1, initial=-np.inf)
+    loss_ok, gain_ok, stop_ok = (x <= _SLACK_DB for x in (loss_x, gain_x, stop_x))
     n_pb = grid.passband.size
     tv = np.array([t.vpk for t in requirement.input.tones], dtype=float)
-    head_ok = np.ones(out_t2.shape[0], dtype=bool)
+    head_x = np.full(out_t2.shape[0], -np.inf)
     for net in chain.output_nets:
         m2 = t2[net]
         # "out" nets hold the whole grid, others only the level frequencies.
@@ -433,9 +438,11 @@ def _verdicts(t2: dict[str, np.ndarray], chain: Chain, grid: _Grid, requirement:
         mag = np.sqrt(lv)
         peak = requirement.input.max_vpk * mag[:, :n_pb].max(axis=1) + mag[:, n_pb:] @ tv
         limit = swing_limit_vpk(requirement.supply, chain.stage_of(net).model.swing_to_rail_v)
-        head_ok &= peak <= limit
+        with np.errstate(divide="ignore"):
+            head_x = np.maximum(head_x, 20 * np.log10(peak / limit))
+    excess = np.maximum.reduce([loss_x, gain_x, stop_x, head_x])
     return {"passband loss": loss_ok, "passband gain": gain_ok, "stopband": stop_ok,
-            "headroom": head_ok}
+            "headroom": head_x <= 0.0, "excess": excess}
 
 
 def _bin_edges(distribution: str) -> np.ndarray:
@@ -447,35 +454,66 @@ def _bin_edges(distribution: str) -> np.ndarray:
     return np.array([nd.inv_cdf(float(p)) for p in q])
 
 
-def _drivers(counts: np.ndarray, fails: np.ndarray, cols: tuple[SampleColumn, ...]
-             ) -> tuple[tuple[Driver, ...], float]:
-    """First-order index of every column from per-bin sample and failure counts.
+class _DriverStats:
+    """Per-part, per-bin sums over the samples seen so far (streamed chunk by chunk)."""
 
-    eta^2 = sum_b n_b (p_b - p)^2 / (n p (1 - p)): the share of the variance of the
-    pass/fail indicator that the bin of one part's deviation explains -- Pearson's
-    correlation ratio [3]_, which estimates Sobol's first-order index
-    Var(E[fail | x_i]) / Var(fail) [2]_. Under no dependence its expectation is
-    (B - 1)/(n - 1) (B bins), which is subtracted.
-    """
-    n = counts.sum(axis=1)[0] if counts.size else 0
-    total_fail = fails.sum(axis=1)[0] if fails.size else 0
-    if n < 2 or total_fail == 0 or total_fail == n:
-        return (), 0.0
-    p = total_fail / n
-    with np.errstate(divide="ignore", invalid="ignore"):
-        pb = np.where(counts > 0, fails / counts, p)
-    eta2 = np.sum(counts * (pb - p) ** 2, axis=1) / (n * p * (1 - p))
-    index = np.maximum(eta2 - (_BINS - 1) / (n - 1), 0.0)
-    order = np.argsort(-index, kind="stable")
-    out = []
-    for i in order[:_MAX_DRIVERS]:
-        if index[i] < _DRIVER_FLOOR:
-            break
-        b = int(np.argmax(pb[i]))
-        side = "low" if b < _BINS // 2 - 1 else ("high" if b > _BINS // 2 else "middle")
-        out.append(Driver(stage=cols[i].stage, part=cols[i].part, index=float(index[i]),
-                          worst_fail_rate=float(pb[i, b]), worst_side=side))
-    return tuple(out), float(index.sum())
+    def __init__(self, cols: tuple[SampleColumn, ...], distribution: str) -> None:
+        self.cols = cols
+        self.edges = _bin_edges(distribution)
+        shape = (len(cols), _BINS)
+        self.count = np.zeros(shape)
+        self.fail = np.zeros(shape)
+        self.excess_sum = np.zeros(shape)
+        self.n = 0
+        self.y_sum = 0.0
+        self.y_sq = 0.0
+        self.shift = None
+
+    def add(self, u: np.ndarray, failed: np.ndarray, excess_db: np.ndarray) -> None:
+        # Extreme excesses (an unstable board) would swamp the variance: clip them.
+        y = np.clip(np.nan_to_num(excess_db, nan=_EXCESS_CLIP_DB), -_EXCESS_CLIP_DB,
+                    _EXCESS_CLIP_DB)
+        if self.shift is None:
+            self.shift = float(np.mean(y))    # centred sums keep the variance exact
+        y = y - self.shift
+        onehot = np.searchsorted(self.edges, u, side="right")[:, :, None] == np.arange(_BINS)
+        self.count += onehot.sum(axis=0)
+        self.fail += onehot[failed].sum(axis=0)
+        self.excess_sum += np.einsum("scb,s->cb", onehot, y)
+        self.n += y.size
+        self.y_sum += float(y.sum())
+        self.y_sq += float(np.dot(y, y))
+
+    def drivers(self) -> tuple[tuple[Driver, ...], float]:
+        """First-order index of every part on the worst excess (see ``monte_carlo``).
+
+        eta^2 = sum_b n_b (ybar_b - ybar)^2 / sum (y - ybar)^2 over ten equally likely bins
+        of the part's deviation: Pearson's correlation ratio [3]_, an estimate of Sobol's
+        first-order index Var(E[y | x_i]) / Var(y) [2]_. With no dependence its expectation
+        is (B - 1)/(n - 1) (B bins), which is subtracted.
+        """
+        n = self.n
+        if n < 2:
+            return (), 0.0
+        mean = self.y_sum / n
+        total = self.y_sq - n * mean * mean
+        if not total > 0:
+            return (), 0.0
+        with np.errstate(divide="ignore", invalid="ignore"):
+            bin_mean = np.where(self.count > 0, self.excess_sum / self.count, mean)
+            fail_rate = np.where(self.count > 0, self.fail / self.count, 0.0)
+        eta2 = np.sum(self.count * (bin_mean - mean) ** 2, axis=1) / total
+        index = np.maximum(eta2 - (_BINS - 1) / (n - 1), 0.0)
+        out = []
+        for i in np.argsort(-index, kind="stable")[:_MAX_DRIVERS]:
+            if index[i] < _DRIVER_FLOOR:
+                break
+            b = int(np.argmax(bin_mean[i]))
+            side = "low" if b < _BINS // 2 - 1 else ("high" if b > _BINS // 2 else "middle")
+            c = self.cols[i]
+            out.append(Driver(stage=c.stage, part=c.part, index=float(index[i]),
+                              worst_fail_rate=float(fail_rate[i, b]), worst_side=side))
+        return tuple(out), float(index.sum())
 
 
 def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | None = None,
@@ -511,11 +549,13 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
     (tolerance t at 3 sigma); every op-amp's GBW the same with the GBW spread, independently
     per op-amp. The draws come from ``numpy.random.default_rng(seed)`` chunk by chunk in a
     fixed order (``sample_values``), so a seed repeats a run exactly. Yield is the share of
-    samples passing; its interval is Wilson's ([1]_). Which parts decide it: the
-    first-order index of each part (``_drivers``): the share of the variance of pass/fail
-    explained by that part's value alone, estimated from ten equally likely bins of its
-    deviation -- it catches parts that fail in both directions (f0 too high or too low),
-    which a linear correlation would miss.
+    samples passing; its interval is Wilson's ([1]_). Which parts decide it: for every
+    sample the worst excess over the requirement in dB (passband loss, passband gain,
+    stopband loss or headroom; > 0 fails), and for every part the share of the variance of
+    that excess explained by the part's value alone -- its first-order index, estimated from
+    ten equally likely bins of its deviation ([2]_, [3]_). Binning catches parts that fail
+    in both directions (f0 too high or too low), which a linear correlation would miss, and
+    the continuous excess still ranks the parts when nearly every board fails or passes.
     """
     tol_req = requirement.tolerance
     spreads = spreads or resolve_spreads(requirement)
@@ -529,12 +569,10 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
     tol = _tolerances(cols, spreads)
     spans = _stage_spans(chain, cols)
     rng = np.random.default_rng(seed)
-    edges = _bin_edges(spreads.distribution)
+    stats = _DriverStats(cols, spreads.distribution)
 
     passed, mask_ok, head_ok = [], [], []
     fail_counts = {"passband loss": 0, "passband gain": 0, "stopband": 0, "headroom": 0}
-    counts = np.zeros((len(cols), _BINS))
-    fails = np.zeros((len(cols), _BINS))
     env_rows: list[np.ndarray] = []
     kept = 0
     done = 0
@@ -553,19 +591,16 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
         v = _verdicts(t2, chain, grid, requirement)
         first = 1 if ci == 0 else 0
         if ci == 0:
-            nominal_ok = bool(all(x[0] for x in v.values()))
+            nominal_ok = bool(v["excess"][0] <= _SLACK_DB)
         v = {k: x[first:] for k, x in v.items()}
         m_ok = v["passband loss"] & v["passband gain"] & v["stopband"]
         ok = m_ok & v["headroom"]
-        for k, x in v.items():
-            fail_counts[k] += int(np.count_nonzero(~x))
+        for k in fail_counts:
+            fail_counts[k] += int(np.count_nonzero(~v[k]))
         passed.append(ok)
         mask_ok.append(m_ok)
         head_ok.append(v["headroom"])
-        b = np.searchsorted(edges, u, side="right")          # (n, cols) bin index
-        onehot = b[:, :, None] == np.arange(_BINS)            # (n, cols, B)
-        counts += onehot.sum(axis=0)
-        fails += onehot[~ok].sum(axis=0)
+        stats.add(u, ~ok, v["excess"])
         if kept < _ENVELOPE_MAX:
             take = min(n, _ENVELOPE_MAX - kept)
             t_out = t2[CHAIN_OUTPUT][first:first + take][:, grid.envelope]
@@ -578,7 +613,7 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
     passed_a = np.concatenate(passed)
     k = int(np.count_nonzero(passed_a))
     env = np.percentile(np.vstack(env_rows), ENVELOPE_PERCENTILES, axis=0).astype(float)
-    drivers, explained = _drivers(counts, fails, cols)
+    drivers, explained = stats.drivers()
     sens = chain_sensitivities(chain) if with_sensitivities else ()
     return YieldResult(
         samples=samples, seed=seed, spreads=spreads, passed=passed_a,
