@@ -14,7 +14,8 @@ import scipy
 from bandwright import __version__
 from bandwright.chain.graph import Chain, global_net
 
-__all__ = ["plan_to_dict", "audit_to_dict", "dumps", "chain_dict", "num"]
+__all__ = ["plan_to_dict", "audit_to_dict", "dumps", "chain_dict", "num", "yield_dict",
+           "sensitivities_dict"]
 
 
 def num(x: Any) -> float | None:
@@ -126,14 +127,58 @@ def plan_to_dict(p) -> dict[str, Any]:
                                 "rejected": [{"topology": t, "reason": r} for t, r in a.rejected]}
                                for i, a in enumerate(d.assignments)],
                     "checks": _checks(d.checks), "response": None, "nodes": [],
-                    "noise": None})
+                    "noise": None, "yield": None, "sensitivities": None})
         return out
     out.update(chain_dict(d.chain, d.analyses, d.checks))
     o = d.ordering
     out["ordering"] = {"method": o.method, "order_as_generated": [i + 1 for i in o.order],
                        "gain_over_generated_db": num(o.gain_over_generated_db),
                        "gain_over_increasing_q_db": num(o.gain_over_increasing_q_db)}
+    y = getattr(d, "yield_result", None)
+    out["yield"] = yield_dict(y) if y is not None else None
+    out["sensitivities"] = sensitivities_dict(y.sensitivities) if y is not None else None
     return out
+
+
+def yield_dict(y) -> dict[str, Any]:
+    """The Monte Carlo yield (``analysis.montecarlo.YieldResult``) as a JSON object."""
+    sp = y.spreads
+    offer = y.offer
+    return {
+        "yield": num(y.yield_fraction),
+        "interval": [num(y.interval[0]), num(y.interval[1])],
+        "confidence": 0.95,
+        "interval_method": "Wilson score",
+        "samples": y.samples,
+        "seed": y.seed,
+        "min_yield": num(y.min_yield),
+        "meets_target": bool(y.meets_target),
+        "nominal_passes": bool(y.nominal_passes),
+        "tolerance": {"resistor_pct": num(sp.resistor_pct), "capacitor_pct": num(sp.capacitor_pct),
+                      "gbw_spread_pct": num(sp.gbw_spread_pct), "distribution": sp.distribution,
+                      "resistor_source": sp.resistor_source,
+                      "capacitor_source": sp.capacitor_source},
+        "failures": dict(y.fail_counts),
+        "envelope": {"freq_hz": _nums(y.freq_hz), "percentiles": [1, 50, 99],
+                     "gain_db": [_nums(row) for row in y.envelope_db]},
+        "top_parts": [{"stage": p.stage, "part": p.part, "index": num(p.index),
+                       "worst_fail_rate": num(p.worst_fail_rate), "worst_side": p.worst_side}
+                      for p in y.drivers],
+        "explained": num(y.explained),
+        "offer": None if offer is None else
+        {"resistor_pct": num(offer.resistor_pct), "capacitor_pct": num(offer.capacitor_pct),
+         "yield": num(offer.yield_fraction),
+         "interval": [num(offer.interval[0]), num(offer.interval[1])],
+         "reaches_target": bool(offer.reaches), "message": offer.message},
+    }
+
+
+def sensitivities_dict(sens) -> list[dict[str, Any]]:
+    """Per-stage normalised sensitivities (``analysis.sensitivity.StageSensitivity``)."""
+    return [{"stage": s.position, "topology": s.topology, "worst_part": s.worst_part,
+             "parts": [{"part": p, "f0": num(f), "q": num(q), "gain": num(g), "weight": num(w)}
+                       for p, f, q, g, w in zip(s.parts, s.f0, s.q, s.gain, s.weight)]}
+            for s in sens]
 
 
 def audit_to_dict(a) -> dict[str, Any]:

@@ -88,6 +88,8 @@ def render_plan(p, console: Console) -> None:
             f"Section order ({o.method}): {o.gain_over_generated_db:+.1f} dB of dynamic range over "
             f"the order as generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
             f"(planning model, equal-maxima gains).")
+    if getattr(d, "yield_result", None) is not None:
+        _yield(d.yield_result, console)
     _checks(d.checks, console)
 
 
@@ -97,6 +99,44 @@ def render_audit(a, console: Console) -> None:
     _requirement(a.requirement, a.chain.stages[0].model, console)
     _chain(a.chain, a.analyses, console)
     _checks(a.checks, console)
+
+
+def _yield(y, console: Console) -> None:
+    """The Monte Carlo paragraph and the worst part of each stage (figures from the result)."""
+    sp = y.spreads
+    lo, hi = y.interval
+    console.print(
+        f"[bold]Yield[/bold]: {100 * y.yield_fraction:.1f} % of {y.samples} boards meet the "
+        f"mask and headroom (95 % interval {100 * lo:.1f}–{100 * hi:.1f} %, Wilson; target "
+        f"{100 * y.min_yield:.0f} %). Resistors ±{sp.resistor_pct:g} % ({sp.resistor_source}), "
+        f"capacitors ±{sp.capacitor_pct:g} % ({sp.capacitor_source}), op-amp GBW "
+        f"±{sp.gbw_spread_pct:g} %, {sp.distribution}{' (3σ)' if sp.distribution == 'gaussian' else ''}, "
+        f"seed {y.seed}.")
+    fails = ", ".join(f"{k} {v}" for k, v in y.fail_counts.items() if v)
+    if fails:
+        console.print(f"  Failing boards by reason: {fails}.")
+    if y.drivers:
+        console.print("  Parts that decide it (share of the worst excess they explain alone): "
+                      + "; ".join(f"{p.part} of stage {p.stage} {100 * p.index:.0f} % "
+                                  f"({100 * p.worst_fail_rate:.0f} % fail when {p.worst_side})"
+                                  for p in y.drivers[:4]) + ".")
+    if not y.nominal_passes:
+        console.print("  The chain fails with nominal parts: tighter parts cannot fix that.")
+    elif y.offer is not None:
+        console.print(f"  {'Tighter parts: ' if y.offer.reaches else ''}{y.offer.message}.")
+    if y.sensitivities:
+        t = _table("Sensitivity S = d ln y / d ln x, most sensitive part per stage", "#",
+                   "topology", "part", "S f0", "S Q", "S gain", "S f0 (GBW)", "S Q (GBW)")
+        for s in y.sensitivities:
+            f0, q, g = s.of(s.worst_part)
+            gf, gq, _ = s.of("GBW")
+            t.add_row(str(s.position), s.topology, s.worst_part, _s(f0), _s(q), _s(g),
+                      _s(gf), _s(gq))
+        console.print(t)
+
+
+def _s(x: float) -> str:
+    return "—" if x != x else f"{x:+.3g}"
 
 
 def _unbuilt(d, console: Console) -> None:
