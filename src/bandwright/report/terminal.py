@@ -123,7 +123,9 @@ def _yield(y, console: Console) -> None:
     if not y.nominal_passes:
         console.print("  The chain fails with nominal parts: tighter parts cannot fix that.")
     elif y.offer is not None:
-        console.print(f"  {'Tighter parts: ' if y.offer.reaches else ''}{y.offer.message}.")
+        text = y.offer.message
+        console.print(f"  Tighter parts: {text}." if y.offer.reaches else
+                      f"  {text[:1].upper()}{text[1:]}.")
     if y.sensitivities:
         t = _table("Sensitivity S = d ln y / d ln x, most sensitive part per stage", "#",
                    "topology", "part", "S f0", "S Q", "S gain", "S f0 (GBW)", "S Q (GBW)")
@@ -136,7 +138,8 @@ def _yield(y, console: Console) -> None:
 
 
 def _s(x: float) -> str:
-    return "—" if x != x else f"{x:+.3g}"
+    # Below 1e-6 a finite difference shows rounding, not a dependence.
+    return "—" if x != x else ("0" if abs(x) < 1e-6 else f"{x:+.3g}")
 
 
 def _unbuilt(d, console: Console) -> None:
