@@ -106,14 +106,26 @@ def _decider(req: Requirement, family: str, omegas, order: int, loss_db: float) 
 
 
 def _side_order(family: str, omegas: list[float], losses: list[float], loss_db: float,
-                fallback: int | None) -> int:
+                fallback: int | None) -> tuple[int, bool]:
+    """Order of one side of the wideband path (even: every section a biquad), and whether
+    it was capped at MAX_ORDER."""
     if fallback is not None:
         n = fallback
     elif omegas:
         n = minimum_order(family, omegas, loss_db, losses)
     else:
         n = 2
-    return min(MAX_ORDER, n + (n % 2))  # even: every section a biquad
+    n += n % 2
+    return min(MAX_ORDER, n), n > MAX_ORDER
+
+
+def _short(secs, points, gain_db: float) -> bool:
+    """Whether any of `points` gets less loss than it asks for."""
+    if not points:
+        return False
+    f = np.array([p.freq_hz for p in points])
+    loss = gain_db - 20 * np.log10(np.abs(cascade_response(secs, f)))
+    return bool(np.any(loss < np.array([p.min_loss_db for p in points]) - 1e-9))
 
 
 def _wideband_candidate(req: Requirement, family: str, order: int | None) -> Candidate:
@@ -135,10 +147,10 @@ def _wideband_candidate(req: Requirement, family: str, order: int | None) -> Can
     budget = LOSS_SHARE * pb.max_loss_db
     a_db = budget
     for _ in range(4):
-        n_hp = _side_order(family, [pb.low_hz / p.freq_hz for p in lo_pts],
-                           [p.min_loss_db for p in lo_pts], a_db, order)
-        n_lp = _side_order(family, [p.freq_hz / pb.high_hz for p in hi_pts],
-                           [p.min_loss_db for p in hi_pts], a_db, order)
+        n_hp, cap_hp = _side_order(family, [pb.low_hz / p.freq_hz for p in lo_pts],
+                                   [p.min_loss_db for p in lo_pts], a_db, order)
+        n_lp, cap_lp = _side_order(family, [p.freq_hz / pb.high_hz for p in hi_pts],
+                                   [p.min_loss_db for p in hi_pts], a_db, order)
         lo, hi = 0.02 * budget, budget
         if worst_loss(build(hi, n_hp, n_lp)) > budget:
             for _ in range(40):  # bisection on the edge loss of each side
@@ -154,8 +166,20 @@ def _wideband_candidate(req: Requirement, family: str, order: int | None) -> Can
             break
         a_db = new_a
     secs = build(a_db, n_hp, n_lp)
+    # Each side's order was set for its own skirt; normalising the cascade to its passband
+    # peak can leave a stopband point a hair short: add a pair of poles on that side.
+    while not (cap_hp and cap_lp):
+        short_lo = _short(secs, lo_pts, pb.gain_db) and n_hp < MAX_ORDER
+        short_hi = _short(secs, hi_pts, pb.gain_db) and n_lp < MAX_ORDER
+        if not (short_lo or short_hi):
+            break
+        n_hp += 2 * short_lo
+        n_lp += 2 * short_hi
+        secs = build(a_db, n_hp, n_lp)
     note = (f"highpass order {n_hp} + lowpass order {n_lp}, each side's edge loss "
             f"{a_db:.3g} dB so the skirts together lose at most {budget:.3g} dB of the "
             f"{pb.max_loss_db:g} dB allowed")
+    if cap_hp or cap_lp:
+        note += f"; capped at the largest supported order, {MAX_ORDER} a side"
     return Candidate(path="wideband", family=family, order=n_hp + n_lp, ripple_db=a_db,
                      sections=secs, note=note)

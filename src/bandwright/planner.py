@@ -16,7 +16,7 @@ from bandwright.analysis.montecarlo import YieldResult, plan_yield
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.stage import with_parts
-from bandwright.chain.trim import trim_stage
+from bandwright.chain.trim import passband_score, trim_stage
 from bandwright.chain.ordering import Ordering, choose_order, make_problem
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
@@ -44,6 +44,7 @@ SOURCE_LOADING_LIMIT = 0.05
 FLAT_INPUT_RATIO = 1.1
 SOURCE_ABSORB_LIMIT = 1e-3
 _TRIM_PASSES = 2
+_TRIM_WHEN_ABOVE = 0.8
 
 
 @dataclass(frozen=True)
@@ -313,6 +314,9 @@ def _trim_gain(assignments: list[Assignment], req: Requirement, model: OpAmp,
     pb = req.passband
     band = passband_grid(req)
     for _ in range(_TRIM_PASSES):
+        if passband_score(chain, band, gain_db=pb.gain_db, max_loss_db=pb.max_loss_db,
+                          tol_db=pb.gain_tolerance_db) <= _TRIM_WHEN_ABOVE:
+            break  # comfortably inside: leave every section on its own target
         changed = False
         for k in range(len(chain.stages) - 1, -1, -1):
             new = trim_stage(chain, k, band, gain_db=pb.gain_db, max_loss_db=pb.max_loss_db,

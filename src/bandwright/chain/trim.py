@@ -17,7 +17,7 @@ from bandwright.circuits.figures import transfer_polynomials
 from bandwright.circuits.nodal import ac_solve, passive_names
 from bandwright.parts.eseries import neighbours
 
-__all__ = ["trim_stage"]
+__all__ = ["trim_stage", "passband_score"]
 
 _MAX_POINTS = 3125
 
@@ -28,6 +28,15 @@ def _mask_score(gain_db: np.ndarray, *, gain_db_ref: float, max_loss_db: float,
     loss = (gain_db_ref - gain_db.min(axis=-1)) / max_loss_db
     err = np.abs(gain_db.max(axis=-1) - gain_db_ref) / tol_db
     return np.maximum(loss, err)
+
+
+def passband_score(chain: Chain, band_hz: np.ndarray, *, gain_db: float, max_loss_db: float,
+                   tol_db: float) -> float:
+    """The chain's worst normalised passband violation: passband loss over its limit, or
+    the passband maximum's distance from the asked gain over its tolerance (≤ 1 meets)."""
+    g = 20 * np.log10(np.abs(_output_transfer(chain, np.asarray(band_hz, dtype=float))))
+    return float(_mask_score(g[None, :], gain_db_ref=gain_db, max_loss_db=max_loss_db,
+                             tol_db=tol_db)[0])
 
 
 def trim_stage(chain: Chain, index: int, band_hz: np.ndarray, *, gain_db: float,

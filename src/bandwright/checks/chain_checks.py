@@ -10,6 +10,7 @@ from bandwright.checks.base import Check
 from bandwright.circuits import topology
 from bandwright.parts.notation import format_value
 from bandwright.parts.windows import PartWindows, violations
+from bandwright.sections.section import Section
 from bandwright.spec.requirement import Requirement
 
 __all__ = ["headroom_checks", "slew_checks", "drive_checks", "gbw_checks", "noise_checks",
@@ -65,10 +66,14 @@ def drive_checks(an: Analyses) -> list[Check]:
 
 
 def gbw_checks(chain: Chain) -> list[Check]:
-    """Per stage: the GBW its topology needs at this f0 and Q against the op-amp's."""
+    """Per stage: the GBW its topology needs at the f0, Q and gain it was built for, against
+    the op-amp's. The built figures are used, so a plan and the audit of its parts agree."""
     out = []
     for st in chain.stages:
-        lim = topology(st.topology).limits(st.target, st.model)
+        b = st.built
+        sec = Section(kind=st.kind, f0_hz=b.f0_hz, q=b.q, gain=abs(b.gain)) \
+            if st.kind != "gain" else Section(kind="gain", f0_hz=0.0, q=0.0, gain=abs(b.gain))
+        lim = topology(st.topology).limits(sec, st.model)
         need, have = lim.gbw_needed_hz, st.model.gbw_hz
         ok = have >= need
         out.append(Check(

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 from rich import box
 from rich.console import Console
 from rich.table import Table
@@ -167,6 +168,11 @@ def _chain(chain, an, console: Console) -> None:
         parts = "  ".join(f"{n}={format_value(v, 'Ω' if n.startswith('R') else 'F')}"
                           for n, v in st.components)
         console.print(f"[bold]Stage {st.position}[/bold] {st.topology}: {parts}")
+        if st.ideal is not None and st.kind != "gain":
+            console.print(f"  figures: asked f0 {fmt_hz(st.target.f0_hz)}, Q {st.target.q:.4g}; "
+                          f"exact parts f0 {fmt_hz(st.ideal.f0_hz)}, Q {st.ideal.q:.4g}; "
+                          f"series parts f0 {fmt_hz(st.built.f0_hz)}, Q {st.built.q:.4g} "
+                          f"(op-amp's GBW included)")
         if st.reason:
             console.print(f"  why: {st.reason}")
         for name, why in st.rejected:
@@ -179,6 +185,10 @@ def _chain(chain, an, console: Console) -> None:
                    f"{n.margin_db:+.1f} dB", f"{n.slew_needed_v_per_us:.3g} V/µs", load)
     console.print(lv)
     nz = an.noise
+    centre = int(np.argmin(np.abs(np.log(nz.freq_hz / math.sqrt(nz.band_hz[0] * nz.band_hz[1])))))
+    console.print(
+        f"Input-referred noise at {fmt_hz(nz.freq_hz[centre])}: "
+        f"{nz.input_referred_v_per_rthz[centre] * 1e9:.3g} nV/√Hz (source open-circuit voltage)")
     console.print(
         f"Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over {fmt_hz(nz.band_hz[0])}–"
         f"{fmt_hz(nz.band_hz[1])}; SNR at full input {an.snr_db:.1f} dB; dynamic range "
