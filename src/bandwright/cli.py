@@ -74,8 +74,12 @@ def _run_plan(args: argparse.Namespace) -> int:
     from bandwright.report.terminal import render_plan
     from bandwright.spec import load_spec
 
+    from bandwright.report.progress import stderr_progress
+
     req = load_spec(args.spec)
-    result = plan(req, family=args.family, order=args.order)
+    # The bar goes to stderr and only on a terminal: --json stdout stays one object.
+    with stderr_progress() as progress:
+        result = plan(req, family=args.family, order=args.order, progress=progress)
     text = dumps(plan_to_dict(result))
     if args.out is not None:
         write_out_dir(args.out, plan_files(result, text), force=args.force)
