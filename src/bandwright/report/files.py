@@ -1,4 +1,5 @@
-"""The files `--out DIR` holds: plan.json, chain.cir, chain.toml, bom.csv."""
+"""The files `--out DIR` holds: plan.json, chain.cir, chain.toml, bom.csv, plots, schematics,
+report.html."""
 
 from __future__ import annotations
 
@@ -109,13 +110,29 @@ def plan_files(p, json_text: str) -> dict[str, bytes]:
     """Every file of a plan's --out folder."""
     d = p.chosen
     if d.chain is None:
-        return {"plan.json": (json_text + "\n").encode()}
+        return {"plan.json": (json_text + "\n").encode(), **_graphic_files(p, None)}
     title = f"bandwright plan of {p.requirement.path}"
-    return _files(d.chain, p.requirement, json_text, "plan.json", title,
-                  p.requirement.design.resistor_series, p.requirement.design.capacitor_series)
+    out = _files(d.chain, p.requirement, json_text, "plan.json", title,
+                 p.requirement.design.resistor_series, p.requirement.design.capacitor_series)
+    return {**out, **_graphic_files(p, out["bom.csv"])}
 
 
 def audit_files(a, json_text: str) -> dict[str, bytes]:
     """Every file of an audit's --out folder."""
-    return _files(a.chain, a.requirement, json_text, "audit.json",
-                  f"bandwright audit of {a.path}", None, None)
+    out = _files(a.chain, a.requirement, json_text, "audit.json",
+                 f"bandwright audit of {a.path}", None, None)
+    return {**out, **_graphic_files(a, out["bom.csv"])}
+
+
+def _graphic_files(obj, bom: bytes | None) -> dict[str, bytes]:
+    """Plots (PNG and SVG), schematics (schematic_stage<k>.svg, block.svg) and report.html,
+    each drawn once and inlined into the report."""
+    from bandwright.report.html import html_report
+    from bandwright.report.plots import plot_files
+    from bandwright.report.schematic import schematic_files
+    from bandwright.report.subject import subject_of
+    plots = plot_files(obj)
+    schematics = schematic_files(subject_of(obj).chain)
+    page = html_report(obj, plots=plots, schematics=schematics,
+                       bom_text=None if bom is None else bom.decode())
+    return {**plots, **schematics, "report.html": page.encode()}

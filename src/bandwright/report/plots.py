@@ -48,6 +48,7 @@ FORBIDDEN = "#d64541"
 LIMIT = "#b3261e"
 STATUS_COLOUR = {"pass": "#3b7d3b", "warn": "#c98a00", "fail": "#c0392b"}
 TOP_CONTRIBUTORS = 5
+INTERNAL_DASHES = (":", "-.", (0, (6, 2)), (0, (1, 3)))
 CONTRIBUTOR_COLOURS = ("#d0541f", "#2a7ab0", "#5b8c2a", "#9c4fa8", "#b8860b")
 
 
@@ -60,6 +61,9 @@ def _figure(ncols: int = 1, width_ratios=None) -> tuple[Figure, list]:
 def _save(fig: Figure) -> tuple[bytes, bytes]:
     png = io.BytesIO()
     fig.savefig(png, format="png", dpi=DPI)
+    # The layout is settled by the first save; the SVG reuses it (the same picture, and the
+    # constrained-layout pass is a good part of the drawing time).
+    fig.set_layout_engine("none")
     svg = io.BytesIO()
     # Text stays text (smaller, searchable in the HTML); a fixed salt and no date keep the
     # SVG identical from run to run.
@@ -121,7 +125,9 @@ def _mask_patches(ax, s: Subject, x_lo: float, x_hi: float, y_lo: float, y_hi: f
         if label_points and x_lo < sp.freq_hz < x_hi:
             ax.annotate(f"{sp.min_loss_db:g} dB down\nat {fmt_hz(sp.freq_hz)}", (sp.freq_hz, top),
                         xytext=(0, -10), textcoords="offset points", fontsize=7.5,
-                        ha="center", va="top", color=LIMIT)
+                        ha="center", va="top", color=LIMIT,
+                        bbox=dict(boxstyle="round,pad=0.15", facecolor="white", alpha=0.8,
+                                  edgecolor="none"))
 
 
 def _response_axes(ax, s: Subject, f, built_db, ideal_db, x_lo, x_hi, y_lo, y_hi, *,
@@ -194,13 +200,20 @@ def _levels(s: Subject) -> Figure:
     tone_t = net_transfers(chain, tone_f) if tones else {}
     fig, (ax, bars) = _figure(2, width_ratios=(1.75, 1.0))
     lows, limit = [], max(n.limit_vpk for n in an.nodes)
+    internal: dict[int, int] = {}
     for n in an.nodes:
         colour = _stage_colour(n.stage)
-        local = chain.graph.in_edges(n.net, data=True)
-        style = "-" if next(iter(local))[2]["local"] == "out" else ":"
+        local = next(iter(chain.graph.in_edges(n.net, data=True)))[2]["local"]
+        if local == "out":
+            style = "-"
+        else:
+            # a stage's internal outputs share its colour and differ by dash pattern
+            k = internal.get(n.stage, 0)
+            internal[n.stage] = k + 1
+            style = INTERNAL_DASHES[k % len(INTERNAL_DASHES)]
         level = req.input.max_vpk * np.abs(an.net_responses[n.net])
         ax.plot(f, level, color=colour, linestyle=style, linewidth=1.5,
-                label=f"{net_label(chain, n.net)}: in-band signal")
+                label=net_label(chain, n.net))
         lows.append(n.signal_vpk)
         if tones:
             tl = tone_v * np.abs(tone_t[n.net])
@@ -227,9 +240,10 @@ def _levels(s: Subject) -> Figure:
     ax.set_ylim(floor, limit * 3.0)
     ax.yaxis.set_major_formatter(EngFormatter(unit="V", sep=" "))
     ax.set_ylabel("level at the net (peak, log scale)")
-    ax.set_title(f"Node levels: input {req.input.max_vpk:g} Vpk at each frequency",
+    ax.set_title(f"Node levels for {req.input.max_vpk:g} Vpk in at each frequency",
                  loc="left", fontsize=11)
-    ax.legend(loc="lower center", fontsize=7.5, framealpha=0.9)
+    fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncols=3,
+               fontsize=7.5, frameon=False)
     # Headroom per net, coloured by its check.
     status = {k.net: k.status for k in s.checks if k.id == "headroom" and k.net}
     names = [f"stage {n.stage} {next(iter(chain.graph.in_edges(n.net, data=True)))[2]['local']}"
@@ -247,7 +261,7 @@ def _levels(s: Subject) -> Figure:
                       (max(m, 0.0), yi), xytext=(4, 0), textcoords="offset points",
                       va="center", fontsize=7.5)
     bars.set_xlabel("headroom margin (dB)")
-    bars.set_title("Headroom, worst case (signal + tones)", loc="left", fontsize=11)
+    bars.set_title("Headroom, worst case", loc="left", fontsize=11)
     bars.grid(True, axis="x", color="#e0e0e0")
     return fig
 
@@ -315,63 +329,55 @@ def _noise(s: Subject) -> Figure:
 # --------------------------------------------------------------------------- yield
 
 
-def _envelope(yr):
-    """(freq_hz, low_db, high_db, median_db or None, label) from a yield result, or None.
-
-    The Monte Carlo result is read by what it holds, not by its class: a response
-    envelope on a frequency grid as percentile curves.
-    """
-    env = getattr(yr, "envelope", None) or yr
-    f = getattr(env, "freq_hz", None)
-    if f is None:
-        return None
-    for lo_name, hi_name in (("low_db", "high_db"), ("lower_db", "upper_db"),
-                             ("min_db", "max_db"), ("p_low_db", "p_high_db")):
-        lo, hi = getattr(env, lo_name, None), getattr(env, hi_name, None)
-        if lo is not None and hi is not None:
-            return (np.asarray(f), np.asarray(lo), np.asarray(hi),
-                    getattr(env, "median_db", None), getattr(env, "label", None))
-    pct = getattr(env, "percentiles_db", None) or getattr(env, "gain_db_percentiles", None)
-    if isinstance(pct, dict) and len(pct) >= 2:
-        keys = sorted(pct)
-        mid = pct.get(50) or pct.get(50.0)
-        return (np.asarray(f), np.asarray(pct[keys[0]]), np.asarray(pct[keys[-1]]), mid,
-                f"{keys[0]:g}–{keys[-1]:g} percentile")
-    return None
-
-
 def _yield(s: Subject) -> Figure | None:
+    """Monte Carlo envelope (low, median and high percentile of the gain over the boards)
+    against the mask, whole range and passband."""
     yr = s.yield_result
-    if yr is None:
+    env = getattr(yr, "envelope_db", None)
+    if yr is None or env is None:
         return None
-    env = _envelope(yr)
-    if env is None:
-        return None
-    f, lo, hi, mid, label = env
+    from bandwright.analysis.montecarlo import ENVELOPE_PERCENTILES
+    f = np.asarray(yr.freq_hz)
+    lo_db, mid_db, hi_db = (np.asarray(row) for row in env)
     pb = s.requirement.passband
-    fig, (ax,) = _figure(1)
-    stops = [sp.min_loss_db for sp in s.requirement.stopband]
-    y_hi = max(pb.gain_db + 10.0, float(np.max(hi)) + 5.0)
+    an = s.analyses
+    fig, (ax, zoom) = _figure(2, width_ratios=(1.75, 1.0))
+    stops = [sp.min_loss_db for sp in s.requirement.stopband] if s.has_mask else []
+    y_hi = max(pb.gain_db + 10.0, float(hi_db.max()) + 5.0)
     y_lo = pb.gain_db - max(stops + [40.0]) - 30.0
+    p_lo, p_mid, p_hi = ENVELOPE_PERCENTILES
+    r = (pb.high_hz / pb.low_hz) ** 0.25
+    z_lo, z_hi = max(pb.low_hz / r, f[0]), min(pb.high_hz * r, f[-1])
+    inside = (f >= z_lo) & (f <= z_hi)
+    floor = pb.gain_db - pb.max_loss_db
+    ceiling = pb.gain_db + pb.gain_tolerance_db
+    band = (f >= pb.low_hz) & (f <= pb.high_hz)
+    zy_hi = max(ceiling + 1.0, float(hi_db[inside].max()) + 0.5)
+    zy_lo = max(min(floor - 2.0 * max(pb.max_loss_db, 0.5), float(lo_db[band].min()) - 1.0),
+                floor - 30.0)
+    for axis, x0, x1, y0, y1, labels in ((ax, f[0], f[-1], y_lo, y_hi, True),
+                                         (zoom, z_lo, z_hi, zy_lo, zy_hi, False)):
+        if s.has_mask:
+            _mask_patches(axis, s, x0, x1, y0, y1, label_points=labels)
+        axis.fill_between(f, lo_db, hi_db, color=BUILT, alpha=0.28, linewidth=0,
+                          label=f"{p_lo:g}th to {p_hi:g}th percentile of {yr.samples} boards")
+        axis.plot(f, mid_db, color=BUILT, linewidth=1.2, label=f"median ({p_mid:g}th)")
+        axis.plot(an.response.freq_hz, an.response.gain_db, color="#111111", linewidth=1.0,
+                  linestyle="--", label="nominal parts")
+        _log_freq_axis(axis, float(x0), float(x1))
+        axis.set_ylim(y0, y1)
+        axis.set_ylabel("gain (dB)")
+    lo_i, hi_i = yr.interval
+    sp = yr.spreads
+    ax.set_title(f"Tolerance spread: {100 * yr.yield_fraction:.1f} % of boards pass "
+                 f"(95 % interval {100 * lo_i:.1f}–{100 * hi_i:.1f} %)", loc="left", fontsize=11)
+    zoom.set_title(f"Passband; R ±{sp.resistor_pct:g} %, C ±{sp.capacitor_pct:g} %",
+                   loc="left", fontsize=11)
+    handles, labels = ax.get_legend_handles_labels()
     if s.has_mask:
-        _mask_patches(ax, s, f[0], f[-1], y_lo, y_hi)
-    ax.fill_between(f, lo, hi, color=BUILT, alpha=0.3, linewidth=0,
-                    label=f"Monte Carlo envelope ({label or 'spread of samples'})")
-    if mid is not None:
-        ax.plot(f, np.asarray(mid), color=BUILT, linewidth=1.2, label="median sample")
-    ax.plot(s.analyses.response.freq_hz, s.analyses.response.gain_db, color="#111111",
-            linewidth=1.0, linestyle="--", label="nominal parts")
-    _log_freq_axis(ax, float(f[0]), float(f[-1]))
-    ax.set_ylim(y_lo, y_hi)
-    ax.set_ylabel("gain (dB)")
-    y = getattr(yr, "yield_fraction", None)
-    if y is None:
-        y = getattr(yr, "yield_", None)
-    title = "Response spread over part tolerances"
-    if isinstance(y, (int, float)):
-        title += f": {100 * y:.1f} % of boards meet the requirement"
-    ax.set_title(title, loc="left", fontsize=11)
-    ax.legend(loc="lower center", fontsize=8)
+        handles.append(Patch(facecolor=FORBIDDEN, alpha=0.16))
+        labels.append("forbidden by the requirement")
+    ax.legend(handles, labels, loc="lower center", fontsize=8, framealpha=0.9)
     return fig
 
 

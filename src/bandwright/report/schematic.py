@@ -23,7 +23,6 @@ from __future__ import annotations
 
 import itertools
 import math
-import re
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -36,8 +35,7 @@ from bandwright.circuits.elements import GROUND, Element
 from bandwright.parts.notation import format_value
 from bandwright.report.terminal import fmt_hz
 
-__all__ = ["stage_svg", "block_svg", "schematic_files", "elements_svg", "svg_inline", "Layout",
-           "layout"]
+__all__ = ["stage_svg", "block_svg", "schematic_files", "elements_svg", "Layout", "layout"]
 
 GAP = 4.4          # between adjacent buses
 ROW = 2.6          # between rows of parts
@@ -397,7 +395,7 @@ def elements_svg(elements, *, net_names: dict | None = None, title: str = "") ->
     """
     names = net_names or {}
     lay = layout(elements)
-    d = schemdraw.Drawing(canvas="svg", show=False, fontsize=10, lw=1.4, margin=1.5)
+    d = schemdraw.Drawing(canvas="svg", show=False, fontsize=10, lw=1.4, margin=0.7)
     for i, p1, p2 in lay.parts:
         e = elements[i]
         part = elm.Resistor() if e.kind == "R" else elm.Capacitor()
@@ -511,8 +509,8 @@ def block_svg(chain: Chain, *, per_row: int = 4) -> bytes:
     bytes
         SVG.
     """
-    w, h, gap = 4.6, 3.0, 1.8
-    d = schemdraw.Drawing(canvas="svg", show=False, fontsize=10, lw=1.3, margin=1.5)
+    w, h, gap = 5.0, 3.4, 1.8
+    d = schemdraw.Drawing(canvas="svg", show=False, fontsize=12, lw=1.3, margin=0.7)
     src = format_value(chain.source_ohms, "Ω") if chain.source_ohms else "0 Ω"
     d.add(elm.Dot(open=True).at((-gap, 0)).label(f"in\n(source {src})", loc="left"))
     prev = (-gap, 0.0)
@@ -529,7 +527,7 @@ def block_svg(chain: Chain, *, per_row: int = 4) -> bytes:
             d.add(elm.Line().at((-gap, mid_y)).to((-gap, y0)))
             prev = (-gap, y0)
         d.add(elm.Arrow().at(prev).to((x0, y0)))
-        box = flow.Box(w=w, h=h).anchor("W").at((x0, y0)).label(_box_text(st), fontsize=9.5)
+        box = flow.Box(w=w, h=h).anchor("W").at((x0, y0)).label(_box_text(st), fontsize=12)
         d.add(box)
         prev = (x0 + w, y0)
     d.add(elm.Arrow().at(prev).to((prev[0] + gap, prev[1])))
@@ -549,11 +547,3 @@ def schematic_files(chain: Chain | None) -> dict[str, bytes]:
     out = {f"schematic_stage{st.position}.svg": stage_svg(chain, st) for st in chain.stages}
     out["block.svg"] = block_svg(chain)
     return out
-
-
-def svg_inline(svg: bytes) -> str:
-    """An SVG document as an element to inline in HTML: no XML prolog, scalable width."""
-    text = svg.decode("utf-8")
-    text = re.sub(r"^<\?xml[^>]*>\s*", "", text)
-    text = re.sub(r"<!DOCTYPE[^>]*>\s*", "", text)
-    return text

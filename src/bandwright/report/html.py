@@ -1,0 +1,525 @@
+"""The self-contained HTML report (``report.html``): inline SVG and CSS, no scripts, no network.
+
+It renders the same Plan / Audit, Analyses and Checks as the terminal report and the JSON,
+with the same number formats (a test holds the three to the same figures); it computes
+nothing of its own.
+
+Sections (element ids): ``summary``, ``candidates``, ``chain``, ``stages``, ``levels``,
+``checks``, ``plots``, ``noise``, ``bom``.
+"""
+
+from __future__ import annotations
+
+import csv
+import html
+import io
+import math
+import re
+
+from bandwright import __version__
+from bandwright.checks.base import worst_status
+from bandwright.parts.notation import format_value
+from bandwright.report.subject import Subject, net_label, stage_label, subject_of
+from bandwright.report.terminal import fmt_hz
+
+__all__ = ["html_report", "SECTION_IDS", "svg_inline", "verdict_text"]
+
+SECTION_IDS = ("summary", "candidates", "chain", "stages", "levels", "checks", "yield",
+               "plots", "noise", "bom")
+_STATUS_WORD = {"pass": "pass", "warn": "WARN", "fail": "FAIL"}
+
+_CSS = """
+:root { --ink: #1d2733; --muted: #5b6673; --line: #d5dbe1; --band: #f3f5f7;
+        --pass: #2e6b34; --warn: #946000; --fail: #b3261e; }
+* { box-sizing: border-box; }
+body { margin: 0; color: var(--ink); background: #fff;
+       font: 15px/1.45 "DejaVu Sans", "Liberation Sans", Arial, sans-serif; }
+main { max-width: 1120px; margin: 0 auto; padding: 18px 22px 40px; }
+header.top { border-bottom: 3px solid var(--ink); padding-bottom: 8px; margin-bottom: 6px; }
+header.top h1 { font-size: 24px; margin: 0 0 2px; }
+header.top p { margin: 0; color: var(--muted); font-size: 13px; }
+nav { font-size: 13px; margin: 8px 0 4px; }
+nav a { color: var(--ink); margin-right: 12px; }
+section { margin-top: 26px; }
+h2 { font-size: 19px; border-bottom: 1px solid var(--line); padding-bottom: 3px; }
+h3 { font-size: 16px; margin: 20px 0 6px; }
+table { border-collapse: collapse; width: 100%; font-size: 13px; margin: 6px 0 10px; }
+th, td { border: 1px solid var(--line); padding: 3px 7px; text-align: left;
+         vertical-align: top; }
+th { background: var(--band); font-weight: 600; }
+td.num { text-align: right; white-space: nowrap; font-variant-numeric: tabular-nums; }
+tr.chosen td { background: #eef4fb; }
+.status { font-weight: 700; white-space: nowrap; }
+.status.pass { color: var(--pass); } .status.warn { color: var(--warn); }
+.status.fail { color: var(--fail); }
+.verdict { display: inline-block; padding: 4px 12px; border: 2px solid; font-weight: 700;
+           margin: 4px 0 8px; }
+.verdict.pass { color: var(--pass); } .verdict.warn { color: var(--warn); }
+.verdict.fail { color: var(--fail); }
+dl.req { display: grid; grid-template-columns: 170px 1fr; gap: 2px 12px; margin: 6px 0; }
+dl.req dt { color: var(--muted); } dl.req dd { margin: 0; }
+.figures { display: flex; flex-wrap: wrap; gap: 8px 26px; margin: 8px 0; }
+.figures div { min-width: 150px; } .figures b { display: block; font-size: 18px; }
+.figures span { color: var(--muted); font-size: 12px; }
+figure { margin: 10px 0 22px; }
+figure svg { max-width: 100%; height: auto; display: block; }
+figcaption { font-size: 13px; color: var(--muted); margin-top: 4px; max-width: 960px; }
+.schematic svg { max-width: 100%; height: auto; }
+.stage { border-left: 4px solid var(--line); padding-left: 12px; margin-top: 18px; }
+.note { color: var(--muted); font-size: 13px; }
+ul.tight { margin: 4px 0; padding-left: 20px; font-size: 13px; }
+footer { margin-top: 36px; color: var(--muted); font-size: 12px;
+         border-top: 1px solid var(--line); padding-top: 6px; }
+"""
+
+_PLOT_CAPTIONS = {
+    "response": "The built chain (parts as rounded, op-amp GBW included) against the mask. "
+                "Shaded areas are forbidden: below the passband floor, above the passband "
+                "ceiling, and above each stopband limit from its point outward (the check "
+                "reads the response at the point itself, marked ▼). The dashed curve is "
+                "the ideal sections; the right panel zooms into the passband.",
+    "levels": "Left: the level each op-amp output would reach with the full in-band input "
+              "at each frequency (V peak), tones marked ◆ at their own frequencies, against "
+              "the swing limit. Right: the worst case the headroom check uses (in-band "
+              "signal at its worst frequency plus every tone, amplitudes added) as a margin "
+              "in dB, coloured by the check's verdict.",
+    "noise": "Output noise density and its largest sources; the other sources are summed "
+             "into one dotted curve. The integrated figure covers the marked band.",
+    "yield": "Spread of the response over part tolerances (Monte Carlo): the shaded band "
+             "holds the middle boards between the low and high percentiles named in the "
+             "legend, the solid line the median board, the dashed line nominal parts.",
+    "poles": "Left: each section's poles in the s-plane (built ×, target ○). Right: the "
+             "same sections as pole frequency and Q — the higher the Q, the more a small "
+             "f0 error moves the band edges.",
+}
+
+
+def _e(text) -> str:
+    return html.escape(str(text), quote=True)
+
+
+def verdict_text(checks) -> tuple[str, str]:
+    """(status, sentence) for a set of checks, the sentence the summary shows."""
+    status = worst_status(checks)
+    fails = sum(k.status == "fail" for k in checks)
+    warns = sum(k.status == "warn" for k in checks)
+    if status == "fail":
+        return status, f"{fails} of {len(checks)} checks fail ({warns} warnings)"
+    if status == "warn":
+        return status, f"every check passes, with {warns} warnings"
+    return status, f"all {len(checks)} checks pass"
+
+
+def svg_inline(svg: bytes, prefix: str) -> str:
+    """An SVG document as an element inside HTML: no XML prolog or DOCTYPE, and every id
+    prefixed so that several inline drawings cannot collide.
+
+    Parameters
+    ----------
+    svg : bytes
+    prefix : str
+        Letters, digits and "-" only.
+    """
+    text = svg.decode("utf-8")
+    text = re.sub(r"<\?xml[^>]*\?>\s*", "", text)
+    text = re.sub(r"<!DOCTYPE[^>]*>\s*", "", text)
+    text = re.sub(r"<!--.*?-->", "", text, flags=re.S)
+    ids = set(re.findall(r'\bid="([^"]+)"', text))
+    if ids:
+        pattern = re.compile(r'(\bid="|#)(' + "|".join(re.escape(i) for i in
+                                                      sorted(ids, key=len, reverse=True))
+                             + r')(?=["\)])')
+        text = pattern.sub(lambda m: f"{m.group(1)}{prefix}-{m.group(2)}", text)
+    return text
+
+
+def _table(headers, rows, *, num_cols=(), row_classes=None) -> str:
+    out = ["<table><thead><tr>"] + [f"<th>{_e(h)}</th>" for h in headers]
+    out.append("</tr></thead><tbody>")
+    for k, row in enumerate(rows):
+        cls = f' class="{row_classes[k]}"' if row_classes and row_classes[k] else ""
+        out.append(f"<tr{cls}>")
+        for j, cell in enumerate(row):
+            klass = ' class="num"' if j in num_cols else ""
+            out.append(f"<td{klass}>{cell}</td>")
+        out.append("</tr>")
+    out.append("</tbody></table>")
+    return "".join(out)
+
+
+def _status(s: str) -> str:
+    return f'<span class="status {s}">{_STATUS_WORD[s]}</span>'
+
+
+def _db(x: float) -> str:
+    # rounded first so that a gain a hair under 1 reads +0.00, not -0.00
+    return f"{round(20 * math.log10(abs(x)), 2) + 0.0:+.2f}" if x else "—"
+
+
+def _fmt(x, unit: str) -> str:
+    return "—" if x is None else _e(f"{x:.4g} {unit}".strip())
+
+
+# --------------------------------------------------------------------------- sections
+
+
+def _summary(s: Subject) -> str:
+    req = s.requirement
+    pb = req.passband
+    inp = req.input
+    rows = []
+    if s.has_mask:
+        rows.append(("passband", f"{fmt_hz(pb.low_hz)} to {fmt_hz(pb.high_hz)} (centre "
+                                 f"{fmt_hz(pb.center_hz)}, width {fmt_hz(pb.bandwidth_hz)})"))
+        rows.append(("passband gain", f"{pb.gain_db:g} dB ± {pb.gain_tolerance_db:g} dB; at "
+                                      f"most {pb.max_loss_db:.4g} dB loss across the band"))
+        for sp in req.stopband:
+            rows.append(("stopband", f"at least {sp.min_loss_db:g} dB down at "
+                                     f"{fmt_hz(sp.freq_hz)}"))
+    else:
+        rows.append(("mask", "none stated in the audit file: the response is not checked; "
+                             f"grids use its −3 dB band {fmt_hz(pb.low_hz)} to "
+                             f"{fmt_hz(pb.high_hz)}"))
+    tones = ", ".join(f"{t.vpk:g} Vpk at {fmt_hz(t.freq_hz)}" for t in inp.tones) or "none"
+    rows.append(("input", f"up to {inp.max_vpk:g} Vpk in band, from "
+                          f"{format_value(inp.source_ohms, 'Ω')} source"))
+    rows.append(("out-of-band tones", tones))
+    rows.append(("supply", f"{req.supply.rails_v[0]:g} V / {req.supply.rails_v[1]:+g} V"))
+    if s.chain is not None:
+        models = sorted({st.model.name for st in s.chain.stages})
+        m = s.chain.stages[0].model
+        rows.append(("op-amp", f"'{', '.join(models)}': {m.gbw_hz / 1e6:.3g} MHz GBW, "
+                               f"{m.slew_v_per_us:g} V/µs, {m.noise_v_per_rthz * 1e9:.3g} "
+                               "nV/√Hz"))
+    elif s.kind == "plan":
+        m = s.source.model
+        rows.append(("op-amp", f"'{m.name}': {m.gbw_hz / 1e6:.3g} MHz GBW"))
+    band = req.noise.band_hz
+    rows.append(("noise band", f"{fmt_hz(band[0])} to {fmt_hz(band[1])}" if band
+                 else "the passband"))
+    if req.noise.max_output_vrms:
+        rows.append(("noise budget", f"{req.noise.max_output_vrms * 1e6:.4g} µV rms at the "
+                                     "output"))
+    rows.append(("temperature", f"{req.environment.temperature_c:g} °C"))
+    status, sentence = verdict_text(s.checks)
+    out = ['<section id="summary"><h2>Summary</h2>',
+           f'<div class="verdict {status}">Verdict: {_e(sentence)}</div>']
+    if s.kind == "plan":
+        p = s.source
+        c = p.chosen.candidate
+        out.append(f"<p>Chosen: <b>{_e(c.family)} {_e(c.path)}</b>, order {c.order} "
+                   f"({_e(c.note)}) — {_e(p.why)}.</p>")
+    else:
+        out.append(f"<p>Audit of the chain in <code>{_e(s.path)}</code>.</p>")
+    an = s.analyses
+    if an is not None:
+        worst = min(an.nodes, key=lambda n: n.margin_db)
+        nz = an.noise
+        figs = [
+            (f"{nz.integrated_vrms * 1e6:.4g} µV rms",
+             f"output noise, {fmt_hz(nz.band_hz[0])}–{fmt_hz(nz.band_hz[1])}"),
+            (f"{an.snr_db:.1f} dB", "signal to noise at full input"),
+            (f"{an.dynamic_range_db:.1f} dB", "dynamic range"),
+            (f"{worst.margin_db:+.1f} dB", f"worst headroom margin ({worst.net})"),
+            (f"{len(s.chain.stages)}", "stages"),
+        ]
+        y = s.yield_result
+        if y is not None and hasattr(y, "yield_fraction"):
+            figs.append((f"{100 * y.yield_fraction:.1f} %", f"yield, {y.samples} boards"))
+        out.append('<div class="figures">' + "".join(
+            f"<div><b>{_e(v)}</b><span>{_e(k)}</span></div>" for v, k in figs) + "</div>")
+    out.append("<h3>The requirement as understood</h3><dl class=\"req\">")
+    out += [f"<dt>{_e(k)}</dt><dd>{_e(v)}</dd>" for k, v in rows]
+    out.append("</dl></section>")
+    return "".join(out)
+
+
+def _candidates(s: Subject) -> str:
+    out = ['<section id="candidates"><h2>Candidates</h2>']
+    if s.kind != "plan":
+        out.append('<p class="note">An audit checks one given chain: no candidates.</p>'
+                   "</section>")
+        return "".join(out)
+    rows, classes = [], []
+    for i, d in enumerate(s.source.designs):
+        c, an = d.candidate, d.analyses
+        margin = f"{min(n.margin_db for n in an.nodes):+.1f} dB" if an else "—"
+        noise = f"{an.noise.integrated_vrms * 1e6:.3g} µV" if an else "—"
+        dr = f"{an.dynamic_range_db:.1f} dB" if an else "—"
+        state = ("cannot build" if not d.buildable else
+                 f"{d.failures} failing" if d.failures else "meets all")
+        y = getattr(d, "yield_result", None)
+        yv = getattr(y, "yield_fraction", None) if y is not None else None
+        rows.append([("→ " if i == 0 else "") + str(i + 1), _e(c.family), _e(c.path),
+                     str(c.order), str(len(c.sections)),
+                     str(d.opamps) if d.buildable else "—", f"{c.highest_q:.3g}", _e(margin),
+                     _e(noise), _e(dr), "—" if yv is None else f"{100 * yv:.1f} %",
+                     _e(state)])
+        classes.append("chosen" if i == 0 else "")
+    out.append(_table(["#", "family", "path", "order", "sections", "op-amps", "highest Q",
+                       "worst margin", "noise out", "dyn. range", "yield", "state"], rows,
+                      num_cols=(3, 4, 5, 6, 7, 8, 9, 10), row_classes=classes))
+    out.append(f'<p class="note">Ranked: buildable first, then fewest failing checks, fewest '
+               f"op-amps, fewest sections, lowest highest Q, widest dynamic range. "
+               f"{_e(s.source.why).capitalize()}.</p></section>")
+    return "".join(out)
+
+
+def _chain(s: Subject, schematics: dict) -> str:
+    out = ['<section id="chain"><h2>Chain, input to output</h2>']
+    if s.chain is None:
+        d = s.source.chosen
+        rows = []
+        for i, a in enumerate(d.assignments):
+            sec = a.section
+            why = "; ".join(f"{n}: {r}" for n, r in a.rejected) if a.realization is None \
+                else f"built as {a.realization.topology}"
+            rows.append([str(i + 1), _e(sec.kind), _e(fmt_hz(sec.f0_hz)), f"{sec.q:.4g}",
+                         f"{sec.gain:.3g}", _e(why)])
+        out.append('<p>No circuit builds at least one section with this op-amp:</p>')
+        out.append(_table(["#", "kind", "f0", "Q", "gain", "what stops it"], rows,
+                          num_cols=(0, 2, 3, 4)))
+        out.append("</section>")
+        return "".join(out)
+    if "block.svg" in schematics:
+        out.append(f'<figure class="schematic">{svg_inline(schematics["block.svg"], "block")}'
+                   "</figure>")
+    rows = []
+    for st in s.chain.stages:
+        tg, b = st.target, st.built
+        f0 = "—" if st.kind == "gain" else f"{fmt_hz(tg.f0_hz)} → {fmt_hz(b.f0_hz)}"
+        q = "—" if st.kind == "gain" else f"{tg.q:.4g} → {b.q:.4g}"
+        ops = sum(1 for e in st.elements if e.kind == "opamp")
+        rows.append([str(st.position), _e(st.kind), _e(st.topology), _e(f0), _e(q),
+                     _e(f"{_db(tg.gain)} → {_db(b.gain)}"), str(ops)])
+    out.append(_table(["#", "kind", "topology", "f0 asked → built", "Q asked → built",
+                       "gain dB asked → built", "op-amps"], rows, num_cols=(0, 3, 4, 5, 6)))
+    if s.kind == "plan" and s.source.chosen.ordering is not None:
+        o = s.source.chosen.ordering
+        out.append(f'<p class="note">Section order ({_e(o.method)}): '
+                   f"{o.gain_over_generated_db:+.1f} dB of dynamic range over the order as "
+                   f"generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
+                   "(planning model, equal-maxima gains).</p>")
+    out.append("</section>")
+    return "".join(out)
+
+
+def _stages(s: Subject, schematics: dict) -> str:
+    out = ['<section id="stages"><h2>Stages</h2>']
+    if s.chain is None:
+        out.append('<p class="note">No chain was built.</p></section>')
+        return "".join(out)
+    for st in s.chain.stages:
+        out.append(f'<div class="stage" id="stage-{st.position}"><h3>'
+                   f"{_e(stage_label(st).capitalize())}: {_e(st.kind)}</h3>")
+        svg = schematics.get(f"schematic_stage{st.position}.svg")
+        if svg is not None:
+            out.append(f'<figure class="schematic">{svg_inline(svg, f"st{st.position}")}'
+                       "</figure>")
+        figs = [("target", st.target.f0_hz, st.target.q, st.target.gain)]
+        if st.ideal is not None:
+            figs.append(("exact parts", st.ideal.f0_hz, st.ideal.q, st.ideal.gain))
+        figs.append(("as built", st.built.f0_hz, st.built.q, st.built.gain))
+        rows = [[_e(name), "—" if st.kind == "gain" else _e(fmt_hz(f0)),
+                 "—" if st.kind == "gain" else f"{q:.4g}", f"{g:.4g}", _e(_db(g))]
+                for name, f0, q, g in figs]
+        out.append(_table(["", "f0", "Q", "gain (V/V)", "gain (dB)"], rows,
+                          num_cols=(1, 2, 3, 4)))
+        parts = [[_e(n), _e(format_value(v, "Ω" if n.startswith("R") else "F"))]
+                 for n, v in st.components]
+        if parts:
+            out.append(_table(["part", "value"], parts, num_cols=(1,)))
+        else:
+            out.append('<p class="note">No passive parts: the op-amp alone, as a '
+                       "follower.</p>")
+        if st.reason:
+            out.append(f"<p><b>Why this topology:</b> {_e(st.reason)}</p>")
+        if st.rejected:
+            out.append('<ul class="tight">' + "".join(
+                f"<li>not {_e(n)}: {_e(r)}</li>" for n, r in st.rejected) + "</ul>")
+        out.append("</div>")
+    out.append("</section>")
+    return "".join(out)
+
+
+def _levels(s: Subject) -> str:
+    out = ['<section id="levels"><h2>Node levels, worst case</h2>']
+    if s.analyses is None:
+        out.append('<p class="note">No chain was built.</p></section>')
+        return "".join(out)
+    status = {k.net: k.status for k in s.checks if k.id == "headroom" and k.net}
+    rows = []
+    for n in s.analyses.nodes:
+        load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
+        rows.append([_e(n.net), _e(net_label(s.chain, n.net)), f"{n.signal_vpk:.3g} Vpk",
+                     f"{n.peak_vpk:.3g} Vpk", f"{n.limit_vpk:.3g} Vpk",
+                     f"{n.margin_db:+.1f} dB", _status(status.get(n.net, "pass")),
+                     _e(f"{n.slew_needed_v_per_us:.3g} V/µs"), _e(load)])
+    out.append(_table(["net", "where", "in-band signal", "peak (signal + tones)", "limit",
+                       "margin", "verdict", "slew needed", "least load"], rows,
+                      num_cols=(2, 3, 4, 5, 7, 8)))
+    out.append('<p class="note">Worst case: the largest in-band input at its worst frequency '
+               "plus every tone, amplitudes added. The level plot is in "
+               '<a href="#plot-levels">Plots</a>.</p></section>')
+    return "".join(out)
+
+
+def _checks(s: Subject) -> str:
+    rows = []
+    for k in s.checks:
+        where = k.net or (f"stage {k.stage}" if k.stage else "chain")
+        rows.append([_e(k.id), _e(where), _status(k.status), _fmt(k.value, k.unit),
+                     _fmt(k.limit, k.unit), _e(k.message)])
+    fails = sum(k.status == "fail" for k in s.checks)
+    warns = sum(k.status == "warn" for k in s.checks)
+    return ('<section id="checks"><h2>Checks</h2>'
+            + _table(["check", "where", "verdict", "value", "limit", "reason"], rows,
+                     num_cols=(3, 4))
+            + f"<p>{len(s.checks)} checks: {fails} failed, {warns} warnings.</p></section>")
+
+
+def _yield(s: Subject) -> str:
+    """The Monte Carlo result, when the plan ran one (the same figures as the terminal)."""
+    y = s.yield_result
+    out = ['<section id="yield"><h2>Tolerance yield</h2>']
+    if y is None or not hasattr(y, "yield_fraction"):
+        out.append('<p class="note">No Monte Carlo run for this report.</p></section>')
+        return "".join(out)
+    sp = y.spreads
+    lo, hi = y.interval
+    three_sigma = " (3σ)" if sp.distribution == "gaussian" else ""
+    out.append(
+        f"<p><b>{100 * y.yield_fraction:.1f} %</b> of {y.samples} boards meet the mask and "
+        f"headroom (95 % interval {100 * lo:.1f}–{100 * hi:.1f} %, Wilson; target "
+        f"{100 * y.min_yield:.0f} %). Resistors ±{sp.resistor_pct:g} % "
+        f"({_e(sp.resistor_source)}), capacitors ±{sp.capacitor_pct:g} % "
+        f"({_e(sp.capacitor_source)}), op-amp GBW ±{sp.gbw_spread_pct:g} %, "
+        f"{_e(sp.distribution)}{three_sigma}, seed {y.seed}.</p>")
+    fails = ", ".join(f"{k} {v}" for k, v in y.fail_counts.items() if v)
+    if fails:
+        out.append(f"<p>Failing boards by reason: {_e(fails)}.</p>")
+    if y.drivers:
+        rows = [[str(d.stage), _e(d.part), f"{100 * d.index:.0f} %",
+                 f"{100 * d.worst_fail_rate:.0f} %", _e(d.worst_side)] for d in y.drivers[:8]]
+        out.append(_table(["stage", "part", "share of the worst excess it explains alone",
+                           "boards failing in its worst tenth", "that tenth"], rows,
+                          num_cols=(0, 2, 3)))
+    if not y.nominal_passes:
+        out.append("<p>The chain fails with nominal parts: tighter parts cannot fix that.</p>")
+    elif y.offer is not None:
+        out.append(f"<p>Tighter parts: {_e(y.offer.message)}.</p>")
+    out.append('<p class="note">The envelope plot is in <a href="#plot-yield">Plots</a>.</p>'
+               "</section>")
+    return "".join(out)
+
+
+def _plots(plots: dict) -> str:
+    out = ['<section id="plots"><h2>Plots</h2>']
+    if not plots:
+        out.append('<p class="note">No plots: no chain was built.</p>')
+    titles = {"response": "Response against the mask", "levels": "Node levels and headroom",
+              "noise": "Output noise", "yield": "Tolerance spread", "poles": "Poles"}
+    for name in ("response", "levels", "noise", "yield", "poles"):
+        svg = plots.get(f"{name}.svg")
+        if svg is None:
+            continue
+        out.append(f'<figure id="plot-{name}"><h3>{_e(titles[name])}</h3>'
+                   f"{svg_inline(svg, f'plot-{name}')}"
+                   f"<figcaption>{_e(_PLOT_CAPTIONS[name])}</figcaption></figure>")
+    out.append("</section>")
+    return "".join(out)
+
+
+def _noise(s: Subject) -> str:
+    out = ['<section id="noise"><h2>Noise budget</h2>']
+    an = s.analyses
+    if an is None:
+        out.append('<p class="note">No chain was built.</p></section>')
+        return "".join(out)
+    from bandwright.report.plots import source_label
+    nz = an.noise
+    out.append(
+        f"<p>Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over "
+        f"{_e(fmt_hz(nz.band_hz[0]))}–{_e(fmt_hz(nz.band_hz[1]))}; SNR at full input "
+        f"{an.snr_db:.1f} dB; dynamic range {an.dynamic_range_db:.1f} dB (input could grow "
+        f"{20 * math.log10(an.clip_scale):+.1f} dB before the first net clips).</p>")
+    total2 = nz.integrated_vrms ** 2
+    rows = [[_e(name), _e(source_label(s.chain, name)), f"{v * 1e6:.3g}",
+             f"{100 * v * v / total2:.1f} %"] for name, v in nz.contributions_vrms[:10]]
+    rest = nz.contributions_vrms[10:]
+    if rest:
+        rv = math.sqrt(sum(v * v for _, v in rest))
+        rows.append(["", _e(f"{len(rest)} other sources together"), f"{rv * 1e6:.3g}",
+                     f"{100 * rv * rv / total2:.1f} %"])
+    out.append(_table(["source", "what it is", "µV rms", "share of power"], rows,
+                      num_cols=(2, 3)))
+    out.append('<p class="note">Sources add in power (uncorrelated); the shares add up to '
+               '100 %. The density plot is in <a href="#plot-noise">Plots</a>.</p></section>')
+    return "".join(out)
+
+
+def _bom(bom_text: str | None) -> str:
+    out = ['<section id="bom"><h2>Bill of materials</h2>']
+    if not bom_text:
+        out.append('<p class="note">No chain was built.</p></section>')
+        return "".join(out)
+    rows = list(csv.reader(io.StringIO(bom_text)))
+    head, body = rows[0], rows[1:]
+    qty = head.index("quantity") if "quantity" in head else -1
+    out.append(_table(head, [[_e(c) for c in r] for r in body],
+                      num_cols=(qty,) if qty >= 0 else ()))
+    out.append("</section>")
+    return "".join(out)
+
+
+def html_report(obj, *, plots: dict | None = None, schematics: dict | None = None,
+                bom_text: str | None = None) -> str:
+    """The whole report as one HTML document.
+
+    Parameters
+    ----------
+    obj : Plan or Audit
+    plots : dict of str to bytes, optional
+        ``plots.plot_files`` output (its ".svg" entries are inlined); rendered here when
+        not given.
+    schematics : dict of str to bytes, optional
+        ``schematic.schematic_files`` output; rendered here when not given.
+    bom_text : str, optional
+        ``files.bom_csv`` output; made here when not given.
+
+    Returns
+    -------
+    str
+        A complete HTML5 document: inline CSS and SVG, no scripts, no external resources.
+    """
+    s = subject_of(obj)
+    if plots is None:
+        from bandwright.report.plots import plot_files
+        plots = plot_files(s)
+    if schematics is None:
+        from bandwright.report.schematic import schematic_files
+        schematics = schematic_files(s.chain)
+    if bom_text is None and s.chain is not None:
+        from bandwright.report.files import bom_csv
+        design = s.requirement.design if s.kind == "plan" else None
+        bom_text = bom_csv(s.chain, r_series=design.resistor_series if design else None,
+                           c_series=design.capacitor_series if design else None)
+    title = f"bandwright {s.kind} — {s.path}"
+    nav = "".join(f'<a href="#{i}">{i}</a>' for i in SECTION_IDS)
+    body = [
+        '<header class="top">', f"<h1>bandwright {_e(s.kind)}</h1>",
+        f"<p>{_e(s.path)} · bandwright {_e(__version__)}</p></header>",
+        f"<nav>{nav}</nav>",
+        _summary(s), _candidates(s), _chain(s, schematics), _stages(s, schematics),
+        _levels(s) if s.analyses is not None else
+        '<section id="levels"><h2>Node levels</h2><p class="note">No chain was built.</p>'
+        "</section>",
+        _checks(s), _yield(s), _plots(plots), _noise(s), _bom(bom_text),
+        f"<footer>Written by bandwright {_e(__version__)}. Every figure is for the chain as "
+        "built: parts rounded to their series, finite op-amp GBW, source resistance."
+        "</footer>",
+    ]
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            f"<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
+            f"<title>{_e(title)}</title><style>{_CSS}</style></head>\n<body><main>"
+            + "\n".join(body) + "</main></body></html>\n")
