@@ -54,3 +54,34 @@ def test_with_yield_adds_the_check_and_the_result():
     unbuilt = Design(candidate=None, ordering=None, assignments=(), chain=None, analyses=None,
                      checks=())
     assert with_yield(unbuilt, req) is unbuilt
+
+
+def test_json_and_terminal_render_the_result():
+    """Renderers only: the JSON object is strict JSON (no NaN) and carries the figures;
+    the terminal paragraph names the yield and the deciding parts."""
+    import io
+    import json
+
+    from rich.console import Console
+
+    from bandwright.report.json_out import dumps, sensitivities_dict, yield_dict
+    from bandwright.report.terminal import _yield
+
+    chain = mfb_chain([(10e3, 4.0, 2.0), (11e3, 3.0, 1.0)])
+    req = requirement_around(chain, loss_margin_db=0.5,
+                             tolerance={"capacitor_pct": 5, "samples": 300, "min_yield": 0.9})
+    y = plan_yield(chain, req)
+    doc = json.loads(dumps({"yield": yield_dict(y),
+                            "sensitivities": sensitivities_dict(y.sensitivities)}))
+    yj = doc["yield"]
+    assert yj["yield"] == y.yield_fraction and yj["samples"] == 300 and yj["seed"] == 1
+    assert yj["interval"] == list(y.interval) and yj["confidence"] == 0.95
+    assert len(yj["envelope"]["gain_db"]) == 3
+    assert len(yj["envelope"]["gain_db"][1]) == len(yj["envelope"]["freq_hz"])
+    assert yj["top_parts"][0]["part"] == y.drivers[0].part
+    assert [s["stage"] for s in doc["sensitivities"]] == [1, 2]
+    out = io.StringIO()
+    _yield(y, Console(file=out, width=100))
+    text = out.getvalue()
+    assert "Yield" in text and f"{100 * y.yield_fraction:.1f} %" in text
+    assert y.drivers[0].part in text

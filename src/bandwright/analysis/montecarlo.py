@@ -104,7 +104,18 @@ class Spreads:
     capacitor_source: str = "[tolerance]"
 
     def sigma_rel(self, kind: str) -> float:
-        """Relative standard deviation of a part of `kind` ("R", "C" or "GBW")."""
+        """Relative standard deviation of one quantity.
+
+        Parameters
+        ----------
+        kind : {"R", "C", "GBW"}
+
+        Returns
+        -------
+        float
+            t/sqrt(3) for a uniform spread on ±t (the variance of a uniform distribution),
+            t/3 for a Gaussian with t at 3 sigma.
+        """
         pct = {"R": self.resistor_pct, "C": self.capacitor_pct,
                "GBW": self.gbw_spread_pct}[kind] / 100
         # Uniform on ±t: sigma = t / sqrt(3); Gaussian with t at 3 sigma: t / 3.
@@ -112,8 +123,19 @@ class Spreads:
 
 
 def resolve_spreads(requirement: Requirement) -> Spreads:
-    """The requirement's `[tolerance]`, with the series' customary tolerance where a part
-    tolerance is not given (common practice, ``parts.tolerance.default_tolerance_pct``)."""
+    """The requirement's `[tolerance]` as numbers.
+
+    Parameters
+    ----------
+    requirement : Requirement
+
+    Returns
+    -------
+    Spreads
+        Part tolerances from `[tolerance]`, or where one is not given the tolerance
+        customary for `design.resistor_series` / `design.capacitor_series` (common
+        practice, ``parts.tolerance.default_tolerance_pct``: E96 1 %, E12 10 %, ...).
+    """
     t: Tolerance = requirement.tolerance
     rs, cs = requirement.design.resistor_series, requirement.design.capacitor_series
     r = t.resistor_pct if t.resistor_pct is not None else default_tolerance_pct(rs)
@@ -148,8 +170,18 @@ class SampleColumn:
 
 
 def sample_columns(chain: Chain) -> tuple[SampleColumn, ...]:
-    """Every randomised quantity of `chain`, in draw order: stage by stage, its R and C in
-    ``passive_names`` order, then its op-amps with finite GBW."""
+    """Every randomised quantity of `chain`, in draw order.
+
+    Parameters
+    ----------
+    chain : Chain
+
+    Returns
+    -------
+    tuple of SampleColumn
+        Stage by stage: its R and C in ``passive_names`` order, then its op-amps with
+        finite GBW (an ideal op-amp has no GBW to spread).
+    """
     cols = []
     for st in chain.stages:
         cols += [SampleColumn(st.position, e.name, e.kind, e.value)
@@ -181,11 +213,23 @@ def _factors(u: np.ndarray, tol: np.ndarray) -> np.ndarray:
 
 
 def sample_values(chain: Chain, spreads: Spreads, *, samples: int, seed: int) -> np.ndarray:
-    """The values `monte_carlo` draws for the same arguments, shape (samples, columns).
+    """The boards `monte_carlo` draws for the same chain, spreads, samples and seed.
 
-    Columns as ``sample_columns(chain)``: ohms, farads, and GBW in Hz. For writing the same
-    boards elsewhere (a SPICE run) and for tests; the Monte Carlo itself never holds every
-    sample at once.
+    Parameters
+    ----------
+    chain : Chain
+    spreads : Spreads
+    samples, seed : int
+
+    Returns
+    -------
+    ndarray of float, shape (samples, columns)
+        Columns as ``sample_columns(chain)``: ohms, farads, and GBW in Hz.
+
+    Notes
+    -----
+    For writing the same boards elsewhere (a SPICE run) and for tests; the Monte Carlo
+    itself draws chunk by chunk in the same order and never holds every board at once.
     """
     cols = sample_columns(chain)
     rng = np.random.default_rng(seed)
@@ -759,8 +803,20 @@ def tighter_offer(chain: Chain, requirement: Requirement, result: YieldResult, *
 
 def plan_yield(chain: Chain, requirement: Requirement, *, progress: Progress | None = None
                ) -> YieldResult:
-    """``monte_carlo`` at the requirement's tolerances, plus ``tighter_offer`` when the yield
-    is below the target."""
+    """The yield the planner reports.
+
+    Parameters
+    ----------
+    chain : Chain
+    requirement : Requirement
+    progress : callable(done, total), optional
+
+    Returns
+    -------
+    YieldResult
+        ``monte_carlo`` at the requirement's tolerances, its `offer` set by
+        ``tighter_offer`` when the yield is below `tolerance.min_yield`.
+    """
     result = monte_carlo(chain, requirement, progress=progress)
     offer = tighter_offer(chain, requirement, result, progress=progress)
     return result if offer is None else replace(result, offer=offer)

@@ -173,7 +173,17 @@ def stage_sensitivity(stage: Stage, *, log_step: float = _LOG_STEP) -> StageSens
 
 
 def chain_sensitivities(chain: Chain) -> tuple[StageSensitivity, ...]:
-    """``stage_sensitivity`` of every stage of `chain`, in chain order."""
+    """Sensitivities of every stage.
+
+    Parameters
+    ----------
+    chain : Chain
+
+    Returns
+    -------
+    tuple of StageSensitivity
+        ``stage_sensitivity`` of each stage, in chain order.
+    """
     return tuple(stage_sensitivity(st) for st in chain.stages)
 
 
