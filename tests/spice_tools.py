@@ -18,7 +18,7 @@ import numpy as np
 from ngspice_runner import WRDATA_SETUP, read_wrdata, run_ngspice
 
 __all__ = ["NgspiceNoise", "with_control", "run_ngspice_ac", "run_ngspice_noise",
-           "run_ngspice_op"]
+           "run_ngspice_op", "run_ngspice_ac_points", "run_ngspice_ac_lin"]
 
 _PRINTED = re.compile(r"^\s*(\S+)\s*=\s*([-+0-9.eE]+)\s*$", re.MULTILINE)
 
@@ -81,3 +81,36 @@ def run_ngspice_op(deck: str, tmp_path: Path) -> dict[str, float]:
     """DC operating point: every vector ``print all`` shows (node voltages, branch currents)."""
     stdout = run_ngspice(with_control(deck, ["op", "print all"]), tmp_path, name="op.cir")
     return {name: float(value) for name, value in _PRINTED.findall(stdout)}
+
+
+def run_ngspice_ac_points(deck: str, freq_hz: Sequence[float], nets: Sequence[str],
+                          tmp_path: Path) -> dict[str, np.ndarray]:
+    """AC analysis at exactly the frequencies `freq_hz`: {"frequency": Hz, net: complex V}.
+
+    ngspice's ``.ac`` sweeps take no list of frequencies, so every frequency is its own
+    one-point sweep ``ac lin 1 f f`` (a new plot each), written to its own file. Frequencies
+    are written as their Python repr, which reads back as the same float.
+    """
+    probes = " ".join(f"v({n})" for n in nets)
+    freqs = [float(f) for f in freq_hz]
+    commands = [WRDATA_SETUP]
+    for k, f in enumerate(freqs):
+        commands += [f"ac lin 1 {f!r} {f!r}", f"wrdata point{k}.txt {probes}"]
+    run_ngspice(with_control(deck, commands), tmp_path, name="ac_points.cir")
+    rows = [read_wrdata(Path(tmp_path) / f"point{k}.txt") for k in range(len(freqs))]
+    return {"frequency": np.array([r["frequency"].real[0] for r in rows]),
+            **{n: np.array([complex(r[f"v({n})"][0]) for r in rows]) for n in nets}}
+
+
+def run_ngspice_ac_lin(deck: str, freq_hz_start: float, freq_hz_stop: float, points: int,
+                       nets: Sequence[str], tmp_path: Path) -> dict[str, np.ndarray]:
+    """AC analysis on a linear sweep of `points` frequencies: {"frequency": Hz, net: V}."""
+    probes = " ".join(f"v({n})" for n in nets)
+    start, stop = float(freq_hz_start), float(freq_hz_stop)  # a numpy scalar's repr is no number
+    text = with_control(deck, [WRDATA_SETUP,
+                               f"ac lin {int(points)} {start!r} {stop!r}",
+                               f"wrdata aclin.txt {probes}"])
+    run_ngspice(text, tmp_path, name="ac_lin.cir")
+    data = read_wrdata(Path(tmp_path) / "aclin.txt")
+    return {"frequency": data["frequency"].real,
+            **{n: np.asarray(data[f"v({n})"], dtype=complex) for n in nets}}
