@@ -7,7 +7,9 @@ import csv
 import io
 from typing import Any
 
+from bandwright.analysis.montecarlo import resolve_spreads
 from bandwright.chain.graph import Chain, flatten
+from bandwright.parts.catalogue import ARCHETYPES
 from bandwright.parts.eseries import is_member
 from bandwright.parts.notation import format_value
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
@@ -29,6 +31,8 @@ def _toml_value(v: Any) -> str:
 
 def _amplifier_lines(model, header: str) -> list[str]:
     lines = [header, f"# op-amp model '{model.name}', every figure written out"]
+    if model.name in ARCHETYPES:
+        lines.append(f"archetype = {_toml_value(model.name)}")
     lines += [f"{k} = {_toml_value(float(getattr(model, k)))}" for k in _AMP_KEYS]
     return lines
 
@@ -61,6 +65,15 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
         if req.noise.max_output_vrms:
             out.append(f"max_output_vrms = {req.noise.max_output_vrms!r}")
         out.append("")
+    tol = getattr(req, "tolerance", None)
+    if tol is not None:
+        spreads = resolve_spreads(req)
+        out += ["[tolerance]", "# the plan's production spreads, written out for the audit's yield",
+                f"resistor_pct = {spreads.resistor_pct!r}",
+                f"capacitor_pct = {spreads.capacitor_pct!r}",
+                f"distribution = {_toml_value(spreads.distribution)}",
+                f"gbw_spread_pct = {spreads.gbw_spread_pct!r}", f"samples = {tol.samples}",
+                f"seed = {tol.seed}", f"min_yield = {tol.min_yield!r}", ""]
     for st in chain.stages:
         out += ["[[stage]]", f"topology = {_toml_value(st.topology)}",
                 "parts = { " + ", ".join(f"{n} = {_toml_value(format_value(v, significant=6))}"
