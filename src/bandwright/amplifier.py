@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import difflib
+
 from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.errors import SpecError
 from bandwright.parts.catalogue import ARCHETYPES, make_opamp
@@ -18,7 +20,9 @@ def resolve_amplifier(choice: AmplifierChoice, *, path: str, key: str = "amplifi
     try:
         model = make_opamp(archetype=choice.archetype, overrides=dict(choice.overrides))
     except KeyError:
-        raise SpecError(path, f"{key}.archetype", "unknown op-amp archetype; known: "
+        close = difflib.get_close_matches(str(choice.archetype), list(ARCHETYPES), n=1)
+        hint = f"did you mean '{close[0]}'? known: " if close else "known: "
+        raise SpecError(path, f"{key}.archetype", "unknown op-amp archetype; " + hint
                         + ", ".join(ARCHETYPES), value=choice.archetype) from None
     except ValueError as exc:
         raise SpecError(path, key, str(exc)) from None

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import re
 from dataclasses import dataclass, replace
 from pathlib import Path
 
@@ -32,6 +33,21 @@ AUDIT_TABLES = ("passband", "stopband", "stage", "input", "supply", "amplifier",
 # Values outside these are typing errors, not parts (1 mΩ … 1 TΩ, 1 fF … 1 F).
 _R_RANGE = (1e-3, 1e12)
 _C_RANGE = (1e-15, 1.0)
+# A unit written on a part value: ohms, or farads ("F", or "f" after a prefix: "10uf"; a
+# lowercase "f" right after a digit is femto, see parts.notation).
+_OHMS_UNIT = re.compile(r"(?:(?i:ohms?)|[\u03a9\u2126])\s*$")
+_FARAD_UNIT = re.compile(r"(?:F|(?<=[^\d\s.])f)\s*$")
+
+
+def _unit_clash(name: str, raw) -> str:
+    """Why a resistor written in farads (or a capacitor in ohms) is refused; "" if fine."""
+    if not isinstance(raw, str):
+        return ""
+    if name.startswith("R") and _FARAD_UNIT.search(raw):
+        return f"{name} is a resistor, but the value is in farads"
+    if name.startswith("C") and _OHMS_UNIT.search(raw):
+        return f"{name} is a capacitor, but the value is in ohms"
+    return ""
 
 
 @dataclass(frozen=True)
@@ -76,6 +92,9 @@ def _stage_parts(path: str, key: str, topo, table) -> dict[str, float]:
     out = {}
     for name, raw in table.items():
         k = f"{key}.{name}"
+        clash = _unit_clash(name, raw)
+        if clash:
+            raise SpecError(path, k, clash, value=raw)
         try:
             v = parse_value(raw)
         except (ValueError, TypeError) as exc:

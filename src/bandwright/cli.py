@@ -17,6 +17,7 @@ from bandwright import __version__
 from bandwright.checks.base import worst_status
 from bandwright.errors import SpecError
 from bandwright.report.outdir import OutDirRefused, check_out_dir, write_out_dir
+from bandwright.spec.reader import with_line
 from bandwright.types import FAMILIES
 
 __all__ = ["main", "build_parser"]
@@ -59,7 +60,7 @@ def main(argv: list[str] | None = None) -> int:
             check_out_dir(args.out, force=args.force)
         return _run_plan(args) if args.command == "plan" else _run_audit(args)
     except SpecError as exc:
-        err.print(f"bandwright: {exc}", markup=False)
+        err.print(f"bandwright: {with_line(exc)}", markup=False)
         return 2
     except OutDirRefused as exc:
         err.print(f"bandwright: {exc}", markup=False)

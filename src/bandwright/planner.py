@@ -9,6 +9,7 @@ from typing import Callable
 
 import numpy as np
 
+from bandwright.advice import too_many_sections, with_headroom_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
@@ -17,7 +18,7 @@ from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.stage import with_parts
 from bandwright.chain.trim import passband_score, trim_stage
-from bandwright.chain.ordering import Ordering, choose_order, make_problem
+from bandwright.chain.ordering import MAX_SECTIONS, Ordering, choose_order, make_problem
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
 from bandwright.checks.yield_check import yield_checks
@@ -237,6 +238,11 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
                  windows: PartWindows = PartWindows()) -> Design:
     """Order, scale, assign and analyse one candidate."""
     secs = cand.sections
+    if len(secs) > MAX_SECTIONS:
+        # The ordering search tabulates every subset of sections: beyond its limit the
+        # candidate is reported as infeasible, with the order that would work.
+        return Design(candidate=cand, ordering=None, assignments=(), chain=None,
+                      analyses=None, checks=(too_many_sections(cand, req),))
     # Noise of each section as first assigned (equal gain split): the ordering's model.
     first = [_assign_with_backoff(s, s.gain, model, req, windows, rounded=False)[0]
              for s in secs]
@@ -292,7 +298,8 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
             assignments.insert(0, buf)
     chain = _trim_gain(assignments, req, model, windows)
     an = analyse(chain, req)
-    checks = tuple(all_checks(chain, an, req, windows=windows))
+    checks = with_headroom_advice(tuple(all_checks(chain, an, req, windows=windows)),
+                                  an.nodes, req)
     return Design(candidate=cand, ordering=ordering, assignments=tuple(assignments),
                   chain=chain, analyses=an, checks=checks)
 

@@ -15,7 +15,8 @@ from bandwright.spec.requirement import (
 from bandwright.types import FAMILIES
 
 __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "read_passband",
-           "read_stop",
+           "read_stop", "FREQ_RANGE_HZ", "MIN_FRACTIONAL_BANDWIDTH", "MAX_VOLTS",
+           "AMPLIFIER_RANGES",
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
            "DISTRIBUTIONS"]
 
@@ -30,6 +31,28 @@ DISTRIBUTIONS = ("uniform", "gaussian")
 _MAX_TOLERANCE_PCT = 50.0
 _MAX_SAMPLES = 1_000_000
 HALF_POWER_DB = 10 * math.log10(2)
+# Plausibility ranges: a value beyond them is a typing error, not a design (an active RC
+# filter outside 1 mHz … 10 GHz, or a band narrower than a millionth of its centre, is no
+# circuit anyone builds; the maths would only overflow). docs/requirement.md lists them.
+FREQ_RANGE_HZ = (1e-3, 1e10)
+MIN_FRACTIONAL_BANDWIDTH = 1e-6
+MAX_VOLTS = 1e3
+_MAX_OHMS = 1e12
+# (low, high) of each op-amp figure; the single-pole model needs A0 well above 1.
+AMPLIFIER_RANGES = {"gbw_hz": (1.0, 1e11), "dc_gain_db": (20.0, 200.0),
+                    "slew_v_per_us": (1e-6, 1e6), "swing_to_rail_v": (0.0, 100.0),
+                    "noise_v_per_rthz": (0.0, 1e-3), "noise_a_per_rthz": (0.0, 1e-6),
+                    "noise_corner_hz": (0.0, 1e9), "min_load_ohms": (1e-3, 1e12)}
+_F_LO, _F_HI = FREQ_RANGE_HZ
+
+
+def _freq(t: TableReader, name: str, default: float | None = None, *,
+          required: bool = False) -> float | None:
+    """A frequency inside FREQ_RANGE_HZ."""
+    v = t.number(name, default, required=required, positive=True)
+    if v is not None and not _F_LO <= v <= _F_HI:
+        raise t.error(name, f"outside {_F_LO:g} … {_F_HI:g} Hz, the range this tool plans for")
+    return v
 
 
 def load_spec(path: str | Path) -> Requirement:
@@ -74,13 +97,17 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
     tones = []
     for i, t in enumerate(inp.tables("tone")):
         tr = TableReader(path, f"input.tone[{i}]", t, ("freq_hz", "vpk"))
-        tones.append(Tone(freq_hz=tr.number("freq_hz", required=True, positive=True),
-                          vpk=tr.number("vpk", required=True, nonnegative=True)))
-    input_signal = InputSignal(max_vpk=inp.number("max_vpk", 1.0, nonnegative=True),
-                               source_ohms=inp.number("source_ohms", 0.0, nonnegative=True),
+        tones.append(Tone(freq_hz=_freq(tr, "freq_hz", required=True),
+                          vpk=tr.number("vpk", required=True, nonnegative=True,
+                                        high=MAX_VOLTS)))
+    # A zero input leaves nothing to scale the chain for (every margin would be infinite).
+    input_signal = InputSignal(max_vpk=inp.number("max_vpk", 1.0, positive=True,
+                                                  high=MAX_VOLTS),
+                               source_ohms=inp.number("source_ohms", 0.0, nonnegative=True,
+                                                      high=_MAX_OHMS),
                                tones=tuple(tones))
     sup = TableReader(path, "supply", doc.get("supply", {}), ("rails_v",))
-    rails = sup.pair("rails_v") or (-5.0, 5.0)
+    rails = sup.pair("rails_v", low=-MAX_VOLTS, high=MAX_VOLTS) or (-5.0, 5.0)
     if not rails[0] < rails[1]:
         raise sup.error("rails_v", "rails reversed: expected [negative, positive]")
     if not rails[0] < 0 < rails[1]:
@@ -89,7 +116,7 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
                         "mid-supply reference, e.g. [-2.5, 2.5])")
     env = TableReader(path, "environment", doc.get("environment", {}), ("temperature_c",))
     noi = TableReader(path, "noise", doc.get("noise", {}), ("band_hz", "max_output_vrms"))
-    band = noi.pair("band_hz", positive=True)
+    band = noi.pair("band_hz", positive=True, low=_F_LO, high=_F_HI)
     if band is not None and not band[0] < band[1]:
         raise noi.error("band_hz", "expected [low, high] with low < high")
     return {
@@ -99,7 +126,8 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
         "environment": Environment(
             temperature_c=env.number("temperature_c", 25.0, low=-273.15, high=300.0)),
         "noise": NoiseBudget(band_hz=band,
-                             max_output_vrms=noi.number("max_output_vrms", None, positive=True)),
+                             max_output_vrms=noi.number("max_output_vrms", None, positive=True,
+                                                        high=MAX_VOLTS)),
     }
 
 
@@ -112,6 +140,9 @@ def read_amplifier(path: str, prefix: str, table: Any) -> AmplifierChoice:
             value = amp.number(key, nonnegative=True)
             if key in ("gbw_hz", "slew_v_per_us", "dc_gain_db") and not value > 0:
                 raise amp.error(key, "must be > 0")
+            lo, hi = AMPLIFIER_RANGES[key]
+            if not lo <= value <= hi:
+                raise amp.error(key, f"outside {lo:g} … {hi:g}, the range of an op-amp model")
             overrides.append((key, value))
     return AmplifierChoice(archetype=amp.string("archetype"), overrides=tuple(overrides))
 
@@ -123,19 +154,27 @@ def read_passband(pb: TableReader) -> Passband:
         raise SpecError(pb.path, "passband", "give either center_hz + bandwidth_hz or "
                         "low_hz + high_hz, not both")
     if by_edges:
-        low = pb.number("low_hz", required=True, positive=True)
-        high = pb.number("high_hz", required=True, positive=True)
+        low = _freq(pb, "low_hz", required=True)
+        high = _freq(pb, "high_hz", required=True)
         if not low < high:
             raise pb.error("high_hz", f"must be above passband.low_hz = {low:g}")
     elif by_centre:
-        f0 = pb.number("center_hz", required=True, positive=True)
-        bw = pb.number("bandwidth_hz", required=True, positive=True)
+        f0 = _freq(pb, "center_hz", required=True)
+        bw = pb.number("bandwidth_hz", required=True, positive=True, high=_F_HI)
         # Geometric centre: low * high = f0^2 and high - low = bw.
         low = (math.sqrt(bw * bw + 4 * f0 * f0) - bw) / 2
         high = low + bw
     else:
         raise SpecError(pb.path, "passband", "missing band: give center_hz + bandwidth_hz, or "
                         "low_hz + high_hz")
+    if (high - low) / math.sqrt(low * high) < MIN_FRACTIONAL_BANDWIDTH:
+        name = "high_hz" if by_edges else "bandwidth_hz"
+        raise pb.error(name, f"the band is narrower than {MIN_FRACTIONAL_BANDWIDTH:g} of its "
+                       f"centre (Q above {1 / MIN_FRACTIONAL_BANDWIDTH:g}): no active filter "
+                       f"holds that")
+    if not (_F_LO <= low and high <= _F_HI):
+        raise pb.error("bandwidth_hz", f"the band [{low:g}, {high:g}] Hz leaves {_F_LO:g} … "
+                       f"{_F_HI:g} Hz, the range this tool plans for")
     max_loss = pb.number("max_loss_db", HALF_POWER_DB, positive=True, high=40.0)
     gain_db = pb.number("gain_db", 0.0, low=-60.0, high=120.0)
     gain_tol = pb.number("gain_tolerance_db", 0.5, positive=True, high=20.0)
@@ -145,7 +184,7 @@ def read_passband(pb: TableReader) -> Passband:
 
 def read_stop(path: str, i: int, table: Any, passband: Passband) -> StopbandPoint:
     st = TableReader(path, f"stopband[{i}]", table, ("freq_hz", "min_loss_db"))
-    f = st.number("freq_hz", required=True, positive=True)
+    f = _freq(st, "freq_hz", required=True)
     a = st.number("min_loss_db", required=True, positive=True, high=300.0)
     if passband.low_hz <= f <= passband.high_hz:
         raise st.error("freq_hz", f"lies inside the passband [{passband.low_hz:g}, "
@@ -175,6 +214,11 @@ def read_tolerance(t: TableReader) -> Tolerance:
     the design's series (``parts.tolerance``).
     """
     base = Tolerance()
+    dist = t.table.get("distribution")
+    if isinstance(dist, str) and dist.lower() in ("normal", "gauss"):
+        # difflib would offer "uniform" for "normal": name the distribution meant.
+        raise t.error("distribution", "must be one of uniform, gaussian; did you mean "
+                      "'gaussian' (the normal distribution)?")
     min_yield = t.number("min_yield", base.min_yield)
     if not 0 < min_yield <= 1:
         raise t.error("min_yield", "must be > 0 and <= 1 (a share, e.g. 0.95)")

@@ -14,7 +14,7 @@ from typing import Any, Iterable
 
 from bandwright.errors import SpecError
 
-__all__ = ["read_toml", "TableReader", "number_hint"]
+__all__ = ["read_toml", "TableReader", "number_hint", "key_lines", "with_line"]
 
 _LINE = re.compile(r"\(at line (\d+), column \d+\)")
 _PREFIX = {"p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "m": 1e-3, "": 1.0, "k": 1e3, "K": 1e3,
@@ -32,8 +32,10 @@ def read_toml(path: str | Path) -> dict[str, Any]:
         raise SpecError(str(path), "", f"cannot read file: {exc.strerror or exc}") from None
     try:
         return tomllib.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise SpecError(str(path), "", "not a UTF-8 text file") from None
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        raise SpecError(str(path), "", f"not a UTF-8 text file (byte {raw[exc.start]:#04x})",
+                        line=line) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = _LINE.search(msg)
@@ -53,6 +55,81 @@ def number_hint(text: str) -> str:
     return f" (did you mean {value:g}?)"
 
 
+_HEADER = re.compile(r"^\s*(\[\[?)\s*([A-Za-z0-9_\-.\"' ]+?)\s*\]\]?\s*(?:#.*)?$")
+_ASSIGN = re.compile(r"^\s*((?:[A-Za-z0-9_-]+|\"[^\"]*\"|'[^']*')"
+                     r"(?:\s*\.\s*(?:[A-Za-z0-9_-]+|\"[^\"]*\"|'[^']*'))*)\s*=(.*)$")
+_INLINE_KEY = re.compile(r"(?:^|[{,])\s*([A-Za-z0-9_-]+)\s*=")
+_INDEX = re.compile(r"\[\d+\]$")
+
+
+def _dotted(name: str) -> list[str]:
+    return [part.strip().strip("\"'") for part in name.split(".")]
+
+
+def key_lines(text: str) -> dict[str, int]:
+    """Map each dotted key of a TOML text, as the readers name them (``stage[1].parts.R3``),
+    to the 1-based line that sets it; tables map to their header line.
+
+    A line scanner, not a parser: it runs only after `tomllib` accepted the text, and serves
+    only to point an error message at a line. Keys inside multi-line strings may be
+    mistaken for assignments; deeper inline tables are not followed.
+    """
+    lines: dict[str, int] = {}
+    counts: dict[str, int] = {}
+    current = ""
+
+    def resolve(parts: list[str]) -> str:
+        # A header's leading parts refer to the latest element of an array of tables.
+        path = ""
+        for part in parts:
+            path = f"{path}.{part}" if path else part
+            if path in counts:
+                path += f"[{counts[path] - 1}]"
+        return path
+
+    for number, raw in enumerate(text.splitlines(), start=1):
+        m = _HEADER.match(raw)
+        if m and not _ASSIGN.match(raw):
+            parts = _dotted(m.group(2))
+            if m.group(1) == "[[":
+                parent = resolve(parts[:-1])
+                base = f"{parent}.{parts[-1]}" if parent else parts[-1]
+                lines.setdefault(base, number)
+                counts[base] = counts.get(base, 0) + 1
+                current = f"{base}[{counts[base] - 1}]"
+            else:
+                current = resolve(parts)
+            lines.setdefault(current, number)
+            continue
+        m = _ASSIGN.match(raw)
+        if not m:
+            continue
+        full = ".".join(([current] if current else []) + _dotted(m.group(1)))
+        lines.setdefault(full, number)
+        value = m.group(2).strip()
+        if value.startswith("{"):
+            for inner in _INLINE_KEY.findall(value):
+                lines.setdefault(f"{full}.{inner}", number)
+    return lines
+
+
+def with_line(exc: SpecError) -> SpecError:
+    """`exc` with the line of its key in its file, when the file names the key (or, for a
+    missing key, the table that lacks it); `exc` itself otherwise."""
+    if exc.line is not None or not exc.key:
+        return exc
+    try:
+        found = key_lines(Path(exc.path).read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError):
+        return exc
+    key = exc.key
+    while key:
+        if key in found:
+            return SpecError(exc.path, exc.key, exc.detail, value=exc.value, line=found[key])
+        key = _INDEX.sub("", key) if _INDEX.search(key) else key.rpartition(".")[0]
+    return exc
+
+
 class TableReader:
     """Reads one TOML table at dotted `prefix`, tracking which keys were used."""
 
@@ -65,7 +142,8 @@ class TableReader:
         self.allowed = tuple(allowed)
         for key in table:
             if key not in self.allowed:
-                close = difflib.get_close_matches(key, self.allowed, n=1, cutoff=0.5)
+                # 0.6: "gbw" still finds "gbw_hz", "filter" no longer finds "amplifier".
+                close = difflib.get_close_matches(key, self.allowed, n=1, cutoff=0.6)
                 hint = f"; did you mean '{close[0]}'?" if close else \
                     f"; allowed: {', '.join(self.allowed)}"
                 raise SpecError(path, self.key(key), "unknown key" + hint)
@@ -140,15 +218,18 @@ class TableReader:
             v = folded[v.lower()]
         return v
 
-    def pair(self, name: str, *, positive: bool = False) -> tuple[float, float] | None:
-        """A two-number array."""
+    def pair(self, name: str, *, positive: bool = False, low: float | None = None,
+             high: float | None = None) -> tuple[float, float] | None:
+        """A two-number array, each number within the bounds."""
         if name not in self.table:
             return None
         v = self.table[name]
         if not isinstance(v, list) or len(v) != 2:
             raise self.error(name, "expected an array of two numbers")
-        return (self._check_number(self.key(name) + "[0]", v[0], positive=positive),
-                self._check_number(self.key(name) + "[1]", v[1], positive=positive))
+        return (self._check_number(self.key(name) + "[0]", v[0], positive=positive, low=low,
+                                   high=high),
+                self._check_number(self.key(name) + "[1]", v[1], positive=positive, low=low,
+                                   high=high))
 
     def tables(self, name: str) -> list[Any]:
         """An array of tables (``[[name]]``); missing means empty."""

@@ -1,0 +1,192 @@
+"""What would work instead: the figures behind an infeasible requirement and the nearest
+requirement the tool can meet, attached to the failing checks of a plan.
+
+Two cases live here (the third, a section no topology builds with the op-amp given, is
+answered in ``planner._nearest_fix`` with a faster op-amp class):
+
+* more sections than the planner orders and scales (``chain.ordering.MAX_SECTIONS``), or
+  a stopband that needs an order above ``candidates.MAX_ORDER``: which order the mask
+  needs, the most the tool builds, and what that order reaches at the deciding stopband
+  point (or where that point would have to move);
+* a chain that clips: node peaks scale with the chain's gain, so the largest gain that fits
+  is the asked gain plus the worst headroom margin.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import numpy as np
+
+from bandwright.candidates import MAX_ORDER, Candidate
+from bandwright.chain.ordering import MAX_SECTIONS
+from bandwright.checks.base import Check
+from bandwright.prototype import bandpass_omega, order_for_point
+from bandwright.spec.requirement import Requirement
+
+__all__ = ["MAX_BUILT_ORDER", "prototype_loss_db", "omega_for_loss", "frequency_of_omega",
+           "too_many_sections", "with_headroom_advice"]
+
+# The bandpass path has one section per prototype order: the section limit of the ordering
+# search caps it below MAX_ORDER.
+MAX_BUILT_ORDER = min(MAX_ORDER, MAX_SECTIONS)
+
+
+def _eps2(ripple_db: float) -> float:
+    return math.expm1(ripple_db * math.log(10) / 10)
+
+
+def prototype_loss_db(family: str, order: int, ripple_db: float, omega: float) -> float:
+    """Loss of a lowpass prototype at normalised frequency `omega` (> 1).
+
+    Parameters
+    ----------
+    family : {"butterworth", "chebyshev"}
+    order : int
+    ripple_db : float
+        Loss at Ω = 1 (Chebyshev ripple or Butterworth edge loss), dB.
+    omega : float
+        Normalised frequency, Ω > 1.
+
+    Returns
+    -------
+    float
+        Loss in dB.
+
+    Notes
+    -----
+    Butterworth: A = 10 log10(1 + ε² Ω^(2N)); Chebyshev I: A = 10 log10(1 + ε² cosh²(N acosh Ω)),
+    ε² = 10^(Amax/10) − 1 (Williams & Taylor 2006, §2 [mem]; the inverse of the order formulas
+    in references.md, "Mask → order"). Computed in logs so that high orders do not overflow.
+    """
+    e2 = _eps2(ripple_db)
+    if family == "butterworth":
+        log_term = math.log(e2) + 2 * order * math.log(omega)
+    else:
+        # cosh(x) = e^x (1 + e^-2x) / 2, so log cosh²(x) = 2x + 2 log1p(e^-2x) - 2 log 2.
+        x = order * math.acosh(omega)
+        log_term = math.log(e2) + 2 * x + 2 * math.log1p(math.exp(-2 * x)) - 2 * math.log(2)
+    # 10 log10(1 + e^t), stable for large t.
+    return 10 / math.log(10) * (max(log_term, 0.0) + math.log1p(math.exp(-abs(log_term))))
+
+
+def omega_for_loss(family: str, order: int, ripple_db: float, loss_db: float) -> float:
+    """The Ω at which a prototype of `order` first loses `loss_db` (inverse of
+    `prototype_loss_db`; same source)."""
+    ratio = _eps2(loss_db) / _eps2(ripple_db)
+    if family == "butterworth":
+        return ratio ** (1.0 / (2 * order))
+    return math.cosh(math.acosh(math.sqrt(ratio)) / order)
+
+
+def frequency_of_omega(omega: float, center_hz: float, bandwidth_hz: float, *,
+                       upper: bool) -> float:
+    """The bandpass frequency on one side of the band that maps to `omega`.
+
+    Notes
+    -----
+    Solves Ω = (f² − f0²)/(f·BW) for f > f0: f = (Ω·BW + √((Ω·BW)² + 4 f0²)) / 2; the lower
+    side is f0²/f (references.md, "Mask → order").
+    """
+    x = omega * bandwidth_hz
+    f_up = (x + math.sqrt(x * x + 4 * center_hz * center_hz)) / 2
+    return f_up if upper else center_hz * center_hz / f_up
+
+
+def _needed_order(cand: Candidate, req: Requirement) -> tuple[int, int] | None:
+    """(order the stopband asks of the bandpass prototype, index of the deciding point)."""
+    if cand.path != "bandpass" or not req.stopband:
+        return None
+    pb = req.passband
+    omegas = bandpass_omega([p.freq_hz for p in req.stopband], pb.center_hz, pb.bandwidth_hz)
+    orders = [order_for_point(cand.family, float(w), cand.ripple_db, p.min_loss_db)
+              for w, p in zip(omegas, req.stopband)]
+    k = int(np.argmax(orders))
+    return orders[k], k
+
+
+def too_many_sections(cand: Candidate, req: Requirement) -> Check:
+    """The failing check of a candidate with more sections than the planner can order.
+
+    Says which order the mask needs, the most the tool builds, and for the bandpass path
+    what order `MAX_BUILT_ORDER` reaches at the deciding stopband point and how far out
+    that point would have to move.
+    """
+    n = len(cand.sections)
+    head = (f"{n} sections ({cand.family} {cand.path}, order {cand.order}): the planner orders "
+            f"and scales at most {MAX_SECTIONS}")
+    need = _needed_order(cand, req)
+    if need is None or cand.note.startswith("order given"):
+        tail = (f"; ask for order {MAX_BUILT_ORDER} or less"
+                if cand.path == "bandpass" or cand.note.startswith("order given")
+                else f"; {cand.note.split(';')[0]}: relax the stopband points that set it")
+        return Check(id="order", status="fail", value=float(n), limit=float(MAX_SECTIONS),
+                     unit="sections", message=head + tail)
+    order, k = need
+    p = req.stopband[k]
+    pb = req.passband
+    cap = f"{MAX_ORDER} is the most this tool accepts" if order > MAX_ORDER else \
+        f"the tool accepts up to {MAX_ORDER}"
+    omega = float(bandpass_omega(p.freq_hz, pb.center_hz, pb.bandwidth_hz))
+    reach = prototype_loss_db(cand.family, MAX_BUILT_ORDER, cand.ripple_db, omega)
+    f_ok = frequency_of_omega(omega_for_loss(cand.family, MAX_BUILT_ORDER, cand.ripple_db,
+                                             p.min_loss_db),
+                              pb.center_hz, pb.bandwidth_hz, upper=p.freq_hz > pb.center_hz)
+    msg = (f"the stopband needs a {cand.family} order of {order} ({p.min_loss_db:g} dB at "
+           f"{p.freq_hz:.6g} Hz, Ω = {omega:.4g}); {cap} and builds at most {MAX_BUILT_ORDER} "
+           f"on the bandpass path ({MAX_SECTIONS} sections): order {MAX_BUILT_ORDER} gives "
+           f"{reach:.1f} dB there — ask for no more at {p.freq_hz:.6g} Hz, or move the point "
+           f"out to {f_ok:.6g} Hz")
+    return Check(id="order", status="fail", value=float(order), limit=float(MAX_BUILT_ORDER),
+                 unit="order", message=msg)
+
+
+def with_headroom_advice(checks: tuple[Check, ...], nodes, req: Requirement
+                         ) -> tuple[Check, ...]:
+    """Add the largest gain that fits to the worst failing headroom check.
+
+    Parameters
+    ----------
+    checks : tuple of Check
+    nodes : sequence of analysis.levels.NodeLevel
+    req : Requirement
+
+    Returns
+    -------
+    tuple of Check
+        `checks`, with the worst clipping net's message extended.
+
+    Notes
+    -----
+    Every node peak (in-band signal and tones alike) is proportional to the chain's gain
+    when the sections and their order stay as they are, so the gain that brings the worst
+    node to its limit is gain_db + min margin_db (equal-maxima scaling, Schaumann & Van
+    Valkenburg 2001, ch. 6 [mem]). Part rounding moves it by a fraction of a dB: "about".
+    """
+    clipping = [n for n in nodes if math.isfinite(n.margin_db) and n.margin_db < 0]
+    if not clipping:
+        return checks
+    worst = min(clipping, key=lambda n: n.margin_db)
+    pb, inp = req.passband, req.input
+    best_db = pb.gain_db + worst.margin_db
+    tones = " and the tones" if inp.tones else ""
+    if best_db < -60.0:
+        advice = (f"; no gain the requirement allows fits (it would take {best_db:.1f} dB): "
+                  f"lower input.max_vpk{tones}, or widen the rails")
+    else:
+        advice = (f"; about {best_db:.1f} dB of gain at most fits the ±{worst.limit_vpk:.3g} V "
+                  f"swing on {req.supply.rails_v[0]:g}/{req.supply.rails_v[1]:+g} V rails "
+                  f"with {_volts(inp.max_vpk)} in{tones} (asked: {pb.gain_db:g} dB)")
+    out = []
+    done = False
+    for c in checks:
+        if not done and c.id == "headroom" and c.status == "fail" and c.net == worst.net:
+            c = replace(c, message=c.message + advice)
+            done = True
+        out.append(c)
+    return tuple(out)
+
+
+def _volts(v: float) -> str:
+    return f"{v * 1e3:.3g} mV" if v < 1 else f"{v:.3g} V"
