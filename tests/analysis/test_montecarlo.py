@@ -124,7 +124,7 @@ def test_wilson_interval_matches_scipy(k, n):
 def test_result_figures_are_consistent(mixed):
     chain, req = mixed
     r = monte_carlo(chain, req, samples=400, seed=3)
-    assert r.nominal_passes
+    assert r.nominal_passes and r.nominal_margin_db > 0
     assert r.yield_fraction == pytest.approx(np.mean(r.passed))
     np.testing.assert_array_equal(r.passed, r.mask_ok & r.headroom_ok)
     assert r.fail_counts["headroom"] == np.count_nonzero(~r.headroom_ok)
@@ -172,6 +172,7 @@ def test_no_offer_when_the_nominal_chain_fails():
     req = requirement_around(chain, loss_margin_db=-0.2, tolerance={"samples": 100})
     r = plan_yield(chain, req)
     assert not r.nominal_passes and r.offer is None
+    assert r.nominal_margin_db == pytest.approx(-0.2, abs=1e-6)   # loss 0.2 dB over the mask
 
 
 def test_twenty_thousand_samples_stay_in_bounded_memory():

@@ -319,6 +319,9 @@ class YieldResult:
     sensitivities : tuple of StageSensitivity
     offer : Offer or None
         Set by ``plan_yield`` when the yield is below `min_yield`.
+    nominal_margin_db : float
+        How far the nominal board stays inside the requirement: minus its worst excess, dB
+        (negative when it fails). A margin near 0 dB means about half of any spread fails.
     """
 
     samples: int
@@ -338,6 +341,7 @@ class YieldResult:
     explained: float
     sensitivities: tuple[StageSensitivity, ...] = ()
     offer: Offer | None = None
+    nominal_margin_db: float = math.nan
 
     @property
     def meets_target(self) -> bool:
@@ -639,7 +643,7 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
     kept = 0
     done = 0
     chunks = _chunks(samples)
-    nominal_ok = True
+    nominal_ok, nominal_margin = True, math.nan
     for ci, n in enumerate(chunks):
         u = _draw(rng, n, len(cols), spreads.distribution)
         if ci == 0:
@@ -654,6 +658,7 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
         first = 1 if ci == 0 else 0
         if ci == 0:
             nominal_ok = bool(v["excess"][0] <= _SLACK_DB)
+            nominal_margin = float(-v["excess"][0])
         v = {k: x[first:] for k, x in v.items()}
         m_ok = v["passband loss"] & v["passband gain"] & v["stopband"]
         ok = m_ok & v["headroom"]
@@ -684,7 +689,7 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
         fail_counts=fail_counts, yield_fraction=k / samples,
         interval=wilson_interval(k, samples), min_yield=float(tol_req.min_yield),
         nominal_passes=nominal_ok, freq_hz=env_f, envelope_db=env, drivers=drivers,
-        explained=explained, sensitivities=sens)
+        explained=explained, sensitivities=sens, nominal_margin_db=nominal_margin)
 
 
 def _stage_spans(chain: Chain, cols: tuple[SampleColumn, ...]) -> list[tuple[list[int], list[int]]]:
@@ -777,7 +782,8 @@ def tighter_offer(chain: Chain, requirement: Requirement, result: YieldResult, *
                      message=f"even resistors {_grade(r_min)} and capacitors {_grade(c_min)} "
                              f"give only {_fmt_yield(best.yield_fraction, best.interval)}: "
                              f"the chain itself is too sensitive or too close to the mask "
-                             f"(see the parts that decide it)")
+                             f"(nominal margin {result.nominal_margin_db:.3g} dB; see the parts "
+                             f"that decide it)")
     r, c = sp.resistor_pct, sp.capacitor_pct
     current = result
     while True:

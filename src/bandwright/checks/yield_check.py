@@ -38,7 +38,7 @@ def yield_checks(result: YieldResult) -> list[Check]:
         msg += "; the interval reaches below the target: more samples would settle it"
     if not ok:
         fails = ", ".join(f"{k} {v}" for k, v in result.fail_counts.items() if v)
-        msg += f"; failing: {fails or 'none'}"
+        msg += f"; failing: {fails or 'none'}; nominal margin {result.nominal_margin_db:.3g} dB"
         if result.drivers:
             msg += "; decided most by " + ", ".join(
                 f"{d.part} of stage {d.stage} ({100 * d.index:.0f} %)" for d in result.drivers[:3])

@@ -154,6 +154,7 @@ def yield_dict(y) -> dict[str, Any]:
         "min_yield": num(y.min_yield),
         "meets_target": bool(y.meets_target),
         "nominal_passes": bool(y.nominal_passes),
+        "nominal_margin_db": num(getattr(y, "nominal_margin_db", None)),
         "tolerance": {"resistor_pct": num(sp.resistor_pct), "capacitor_pct": num(sp.capacitor_pct),
                       "gbw_spread_pct": num(sp.gbw_spread_pct), "distribution": sp.distribution,
                       "resistor_source": sp.resistor_source,

@@ -115,7 +115,8 @@ def _yield(y, console: Console) -> None:
         f"seed {y.seed}.")
     fails = ", ".join(f"{k} {v}" for k, v in y.fail_counts.items() if v)
     if fails:
-        console.print(f"  Failing boards by reason: {fails}.")
+        console.print(f"  Failing boards by reason: {fails}; the nominal board keeps "
+                      f"{y.nominal_margin_db:.3g} dB to the requirement.")
     if y.drivers:
         console.print("  Parts that decide it (share of the worst excess they explain alone): "
                       + "; ".join(f"{p.part} of stage {p.stage} {100 * p.index:.0f} % "
