@@ -35,7 +35,8 @@ from bandwright.circuits.elements import GROUND, Element
 from bandwright.parts.notation import format_value
 from bandwright.report.terminal import fmt_hz
 
-__all__ = ["stage_svg", "block_svg", "schematic_files", "elements_svg", "Layout", "layout"]
+__all__ = ["stage_svg", "block_svg", "schematic_files", "elements_svg", "Layout", "layout",
+           "opamp_pins"]
 
 GAP = 4.4          # between adjacent buses
 ROW = 2.6          # between rows of parts
@@ -366,6 +367,26 @@ def _body_hits(segs, bodies) -> int:
                 if sy0 < y1 and y0 < sy1 or (sy0 == sy1 and y0 < sy0 < y1):
                     n += 1
     return n
+
+
+def opamp_pins(out_pt, flip: bool) -> dict:
+    """Where an op-amp placed by the layout has its pins.
+
+    Parameters
+    ----------
+    out_pt : (float, float)
+        Its output point (``Layout.opamps``).
+    flip : bool
+        True when the non-inverting input is on top.
+
+    Returns
+    -------
+    dict
+        "plus", "minus", "out" → (x, y), as schemdraw's Opamp places them.
+    """
+    x, y = out_pt
+    top, bottom = (x - OPAMP_W, y + PIN), (x - OPAMP_W, y - PIN)
+    return {"plus": top if flip else bottom, "minus": bottom if flip else top, "out": (x, y)}
 
 
 # --------------------------------------------------------------------------- drawing
