@@ -23,7 +23,7 @@ WIDEBAND_RATIO = 2.0
 MAX_ORDER = 20
 # The prototype is designed for this share of the passband loss allowed; the rest is left
 # for rounded parts and finite GBW, which the built chain's mask check then judges.
-LOSS_SHARE = 0.9
+LOSS_SHARE = 0.7
 
 Path = Literal["bandpass", "wideband"]
 

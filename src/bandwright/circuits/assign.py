@@ -8,7 +8,8 @@ import numpy as np
 
 from bandwright.circuits import topologies_of_kind
 from bandwright.circuits.base import Limits
-from bandwright.circuits.nodal import input_impedance_min
+from bandwright.circuits.elements import opamp_output_nets
+from bandwright.circuits.nodal import ac_solve, drawn_impedance, input_impedance_min
 from bandwright.circuits.realize import Realization, realize
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.notation import format_value
@@ -50,6 +51,18 @@ class Assignment:
     reason: str
     rejected: tuple[tuple[str, str], ...]
     window_notes: tuple[str, ...] = ()
+
+
+def _weakest_output(elements, freq_hz) -> tuple[str, float] | None:
+    """The op-amp output net inside a stage that sees the smallest load, and that load."""
+    sol = ac_solve(elements, np.asarray(freq_hz, dtype=float))
+    worst = None
+    for net in opamp_output_nets(elements):
+        z = drawn_impedance(elements, sol, net)
+        z = z[np.isfinite(z)]
+        if z.size and (worst is None or z.min() < worst[1]):
+            worst = (net, float(z.min()))
+    return worst
 
 
 def _rank(lim: Limits) -> tuple[float, float, float]:
@@ -104,6 +117,13 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
                                  f"{format_value(z_in, 'Ω')}, below the "
                                  f"{format_value(input_floor[1], 'Ω')} the stage before can "
                                  f"drive"))
+                continue
+        if input_floor is not None:
+            weak = _weakest_output(real.elements, input_floor[0])
+            if weak is not None and weak[1] < model.min_load_ohms:
+                rejected.append((topo.NAME, f"its own network loads {weak[0]} down to "
+                                 f"{format_value(weak[1], 'Ω')}, below the op-amp's "
+                                 f"{format_value(model.min_load_ohms, 'Ω')} minimum load"))
                 continue
         df, dq, dg = real.errors()
         if abs(df) > BUILT_F0_TOLERANCE or abs(dq) > BUILT_Q_TOLERANCE or \
