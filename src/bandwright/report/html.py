@@ -103,10 +103,11 @@ def verdict_text(checks) -> tuple[str, str]:
     status = worst_status(checks)
     fails = sum(k.status == "fail" for k in checks)
     warns = sum(k.status == "warn" for k in checks)
+    warnings = f"{warns} warning{'' if warns == 1 else 's'}"
     if status == "fail":
-        return status, f"{fails} of {len(checks)} checks fail ({warns} warnings)"
+        return status, f"{fails} of {len(checks)} checks fail ({warnings})"
     if status == "warn":
-        return status, f"every check passes, with {warns} warnings"
+        return status, f"every check passes, with {warnings}"
     return status, f"all {len(checks)} checks pass"
 
 

@@ -82,7 +82,13 @@ def _log_freq_axis(ax, lo_hz: float, hi_hz: float) -> None:
     ax.set_xlim(lo_hz, hi_hz)
     fmt = EngFormatter(unit="Hz", sep=" ")
     if hi_hz / lo_hz < 12:
-        ticks = [t for t in MaxNLocator(5).tick_values(lo_hz, hi_hz) if lo_hz <= t <= hi_hz]
+        # Round numbers, but none closer than a quarter of the axis (log) width: on a log
+        # axis evenly spaced round numbers crowd at the top.
+        span = math.log(hi_hz / lo_hz)
+        ticks: list[float] = []
+        for t in MaxNLocator(8).tick_values(lo_hz, hi_hz):
+            if lo_hz <= t <= hi_hz and (not ticks or math.log(t / ticks[-1]) > span / 4.5):
+                ticks.append(float(t))
         ax.xaxis.set_major_locator(matplotlib.ticker.FixedLocator(ticks))
         ax.xaxis.set_minor_locator(NullLocator())
     else:
@@ -98,8 +104,16 @@ def _plain_log_y(ax, lo: float, hi: float) -> None:
     ax.set_yscale("log")
     ax.set_ylim(lo, hi)
     fmt = matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}")
+
+    def some(v, _):
+        m = v / 10 ** math.floor(math.log10(v) + 1e-12)
+        keep = (2, 3, 5) if hi / lo < 30 else (2, 5)
+        return f"{v:g}" if min(abs(m - k) for k in keep) < 1e-6 else ""
+
     ax.yaxis.set_major_formatter(fmt)
-    ax.yaxis.set_minor_formatter(fmt if hi / lo < 30 else NullFormatter())
+    ax.yaxis.set_minor_formatter(fmt if hi / lo < 3 else
+                                 matplotlib.ticker.FuncFormatter(some) if hi / lo < 1e3
+                                 else NullFormatter())
     ax.tick_params(axis="y", which="minor", labelsize=8)
 
 
@@ -322,11 +336,21 @@ def _noise(s: Subject) -> Figure:
     ax.set_ylabel(f"output noise density ({unit}/√Hz, log scale)")
     ax.set_title(f"Output noise density, {s.requirement.environment.temperature_c:g} °C; "
                  "largest contributions", loc="left", fontsize=11)
-    ax.legend(loc="best", fontsize=8, framealpha=0.9)
+    fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncols=2,
+               fontsize=8, frameon=False)
     return fig
 
 
 # --------------------------------------------------------------------------- yield
+
+
+def _ordinal(p: float) -> str:
+    """1st, 2nd, 3rd, 50th, 99th (a percentile's name)."""
+    n = int(round(p))
+    if not math.isclose(p, n):
+        return f"{p:g}th"
+    suffix = "th" if 10 <= n % 100 <= 20 else {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
+    return f"{n}{suffix}"
 
 
 def _yield(s: Subject) -> Figure | None:
@@ -360,8 +384,9 @@ def _yield(s: Subject) -> Figure | None:
         if s.has_mask:
             _mask_patches(axis, s, x0, x1, y0, y1, label_points=labels)
         axis.fill_between(f, lo_db, hi_db, color=BUILT, alpha=0.28, linewidth=0,
-                          label=f"{p_lo:g}th to {p_hi:g}th percentile of {yr.samples} boards")
-        axis.plot(f, mid_db, color=BUILT, linewidth=1.2, label=f"median ({p_mid:g}th)")
+                          label=f"{_ordinal(p_lo)} to {_ordinal(p_hi)} percentile of "
+                                f"{yr.samples} boards")
+        axis.plot(f, mid_db, color=BUILT, linewidth=1.2, label="median board")
         axis.plot(an.response.freq_hz, an.response.gain_db, color="#111111", linewidth=1.0,
                   linestyle="--", label="nominal parts")
         _log_freq_axis(axis, float(x0), float(x1))
