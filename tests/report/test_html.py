@@ -3,8 +3,6 @@ headless Chromium, and shows the same figures as the JSON and the terminal repor
 
 from __future__ import annotations
 
-import html
-import io
 import json
 import re
 from html.parser import HTMLParser

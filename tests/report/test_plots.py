@@ -11,7 +11,6 @@ import xml.etree.ElementTree as ET
 import numpy as np
 import pytest
 import scipy.signal
-from matplotlib.lines import Line2D
 from PIL import Image
 
 from bandwright.circuits import TOPOLOGY_NAMES, topology

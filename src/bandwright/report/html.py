@@ -99,7 +99,18 @@ def _e(text) -> str:
 
 
 def verdict_text(checks) -> tuple[str, str]:
-    """(status, sentence) for a set of checks, the sentence the summary shows."""
+    """The verdict the summary shows.
+
+    Parameters
+    ----------
+    checks : sequence of Check
+
+    Returns
+    -------
+    (str, str)
+        The worst status ("pass", "warn", "fail") and a sentence counting failures and
+        warnings.
+    """
     status = worst_status(checks)
     fails = sum(k.status == "fail" for k in checks)
     warns = sum(k.status == "warn" for k in checks)

@@ -24,6 +24,7 @@ import math
 import matplotlib
 import numpy as np
 from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, Rectangle
 from matplotlib.ticker import EngFormatter, MaxNLocator, NullFormatter, NullLocator
 
@@ -189,13 +190,13 @@ def _response(s: Subject) -> Figure:
                       fontsize=8, color="#333333",
                       bbox=dict(boxstyle="round,pad=0.3", facecolor="white", alpha=0.85,
                                 edgecolor="#bbbbbb"))
-    handles = [matplotlib.lines.Line2D([], [], color=BUILT, linewidth=1.8,
+    handles = [Line2D([], [], color=BUILT, linewidth=1.8,
                                        label="built chain (rounded parts, finite GBW)"),
-               matplotlib.lines.Line2D([], [], color=IDEAL, linestyle="--", linewidth=1.3,
+               Line2D([], [], color=IDEAL, linestyle="--", linewidth=1.3,
                                        label="ideal sections")]
     if s.has_mask:
         handles += [Patch(facecolor=FORBIDDEN, alpha=0.16, label="forbidden by the requirement"),
-                    matplotlib.lines.Line2D([], [], color=FORBIDDEN, marker="v", linestyle="",
+                    Line2D([], [], color=FORBIDDEN, marker="v", linestyle="",
                                             label="stopband point (checked there)")]
     ax.legend(handles=handles, loc="lower center", fontsize=8, framealpha=0.9)
     return fig
