@@ -71,16 +71,27 @@ def gbw_checks(chain: Chain) -> list[Check]:
     out = []
     for st in chain.stages:
         b = st.built
+        have = st.model.gbw_hz
+        if st.kind != "gain" and not (math.isfinite(b.q) and b.q > 0
+                                      and math.isfinite(b.f0_hz) and b.f0_hz > 0):
+            # Audited parts can make a stage that oscillates with this op-amp: a figure of
+            # its own, not a crash in the topology's limits (they need Q > 0).
+            out.append(Check(
+                id="gbw", status="fail", value=None, limit=have, unit="Hz", stage=st.position,
+                message=f"{st.topology} is not stable with this op-amp: its built pole pair "
+                        f"(f0 {b.f0_hz:.4g} Hz, Q {b.q:.4g}) lies on or right of the "
+                        f"imaginary axis"))
+            continue
         sec = Section(kind=st.kind, f0_hz=b.f0_hz, q=b.q, gain=abs(b.gain)) \
             if st.kind != "gain" else Section(kind="gain", f0_hz=0.0, q=0.0, gain=abs(b.gain))
-        lim = topology(st.topology).limits(sec, st.model)
-        need, have = lim.gbw_needed_hz, st.model.gbw_hz
+        need = topology(st.topology).limits(sec, st.model).gbw_needed_hz
         ok = have >= need
+        needs = (f"needs {format_value(need, 'Hz')} GBW here" if math.isfinite(need) else
+                 f"cannot reach Q {b.q:.3g} at gain {abs(b.gain):.3g} with any GBW")
         out.append(Check(
             id="gbw", status="pass" if ok else "fail", value=need, limit=have, unit="Hz",
             stage=st.position,
-            message=f"{st.topology} needs {format_value(need, 'Hz')} GBW here, the op-amp has "
-                    f"{format_value(have, 'Hz')}"))
+            message=f"{st.topology} {needs}, the op-amp has {format_value(have, 'Hz')}"))
     return out
 
 

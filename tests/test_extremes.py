@@ -1,0 +1,148 @@
+"""Extreme requirements: centres from 0.1 Hz to 10 MHz, fractional bandwidths from 0.001 to
+10, sections with Q up to 500, prototype orders up to 12.
+
+Each plan is either correct — its mask checks pass, and a recomputation of the built chain
+as one circuit (``trust_support.recompute_mask``: the flattened element list solved by
+``circuits.nodal.ac_solve``, source resistance included) reproduces the mask figures and
+agrees — or a clear infeasibility: failing checks whose messages carry the figures. In
+every case: no exception, no NaN or infinity anywhere in the JSON (walked), no figure of a
+built chain lost to null, and none printed by the terminal report.
+
+The CI grid is chosen point by point (about 20 plans); ``BANDWRIGHT_SLOW_TESTS=1`` runs the
+whole cross product of centres × fractional bandwidths × orders as well.
+"""
+
+from __future__ import annotations
+
+import itertools
+import json
+import math
+import os
+import re
+
+import numpy as np
+import pytest
+
+from bandwright import cli
+from bandwright.candidates import LOSS_SHARE
+from bandwright.planner import plan
+from bandwright.report.json_out import dumps, plan_to_dict
+from bandwright.report.terminal import render_plan
+from bandwright.spec import spec_from_dict
+
+from trust_support import (NON_FINITE_WORD, missing_figures, non_finite_paths,
+                           recompute_mask, terminal_text)
+
+SLOW = os.environ.get("BANDWRIGHT_SLOW_TESTS") == "1"
+
+
+def _spec(f0_hz: float, fbw: float, order: int, family: str = "butterworth",
+          archetype: str = "general", max_loss_db: float = 1.0) -> dict:
+    return {"passband": {"center_hz": f0_hz, "bandwidth_hz": f0_hz * fbw,
+                         "max_loss_db": max_loss_db},
+            "design": {"order": order, "family": family},
+            "input": {"max_vpk": 0.1}, "amplifier": {"archetype": archetype},
+            # The yield is not judged here: the fewest Monte Carlo samples allowed.
+            "tolerance": {"samples": 10}}
+
+
+def _q500_fbw() -> float:
+    """Fractional bandwidth whose order-1 section has Q = 500 at max_loss_db 3.0103: the
+    real prototype pole is -1/eps, so Q = Qbp * eps (references.md, "Poles -> sections")."""
+    eps = math.sqrt(10 ** (LOSS_SHARE * 3.0103 / 10) - 1)
+    return eps / 500
+
+
+GRID = {
+    # Plans expected to build (the mask check decides, the recomputation confirms).
+    "0.1Hz fbw0.1 n4": _spec(0.1, 0.1, 4),
+    "0.1Hz fbw3 n2 wideband": _spec(0.1, 3, 2),
+    "1kHz fbw0.1 n4 chebyshev": _spec(1e3, 0.1, 4, "chebyshev"),
+    "1kHz fbw10 n4 wideband": _spec(1e3, 10, 4),
+    "1kHz fbw0.05 n12 fast": _spec(1e3, 0.05, 12, archetype="fast"),
+    "1kHz Q500 fast": _spec(1e3, _q500_fbw(), 1, archetype="fast", max_loss_db=3.0103),
+    "100kHz fbw0.3 n3 wideband-class": _spec(1e5, 0.3, 3, archetype="wideband"),
+    "1MHz fbw0.1 n2 fast": _spec(1e6, 0.1, 2, archetype="fast"),
+    "10MHz fbw0.5 n1 fast": _spec(1e7, 0.5, 1, archetype="fast"),
+    # Infeasible: no topology reaches these Q/f0 with the op-amp given.
+    "0.1Hz fbw0.001 n4": _spec(0.1, 0.001, 4),
+    "1kHz fbw0.001 n4": _spec(1e3, 0.001, 4),
+    "10MHz fbw0.001 n4": _spec(1e7, 0.001, 4, archetype="fast"),
+    "10MHz fbw0.1 n4": _spec(1e7, 0.1, 4),
+    "10MHz fbw10 n4": _spec(1e7, 10, 4),
+    "10MHz fbw1 n2 fast": _spec(1e7, 1, 2, archetype="fast"),
+    "1kHz fbw0.05 n12": _spec(1e3, 0.05, 12),
+    "1kHz Q500 general": _spec(1e3, _q500_fbw(), 1, max_loss_db=3.0103),
+    "10kHz fbw0.3 n12 chebyshev": _spec(1e4, 0.3, 12, "chebyshev"),
+    "10kHz fbw0.01 n8 chebyshev fast": _spec(1e4, 0.01, 8, "chebyshev", "fast"),
+    "10MHz fbw0.5 n12 fast": _spec(1e7, 0.5, 12, archetype="fast"),
+    "0.1Hz fbw10 n6": _spec(0.1, 10, 6),
+}
+if SLOW:
+    for f0, fbw, n in itertools.product((0.1, 10.0, 1e3, 1e5, 1e7), (0.001, 0.01, 0.1, 1, 10),
+                                        (1, 2, 4, 8, 12)):
+        GRID.setdefault(f"{f0:g}Hz fbw{fbw:g} n{n}", _spec(f0, fbw, n))
+
+_NUMBER = re.compile(r"\d")
+
+
+@pytest.mark.parametrize("name", list(GRID), ids=list(GRID))
+def test_extreme_plan_is_correct_or_clearly_infeasible(name):
+    req = spec_from_dict(GRID[name], path=f"<{name}>")
+    p = plan(req)
+    doc = plan_to_dict(p)
+    text = dumps(doc)  # allow_nan=False: raises on any NaN or infinity
+    assert json.loads(text) == json.loads(text)
+    assert list(non_finite_paths(doc)) == []
+    assert missing_figures(doc) == []
+    shown = terminal_text(render_plan, p)
+    assert not NON_FINITE_WORD.search(shown), NON_FINITE_WORD.search(shown).group(0)
+
+    fails = [c for c in p.checks if c.status == "fail"]
+    for c in fails:
+        assert c.message and _NUMBER.search(c.message), c
+    if not p.chosen.buildable:
+        assert fails and all(c.id in ("topology", "order") for c in fails)
+        return
+    masks = [c for c in p.checks if c.id == "mask"]
+    assert len(masks) == 2 + len(req.stopband)
+    again = recompute_mask(p.chosen.chain, req)
+    # The check's own figures, reproduced from the element lists.
+    assert again.worst_loss_db == pytest.approx(masks[0].value, abs=1e-6)
+    assert again.peak_error_db == pytest.approx(masks[1].value, abs=1e-6)
+    if all(c.status == "pass" for c in masks):
+        assert again.meets(req)
+    else:
+        assert not again.meets(req, slack_db=-1e-6)
+    if not fails:
+        assert all(c.status != "fail" for c in masks)
+
+
+def test_q500_grid_point_really_has_a_q500_section():
+    req = spec_from_dict(GRID["1kHz Q500 general"])
+    from bandwright.candidates import make_candidates
+    (cand,) = [c for c in make_candidates(req) if c.path == "bandpass"]
+    assert cand.highest_q == pytest.approx(500, rel=1e-6)
+
+
+@pytest.mark.parametrize("name", ["0.1Hz fbw0.1 n4", "10MHz fbw0.5 n1 fast"])
+def test_extreme_out_folder_has_no_non_finite_figures(name, tmp_path, write_spec):
+    """Every text file `--out` writes (JSON, SPICE deck, chain file, BOM, HTML) is free of
+    NaN and infinity."""
+    doc = GRID[name]
+    lines = []
+    for table, values in doc.items():
+        lines.append(f"[{table}]")
+        lines += [f"{k} = {json.dumps(v)}" for k, v in values.items()]
+    spec = write_spec("\n".join(lines) + "\n")
+    out = tmp_path / "out"
+    code = cli.main(["plan", str(spec), "--out", str(out)])
+    assert code in (0, 1)
+    texts = [f for f in out.rglob("*") if f.suffix in (".json", ".cir", ".toml", ".csv", ".html")]
+    assert {f.name for f in texts} >= {"plan.json", "chain.cir", "chain.toml", "bom.csv"}
+    for f in texts:
+        body = f.read_text(encoding="utf-8")
+        if f.suffix == ".html":
+            body = re.sub(r"data:image/[^\"')]+", "", body)  # embedded images are base64
+        hit = NON_FINITE_WORD.search(body)
+        assert hit is None, (f.name, body[max(0, hit.start() - 80): hit.end() + 80])
