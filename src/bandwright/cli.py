@@ -83,7 +83,7 @@ def _run_plan(args: argparse.Namespace) -> int:
         result = plan(req, family=args.family, order=args.order, progress=progress)
     text = dumps(plan_to_dict(result))
     if args.out is not None:
-        write_out_dir(args.out, plan_files(result, text), force=args.force)
+        _write(args, plan_files(result, text))
     if args.json:
         sys.stdout.write(text + "\n")
     else:
@@ -92,6 +92,15 @@ def _run_plan(args: argparse.Namespace) -> int:
         if args.out is not None:
             console.print(f"Wrote {args.out}/")
     return 1 if worst_status(result.checks) == "fail" else 0
+
+
+def _write(args: argparse.Namespace, files) -> None:
+    """Write the --out folder; a full disk or a missing permission is one line, exit 2
+    (write_out_dir leaves the folder as it was)."""
+    try:
+        write_out_dir(args.out, files, force=args.force)
+    except OSError as exc:
+        raise OutDirRefused(f"{args.out}: cannot write: {exc.strerror or exc}") from None
 
 
 def _console() -> Console:
@@ -108,7 +117,7 @@ def _run_audit(args: argparse.Namespace) -> int:
     result = audit(args.chain)
     text = dumps(audit_to_dict(result))
     if args.out is not None:
-        write_out_dir(args.out, audit_files(result, text), force=args.force)
+        _write(args, audit_files(result, text))
     if args.json:
         sys.stdout.write(text + "\n")
     else:
