@@ -13,15 +13,18 @@ import numpy as np
 
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
+from bandwright.analysis.montecarlo import YieldResult, plan_yield
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
+from bandwright.checks.yield_check import yield_checks
 from bandwright.circuits import TOPOLOGY_NAMES, topology
 from bandwright.circuits.figures import section_figures, transfer_polynomials
 from bandwright.errors import SpecError
 from bandwright.parts.notation import parse_value
 from bandwright.sections.section import Section
-from bandwright.spec.loader import (HALF_POWER_DB, read_passband, read_stop,
+from bandwright.spec.loader import (HALF_POWER_DB, TOLERANCE_KEYS, read_passband, read_stop,
+                                    read_tolerance,
                                     read_amplifier, read_common_tables)
 from bandwright.spec.reader import TableReader, read_toml
 from bandwright.spec.requirement import Passband, Requirement
@@ -29,6 +32,7 @@ from bandwright.spec.requirement import Passband, Requirement
 __all__ = ["Audit", "audit", "load_chain"]
 
 AUDIT_TABLES = ("passband", "stopband", "stage", "input", "supply", "amplifier", "environment",
+                "tolerance",
                 "noise")
 # Values outside these are typing errors, not parts (1 mΩ … 1 TΩ, 1 fF … 1 F).
 _R_RANGE = (1e-3, 1e12)
@@ -64,6 +68,9 @@ class Audit:
     chain : Chain
     analyses : Analyses
     checks : tuple of Check
+    yield_result : YieldResult or None
+        Monte Carlo yield at the file's `[tolerance]` (customary E96/E12 tolerances when it
+        has none); only when the file states a mask.
     """
 
     path: str
@@ -72,6 +79,7 @@ class Audit:
     chain: Chain
     analyses: Analyses
     checks: tuple[Check, ...]
+    yield_result: YieldResult | None = None
 
 
 def _stage_parts(path: str, key: str, topo, table) -> dict[str, float]:
@@ -158,22 +166,26 @@ def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]
         amp = read_amplifier(p, f"{key}.amplifier", t["amplifier"]) if st.has("amplifier") \
             else None
         specs.append((i + 1, topo, parts, amp, key))
+    common["tolerance"] = read_tolerance(TableReader(p, "tolerance", doc.get("tolerance", {}),
+                                                     TOLERANCE_KEYS))
     req = None
     if passband is not None:
         req = Requirement(path=p, passband=passband, stopband=stops, input=common["input"],
                           supply=common["supply"], amplifier=common["amplifier"],
-                          environment=common["environment"], noise=common["noise"])
+                          environment=common["environment"], noise=common["noise"],
+                          tolerance=common["tolerance"])
     return req, common, specs
 
 
-def _build_stage(path: str, position: int, topo, parts, model, key: str) -> Stage:
+def _build_stage(path: str, position: int, topo, parts, model, key: str,
+                 source_ohms: float = 0.0) -> Stage:
     try:
         elements = tuple(topo.elements(parts, model))
         ideal_model = replace(model, gbw_hz=math.inf)
         ideal_el = tuple(topo.elements(parts, ideal_model))
         near = _near_hz(ideal_el) if topo.KIND != "gain" else 1.0
         ideal = section_figures(ideal_el, kind=topo.KIND, near_hz=near)
-        built = section_figures(elements, kind=topo.KIND, near_hz=near)
+        built = section_figures(elements, kind=topo.KIND, near_hz=near, source_ohms=source_ohms)
     except (ValueError, np.linalg.LinAlgError) as exc:
         raise SpecError(path, f"{key}.parts", f"these parts do not make a working {topo.NAME}: "
                         f"{exc}") from None
@@ -222,7 +234,9 @@ def audit(path: str | Path) -> Audit:
     for position, topo, parts, amp, key in specs:
         model = default if amp is None else resolve_amplifier(amp, path=p, key=f"{key}.amplifier",
                                                               supply=common["supply"])
-        stages.append(_build_stage(p, position, topo, parts, model, key))
+        # The first stage's figures are those the source sees, as in a plan.
+        rs = common["input"].source_ohms if position == 1 else 0.0
+        stages.append(_build_stage(p, position, topo, parts, model, key, rs))
     chain = build_chain(stages, source_ohms=common["input"].source_ohms)
     has_mask = req is not None
     if req is None:
@@ -231,5 +245,10 @@ def audit(path: str | Path) -> Audit:
                           amplifier=common["amplifier"], environment=common["environment"],
                           noise=common["noise"])
     an = analyse(chain, req, with_mask=has_mask)
+    checks = tuple(all_checks(chain, an, req))
+    result = None
+    if has_mask:  # the yield is the share of boards meeting the mask: it needs one
+        result = plan_yield(chain, req)
+        checks += tuple(yield_checks(result))
     return Audit(path=p, requirement=req, has_mask=has_mask, chain=chain, analyses=an,
-                 checks=tuple(all_checks(chain, an, req)))
+                 checks=checks, yield_result=result)

@@ -305,8 +305,14 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
 
 
 def _chain_of(assignments: list[Assignment], req: Requirement, model: OpAmp) -> Chain:
-    stages = tuple(_stage(i + 1, a, model) for i, a in enumerate(assignments))
-    return build_chain(stages, source_ohms=req.input.source_ohms)
+    stages = [_stage(i + 1, a, model) for i, a in enumerate(assignments)]
+    rs = req.input.source_ohms
+    if rs > 0:
+        # Every figure of the first stage is the one the source sees (an audit of the same
+        # parts reads them so too), whether or not its design absorbed the source.
+        st = stages[0]
+        stages[0] = with_parts(st, dict(st.components), source_ohms=rs)
+    return build_chain(stages, source_ohms=rs)
 
 
 def _trim_gain(assignments: list[Assignment], req: Requirement, model: OpAmp,

@@ -188,6 +188,8 @@ def audit_to_dict(a) -> dict[str, Any]:
                            "requirement": {"path": a.path, "sha256": _requirement_hash(a.path)},
                            "prototype": None}
     out.update(chain_dict(a.chain, a.analyses, a.checks))
+    y = getattr(a, "yield_result", None)
+    out["yield"] = yield_dict(y) if y is not None else None
     return out
 
 
