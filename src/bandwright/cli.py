@@ -104,8 +104,9 @@ def _write(args: argparse.Namespace, files) -> None:
 
 
 def _console() -> Console:
+    # markup=False: requirement text and check messages may hold brackets ("[tolerance]").
     return Console(width=max(100, Console().width), no_color="NO_COLOR" in os.environ,
-                   highlight=False)
+                   highlight=False, markup=False)
 
 
 def _run_audit(args: argparse.Namespace) -> int:

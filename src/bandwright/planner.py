@@ -13,7 +13,7 @@ from bandwright.advice import too_many_sections, with_headroom_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
-from bandwright.analysis.montecarlo import YieldResult, plan_yield
+from bandwright.analysis.montecarlo import YieldResult, monte_carlo, tighter_offer
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.stage import with_parts
@@ -152,28 +152,41 @@ def plan(requirement: Requirement, *, family: str | None = None,
         designs.append(build_design(c, requirement, model, windows=windows))
         if progress is not None:
             progress("candidates", len(designs), len(candidates))
+    # Every buildable candidate's yield: how many built boards meet the requirement is part of
+    # what makes one candidate better than another. The tighter-parts search, which costs
+    # several more runs, is for the chosen one only.
+    designs = [with_yield(d, requirement, progress=progress, offer=False) for d in designs]
     designs.sort(key=_rank)
-    # Monte Carlo on the chosen design only: on every candidate it would cost seconds.
     designs[0] = with_yield(designs[0], requirement, progress=progress)
     return Plan(requirement=requirement, model=model, designs=tuple(designs),
                 why=_why(designs))
 
 
 def with_yield(design: Design, requirement: Requirement, *,
-               progress: Callable[[str, int, int], None] | None = None) -> Design:
-    """`design` with its Monte Carlo yield (``analysis.montecarlo.plan_yield``) and the
-    `yield` check added; unchanged when it has no chain."""
+               progress: Callable[[str, int, int], None] | None = None,
+               offer: bool = True) -> Design:
+    """`design` with its Monte Carlo yield and the `yield` check; unchanged when it has no
+    chain. With `offer`, a yield below target also gets the tighter parts that would reach
+    it (``analysis.montecarlo.plan_yield``); a result already computed is reused."""
     if design.chain is None:
         return design
     report = None if progress is None else (lambda done, total: progress("yield", done, total))
-    result = plan_yield(design.chain, requirement, progress=report)
-    return replace(design, yield_result=result,
-                   checks=design.checks + tuple(yield_checks(result)))
+    result = design.yield_result
+    if result is None:
+        result = monte_carlo(design.chain, requirement, progress=report)
+    if offer and result.offer is None:
+        extra = tighter_offer(design.chain, requirement, result, progress=report)
+        result = result if extra is None else replace(result, offer=extra)
+    checks = tuple(c for c in design.checks if c.id != "yield")
+    return replace(design, yield_result=result, checks=checks + tuple(yield_checks(result)))
 
 
 def _rank(d: Design) -> tuple:
     dr = d.analyses.dynamic_range_db if d.analyses is not None else -math.inf
-    return (not d.buildable, d.failures, d.opamps, len(d.candidate.sections),
+    y = d.yield_result
+    # Between candidates that both miss the yield, the one more boards pass is nearer.
+    short = -y.yield_fraction if y is not None and y.yield_fraction < y.min_yield else 0.0
+    return (not d.buildable, d.failures, short, d.opamps, len(d.candidate.sections),
             d.candidate.highest_q, -dr)
 
 

@@ -103,7 +103,9 @@ def _candidate_dict(d) -> dict[str, Any]:
             "highest_q": num(c.highest_q), "buildable": d.buildable, "opamps": d.opamps,
             "failed_checks": d.failures, "worst_margin_db": num(margin),
             "noise_vrms": num(an.noise.integrated_vrms) if an else None,
-            "dynamic_range_db": num(an.dynamic_range_db) if an else None, "note": c.note}
+            "dynamic_range_db": num(an.dynamic_range_db) if an else None,
+            "yield": num(d.yield_result.yield_fraction) if d.yield_result is not None else None,
+            "note": c.note}
 
 
 def plan_to_dict(p) -> dict[str, Any]:

@@ -8,12 +8,23 @@ import numpy as np
 from rich import box
 from rich.console import Console
 from rich.table import Table
+from rich.text import Text
 
 from bandwright.parts.notation import format_value
 
 __all__ = ["render_plan", "render_audit", "fmt_hz"]
 
 _VERDICT = {"pass": "ok", "warn": "WARN", "fail": "FAIL"}
+
+
+def _say(console: Console, *objects, **kwargs) -> None:
+    """Print without markup: requirement text and messages may hold brackets ("[tolerance]")."""
+    console.print(*objects, markup=False, **kwargs)
+
+
+def _row(table: Table, *cells: str) -> None:
+    """Add a row whose cells are plain text, never markup."""
+    table.add_row(*(Text(c) for c in cells))
 
 
 def fmt_hz(f: float) -> str:
@@ -31,7 +42,7 @@ def _db(x: float) -> str:
 def _table(title: str, *cols: str, wrap: tuple[str, ...] = ()) -> Table:
     """A plain table; only the columns named in `wrap` may fold, the others never break."""
     t = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left", title_style="bold",
-              pad_edge=False)
+              pad_edge=False, padding=(0, 1))
     for c in cols:
         if c in wrap:
             t.add_column(c, overflow="fold", ratio=1)
@@ -42,50 +53,53 @@ def _table(title: str, *cols: str, wrap: tuple[str, ...] = ()) -> Table:
 
 def _requirement(req, model, console: Console) -> None:
     pb = req.passband
-    console.print(
+    _say(console, 
         f"Band: {fmt_hz(pb.low_hz)} to {fmt_hz(pb.high_hz)} (centre {fmt_hz(pb.center_hz)}, width "
         f"{fmt_hz(pb.bandwidth_hz)}, {pb.bandwidth_hz / pb.center_hz:.3g} of centre); gain "
         f"{pb.gain_db:g} dB ± {pb.gain_tolerance_db:g}; at most {pb.max_loss_db:.4g} dB loss in band")
     for sp in req.stopband:
-        console.print(f"Stop: at least {sp.min_loss_db:g} dB down at {fmt_hz(sp.freq_hz)}")
+        _say(console, f"Stop: at least {sp.min_loss_db:g} dB down at {fmt_hz(sp.freq_hz)}")
     inp = req.input
     tones = ", ".join(f"{t.vpk:g} Vpk at {fmt_hz(t.freq_hz)}" for t in inp.tones) or "none"
-    console.print(f"Input: up to {inp.max_vpk:g} Vpk in band from {format_value(inp.source_ohms, 'Ω')}"
+    _say(console, f"Input: up to {inp.max_vpk:g} Vpk in band from {format_value(inp.source_ohms, 'Ω')}"
                   f"; tones: {tones}")
-    console.print(f"Rails {req.supply.rails_v[0]:g} / {req.supply.rails_v[1]:+g} V; op-amp "
+    _say(console, f"Rails {req.supply.rails_v[0]:g} / {req.supply.rails_v[1]:+g} V; op-amp "
                   f"'{model.name}': {model.gbw_hz / 1e6:.3g} MHz GBW, {model.slew_v_per_us:g} V/µs, "
                   f"{model.noise_v_per_rthz * 1e9:.3g} nV/√Hz; {req.environment.temperature_c:g} °C")
 
 
 def render_plan(p, console: Console) -> None:
     """Print the plan to `console` (fits 100 columns; readable without colour)."""
-    console.print(f"[bold]bandwright plan[/bold] — {p.requirement.path}")
+    _say(console, f"bandwright plan — {p.requirement.path}", style="bold")
     _requirement(p.requirement, p.model, console)
-    cand = _table("Candidates (best first)", "#", "family, path, order", "sections",
-                  "op-amps", "margin", "noise", "DR", "verdict")
+    cand = _table("Candidates (best first)", "#", "family path order", "sects", "amps",
+                  "margin", "noise", "DR", "yield", "verdict")
     for i, d in enumerate(p.designs):
         c, an = d.candidate, d.analyses
-        margin = f"{min(n.margin_db for n in an.nodes):+.1f} dB" if an else "—"
+        margin = f"{min(n.margin_db for n in an.nodes):+.1f}" if an else "—"
         # (margin: worst headroom; noise: integrated output noise; DR: dynamic range)
-        noise = f"{an.noise.integrated_vrms * 1e6:.3g} µV" if an else "—"
-        dr = f"{an.dynamic_range_db:.1f} dB" if an else "—"
+        noise = f"{an.noise.integrated_vrms * 1e6:.3g}" if an else "—"
+        dr = f"{an.dynamic_range_db:.1f}" if an else "—"
+        y = getattr(d, "yield_result", None)
+        share = f"{100 * y.yield_fraction:.1f}" if y is not None else "—"
         state = ("no circuit" if not d.buildable else
-                 f"{d.failures} fail" if d.failures else "meets all")
-        cand.add_row(("→" if i == 0 else "") + str(i + 1), f"{c.family} {c.path} {c.order}",
+                 f"{d.failures} fail" if d.failures else "ok")
+        _row(cand, ("→" if i == 0 else "") + str(i + 1), f"{c.family} {c.path} {c.order}",
                      str(len(c.sections)), str(d.opamps) if d.buildable else "—", margin, noise,
-                     dr, state)
-    console.print(cand)
-    console.print("margin: worst node headroom; noise: output noise over the noise band; "
-                  "DR: dynamic range")
+                     dr, share, state)
+    _say(console, cand)
+    _say(console, "sects: sections; amps: op-amps; margin: worst node headroom, dB; noise: output "
+                  "noise over the noise band, µV rms; DR: dynamic range, dB; yield: share of Monte "
+                  "Carlo boards that pass, %")
     d = p.chosen
-    console.print(f"Chosen: {d.candidate.family} {d.candidate.path}, order {d.candidate.order} "
+    _say(console, f"Chosen: {d.candidate.family} {d.candidate.path}, order {d.candidate.order} "
                   f"({d.candidate.note}) — {p.why}.")
     if d.chain is None:
         _unbuilt(d, console)
     else:
         _chain(d.chain, d.analyses, console)
         o = d.ordering
-        console.print(
+        _say(console, 
             f"Section order ({o.method}): {o.gain_over_generated_db:+.1f} dB of dynamic range over "
             f"the order as generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
             f"(planning model, equal-maxima gains).")
@@ -96,7 +110,7 @@ def render_plan(p, console: Console) -> None:
 
 def render_audit(a, console: Console) -> None:
     """Print an audit to `console`."""
-    console.print(f"[bold]bandwright audit[/bold] — {a.path}")
+    _say(console, f"bandwright audit — {a.path}", style="bold")
     _requirement(a.requirement, a.chain.stages[0].model, console)
     _chain(a.chain, a.analyses, console)
     _checks(a.checks, console)
@@ -106,8 +120,8 @@ def _yield(y, console: Console) -> None:
     """The Monte Carlo paragraph and the worst part of each stage (figures from the result)."""
     sp = y.spreads
     lo, hi = y.interval
-    console.print(
-        f"[bold]Yield[/bold]: {100 * y.yield_fraction:.1f} % of {y.samples} boards meet the "
+    _say(console, 
+        f"Yield: {100 * y.yield_fraction:.1f} % of {y.samples} boards meet the "
         f"mask and headroom (95 % interval {100 * lo:.1f}–{100 * hi:.1f} %, Wilson; target "
         f"{100 * y.min_yield:.0f} %). Resistors ±{sp.resistor_pct:g} % ({sp.resistor_source}), "
         f"capacitors ±{sp.capacitor_pct:g} % ({sp.capacitor_source}), op-amp GBW "
@@ -115,18 +129,18 @@ def _yield(y, console: Console) -> None:
         f"seed {y.seed}.")
     fails = ", ".join(f"{k} {v}" for k, v in y.fail_counts.items() if v)
     if fails:
-        console.print(f"  Failing boards by reason: {fails}; the nominal board keeps "
+        _say(console, f"  Failing boards by reason: {fails}; the nominal board keeps "
                       f"{y.nominal_margin_db:.3g} dB to the requirement.")
     if y.drivers:
-        console.print("  Parts that decide it (share of the worst excess they explain alone): "
+        _say(console, "  Parts that decide it (share of the worst excess they explain alone): "
                       + "; ".join(f"{p.part} of stage {p.stage} {100 * p.index:.0f} % "
                                   f"({100 * p.worst_fail_rate:.0f} % fail when {p.worst_side})"
                                   for p in y.drivers[:4]) + ".")
     if not y.nominal_passes:
-        console.print("  The chain fails with nominal parts: tighter parts cannot fix that.")
+        _say(console, "  The chain fails with nominal parts: tighter parts cannot fix that.")
     elif y.offer is not None:
         text = y.offer.message
-        console.print(f"  Tighter parts: {text}." if y.offer.reaches else
+        _say(console, f"  Tighter parts: {text}." if y.offer.reaches else
                       f"  {text[:1].upper()}{text[1:]}.")
     if y.sensitivities:
         t = _table("Sensitivity S = d ln y / d ln x, most sensitive part per stage", "#",
@@ -134,9 +148,9 @@ def _yield(y, console: Console) -> None:
         for s in y.sensitivities:
             f0, q, g = s.of(s.worst_part)
             gf, gq, _ = s.of("GBW")
-            t.add_row(str(s.position), s.topology, s.worst_part, _s(f0), _s(q), _s(g),
+            _row(t, str(s.position), s.topology, s.worst_part, _s(f0), _s(q), _s(g),
                       _s(gf), _s(gq))
-        console.print(t)
+        _say(console, t)
 
 
 def _s(x: float) -> str:
@@ -151,8 +165,8 @@ def _unbuilt(d, console: Console) -> None:
         s = a.section
         why = "; ".join(f"{n}: {r}" for n, r in a.rejected) if a.realization is None else \
             f"built as {a.realization.topology}"
-        t.add_row(str(i + 1), s.kind, fmt_hz(s.f0_hz), f"{s.q:.4g}", f"{s.gain:.3g}", why)
-    console.print(t)
+        _row(t, str(i + 1), s.kind, fmt_hz(s.f0_hz), f"{s.q:.4g}", f"{s.gain:.3g}", why)
+    _say(console, t)
 
 
 def _chain(chain, an, console: Console) -> None:
@@ -162,35 +176,35 @@ def _chain(chain, an, console: Console) -> None:
         tg, b = st.target, st.built
         f0 = "—" if st.kind == "gain" else f"{fmt_hz(tg.f0_hz)} → {fmt_hz(b.f0_hz)}"
         q = "—" if st.kind == "gain" else f"{tg.q:.4g} → {b.q:.4g}"
-        t.add_row(str(st.position), st.kind, st.topology, f0, q,
+        _row(t, str(st.position), st.kind, st.topology, f0, q,
                   f"{_db(tg.gain)} → {_db(b.gain)}")
-    console.print(t)
+    _say(console, t)
     for st in chain.stages:
         parts = "  ".join(f"{n}={format_value(v, 'Ω' if n.startswith('R') else 'F')}"
                           for n, v in st.components)
-        console.print(f"[bold]Stage {st.position}[/bold] {st.topology}: {parts}")
+        _say(console, f"Stage {st.position} {st.topology}: {parts}", style="bold")
         if st.ideal is not None and st.kind != "gain":
-            console.print(f"  figures: asked f0 {fmt_hz(st.target.f0_hz)}, Q {st.target.q:.4g}; "
+            _say(console, f"  figures: asked f0 {fmt_hz(st.target.f0_hz)}, Q {st.target.q:.4g}; "
                           f"exact parts f0 {fmt_hz(st.ideal.f0_hz)}, Q {st.ideal.q:.4g}; "
                           f"series parts f0 {fmt_hz(st.built.f0_hz)}, Q {st.built.q:.4g} "
                           f"(op-amp's GBW included)")
         if st.reason:
-            console.print(f"  why: {st.reason}")
+            _say(console, f"  why: {st.reason}")
         for name, why in st.rejected:
-            console.print(f"  not {name}: {why}")
+            _say(console, f"  not {name}: {why}")
     lv = _table("Node levels, worst case (signal anywhere in band + every tone)", "net", "stage",
                 "peak", "limit", "margin", "slew needed", "least load")
     for n in an.nodes:
         load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
-        lv.add_row(n.net, str(n.stage), f"{n.peak_vpk:.3g} Vpk", f"{n.limit_vpk:.3g} Vpk",
+        _row(lv, n.net, str(n.stage), f"{n.peak_vpk:.3g} Vpk", f"{n.limit_vpk:.3g} Vpk",
                    f"{n.margin_db:+.1f} dB", f"{n.slew_needed_v_per_us:.3g} V/µs", load)
-    console.print(lv)
+    _say(console, lv)
     nz = an.noise
     centre = int(np.argmin(np.abs(np.log(nz.freq_hz / math.sqrt(nz.band_hz[0] * nz.band_hz[1])))))
-    console.print(
+    _say(console, 
         f"Input-referred noise at {fmt_hz(nz.freq_hz[centre])}: "
         f"{nz.input_referred_v_per_rthz[centre] * 1e9:.3g} nV/√Hz (source open-circuit voltage)")
-    console.print(
+    _say(console, 
         f"Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over {fmt_hz(nz.band_hz[0])}–"
         f"{fmt_hz(nz.band_hz[1])}; SNR at full input {an.snr_db:.1f} dB; dynamic range "
         f"{an.dynamic_range_db:.1f} dB (input could grow {20 * math.log10(an.clip_scale):+.1f} dB "
@@ -198,8 +212,8 @@ def _chain(chain, an, console: Console) -> None:
     top = _table("Largest noise sources at the output", "source", "µV rms", "share of power")
     total2 = nz.integrated_vrms**2
     for name, v in nz.contributions_vrms[:6]:
-        top.add_row(name, f"{v * 1e6:.3g}", f"{100 * v * v / total2:.1f} %")
-    console.print(top)
+        _row(top, name, f"{v * 1e6:.3g}", f"{100 * v * v / total2:.1f} %")
+    _say(console, top)
 
 
 def _checks(checks, console: Console) -> None:
@@ -207,12 +221,12 @@ def _checks(checks, console: Console) -> None:
                wrap=("reason",))
     for k in checks:
         where = k.net or (f"stage {k.stage}" if k.stage else "chain")
-        t.add_row(k.id, where, _VERDICT[k.status], _fmt(k.value, k.unit), _fmt(k.limit, k.unit),
+        _row(t, k.id, where, _VERDICT[k.status], _fmt(k.value, k.unit), _fmt(k.limit, k.unit),
                   k.message)
-    console.print(t)
+    _say(console, t)
     fails = sum(k.status == "fail" for k in checks)
     warns = sum(k.status == "warn" for k in checks)
-    console.print(f"{len(checks)} checks: {fails} failed, {warns} warnings.")
+    _say(console, f"{len(checks)} checks: {fails} failed, {warns} warnings.")
 
 
 _SHOWN_UNIT = {"ohm": "Ω", "V/us": "V/µs", "Hz": "Hz", "Vrms": "V", "Vpk": "V"}

@@ -1,0 +1,39 @@
+"""Every bundled scenario plans cleanly: exit 0, or the expected 1 with its reason."""
+
+from __future__ import annotations
+
+import pytest
+
+from bandwright.checks.base import worst_status
+
+from report_cases import SCENARIOS, case
+
+# Scenario → (expected exit status, the check that fails and a word of its message).
+EXPECTED = {
+    "audio_band": (0, None, None),
+    "geophone_channel": (0, None, None),
+    "lockin_mains": (0, None, None),
+    "machine_vibration": (0, None, None),
+    "ultrasonic_ranging": (0, None, None),
+    # Staggered sections of Q 80 to 160: built and inside the mask, but not in production.
+    "tone_detector": (1, "yield", "boards"),
+}
+
+
+def test_every_scenario_has_an_expectation():
+    assert sorted(p.stem for p in SCENARIOS) == sorted(EXPECTED)
+
+
+@pytest.mark.parametrize("name", sorted(EXPECTED))
+def test_scenario_plans_as_expected(name):
+    status, check_id, word = EXPECTED[name]
+    p = case(name).plan
+    assert p.chosen.chain is not None, name
+    got = 1 if worst_status(p.checks) == "fail" else 0
+    failing = [c for c in p.checks if c.status == "fail"]
+    assert got == status, [c.message for c in failing]
+    if check_id is not None:
+        assert {c.id for c in failing} == {check_id}
+        assert all(word in c.message for c in failing)
+    # Every plan meets its mask as built, whatever else it shows.
+    assert all(c.status != "fail" for c in p.checks if c.id == "mask")
