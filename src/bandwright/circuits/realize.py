@@ -17,7 +17,7 @@ import numpy as np
 from bandwright.circuits.base import Figures
 from bandwright.circuits.elements import Element
 from bandwright.circuits.figures import section_figures, section_figures_batch
-from bandwright.circuits.nodal import passive_names
+from bandwright.circuits.nodal import BOLTZMANN_J_PER_K, passive_names
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.eseries import nearest, neighbours
 from bandwright.parts.opamp import OpAmp
@@ -25,6 +25,7 @@ from bandwright.parts.windows import PartWindows, impedance_scale
 from bandwright.sections.section import Section
 
 __all__ = ["Realization", "realize", "figure_error", "choose_capacitor", "predistort",
+           "impedance_target_ohms",
            "round_to_series"]
 
 _REFERENCE_C_FARADS = 1e-9
@@ -115,20 +116,54 @@ def _figures(topo: ModuleType, components: Mapping[str, float], model: OpAmp,
                                      source_ohms=source_ohms)
 
 
+def impedance_target_ohms(model: OpAmp | None, windows: PartWindows,
+                          temperature_c: float = 25.0) -> float | None:
+    """The resistance level at which a stage's resistors stop adding much noise.
+
+    Notes
+    -----
+    A resistor R adds 4kTR of its own and i_n·R of the op-amp's current noise; both stay
+    below the op-amp's own voltage noise e_n while R < e_n²/(4kT) and R < e_n/i_n
+    (Motchenbacher & Connelly, *Low-Noise Electronic System Design*, 1993, ch. 2 [mem]). Lower
+    still only loads the op-amps (``choose_capacitor`` keeps every resistor above four
+    times the op-amp's minimum load). None without a noise model.
+    """
+    if model is None or not model.noise_v_per_rthz > 0:
+        return None
+    kt4 = 4 * BOLTZMANN_J_PER_K * (temperature_c + 273.15)
+    r = model.noise_v_per_rthz**2 / kt4
+    if model.noise_a_per_rthz > 0:
+        r = min(r, model.noise_v_per_rthz / model.noise_a_per_rthz)
+    return max(r, windows.r_min_ohms)
+
+
 def choose_capacitor(topo: ModuleType, section: Section, *, series: str,
-                     windows: PartWindows) -> float:
-    """A series capacitor value that puts the design's resistors mid-window.
+                     windows: PartWindows, model: OpAmp | None = None) -> float:
+    """A series capacitor value that sets the stage's impedance level.
 
     Impedance scaling (R·k, C/k) leaves f0, Q and gain unchanged (Schaumann & Van
-    Valkenburg 2001, §6 [mem]); the value is then rounded to the capacitor series and kept
-    inside the capacitor window.
+    Valkenburg 2001, §6 [mem]). With an op-amp model the resistors' geometric mean is put
+    at ``impedance_target_ohms`` (where they stop adding much noise), as far as every part
+    stays inside its window; otherwise the resistors are centred in their window. The value
+    is rounded to the capacitor series and kept inside the capacitor window.
     """
     if not any(p.startswith("C") for p in topo.PARTS):
         return _REFERENCE_C_FARADS
     values = topo.design(section, c_farads=_REFERENCE_C_FARADS)
     k = impedance_scale(values, windows)
-    c = float(np.clip(_REFERENCE_C_FARADS / k, windows.c_min_farads, windows.c_max_farads))
-    return float(nearest(c, series))
+    target = impedance_target_ohms(model, windows)
+    r = np.array([v for n, v in values.items() if n.startswith("R")])
+    c = np.array([v for n, v in values.items() if n.startswith("C")])
+    if target is not None and r.size and c.size:
+        # No resistor below four times the op-amp's minimum load: any of them may hang on
+        # an op-amp output.
+        floor = max(windows.r_min_ohms, 4 * model.min_load_ohms)
+        k_lo = max(floor / r.min(), c.max() / windows.c_max_farads)
+        k_hi = min(windows.r_max_ohms / r.max(), c.min() / windows.c_min_farads)
+        if k_lo <= k_hi:
+            k = float(np.clip(target / np.exp(np.mean(np.log(r))), k_lo, k_hi))
+    cap = float(np.clip(_REFERENCE_C_FARADS / k, windows.c_min_farads, windows.c_max_farads))
+    return float(nearest(cap, series))
 
 
 def predistort(topo: ModuleType, target: Section, model: OpAmp, *, c_farads: float,
@@ -344,7 +379,7 @@ def realize(topo: ModuleType, target: Section, model: OpAmp, *, r_series: str = 
         noise model of the section ordering.
     """
     target = Section(kind=target.kind, f0_hz=target.f0_hz, q=target.q, gain=abs(target.gain))
-    c = choose_capacitor(topo, target, series=c_series, windows=windows)
+    c = choose_capacitor(topo, target, series=c_series, windows=windows, model=model)
     asked, exact = predistort(topo, target, model, c_farads=c, source_ohms=source_ohms)
     _, ideal = _figures(topo, exact, model, target, source_ohms)
     if rounded:
