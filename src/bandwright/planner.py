@@ -9,7 +9,7 @@ from typing import Callable
 
 import numpy as np
 
-from bandwright.advice import too_many_sections, with_headroom_advice
+from bandwright.advice import too_many_sections, with_gain_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
@@ -157,9 +157,22 @@ def plan(requirement: Requirement, *, family: str | None = None,
     # several more runs, is for the chosen one only.
     designs = [with_yield(d, requirement, progress=progress, offer=False) for d in designs]
     designs.sort(key=_rank)
+    designs[0] = with_gain_advice(designs[0], requirement,
+                                  _rebuild(designs[0].candidate, model, windows, order))
     designs[0] = with_yield(designs[0], requirement, progress=progress)
     return Plan(requirement=requirement, model=model, designs=tuple(designs),
                 why=_why(designs))
+
+
+def _rebuild(cand: Candidate, model: OpAmp, windows: PartWindows, order: int | None
+             ) -> Callable[[Requirement], Design]:
+    """Build `cand`'s family and path again for a requirement with another gain (the
+    candidate's sections carry the gain, so they are made afresh)."""
+    def rebuild(req: Requirement) -> Design:
+        same = [c for c in make_candidates(req, family=cand.family, order=order)
+                if c.path == cand.path]
+        return build_design(same[0], req, model, windows=windows)
+    return rebuild
 
 
 def with_yield(design: Design, requirement: Requirement, *,
@@ -311,8 +324,7 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
             assignments.insert(0, buf)
     chain = _trim_gain(assignments, req, model, windows)
     an = analyse(chain, req)
-    checks = with_headroom_advice(tuple(all_checks(chain, an, req, windows=windows)),
-                                  an.nodes, req)
+    checks = tuple(all_checks(chain, an, req, windows=windows))
     return Design(candidate=cand, ordering=ordering, assignments=tuple(assignments),
                   chain=chain, analyses=an, checks=checks)
 
