@@ -249,6 +249,11 @@ def _assign_with_backoff(section: Section, gain: float, model: OpAmp, req: Requi
     tries = [1.0] if section.kind in ("lowpass", "highpass") else []
     tries += [gain / 2 ** k for k in range(1, _GAIN_BACKOFF_STEPS + 1)]
     for g in tries:
+        # A quick look with exact parts first: the series search costs far more, and only
+        # the gain that can be built is worth it.
+        if rounded and _assign(_with_gain(section, g), model, req, windows,
+                               rounded=False).realization is None:
+            continue
         a = _assign(_with_gain(section, g), model, req, windows, rounded=rounded)
         if a.realization is not None:
             return a, gain / g

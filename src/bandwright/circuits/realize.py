@@ -38,6 +38,8 @@ _GRID_MAX = 729  # 3^6: every ±1 combination of a six-part section
 _WIDE_GRID_MAX = 625  # 5^4: every ±2 combination of a four-part section
 _BLOCK = 5
 _CAP_STARTS = 3
+# A rounded design this close (about 0.03 dB at the band edge) needs no second search.
+_GOOD_ENOUGH = 1.5e-5
 _NEIGHBOURS = 2
 
 
@@ -294,15 +296,22 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
         [moving[i:i + _BLOCK] for i in range(0, len(moving), _BLOCK)]
     near = target.f0_hz if target.kind != "gain" else 1.0
     best_err = math.inf
+    seen: dict[bytes, float] = {}  # a recentred grid shares most of its points
     for _ in range(_SEARCH_SWEEPS * len(blocks)):
         improved = False
         for block in blocks:
             axes = [neighbours(current[n], series_of(n), count=steps) if n in block
                     else np.array([current[n]]) for n in names]
             grid = np.stack([a.ravel() for a in np.meshgrid(*axes, indexing="ij")], axis=-1)
-            f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near,
-                                             values=grid, source_ohms=source_ohms)
-            err = _error_batch(f0, q, g, target)
+            keys = [row.tobytes() for row in grid]
+            new = np.array([k not in seen for k in keys])
+            if new.any():
+                f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near,
+                                                 values=grid[new], source_ohms=source_ohms)
+                for key, e in zip((k for k, n in zip(keys, new) if n),
+                                  _error_batch(f0, q, g, target)):
+                    seen[key] = float(e)
+            err = np.array([seen[k] for k in keys])
             k = int(np.argmin(err))
             if err[k] < best_err - 1e-15:
                 best_err, improved = float(err[k]), True
@@ -334,6 +343,10 @@ def round_to_series(topo: ModuleType, values: Mapping[str, float], target: Secti
                                                        near_hz=near, source_ohms=source_ohms)
     best_a, err_a = _grid_search(elements, values, target, series_of, lambda n: True,
                                  source_ohms)
+    if err_a <= _GOOD_ENOUGH:
+        elements = tuple(topo.elements(best_a, model))
+        return best_a, elements, section_figures(elements, kind=target.kind, near_hz=near,
+                                                 source_ohms=source_ohms)
     # Capacitor combinations: each capacitor at its nearest series value or one step either
     # side; the resistors are solved again for each and the best start is rounded.
     axes = [neighbours(values[n], c_series, count=1) if n.startswith("C")
