@@ -2,8 +2,9 @@
 
 Private helpers for ``sallen_key_lowpass``, ``mfb_lowpass``, ``sallen_key_highpass``,
 ``mfb_highpass``, ``noninverting_gain`` and ``inverting_gain``: the gain-resistor rule,
-the finite-GBW criterion, component spread and Q sensitivity, and the checks every one of
-them makes on a section before designing it.
+the finite-GBW criterion, component spread and Q sensitivity, the checks every one of
+them makes on a section before designing it and on a part list before wiring it, and the
+non-inverting amplifier (Rf, Rg, U1) several of them end in.
 
 The finite-GBW criterion
 ------------------------
@@ -40,13 +41,16 @@ import math
 from collections.abc import Callable, Mapping
 
 from bandwright.circuits.base import Limits
+from bandwright.circuits.elements import Element, opamp, resistor
 from bandwright.errors import InfeasibleDesign
+from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
 __all__ = ["GBW_SHIFT_LIMIT", "GAIN_ERROR_LIMIT", "MAX_SPREAD", "UNITY_RTOL", "BASE_R_OHMS",
            "is_unity", "ratio_pair", "finite_gbw_shift", "gbw_needed_hz", "noise_gain_at",
            "spread", "max_log_sensitivity", "section_problems", "design_gain", "unity_note",
-           "require", "infeasible_limits", "gbw_reason"]
+           "require", "infeasible_limits", "gbw_reason", "check_known_parts",
+           "check_exact_parts", "pair_fitted", "amplifier_elements"]
 
 #: Largest first-order relative shift of f0 or Q allowed from finite GBW (criterion above).
 GBW_SHIFT_LIMIT = 0.1
@@ -386,3 +390,115 @@ def gbw_reason(needed_hz: float, model_gbw_hz: float, what: str) -> tuple[bool, 
     verdict = "meets" if ok else "falls short of"
     return ok, (f"GBW {model_gbw_hz:.4g} Hz {verdict} the {needed_hz:.4g} Hz needed "
                 f"({what})")
+
+
+def check_known_parts(name: str, parts: tuple[str, ...], components: Mapping[str, float], *,
+                      subset: bool = False) -> None:
+    """Raise ValueError if `components` names a part that is not in `parts`.
+
+    Parameters
+    ----------
+    name : str
+        The topology's NAME, for the message.
+    parts : tuple of str
+        The topology's PARTS.
+    components : mapping of str to float
+        The part list to check.
+    subset : bool
+        Word the message for a topology whose every part is optional ("expected a
+        subset of ...").
+
+    Raises
+    ------
+    ValueError
+        Naming the unknown parts, sorted.
+    """
+    unknown = set(components) - set(parts)
+    if unknown:
+        expected = f"a subset of {parts}" if subset else f"{parts}"
+        raise ValueError(f"{name}: unknown parts {sorted(unknown)}; expected {expected}")
+
+
+def check_exact_parts(name: str, parts: tuple[str, ...],
+                      components: Mapping[str, float]) -> None:
+    """Raise ValueError unless `components` names exactly the parts in `parts`.
+
+    Parameters
+    ----------
+    name : str
+        The topology's NAME, for the message.
+    parts : tuple of str
+        The topology's PARTS, all of them required.
+    components : mapping of str to float
+        The part list to check.
+
+    Raises
+    ------
+    ValueError
+        Naming the unknown and the missing parts, each sorted.
+    """
+    unknown = set(components) - set(parts)
+    missing = set(parts) - set(components)
+    if unknown or missing:
+        raise ValueError(f"{name}: parts must be exactly {parts}; unknown {sorted(unknown)}, "
+                         f"missing {sorted(missing)}")
+
+
+def pair_fitted(name: str, components: Mapping[str, float], first: str, second: str) -> bool:
+    """Whether the resistor pair (`first`, `second`) is fitted; half a pair is an error.
+
+    Parameters
+    ----------
+    name : str
+        The topology's NAME, for the message.
+    components : mapping of str to float
+        The part list.
+    first, second : str
+        The two parts that are fitted together or not at all (e.g. "Rf", "Rg").
+
+    Returns
+    -------
+    bool
+        True when both are present, False when neither is.
+
+    Raises
+    ------
+    ValueError
+        If only one of them is present.
+    """
+    has_first, has_second = first in components, second in components
+    if has_first != has_second:
+        raise ValueError(f"{name}: {first} and {second} go together (both or neither)")
+    return has_first
+
+
+def amplifier_elements(components: Mapping[str, float], model: OpAmp, *, plus: str,
+                       has_gain: bool) -> list[Element]:
+    """The non-inverting amplifier U1 driven at net `plus`, with its gain pair if fitted.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        The part list; Rf and Rg are read when `has_gain`.
+    model : OpAmp
+        The op-amp model.
+    plus : str
+        Net at U1's non-inverting input.
+    has_gain : bool
+        True: Rf (out--fb) and Rg (fb--0) set the gain 1 + Rf/Rg, and U1's inverting
+        input is "fb". False: a follower, U1's inverting input is "out".
+
+    Returns
+    -------
+    list of Element
+        [Rf, Rg, U1] or [U1].
+
+    Notes
+    -----
+    Non-inverting amplifier, gain 1 + Rf/Rg (Franco 2015, §1.4 [mem]).
+    """
+    if not has_gain:
+        return [opamp("U1", plus, "out", "out", model)]
+    return [resistor("Rf", "out", "fb", components["Rf"]),
+            resistor("Rg", "fb", "0", components["Rg"]),
+            opamp("U1", plus, "fb", "out", model)]

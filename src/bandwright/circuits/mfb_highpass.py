@@ -55,14 +55,6 @@ INVERTING = True
 _NOMINAL_C_FARADS = 1e-9
 
 
-def _check_parts(components: Mapping[str, float]) -> None:
-    unknown = set(components) - set(PARTS)
-    missing = set(PARTS) - set(components)
-    if unknown or missing:
-        raise ValueError(f"{NAME}: parts must be exactly {PARTS}; unknown {sorted(unknown)}, "
-                         f"missing {sorted(missing)}")
-
-
 def ideal_figures(components: Mapping[str, float]) -> Figures:
     """f0, Q and high-frequency gain with an ideal op-amp.
 
@@ -159,7 +151,7 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
     ValueError
         If a part is missing or unknown.
     """
-    _check_parts(components)
+    common.check_exact_parts(NAME, PARTS, components)
     return (
         capacitor("C1", "in", "mid", components["C1"]),
         resistor("R1", "mid", "0", components["R1"]),

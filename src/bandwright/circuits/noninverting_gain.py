@@ -24,7 +24,7 @@ from collections.abc import Mapping
 
 from bandwright.circuits import _lphp_common as common
 from bandwright.circuits.base import Figures, Limits
-from bandwright.circuits.elements import Element, opamp, resistor
+from bandwright.circuits.elements import Element, resistor
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
@@ -47,16 +47,9 @@ INVERTING = False
 
 
 def _pairs(components: Mapping[str, float]) -> tuple[bool, bool]:
-    unknown = set(components) - set(PARTS)
-    if unknown:
-        raise ValueError(f"{NAME}: unknown parts {sorted(unknown)}; expected a subset of {PARTS}")
-    fb = ("Rf" in components, "Rg" in components)
-    div = ("Ra" in components, "Rb" in components)
-    if fb[0] != fb[1]:
-        raise ValueError(f"{NAME}: Rf and Rg go together (both or neither)")
-    if div[0] != div[1]:
-        raise ValueError(f"{NAME}: Ra and Rb go together (both or neither)")
-    return fb[0], div[0]
+    common.check_known_parts(NAME, PARTS, components, subset=True)
+    has_fb = common.pair_fitted(NAME, components, "Rf", "Rg")
+    return has_fb, common.pair_fitted(NAME, components, "Ra", "Rb")
 
 
 def noise_gain(components: Mapping[str, float]) -> float:
@@ -194,12 +187,7 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
         plus = "div"
         out += [resistor("Ra", "in", "div", components["Ra"]),
                 resistor("Rb", "div", "0", components["Rb"])]
-    minus = "out"
-    if has_fb:
-        minus = "fb"
-        out += [resistor("Rf", "out", "fb", components["Rf"]),
-                resistor("Rg", "fb", "0", components["Rg"])]
-    out.append(opamp("U1", plus, minus, "out", model))
+    out += common.amplifier_elements(components, model, plus=plus, has_gain=has_fb)
     return tuple(out)
 
 

@@ -38,7 +38,7 @@ from collections.abc import Mapping
 
 from bandwright.circuits import _lphp_common as common
 from bandwright.circuits.base import Figures, Limits
-from bandwright.circuits.elements import Element, capacitor, opamp, resistor
+from bandwright.circuits.elements import Element, capacitor, resistor
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
@@ -240,24 +240,15 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
     ValueError
         If only one of Rf, Rg is given, or a part is not in PARTS.
     """
-    unknown = set(components) - set(PARTS)
-    if unknown:
-        raise ValueError(f"{NAME}: unknown parts {sorted(unknown)}; expected {PARTS}")
-    has_gain = ("Rf" in components, "Rg" in components)
-    if has_gain[0] != has_gain[1]:
-        raise ValueError(f"{NAME}: Rf and Rg go together (both or neither)")
-    inv = "fb" if has_gain[0] else "out"
-    out: list[Element] = [
+    common.check_known_parts(NAME, PARTS, components)
+    has_gain = common.pair_fitted(NAME, components, "Rf", "Rg")
+    return (
         resistor("R1", "in", "mid", components["R1"]),
         resistor("R2", "mid", "ninp", components["R2"]),
         capacitor("C1", "mid", "out", components["C1"]),
         capacitor("C2", "ninp", "0", components["C2"]),
-    ]
-    if has_gain[0]:
-        out += [resistor("Rf", "out", "fb", components["Rf"]),
-                resistor("Rg", "fb", "0", components["Rg"])]
-    out.append(opamp("U1", "ninp", inv, "out", model))
-    return tuple(out)
+        *common.amplifier_elements(components, model, plus="ninp", has_gain=has_gain),
+    )
 
 
 def limits(section: Section, model: OpAmp) -> Limits:
