@@ -40,7 +40,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping
 
-from bandwright.circuits.base import Limits
+from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, opamp, resistor
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.opamp import OpAmp
@@ -50,7 +50,9 @@ __all__ = ["GBW_SHIFT_LIMIT", "GAIN_ERROR_LIMIT", "MAX_SPREAD", "UNITY_RTOL", "B
            "is_unity", "ratio_pair", "finite_gbw_shift", "gbw_needed_hz", "noise_gain_at",
            "spread", "max_log_sensitivity", "section_problems", "design_gain", "unity_note",
            "require", "infeasible_limits", "gbw_reason", "check_known_parts",
-           "check_exact_parts", "pair_fitted", "amplifier_elements"]
+           "check_exact_parts", "pair_fitted", "amplifier_elements", "NOMINAL_C_FARADS",
+           "check_capacitor", "amplifier_gain", "gain_resistors", "filter_limits",
+           "closed_loop_bandwidth_hz", "gain_stage_gbw_needed_hz", "gain_stage_limits"]
 
 #: Largest first-order relative shift of f0 or Q allowed from finite GBW (criterion above).
 GBW_SHIFT_LIMIT = 0.1
@@ -68,6 +70,12 @@ UNITY_RTOL = 1.0 / MAX_SPREAD
 #: The smaller resistor of a gain-setting pair (design choice: 10 kOhm keeps the op-amp
 #: load light and the Johnson noise modest; common practice).
 BASE_R_OHMS = 10e3
+#: The impedance scale at which ``filter_limits`` designs a section: every figure it
+#: reports is scale-free.
+NOMINAL_C_FARADS = 1e-9
+# f_max / f_b at which a single-pole closed loop 1/sqrt(1 + (f/f_b)^2) has lost
+# GAIN_ERROR_LIMIT of its gain (Franco 2015, §6.2 [mem]).
+_GAIN_ERROR_BANDWIDTH_RATIO = math.sqrt(1 / (1 - GAIN_ERROR_LIMIT) ** 2 - 1)
 
 
 def is_unity(gain: float) -> bool:
@@ -502,3 +510,226 @@ def amplifier_elements(components: Mapping[str, float], model: OpAmp, *, plus: s
     return [resistor("Rf", "out", "fb", components["Rf"]),
             resistor("Rg", "fb", "0", components["Rg"]),
             opamp("U1", plus, "fb", "out", model)]
+
+
+def check_capacitor(c_farads: float) -> None:
+    """Raise ValueError unless `c_farads` > 0.
+
+    Parameters
+    ----------
+    c_farads : float
+        The capacitor value a design is asked for, farads.
+
+    Raises
+    ------
+    ValueError
+        If `c_farads` is not > 0 (NaN included).
+    """
+    if not c_farads > 0:
+        raise ValueError(f"c_farads must be > 0; got {c_farads}")
+
+
+def amplifier_gain(components: Mapping[str, float]) -> float:
+    """Gain K = 1 + Rf/Rg of the non-inverting amplifier; 1 without Rf and Rg (follower).
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        The part list (ohms); Rf and Rg are read when both are present.
+
+    Returns
+    -------
+    float
+        K, V/V (Franco 2015, §1.4 [mem]).
+    """
+    if "Rf" in components and "Rg" in components:
+        return 1.0 + components["Rf"] / components["Rg"]
+    return 1.0
+
+
+def gain_resistors(k: float) -> dict[str, float]:
+    """Rf and Rg for a non-inverting amplifier gain `k`; none at unity (follower).
+
+    Parameters
+    ----------
+    k : float
+        Gain 1 + Rf/Rg, V/V (>= 1).
+
+    Returns
+    -------
+    dict of str to float
+        {} when `k` is 1 within ``UNITY_RTOL``; else Rf, Rg with Rf/Rg = k - 1, the
+        smaller ``BASE_R_OHMS`` (``ratio_pair``).
+    """
+    if is_unity(k):
+        return {}
+    rf, rg = ratio_pair(k - 1.0)
+    return {"Rf": rf, "Rg": rg}
+
+
+def filter_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
+                  design: Callable[..., dict[str, float]],
+                  ideal_figures: Callable[[Mapping[str, float]], Figures],
+                  noise_gain_numerator: Callable[[Mapping[str, float]],
+                                                 tuple[float, float, float]],
+                  summary: Callable[[Mapping[str, float], Figures], str],
+                  min_gain: float = 0.0, separate: tuple[str, ...] = (),
+                  note_unity: bool = False) -> Limits:
+    """Limits of a one-op-amp lowpass or highpass section, from its topology's functions.
+
+    The section is designed at ``NOMINAL_C_FARADS``; its finite-GBW need, component spread,
+    Q sensitivity and noise gain at f0 follow from the ideal figures and the noise-gain
+    numerator (module docstring).
+
+    Parameters
+    ----------
+    section : Section
+        The section.
+    model : OpAmp
+        The op-amp model.
+    kind : str
+        The topology's KIND.
+    opamps : int
+        The topology's OPAMPS.
+    design : callable
+        The topology's ``design(section, *, c_farads)``.
+    ideal_figures : callable
+        The topology's ``ideal_figures(components)``.
+    noise_gain_numerator : callable
+        The topology's ``noise_gain_numerator(components)``.
+    summary : callable
+        (parts, figures) -> the first reason: the design's ratios and gain.
+    min_gain : float
+        Smallest |gain| the topology reaches (``section_problems``).
+    separate : tuple of str
+        Parts whose spread is taken among themselves (``spread``).
+    note_unity : bool
+        Add ``unity_note`` (for topologies that build a near-unity gain at unity).
+
+    Returns
+    -------
+    Limits
+        Infeasible for a section the topology cannot build (every figure infinite), a
+        spread above ``MAX_SPREAD`` or a GBW below ``gbw_needed_hz``.
+    """
+    problems = section_problems(section, kind=kind, min_gain=min_gain)
+    if problems:
+        return infeasible_limits(problems, opamps)
+    parts = design(section, c_farads=NOMINAL_C_FARADS)
+    fig = ideal_figures(parts)
+    ng = noise_gain_numerator(parts)
+    needed = gbw_needed_hz(section.f0_hz, finite_gbw_shift(fig.f0_hz, fig.q, ng))
+    part_spread = spread(parts, separate=separate)
+    q_sens = max_log_sensitivity(lambda p: ideal_figures(p).q, parts)
+    gbw_ok, gbw_text = gbw_reason(needed, model.gbw_hz, "first-order f0 and Q shift <= 10 %")
+    reasons = [summary(parts, fig), gbw_text, f"max |S^Q| = {q_sens:.3g}"]
+    if note_unity:
+        reasons += unity_note(section)
+    spread_ok = part_spread <= MAX_SPREAD
+    if not spread_ok:
+        reasons.append(f"component spread {part_spread:.4g} exceeds {MAX_SPREAD:g}")
+    return Limits(feasible=gbw_ok and spread_ok, reasons=tuple(reasons), gbw_needed_hz=needed,
+                  spread=part_spread, q_sensitivity=q_sens,
+                  noise_gain=noise_gain_at(section.f0_hz, fig.f0_hz, fig.q, ng),
+                  opamps=opamps)
+
+
+def closed_loop_bandwidth_hz(noise_gain: float, model: OpAmp) -> float:
+    """-3 dB bandwidth of a flat gain stage with noise gain `noise_gain`, Hz.
+
+    Parameters
+    ----------
+    noise_gain : float
+        1/beta of the loop, V/V.
+    model : OpAmp
+        The single-pole op-amp model.
+
+    Returns
+    -------
+    float
+        GBW (1 + NG/A0) / NG ~= GBW/NG (Franco 2015, §6.2 [mem]): exact for
+        A(s) = A0/(1 + s A0/wt), whose closed loop has its one pole there.
+    """
+    return model.gbw_hz * (1 + noise_gain / model.a0) / noise_gain
+
+
+def gain_stage_gbw_needed_hz(noise_gain: float, max_freq_hz: float) -> float:
+    """GBW keeping a flat stage's gain error within ``GAIN_ERROR_LIMIT`` up to `max_freq_hz`.
+
+    Parameters
+    ----------
+    noise_gain : float
+        1/beta of the loop, V/V.
+    max_freq_hz : float
+        Highest signal frequency the stage must pass, Hz.
+
+    Returns
+    -------
+    float
+        NG · f_max / sqrt(1/(1 - 0.01)^2 - 1) ~= 7.02 NG f_max, Hz: the single-pole closed
+        loop falls as 1/sqrt(1 + (f/f_b)^2), f_b = GBW/NG (Franco 2015, §6.2 [mem]).
+    """
+    return noise_gain * max_freq_hz / _GAIN_ERROR_BANDWIDTH_RATIO
+
+
+def gain_stage_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
+                      design: Callable[[Section], dict[str, float]],
+                      noise_gain: Callable[[Mapping[str, float]], float],
+                      summary: Callable[[Mapping[str, float]], str],
+                      max_freq_hz: float | None, note_unity: bool = False) -> Limits:
+    """Limits of a flat gain stage, from its topology's functions.
+
+    Parameters
+    ----------
+    section : Section
+        The gain section.
+    model : OpAmp
+        The op-amp model.
+    kind : str
+        The topology's KIND.
+    opamps : int
+        The topology's OPAMPS.
+    design : callable
+        The topology's ``design(section)``.
+    noise_gain : callable
+        The topology's ``noise_gain(components)``.
+    summary : callable
+        parts -> the start of the first reason (the form and its ratio).
+    max_freq_hz : float or None
+        Highest signal frequency, Hz; None: ``gbw_needed_hz`` is 0 and a reason gives the
+        need per hertz of f_max.
+    note_unity : bool
+        Add ``unity_note`` (for a stage that builds a near-unity gain as a follower).
+
+    Returns
+    -------
+    Limits
+        Infeasible for a section the stage cannot build, a resistor ratio above
+        ``MAX_SPREAD`` or, with `max_freq_hz`, too little GBW (``gain_stage_gbw_needed_hz``).
+        ``q_sensitivity`` is 0 (no Q).
+    """
+    problems = section_problems(section, kind=kind)
+    if problems:
+        return infeasible_limits(problems, opamps)
+    parts = design(section)
+    ng = noise_gain(parts)
+    reasons = [f"{summary(parts)}; noise gain {ng:.4g}; bandwidth "
+               f"{closed_loop_bandwidth_hz(ng, model):.4g} Hz"]
+    if note_unity:
+        reasons += unity_note(section)
+    ok = True
+    if max_freq_hz is None:
+        needed = 0.0
+        reasons.append("GBW need set by the highest signal frequency (pass max_freq_hz): "
+                       f"{ng / _GAIN_ERROR_BANDWIDTH_RATIO:.4g} x f_max")
+    else:
+        needed = gain_stage_gbw_needed_hz(ng, max_freq_hz)
+        ok, text = gbw_reason(needed, model.gbw_hz,
+                              f"gain error <= 1 % at {max_freq_hz:.4g} Hz")
+        reasons.append(text)
+    part_spread = spread(parts)
+    if part_spread > MAX_SPREAD:
+        ok = False
+        reasons.append(f"resistor ratio {part_spread:.4g} exceeds {MAX_SPREAD:g}")
+    return Limits(feasible=ok, reasons=tuple(reasons), gbw_needed_hz=needed,
+                  spread=part_spread, q_sensitivity=0.0, noise_gain=ng, opamps=opamps)

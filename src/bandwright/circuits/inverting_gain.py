@@ -14,7 +14,6 @@ input resistance is never below 10 kOhm; ``c_farads`` is ignored.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 
 from bandwright.circuits import _lphp_common as common
@@ -93,8 +92,7 @@ def bandwidth_hz(components: Mapping[str, float], model: OpAmp) -> float:
         GBW (1 + NG/A0) / NG ~= GBW/NG, NG = 1 + Rf/Rin (Franco 2015, §6.2 [mem]). Exact
         for A(s) = A0/(1 + s A0/wt): -(Rf/Rin) A/(A + NG) has its one pole there.
     """
-    ng = noise_gain(components)
-    return model.gbw_hz * (1 + ng / model.a0) / ng
+    return common.closed_loop_bandwidth_hz(noise_gain(components), model)
 
 
 def gbw_needed_for_hz(section: Section, max_freq_hz: float) -> float:
@@ -113,8 +111,7 @@ def gbw_needed_for_hz(section: Section, max_freq_hz: float) -> float:
         NG · f_max / sqrt(1/(1 - 0.01)^2 - 1) ~= 7.02 NG f_max, Hz (single-pole closed
         loop, Franco 2015, §6.2 [mem]).
     """
-    ng = noise_gain(design(section))
-    return ng * max_freq_hz / math.sqrt(1 / (1 - common.GAIN_ERROR_LIMIT) ** 2 - 1)
+    return common.gain_stage_gbw_needed_hz(noise_gain(design(section)), max_freq_hz)
 
 
 def design(section: Section, *, c_farads: float | None = None) -> dict[str, float]:
@@ -171,6 +168,11 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
     )
 
 
+def _summary(parts: Mapping[str, float]) -> str:
+    """The start of the first reason of ``limits``: the ratio and the input resistance."""
+    return f"Rf/Rin = {parts['Rf'] / parts['Rin']:.4g}; input resistance {parts['Rin']:.4g} ohm"
+
+
 def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) -> Limits:
     """What this stage needs and offers.
 
@@ -191,27 +193,6 @@ def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) 
         `max_freq_hz`, too little GBW. ``noise_gain`` is 1 + |gain| -- one more than the
         non-inverting stage of the same |gain| -- and ``q_sensitivity`` 0 (no Q).
     """
-    problems = common.section_problems(section, kind=KIND)
-    if problems:
-        return common.infeasible_limits(problems, OPAMPS)
-    parts = design(section)
-    ng = noise_gain(parts)
-    reasons = [f"Rf/Rin = {parts['Rf'] / parts['Rin']:.4g}; input resistance "
-               f"{parts['Rin']:.4g} ohm; noise gain {ng:.4g}; bandwidth "
-               f"{bandwidth_hz(parts, model):.4g} Hz"]
-    ok = True
-    if max_freq_hz is None:
-        needed = 0.0
-        reasons.append("GBW need set by the highest signal frequency (pass max_freq_hz): "
-                       f"{ng / math.sqrt(1 / (1 - common.GAIN_ERROR_LIMIT) ** 2 - 1):.4g} x f_max")
-    else:
-        needed = gbw_needed_for_hz(section, max_freq_hz)
-        ok, text = common.gbw_reason(needed, model.gbw_hz,
-                                     f"gain error <= 1 % at {max_freq_hz:.4g} Hz")
-        reasons.append(text)
-    spread = common.spread(parts)
-    if spread > common.MAX_SPREAD:
-        ok = False
-        reasons.append(f"resistor ratio {spread:.4g} exceeds {common.MAX_SPREAD:g}")
-    return Limits(feasible=ok, reasons=tuple(reasons), gbw_needed_hz=needed, spread=spread,
-                  q_sensitivity=0.0, noise_gain=ng, opamps=OPAMPS)
+    return common.gain_stage_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
+                                    noise_gain=noise_gain, summary=_summary,
+                                    max_freq_hz=max_freq_hz)

@@ -52,8 +52,6 @@ REFERENCE = ("Multiple-feedback highpass as in A. B. Williams, F. J. Taylor, Ele
              "nodal analysis (sympy, tests/circuits/test_mfb_highpass.py)")
 INVERTING = True
 
-_NOMINAL_C_FARADS = 1e-9
-
 
 def ideal_figures(components: Mapping[str, float]) -> Figures:
     """f0, Q and high-frequency gain with an ideal op-amp.
@@ -122,8 +120,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     From w0/Q and w0^2 above with C1 = C2 = C, C3 = C/K:
     R2 = Q (2K + 1)/(w0 C), R1 = K/(Q (2K + 1) w0 C).
     """
-    if not c_farads > 0:
-        raise ValueError(f"c_farads must be > 0; got {c_farads}")
+    common.check_capacitor(c_farads)
     _require(section)
     k = abs(section.gain)
     q, w0 = section.q, 2 * math.pi * section.f0_hz
@@ -162,6 +159,12 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
     )
 
 
+def _summary(parts: Mapping[str, float], fig: Figures) -> str:
+    """The first reason of ``limits``: the design's ratios and gain."""
+    return (f"R2/R1 = {parts['R2'] / parts['R1']:.4g}, C1 = C2 = {abs(fig.gain):.4g} C3, "
+            f"gain {fig.gain:.4g} V/V")
+
+
 def limits(section: Section, model: OpAmp) -> Limits:
     """What this topology needs and offers for one section.
 
@@ -180,23 +183,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
         finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
         The noise gain rises to 1 + K above f0, so a wideband op-amp noise floor passes.
     """
-    problems = common.section_problems(section, kind=KIND)
-    if problems:
-        return common.infeasible_limits(problems, OPAMPS)
-    parts = design(section, c_farads=_NOMINAL_C_FARADS)
-    fig = ideal_figures(parts)
-    ng = noise_gain_numerator(parts)
-    needed = common.gbw_needed_hz(section.f0_hz, common.finite_gbw_shift(fig.f0_hz, fig.q, ng))
-    spread = common.spread(parts)
-    q_sens = common.max_log_sensitivity(lambda p: ideal_figures(p).q, parts)
-    gbw_ok, gbw_text = common.gbw_reason(needed, model.gbw_hz, "first-order f0 and Q shift "
-                                         "<= 10 %")
-    reasons = [f"R2/R1 = {parts['R2'] / parts['R1']:.4g}, C1 = C2 = {abs(fig.gain):.4g} C3, "
-               f"gain {fig.gain:.4g} V/V", gbw_text, f"max |S^Q| = {q_sens:.3g}"]
-    spread_ok = spread <= common.MAX_SPREAD
-    if not spread_ok:
-        reasons.append(f"component spread {spread:.4g} exceeds {common.MAX_SPREAD:g}")
-    return Limits(feasible=gbw_ok and spread_ok, reasons=tuple(reasons), gbw_needed_hz=needed,
-                  spread=spread, q_sensitivity=q_sens,
-                  noise_gain=common.noise_gain_at(section.f0_hz, fig.f0_hz, fig.q, ng),
-                  opamps=OPAMPS)
+    return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
+                                ideal_figures=ideal_figures,
+                                noise_gain_numerator=noise_gain_numerator, summary=_summary)
+

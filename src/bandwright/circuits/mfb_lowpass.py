@@ -58,8 +58,6 @@ REFERENCE = ("Multiple-feedback lowpass as in A. B. Williams, F. J. Taylor, Elec
              "analysis (sympy, tests/circuits/test_mfb_lowpass.py)")
 INVERTING = True
 
-_NOMINAL_C_FARADS = 1e-9
-
 
 def ideal_figures(components: Mapping[str, float]) -> Figures:
     """f0, Q and DC gain with an ideal op-amp.
@@ -129,8 +127,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     C1/C2 = 4 Q^2 (1 + K), R2 = 1/(2 Q w0 C2), R3 = R2/(1 + K), R1 = R2/K with K = |H0|:
     the stationary (largest-Q) point of the equations in the module docstring.
     """
-    if not c_farads > 0:
-        raise ValueError(f"c_farads must be > 0; got {c_farads}")
+    common.check_capacitor(c_farads)
     _require(section)
     k = abs(section.gain)
     q = section.q
@@ -219,6 +216,11 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
     )
 
 
+def _summary(parts: Mapping[str, float], fig: Figures) -> str:
+    """The first reason of ``limits``: the design's ratios and gain."""
+    return f"C1/C2 = {parts['C1'] / parts['C2']:.4g} = 4Q^2(1+K), gain {fig.gain:.4g} V/V"
+
+
 def limits(section: Section, model: OpAmp) -> Limits:
     """What this topology needs and offers for one section.
 
@@ -236,23 +238,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
         above ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
         finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
     """
-    problems = common.section_problems(section, kind=KIND)
-    if problems:
-        return common.infeasible_limits(problems, OPAMPS)
-    parts = design(section, c_farads=_NOMINAL_C_FARADS)
-    fig = ideal_figures(parts)
-    ng = noise_gain_numerator(parts)
-    needed = common.gbw_needed_hz(section.f0_hz, common.finite_gbw_shift(fig.f0_hz, fig.q, ng))
-    spread = common.spread(parts)
-    q_sens = common.max_log_sensitivity(lambda p: ideal_figures(p).q, parts)
-    gbw_ok, gbw_text = common.gbw_reason(needed, model.gbw_hz, "first-order f0 and Q shift "
-                                         "<= 10 %")
-    reasons = [f"C1/C2 = {parts['C1'] / parts['C2']:.4g} = 4Q^2(1+K), gain {fig.gain:.4g} V/V",
-               gbw_text, f"max |S^Q| = {q_sens:.3g}"]
-    spread_ok = spread <= common.MAX_SPREAD
-    if not spread_ok:
-        reasons.append(f"component spread {spread:.4g} exceeds {common.MAX_SPREAD:g}")
-    return Limits(feasible=gbw_ok and spread_ok, reasons=tuple(reasons), gbw_needed_hz=needed,
-                  spread=spread, q_sensitivity=q_sens,
-                  noise_gain=common.noise_gain_at(section.f0_hz, fig.f0_hz, fig.q, ng),
-                  opamps=OPAMPS)
+    return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
+                                ideal_figures=ideal_figures,
+                                noise_gain_numerator=noise_gain_numerator, summary=_summary)
+

@@ -19,7 +19,6 @@ the output load light and the Johnson noise modest; ``c_farads`` is ignored.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 
 from bandwright.circuits import _lphp_common as common
@@ -65,8 +64,8 @@ def noise_gain(components: Mapping[str, float]) -> float:
     float
         1/beta of the loop (Franco 2015, §1.2 [mem]).
     """
-    has_fb, _ = _pairs(components)
-    return 1.0 + components["Rf"] / components["Rg"] if has_fb else 1.0
+    _pairs(components)  # raises on an unknown part or half a pair
+    return common.amplifier_gain(components)
 
 
 def ideal_figures(components: Mapping[str, float]) -> Figures:
@@ -103,8 +102,7 @@ def bandwidth_hz(components: Mapping[str, float], model: OpAmp) -> float:
         GBW (1 + NG/A0) / NG; ~= GBW/NG (Franco 2015, §6.2 [mem]). Exact for
         A(s) = A0/(1 + s A0/wt): the closed loop A/(1 + A/NG) has its one pole there.
     """
-    ng = noise_gain(components)
-    return model.gbw_hz * (1 + ng / model.a0) / ng
+    return common.closed_loop_bandwidth_hz(noise_gain(components), model)
 
 
 def gbw_needed_for_hz(section: Section, max_freq_hz: float) -> float:
@@ -123,8 +121,7 @@ def gbw_needed_for_hz(section: Section, max_freq_hz: float) -> float:
         NG · f_max / sqrt(1/(1 - 0.01)^2 - 1) ~= 7.02 NG f_max, Hz: the single-pole closed
         loop falls as 1/sqrt(1 + (f/f_b)^2), f_b = GBW/NG (Franco 2015, §6.2 [mem]).
     """
-    ng = noise_gain(design(section))
-    return ng * max_freq_hz / math.sqrt(1 / (1 - common.GAIN_ERROR_LIMIT) ** 2 - 1)
+    return common.gain_stage_gbw_needed_hz(noise_gain(design(section)), max_freq_hz)
 
 
 def design(section: Section, *, c_farads: float | None = None) -> dict[str, float]:
@@ -155,8 +152,7 @@ def design(section: Section, *, c_farads: float | None = None) -> dict[str, floa
     if g == 1.0:
         return {}
     if g > 1:
-        rf, rg = common.ratio_pair(g - 1.0)
-        return {"Rf": rf, "Rg": rg}
+        return common.gain_resistors(g)
     ra, rb = common.ratio_pair((1.0 - g) / g)
     return {"Ra": ra, "Rb": rb}
 
@@ -191,6 +187,15 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
     return tuple(out)
 
 
+def _form(parts: Mapping[str, float]) -> str:
+    """The start of the first reason of ``limits``: which form, with its ratio."""
+    if not parts:
+        return "follower"
+    if "Rf" in parts:
+        return f"amplifier, Rf/Rg = {parts['Rf'] / parts['Rg']:.4g}"
+    return f"buffered divider, Rb/(Ra+Rb) = {parts['Rb'] / (parts['Ra'] + parts['Rb']):.4g}"
+
+
 def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) -> Limits:
     """What this stage needs and offers.
 
@@ -211,32 +216,6 @@ def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) 
         `max_freq_hz`, too little GBW (``gbw_needed_for_hz``). ``noise_gain`` is 1 + Rf/Rg,
         ``q_sensitivity`` 0 (no Q).
     """
-    problems = common.section_problems(section, kind=KIND)
-    if problems:
-        return common.infeasible_limits(problems, OPAMPS)
-    parts = design(section)
-    ng = noise_gain(parts)
-    if not parts:
-        form = "follower"
-    elif "Rf" in parts:
-        form = f"amplifier, Rf/Rg = {parts['Rf'] / parts['Rg']:.4g}"
-    else:
-        form = f"buffered divider, Rb/(Ra+Rb) = {parts['Rb'] / (parts['Ra'] + parts['Rb']):.4g}"
-    reasons = [f"{form}; noise gain {ng:.4g}; bandwidth {bandwidth_hz(parts, model):.4g} Hz",
-               *common.unity_note(section)]
-    ok = True
-    if max_freq_hz is None:
-        needed = 0.0
-        reasons.append("GBW need set by the highest signal frequency (pass max_freq_hz): "
-                       f"{ng / math.sqrt(1 / (1 - common.GAIN_ERROR_LIMIT) ** 2 - 1):.4g} x f_max")
-    else:
-        needed = gbw_needed_for_hz(section, max_freq_hz)
-        ok, text = common.gbw_reason(needed, model.gbw_hz,
-                                     f"gain error <= 1 % at {max_freq_hz:.4g} Hz")
-        reasons.append(text)
-    spread = common.spread(parts)
-    if spread > common.MAX_SPREAD:
-        ok = False
-        reasons.append(f"resistor ratio {spread:.4g} exceeds {common.MAX_SPREAD:g}")
-    return Limits(feasible=ok, reasons=tuple(reasons), gbw_needed_hz=needed, spread=spread,
-                  q_sensitivity=0.0, noise_gain=ng, opamps=OPAMPS)
+    return common.gain_stage_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
+                                    noise_gain=noise_gain, summary=_form,
+                                    max_freq_hz=max_freq_hz, note_unity=True)

@@ -55,20 +55,12 @@ REFERENCE = ("R. P. Sallen, E. L. Key, 'A practical method of designing RC activ
              "R2/R1 = 4Q^2")
 INVERTING = False
 
-_NOMINAL_C_FARADS = 1e-9
-
-
-def _gain_k(components: Mapping[str, float]) -> float:
-    if "Rf" in components and "Rg" in components:
-        return 1.0 + components["Rf"] / components["Rg"]
-    return 1.0
-
 
 def _coefficients(components: Mapping[str, float]) -> tuple[float, float, float]:
     """(a2, a1, K) of the denominator a2 s^2 + a1 s + 1 and the gain K."""
     r1, r2 = components["R1"], components["R2"]
     c1, c2 = components["C1"], components["C2"]
-    k = _gain_k(components)
+    k = common.amplifier_gain(components)
     return r1 * r2 * c1 * c2, r1 * (c1 + c2) + r2 * c2 * (1 - k), k
 
 
@@ -135,20 +127,15 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     Equal C; sqrt(R2/R1) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))), i.e. R2/R1 = 4Q^2 at K = 1
     (references.md; Sallen & Key 1955 [mem]).
     """
-    if not c_farads > 0:
-        raise ValueError(f"c_farads must be > 0; got {c_farads}")
+    common.check_capacitor(c_farads)
     _require(section)
     k = common.design_gain(section)
     q = section.q
     # Rationalised root of (K-1) Q x^2 + x - 2Q = 0: no cancellation as K -> 1.
     x = 4 * q / (1 + math.sqrt(1 + 8 * q * q * (k - 1)))          # sqrt(R2 / R1)
     w0 = 2 * math.pi * section.f0_hz
-    parts = {"C1": c_farads, "C2": c_farads, "R1": 1 / (w0 * c_farads * x),
-             "R2": x / (w0 * c_farads)}
-    if not common.is_unity(k):
-        rf, rg = common.ratio_pair(k - 1.0)
-        parts.update(Rf=rf, Rg=rg)
-    return parts
+    return {"C1": c_farads, "C2": c_farads, "R1": 1 / (w0 * c_farads * x),
+            "R2": x / (w0 * c_farads), **common.gain_resistors(k)}
 
 
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
@@ -181,6 +168,12 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
     )
 
 
+def _summary(parts: Mapping[str, float], fig: Figures) -> str:
+    """The first reason of ``limits``: the design's ratios and gain."""
+    return (f"R2/R1 = {parts['R2'] / parts['R1']:.4g}, C1 = C2, gain {fig.gain:.4g} V/V"
+            + (" (follower)" if "Rf" not in parts else ""))
+
+
 def limits(section: Section, model: OpAmp) -> Limits:
     """What this topology needs and offers for one section.
 
@@ -198,24 +191,8 @@ def limits(section: Section, model: OpAmp) -> Limits:
         ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
         finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
     """
-    problems = common.section_problems(section, kind=KIND, min_gain=1.0)
-    if problems:
-        return common.infeasible_limits(problems, OPAMPS)
-    parts = design(section, c_farads=_NOMINAL_C_FARADS)
-    fig = ideal_figures(parts)
-    ng = noise_gain_numerator(parts)
-    needed = common.gbw_needed_hz(section.f0_hz, common.finite_gbw_shift(fig.f0_hz, fig.q, ng))
-    spread = common.spread(parts, separate=OPTIONAL_PARTS)
-    q_sens = common.max_log_sensitivity(lambda p: ideal_figures(p).q, parts)
-    gbw_ok, gbw_text = common.gbw_reason(needed, model.gbw_hz, "first-order f0 and Q shift "
-                                         "<= 10 %")
-    reasons = [f"R2/R1 = {parts['R2'] / parts['R1']:.4g}, C1 = C2, gain {fig.gain:.4g} V/V"
-               + (" (follower)" if "Rf" not in parts else ""), gbw_text,
-               f"max |S^Q| = {q_sens:.3g}", *common.unity_note(section)]
-    spread_ok = spread <= common.MAX_SPREAD
-    if not spread_ok:
-        reasons.append(f"component spread {spread:.4g} exceeds {common.MAX_SPREAD:g}")
-    return Limits(feasible=gbw_ok and spread_ok, reasons=tuple(reasons), gbw_needed_hz=needed,
-                  spread=spread, q_sensitivity=q_sens,
-                  noise_gain=common.noise_gain_at(section.f0_hz, fig.f0_hz, fig.q, ng),
-                  opamps=OPAMPS)
+    return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
+                                ideal_figures=ideal_figures,
+                                noise_gain_numerator=noise_gain_numerator, summary=_summary,
+                                min_gain=1.0, separate=OPTIONAL_PARTS, note_unity=True)
+

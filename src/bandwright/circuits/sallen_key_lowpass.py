@@ -60,21 +60,12 @@ REFERENCE = ("R. P. Sallen, E. L. Key, 'A practical method of designing RC activ
              "C1/C2 = 4Q^2")
 INVERTING = False
 
-# The impedance scale used by `limits`: every figure it reports is scale-free.
-_NOMINAL_C_FARADS = 1e-9
-
-
-def _gain_k(components: Mapping[str, float]) -> float:
-    if "Rf" in components and "Rg" in components:
-        return 1.0 + components["Rf"] / components["Rg"]
-    return 1.0
-
 
 def _coefficients(components: Mapping[str, float]) -> tuple[float, float, float]:
     """(a2, a1, K) of the denominator a2 s^2 + a1 s + 1 and the gain K."""
     r1, r2 = components["R1"], components["R2"]
     c1, c2 = components["C1"], components["C2"]
-    k = _gain_k(components)
+    k = common.amplifier_gain(components)
     return r1 * r2 * c1 * c2, c2 * (r1 + r2) + r1 * c1 * (1 - k), k
 
 
@@ -116,13 +107,6 @@ def _require(section: Section) -> None:
     common.require(section, kind=KIND, min_gain=1.0)
 
 
-def _gain_resistors(k: float) -> dict[str, float]:
-    if common.is_unity(k):
-        return {}
-    rf, rg = common.ratio_pair(k - 1.0)
-    return {"Rf": rf, "Rg": rg}
-
-
 def design(section: Section, *, c_farads: float) -> dict[str, float]:
     """Ideal-op-amp part values for a lowpass section.
 
@@ -150,8 +134,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     Equal R; sqrt(C1/C2) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))), i.e. C1/C2 = 4Q^2 at K = 1
     (references.md; Sallen & Key 1955 [mem]); R = 1 / (w0 sqrt(C1 C2)).
     """
-    if not c_farads > 0:
-        raise ValueError(f"c_farads must be > 0; got {c_farads}")
+    common.check_capacitor(c_farads)
     _require(section)
     k = common.design_gain(section)
     q = section.q
@@ -160,7 +143,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     m = x * x                                                    # C1 / C2
     c1, c2 = (m * c_farads, c_farads) if m >= 1 else (c_farads, c_farads / m)
     r_ohms = 1 / (2 * math.pi * section.f0_hz * math.sqrt(c1 * c2))
-    return {"R1": r_ohms, "R2": r_ohms, "C1": c1, "C2": c2, **_gain_resistors(k)}
+    return {"R1": r_ohms, "R2": r_ohms, "C1": c1, "C2": c2, **common.gain_resistors(k)}
 
 
 def resistors_for_capacitors(section: Section, *, c1_farads: float,
@@ -218,7 +201,7 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
     if best is None:
         raise InfeasibleDesign(f"no positive resistors reach Q = {section.q:.4g} with "
                                f"C1/C2 = {c1 / c2:.4g}")
-    return {"R1": best[1], "R2": best[2], "C1": c1, "C2": c2, **_gain_resistors(k)}
+    return {"R1": best[1], "R2": best[2], "C1": c1, "C2": c2, **common.gain_resistors(k)}
 
 
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
@@ -251,6 +234,12 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
     )
 
 
+def _summary(parts: Mapping[str, float], fig: Figures) -> str:
+    """The first reason of ``limits``: the design's ratios and gain."""
+    return (f"C1/C2 = {parts['C1'] / parts['C2']:.4g}, R1 = R2, gain {fig.gain:.4g} V/V"
+            + (" (follower)" if "Rf" not in parts else ""))
+
+
 def limits(section: Section, model: OpAmp) -> Limits:
     """What this topology needs and offers for one section.
 
@@ -271,24 +260,8 @@ def limits(section: Section, model: OpAmp) -> Limits:
         larger of C1/C2 (the resistors are equal) and Rf/Rg. ``noise_gain`` is |NG(j w0)|,
         1 + 2 Q^2 at unity gain: far above K near f0.
     """
-    problems = common.section_problems(section, kind=KIND, min_gain=1.0)
-    if problems:
-        return common.infeasible_limits(problems, OPAMPS)
-    parts = design(section, c_farads=_NOMINAL_C_FARADS)
-    fig = ideal_figures(parts)
-    ng = noise_gain_numerator(parts)
-    needed = common.gbw_needed_hz(section.f0_hz, common.finite_gbw_shift(fig.f0_hz, fig.q, ng))
-    spread = common.spread(parts, separate=OPTIONAL_PARTS)
-    q_sens = common.max_log_sensitivity(lambda p: ideal_figures(p).q, parts)
-    gbw_ok, gbw_text = common.gbw_reason(needed, model.gbw_hz, "first-order f0 and Q shift "
-                                         "<= 10 %")
-    reasons = [f"C1/C2 = {parts['C1'] / parts['C2']:.4g}, R1 = R2, gain {fig.gain:.4g} V/V"
-               + (" (follower)" if "Rf" not in parts else ""), gbw_text,
-               f"max |S^Q| = {q_sens:.3g}", *common.unity_note(section)]
-    spread_ok = spread <= common.MAX_SPREAD
-    if not spread_ok:
-        reasons.append(f"component spread {spread:.4g} exceeds {common.MAX_SPREAD:g}")
-    return Limits(feasible=gbw_ok and spread_ok, reasons=tuple(reasons), gbw_needed_hz=needed,
-                  spread=spread, q_sensitivity=q_sens,
-                  noise_gain=common.noise_gain_at(section.f0_hz, fig.f0_hz, fig.q, ng),
-                  opamps=OPAMPS)
+    return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
+                                ideal_figures=ideal_figures,
+                                noise_gain_numerator=noise_gain_numerator, summary=_summary,
+                                min_gain=1.0, separate=OPTIONAL_PARTS, note_unity=True)
+
