@@ -181,7 +181,7 @@ def _chain(chain, an, console: Console) -> None:
     _say(console, t)
     for st in chain.stages:
         parts = "  ".join(f"{n}={format_value(v, 'Ω' if n.startswith('R') else 'F')}"
-                          for n, v in st.components)
+                          for n, v in st.components) or "no parts (a unity-gain follower)"
         _say(console, f"Stage {st.position} {st.topology}: {parts}", style="bold")
         if st.ideal is not None and st.kind != "gain":
             _say(console, f"  figures: asked f0 {fmt_hz(st.target.f0_hz)}, Q {st.target.q:.4g}; "
