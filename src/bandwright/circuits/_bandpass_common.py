@@ -2,8 +2,9 @@
 
 Private helpers for ``mfb_bandpass``, ``sallen_key_bandpass``, ``dual_amp_bandpass``,
 ``tow_thomas`` and ``state_variable``: argument checks, the input divider that lowers a
-section's natural centre gain, and the assembly of a ``Limits`` record from the figures
-each topology computes in closed form.
+section's natural centre gain (its values and its two resistors in the element list), the
+GBW need from a topology's first-order shifts, and the assembly of a ``Limits`` record from
+the figures each topology computes in closed form.
 
 The criteria
 ------------
@@ -35,15 +36,21 @@ beyond that one resistor ends up comparable with stray and load impedances, or v
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 
+from bandwright.circuits._lphp_common import infeasible_limits
 from bandwright.circuits.base import Limits
+from bandwright.circuits.elements import Element, resistor
+from bandwright.errors import InfeasibleDesign
 from bandwright.parts.notation import format_value
+from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
 __all__ = ["GBW_SHIFT_LIMIT", "TOLERANCE_Q_SHIFT_LIMIT", "MAX_SPREAD", "DEFAULT_TOLERANCE",
            "GAIN_RTOL", "tolerance_shift", "check_section", "check_capacitor", "divider",
-           "design_gain", "is_fitted", "resistor_spread", "hz", "assemble_limits"]
+           "design_gain", "is_fitted", "resistor_spread", "hz", "assemble_limits",
+           "POLE_MOVEMENT_RULE", "NOMINAL_C_FARADS", "check_design", "fitted",
+           "divider_ratio", "input_divider", "gbw_needed_from_shift", "topology_limits"]
 
 #: Largest first-order relative shift of f0 or Q from finite GBW accepted (criterion above).
 GBW_SHIFT_LIMIT = 0.1
@@ -53,6 +60,11 @@ TOLERANCE_Q_SHIFT_LIMIT = 0.5
 MAX_SPREAD = 1000.0
 #: Part tolerance assumed by ``limits`` when the caller gives none (E96, 1 %; common practice).
 DEFAULT_TOLERANCE = 0.01
+#: The GBW criterion of ``gbw_needed_from_shift``, as quoted in a reason.
+POLE_MOVEMENT_RULE = "first-order pole movement within 10 % of the bandwidth"
+#: The impedance scale at which ``topology_limits`` designs a section for its spread
+#: (a ratio, so any scale gives the same figure).
+NOMINAL_C_FARADS = 1e-9
 
 
 def tolerance_shift(sensitivities: Mapping[str, float], r_tolerance: float,
@@ -265,3 +277,170 @@ def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
                   q_sensitivity=float(max(abs(v) for v in sensitivities.values())),
                   noise_gain=float(noise_gain), opamps=opamps)
 
+
+
+def check_design(section: Section, c_farads: float, *,
+                 problems: Callable[[Section], tuple[str, ...]] | None = None) -> None:
+    """The checks at the top of every ``design``: the arguments, then the topology's own.
+
+    Parameters
+    ----------
+    section : Section
+        The section to design.
+    c_farads : float
+        The capacitor value asked for, farads.
+    problems : callable, optional
+        The topology's reasons why it cannot build `section` (empty when it can).
+
+    Raises
+    ------
+    ValueError
+        From ``check_section`` or ``check_capacitor``.
+    InfeasibleDesign
+        With the first of `problems`, if any.
+    """
+    check_section(section)
+    check_capacitor(c_farads)
+    found = problems(section) if problems is not None else ()
+    if found:
+        raise InfeasibleDesign(found[0])
+
+
+def fitted(parts: Mapping[str, float]) -> dict[str, float]:
+    """The parts with a finite value, in their order (an infinite one is not fitted).
+
+    Parameters
+    ----------
+    parts : mapping of str to float
+        Part name -> value, ``math.inf`` for a part left out (``divider``).
+
+    Returns
+    -------
+    dict of str to float
+    """
+    return {k: v for k, v in parts.items() if math.isfinite(v)}
+
+
+def divider_ratio(section: Section, natural_gain: float) -> float:
+    """Ratio of the input divider: the designed |gain| over the natural gain, in (0, 1].
+
+    Parameters
+    ----------
+    section : Section
+        The section.
+    natural_gain : float
+        The largest |centre gain| the topology reaches for this Q (> 0).
+
+    Returns
+    -------
+    float
+        ``design_gain(section, natural_gain) / natural_gain``: the share of the input
+        conductance in R1a (1: R1b not fitted).
+    """
+    return design_gain(section, natural_gain) / natural_gain
+
+
+def input_divider(components: Mapping[str, float], net: str) -> list[Element]:
+    """The input divider's elements: R1a from "in" to `net`, R1b from `net` to ground if fitted.
+
+    Parameters
+    ----------
+    components : mapping of str to float
+        The part list (R1b may be absent or ``math.inf``: not fitted).
+    net : str
+        The net the divider drives.
+
+    Returns
+    -------
+    list of Element
+        [R1a] or [R1a, R1b].
+    """
+    out = [resistor("R1a", "in", net, components["R1a"])]
+    if is_fitted(components, "R1b"):
+        out.append(resistor("R1b", net, "0", components["R1b"]))
+    return out
+
+
+def gbw_needed_from_shift(section: Section, shift: tuple[float, float]) -> float:
+    """GBW keeping the first-order pole movement within ``GBW_SHIFT_LIMIT`` of the bandwidth.
+
+    Parameters
+    ----------
+    section : Section
+        The section.
+    shift : (float, float)
+        (k_f, k_q) of the topology's ``gbw_shift``: df0/f0 ~= k_f e, dQ/Q ~= k_q e.
+
+    Returns
+    -------
+    float
+        f0 max(Q |k_f|, |k_q|) / 0.1, Hz (module docstring, "Finite GBW").
+    """
+    k_f, k_q = shift
+    return section.f0_hz * max(section.q * abs(k_f), abs(k_q)) / GBW_SHIFT_LIMIT
+
+
+def topology_limits(section: Section, model: OpAmp, *, opamps: int,
+                    design: Callable[..., dict[str, float]],
+                    gbw_needed_hz: Callable[[Section], float],
+                    q_sensitivities: Callable[[Section], Mapping[str, float]],
+                    noise_gain: Callable[[Section], float],
+                    natural_gain: Callable[[float], float],
+                    accept_gain_shortfall: bool, r_tolerance: float,
+                    c_tolerance: float | None, max_spread: float,
+                    gbw_rule: str = POLE_MOVEMENT_RULE,
+                    problems: Callable[[Section], tuple[str, ...]] | None = None,
+                    tolerance_q_max: Callable[[float, float | None], float] | None = None
+                    ) -> Limits:
+    """The ``limits`` of a bandpass topology, from its functions.
+
+    Checks the section, returns infeasible limits (every figure infinite) for the
+    topology's own `problems`, and otherwise assembles the record (``assemble_limits``)
+    with the resistor spread of a design at ``NOMINAL_C_FARADS``.
+
+    Parameters
+    ----------
+    section : Section
+        A bandpass section.
+    model : OpAmp
+        The op-amp (every amplifier of the topology).
+    opamps : int
+        The topology's OPAMPS.
+    design : callable
+        The topology's ``design(section, *, c_farads)``.
+    gbw_needed_hz, q_sensitivities, noise_gain : callable
+        The topology's functions of the section.
+    natural_gain : callable
+        Q -> the largest |centre gain| the topology reaches.
+    accept_gain_shortfall, r_tolerance, c_tolerance, max_spread
+        As for ``assemble_limits``.
+    gbw_rule : str
+        The criterion behind ``gbw_needed_hz``, quoted in the reason.
+    problems : callable, optional
+        The topology's reasons why it cannot build the section (empty when it can).
+    tolerance_q_max : callable, optional
+        (r_tolerance, c_tolerance) -> the largest Q the topology keeps within the
+        tolerance criterion, quoted in the reason when that fails.
+
+    Returns
+    -------
+    Limits
+
+    Raises
+    ------
+    ValueError
+        From ``check_section``.
+    """
+    check_section(section)
+    found = problems(section) if problems is not None else ()
+    if found:
+        return infeasible_limits(list(found), opamps)
+    spread = resistor_spread(design(section, c_farads=NOMINAL_C_FARADS))
+    return assemble_limits(
+        section, model.gbw_hz, opamps=opamps, gbw_needed_hz=gbw_needed_hz(section),
+        gbw_rule=gbw_rule, spread=spread, sensitivities=q_sensitivities(section),
+        noise_gain=noise_gain(section), natural_gain=natural_gain(section.q),
+        accept_gain_shortfall=accept_gain_shortfall, r_tolerance=r_tolerance,
+        c_tolerance=c_tolerance, max_spread=max_spread,
+        tolerance_q_max=(tolerance_q_max(r_tolerance, c_tolerance)
+                         if tolerance_q_max is not None else None))

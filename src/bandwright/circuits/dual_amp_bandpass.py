@@ -95,14 +95,11 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     their value is free, R keeps the spread set by Q alone), R1 = Q R
     (w0/Q = 1/(R1 C1)); Williams & Taylor 2006, §5.2 [mem], re-derived (module docstring).
     """
-    common.check_section(section)
-    common.check_capacitor(c_farads)
+    common.check_design(section, c_farads)
     r = 1.0 / (2 * math.pi * section.f0_hz * c_farads)
-    gain = common.design_gain(section, NATURAL_GAIN)
-    r1a, r1b = common.divider(section.q * r, gain / NATURAL_GAIN)
-    parts = {"R1a": r1a, "R1b": r1b, "R2": r, "R3": r, "R4": r, "R5": r,
-             "C1": c_farads, "C2": c_farads}
-    return {k: v for k, v in parts.items() if math.isfinite(v)}
+    r1a, r1b = common.divider(section.q * r, common.divider_ratio(section, NATURAL_GAIN))
+    return common.fitted({"R1a": r1a, "R1b": r1b, "R2": r, "R3": r, "R4": r, "R5": r,
+                          "C1": c_farads, "C2": c_farads})
 
 
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
@@ -121,18 +118,15 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
         Nets "in", "x", "gic", "n3", "out", "n5" and ground "0".
     """
     c = components
-    out = [resistor("R1a", "in", "x", c["R1a"])]
-    if common.is_fitted(c, "R1b"):
-        out.append(resistor("R1b", "x", "0", c["R1b"]))
-    out += [capacitor("C1", "x", "0", c["C1"]),
+    return (*common.input_divider(c, "x"),
+            capacitor("C1", "x", "0", c["C1"]),
             resistor("R2", "x", "gic", c["R2"]),
             capacitor("C2", "gic", "n3", c["C2"]),
             resistor("R3", "n3", "out", c["R3"]),
             resistor("R4", "out", "n5", c["R4"]),
             resistor("R5", "n5", "0", c["R5"]),
             opamp("U1", "n5", "n3", "gic", model),
-            opamp("U2", "x", "n3", "out", model)]
-    return tuple(out)
+            opamp("U2", "x", "n3", "out", model))
 
 
 def q_sensitivities(section: Section) -> dict[str, float]:
@@ -154,7 +148,7 @@ def q_sensitivities(section: Section) -> dict[str, float]:
     Q = R1 sqrt(C1 R4 / (C2 R2 R3 R5)) from the transfer above; S = x/Q dQ/dx
     (Schaumann & Van Valkenburg, *Design of Analog Filters*, 2001, ch. 3 [mem]).
     """
-    rho = common.design_gain(section, NATURAL_GAIN) / NATURAL_GAIN
+    rho = common.divider_ratio(section, NATURAL_GAIN)
     out = {"R1a": rho, "R2": -0.5, "R3": -0.5, "R4": 0.5, "R5": -0.5, "C1": 0.5, "C2": -0.5}
     if rho < 1:
         out["R1b"] = 1 - rho
@@ -218,8 +212,7 @@ def gbw_needed_hz(section: Section) -> float:
         f0 max(Q |k_f|, |k_q|) / 0.1 = 20 Q f0, Hz. The second-order Q shift, about
         4 Q e^2, is then at most 0.01/Q.
     """
-    k_f, k_q = gbw_shift(section)
-    return section.f0_hz * max(section.q * abs(k_f), abs(k_q)) / common.GBW_SHIFT_LIMIT
+    return common.gbw_needed_from_shift(section, gbw_shift(section))
 
 
 def limits(section: Section, model: OpAmp, *,
@@ -250,13 +243,9 @@ def limits(section: Section, model: OpAmp, *,
         Infeasible when the op-amp GBW is below ``gbw_needed_hz``, the gain is above 2
         (unless accepted) or the spread exceeds `max_spread`.
     """
-    common.check_section(section)
-    spread = common.resistor_spread(design(section, c_farads=1e-9))
-    return common.assemble_limits(
-        section, model.gbw_hz, opamps=OPAMPS, gbw_needed_hz=gbw_needed_hz(section),
-        gbw_rule="first-order pole movement within 10 % of the bandwidth",
-        spread=spread, sensitivities=q_sensitivities(section),
-        noise_gain=noise_gain(section), natural_gain=NATURAL_GAIN,
+    return common.topology_limits(
+        section, model, opamps=OPAMPS, design=design, gbw_needed_hz=gbw_needed_hz,
+        q_sensitivities=q_sensitivities, noise_gain=noise_gain,
+        natural_gain=lambda q: NATURAL_GAIN,
         accept_gain_shortfall=accept_gain_shortfall, r_tolerance=r_tolerance,
-        c_tolerance=c_tolerance,
-        max_spread=max_spread)
+        c_tolerance=c_tolerance, max_spread=max_spread)

@@ -91,14 +91,11 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     (w0^2 = 1/(R1 R2 C^2)), hence R1b = R2/(4 Q^2 - 2|H0|) (Williams & Taylor 2006, §5.2
     [mem]; derived again in the tests).
     """
-    common.check_section(section)
-    common.check_capacitor(c_farads)
+    common.check_design(section, c_farads)
     q = section.q
-    gain = common.design_gain(section, natural_gain(q))
     r2 = q / (math.pi * section.f0_hz * c_farads)
-    r1a, r1b = common.divider(r2 / (4 * q * q), gain / natural_gain(q))
-    parts = {"R1a": r1a, "R1b": r1b, "R2": r2, "C1": c_farads, "C2": c_farads}
-    return {k: v for k, v in parts.items() if math.isfinite(v)}
+    r1a, r1b = common.divider(r2 / (4 * q * q), common.divider_ratio(section, natural_gain(q)))
+    return common.fitted({"R1a": r1a, "R1b": r1b, "R2": r2, "C1": c_farads, "C2": c_farads})
 
 
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
@@ -117,14 +114,11 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
         Nets "in", "a", "inv", "out" and ground "0".
     """
     c = components
-    out = [resistor("R1a", "in", "a", c["R1a"])]
-    if common.is_fitted(c, "R1b"):
-        out.append(resistor("R1b", "a", "0", c["R1b"]))
-    out += [capacitor("C1", "a", "out", c["C1"]),
+    return (*common.input_divider(c, "a"),
+            capacitor("C1", "a", "out", c["C1"]),
             capacitor("C2", "a", "inv", c["C2"]),
             resistor("R2", "inv", "out", c["R2"]),
-            opamp("U1", "0", "inv", "out", model)]
-    return tuple(out)
+            opamp("U1", "0", "inv", "out", model))
 
 
 def q_sensitivities(section: Section) -> dict[str, float]:
@@ -146,7 +140,7 @@ def q_sensitivities(section: Section) -> dict[str, float]:
     (Schaumann & Van Valkenburg, *Design of Analog Filters*, 2001, ch. 3 [mem]).
     R1/R1a = |H0|/(2 Q^2) is the fraction of the input conductance in R1a.
     """
-    share = common.design_gain(section, natural_gain(section.q)) / natural_gain(section.q)
+    share = common.divider_ratio(section, natural_gain(section.q))
     out = {"R1a": -0.5 * share, "R2": 0.5, "C1": 0.0, "C2": 0.0}
     if share < 1:
         out["R1b"] = -0.5 * (1 - share)
@@ -245,13 +239,9 @@ def limits(section: Section, model: OpAmp, *,
         reach (unless accepted), the spread exceeds `max_spread`, or the worst-case
         tolerance Q shift exceeds 50 % (``_bandpass_common``).
     """
-    common.check_section(section)
-    spread = common.resistor_spread(design(section, c_farads=1e-9))
-    return common.assemble_limits(
-        section, model.gbw_hz, opamps=OPAMPS, gbw_needed_hz=gbw_needed_hz(section),
+    return common.topology_limits(
+        section, model, opamps=OPAMPS, design=design, gbw_needed_hz=gbw_needed_hz,
         gbw_rule="open-loop gain 20 dB above the noise gain 1 + 2Q² at f0",
-        spread=spread, sensitivities=q_sensitivities(section),
-        noise_gain=noise_gain(section), natural_gain=natural_gain(section.q),
+        q_sensitivities=q_sensitivities, noise_gain=noise_gain, natural_gain=natural_gain,
         accept_gain_shortfall=accept_gain_shortfall, r_tolerance=r_tolerance,
-        c_tolerance=c_tolerance,
-        max_spread=max_spread)
+        c_tolerance=c_tolerance, max_spread=max_spread)

@@ -31,7 +31,6 @@ from collections.abc import Mapping
 from bandwright.circuits import _bandpass_common as common
 from bandwright.circuits.base import Limits
 from bandwright.circuits.elements import Element, capacitor, opamp, resistor
-from bandwright.errors import InfeasibleDesign
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
@@ -120,20 +119,14 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     R = 1/(w0 C); R1a ∥ R1b = R2 = R, R3 = 2 R; Ra/Rb = K - 1 = 2 - 1/Q, the smaller of
     the two equal to R (module docstring).
     """
-    common.check_section(section)
-    common.check_capacitor(c_farads)
-    problems = _problems(section)
-    if problems:
-        raise InfeasibleDesign(problems[0])
+    common.check_design(section, c_farads, problems=_problems)
     q = section.q
     r = 1.0 / (2 * math.pi * section.f0_hz * c_farads)
-    gain = common.design_gain(section, natural_gain(q))
-    r1a, r1b = common.divider(r, gain / natural_gain(q))
+    r1a, r1b = common.divider(r, common.divider_ratio(section, natural_gain(q)))
     ratio = amplifier_gain(q) - 1.0
     ra, rb = (ratio * r, r) if ratio >= 1 else (r, r / ratio)
-    parts = {"R1a": r1a, "R1b": r1b, "R2": r, "R3": 2 * r, "C1": c_farads, "C2": c_farads,
-             "Ra": ra, "Rb": rb}
-    return {k: v for k, v in parts.items() if math.isfinite(v)}
+    return common.fitted({"R1a": r1a, "R1b": r1b, "R2": r, "R3": 2 * r, "C1": c_farads,
+                          "C2": c_farads, "Ra": ra, "Rb": rb})
 
 
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
@@ -152,17 +145,14 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
         Nets "in", "a", "b", "fb", "out" and ground "0".
     """
     c = components
-    out = [resistor("R1a", "in", "a", c["R1a"])]
-    if common.is_fitted(c, "R1b"):
-        out.append(resistor("R1b", "a", "0", c["R1b"]))
-    out += [resistor("R2", "a", "out", c["R2"]),
+    return (*common.input_divider(c, "a"),
+            resistor("R2", "a", "out", c["R2"]),
             capacitor("C1", "a", "0", c["C1"]),
             capacitor("C2", "a", "b", c["C2"]),
             resistor("R3", "b", "0", c["R3"]),
             resistor("Ra", "out", "fb", c["Ra"]),
             resistor("Rb", "fb", "0", c["Rb"]),
-            opamp("U1", "b", "fb", "out", model)]
-    return tuple(out)
+            opamp("U1", "b", "fb", "out", model))
 
 
 def q_sensitivities(section: Section) -> dict[str, float]:
@@ -187,7 +177,7 @@ def q_sensitivities(section: Section) -> dict[str, float]:
     has S_K^Q = 3Q - 1; Ra and Rb see it through S_Ra^K = (K - 1)/K.
     """
     q = section.q
-    rho = common.design_gain(section, natural_gain(q)) / natural_gain(q)
+    rho = common.divider_ratio(section, natural_gain(q))
     out = {"R1a": rho * (q - 0.25), "R2": -(2 * q - 0.75), "R3": q - 0.5,
            "C1": -(q - 1) / 2, "C2": (q - 1) / 2, "Ra": 2 * q - 1, "Rb": -(2 * q - 1)}
     if rho < 1:
@@ -274,8 +264,7 @@ def gbw_needed_hz(section: Section) -> float:
     float
         f0 max(Q |k_f|, |k_q|) / 0.1, Hz (``_bandpass_common``).
     """
-    k_f, k_q = gbw_shift(section)
-    return section.f0_hz * max(section.q * abs(k_f), abs(k_q)) / common.GBW_SHIFT_LIMIT
+    return common.gbw_needed_from_shift(section, gbw_shift(section))
 
 
 def limits(section: Section, model: OpAmp, *,
@@ -308,18 +297,9 @@ def limits(section: Section, model: OpAmp, *,
         op-amp GBW is below ``gbw_needed_hz``, when the gain is out of reach (unless
         accepted) or when the spread exceeds `max_spread`.
     """
-    common.check_section(section)
-    problems = _problems(section)
-    if problems:
-        return Limits(feasible=False, reasons=problems, gbw_needed_hz=math.inf,
-                      spread=math.inf, q_sensitivity=math.inf, noise_gain=math.inf,
-                      opamps=OPAMPS)
-    spread = common.resistor_spread(design(section, c_farads=1e-9))
-    return common.assemble_limits(
-        section, model.gbw_hz, opamps=OPAMPS, gbw_needed_hz=gbw_needed_hz(section),
-        gbw_rule="first-order pole movement within 10 % of the bandwidth",
-        spread=spread, sensitivities=q_sensitivities(section),
-        noise_gain=noise_gain(section), natural_gain=natural_gain(section.q),
+    return common.topology_limits(
+        section, model, opamps=OPAMPS, design=design, gbw_needed_hz=gbw_needed_hz,
+        q_sensitivities=q_sensitivities, noise_gain=noise_gain, natural_gain=natural_gain,
         accept_gain_shortfall=accept_gain_shortfall, r_tolerance=r_tolerance,
-        c_tolerance=c_tolerance,
-        max_spread=max_spread, tolerance_q_max=tolerance_q_max(r_tolerance, c_tolerance))
+        c_tolerance=c_tolerance, max_spread=max_spread, problems=_problems,
+        tolerance_q_max=tolerance_q_max)

@@ -36,7 +36,6 @@ from collections.abc import Mapping
 from bandwright.circuits import _bandpass_common as common
 from bandwright.circuits.base import Limits
 from bandwright.circuits.elements import Element, capacitor, opamp, resistor
-from bandwright.errors import InfeasibleDesign
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
@@ -109,11 +108,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     R = 1/(w0 C): Ri1 = Ri2 = Rf = Rg = R; the divider at [p] has Thevenin resistance R/2
     with b = 1/(2Q) and a = |H0|/(2Q) (module docstring).
     """
-    common.check_section(section)
-    common.check_capacitor(c_farads)
-    problems = _problems(section)
-    if problems:
-        raise InfeasibleDesign(problems[0])
+    common.check_design(section, c_farads, problems=_problems)
     q = section.q
     r = 1.0 / (2 * math.pi * section.f0_hz * c_farads)
     gain = common.design_gain(section, natural_gain(q))
@@ -123,9 +118,8 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     g_b = 1.0 - g_q - g_in
     # A remainder at round-off level means the natural gain: R1b not fitted.
     r1b = r_p / g_b if g_b > common.GAIN_RTOL else math.inf
-    parts = {"R1a": r_p / g_in, "R1b": r1b, "RQ": r_p / g_q, "Rf": r, "Rg": r,
-             "Ri1": r, "Ri2": r, "C1": c_farads, "C2": c_farads}
-    return {k: v for k, v in parts.items() if math.isfinite(v)}
+    return common.fitted({"R1a": r_p / g_in, "R1b": r1b, "RQ": r_p / g_q, "Rf": r, "Rg": r,
+                          "Ri1": r, "Ri2": r, "C1": c_farads, "C2": c_farads})
 
 
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
@@ -144,10 +138,8 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
         Nets "in", "p", "m", "highpass", "i1", "out", "i2", "lowpass" and ground "0".
     """
     c = components
-    out = [resistor("R1a", "in", "p", c["R1a"])]
-    if common.is_fitted(c, "R1b"):
-        out.append(resistor("R1b", "p", "0", c["R1b"]))
-    out += [resistor("RQ", "out", "p", c["RQ"]),
+    return (*common.input_divider(c, "p"),
+            resistor("RQ", "out", "p", c["RQ"]),
             resistor("Rf", "highpass", "m", c["Rf"]),
             resistor("Rg", "lowpass", "m", c["Rg"]),
             opamp("U1", "p", "m", "highpass", model),
@@ -156,8 +148,7 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
             opamp("U2", "0", "i1", "out", model),
             resistor("Ri2", "out", "i2", c["Ri2"]),
             capacitor("C2", "i2", "lowpass", c["C2"]),
-            opamp("U3", "0", "i2", "lowpass", model)]
-    return tuple(out)
+            opamp("U3", "0", "i2", "lowpass", model))
 
 
 def q_sensitivities(section: Section) -> dict[str, float]:
@@ -240,8 +231,7 @@ def gbw_needed_hz(section: Section) -> float:
     float
         f0 max(Q |k_f|, |k_q|)/0.1 Hz: about 40 Q f0.
     """
-    k_f, k_q = gbw_shift(section)
-    return section.f0_hz * max(section.q * abs(k_f), abs(k_q)) / common.GBW_SHIFT_LIMIT
+    return common.gbw_needed_from_shift(section, gbw_shift(section))
 
 
 def limits(section: Section, model: OpAmp, *,
@@ -272,18 +262,8 @@ def limits(section: Section, model: OpAmp, *,
         Infeasible when Q <= 1/2, the op-amp GBW is below ``gbw_needed_hz``, the gain is
         out of reach (unless accepted) or the spread exceeds `max_spread`.
     """
-    common.check_section(section)
-    problems = _problems(section)
-    if problems:
-        return Limits(feasible=False, reasons=problems, gbw_needed_hz=math.inf,
-                      spread=math.inf, q_sensitivity=math.inf, noise_gain=math.inf,
-                      opamps=OPAMPS)
-    spread = common.resistor_spread(design(section, c_farads=1e-9))
-    return common.assemble_limits(
-        section, model.gbw_hz, opamps=OPAMPS, gbw_needed_hz=gbw_needed_hz(section),
-        gbw_rule="first-order pole movement within 10 % of the bandwidth",
-        spread=spread, sensitivities=q_sensitivities(section),
-        noise_gain=noise_gain(section), natural_gain=natural_gain(section.q),
+    return common.topology_limits(
+        section, model, opamps=OPAMPS, design=design, gbw_needed_hz=gbw_needed_hz,
+        q_sensitivities=q_sensitivities, noise_gain=noise_gain, natural_gain=natural_gain,
         accept_gain_shortfall=accept_gain_shortfall, r_tolerance=r_tolerance,
-        c_tolerance=c_tolerance,
-        max_spread=max_spread)
+        c_tolerance=c_tolerance, max_spread=max_spread, problems=_problems)

@@ -82,8 +82,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     R = 1/(w0 C): R2 = R4 = R (w0^2 = 1/(R2 R4 C1 C2)), R5 = R6 = R (unity inverter),
     RQ = Q R (w0/Q = 1/(RQ C1)), Rin = RQ/|H0| (H(f0) = -RQ/Rin); module docstring.
     """
-    common.check_section(section)
-    common.check_capacitor(c_farads)
+    common.check_design(section, c_farads)
     r = 1.0 / (2 * math.pi * section.f0_hz * c_farads)
     rq = section.q * r
     return {"Rin": rq / abs(section.gain), "RQ": rq, "R2": r, "R4": r, "R5": r, "R6": r,
@@ -198,8 +197,7 @@ def gbw_needed_hz(section: Section) -> float:
     float
         f0 max(Q |k_f|, |k_q|)/0.1 Hz: about 40 Q f0, i.e. 4 Q e <= 0.1.
     """
-    k_f, k_q = gbw_shift(section)
-    return section.f0_hz * max(section.q * abs(k_f), abs(k_q)) / common.GBW_SHIFT_LIMIT
+    return common.gbw_needed_from_shift(section, gbw_shift(section))
 
 
 def limits(section: Section, model: OpAmp, *,
@@ -229,13 +227,9 @@ def limits(section: Section, model: OpAmp, *,
         Infeasible when the op-amp GBW is below ``gbw_needed_hz`` or the spread exceeds
         `max_spread`.
     """
-    common.check_section(section)
-    spread = common.resistor_spread(design(section, c_farads=1e-9))
-    return common.assemble_limits(
-        section, model.gbw_hz, opamps=OPAMPS, gbw_needed_hz=gbw_needed_hz(section),
-        gbw_rule="first-order pole movement within 10 % of the bandwidth",
-        spread=spread, sensitivities=q_sensitivities(section),
-        noise_gain=noise_gain(section), natural_gain=math.inf,
+    return common.topology_limits(
+        section, model, opamps=OPAMPS, design=design, gbw_needed_hz=gbw_needed_hz,
+        q_sensitivities=q_sensitivities, noise_gain=noise_gain,
+        natural_gain=lambda q: math.inf,
         accept_gain_shortfall=accept_gain_shortfall, r_tolerance=r_tolerance,
-        c_tolerance=c_tolerance,
-        max_spread=max_spread)
+        c_tolerance=c_tolerance, max_spread=max_spread)
