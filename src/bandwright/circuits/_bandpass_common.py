@@ -326,10 +326,8 @@ def divider_ratio(section: Section, natural_gain: float) -> float:
 
     Parameters
     ----------
-    section : Section
-        The section.
-    natural_gain : float
-        The largest |centre gain| the topology reaches for this Q (> 0).
+    section, natural_gain
+        As for ``design_gain``.
 
     Returns
     -------

@@ -584,13 +584,11 @@ def filter_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
     Parameters
     ----------
     section : Section
-        The section.
+        The lowpass or highpass section.
     model : OpAmp
         The op-amp model.
-    kind : str
-        The topology's KIND.
-    opamps : int
-        The topology's OPAMPS.
+    kind, opamps : str, int
+        The topology's KIND and OPAMPS.
     design : callable
         The topology's ``design(section, *, c_farads)``.
     ideal_figures : callable
@@ -640,9 +638,9 @@ def closed_loop_bandwidth_hz(noise_gain: float, model: OpAmp) -> float:
     Parameters
     ----------
     noise_gain : float
-        1/beta of the loop, V/V.
+        NG = 1/beta of the stage's loop, V/V.
     model : OpAmp
-        The single-pole op-amp model.
+        Single-pole op-amp model (GBW and A0).
 
     Returns
     -------
@@ -659,15 +657,14 @@ def gain_stage_gbw_needed_hz(noise_gain: float, max_freq_hz: float) -> float:
     Parameters
     ----------
     noise_gain : float
-        1/beta of the loop, V/V.
+        NG, the stage's noise gain (V/V).
     max_freq_hz : float
-        Highest signal frequency the stage must pass, Hz.
+        f_max, the highest frequency to pass (Hz).
 
     Returns
     -------
     float
-        NG · f_max / sqrt(1/(1 - 0.01)^2 - 1) ~= 7.02 NG f_max, Hz: the single-pole closed
-        loop falls as 1/sqrt(1 + (f/f_b)^2), f_b = GBW/NG (Franco 2015, §6.2 [mem]).
+        NG f_max / ``_GAIN_ERROR_BANDWIDTH_RATIO`` (about 7.02 NG f_max), Hz.
     """
     return noise_gain * max_freq_hz / _GAIN_ERROR_BANDWIDTH_RATIO
 
@@ -681,14 +678,10 @@ def gain_stage_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
 
     Parameters
     ----------
-    section : Section
-        The gain section.
-    model : OpAmp
-        The op-amp model.
-    kind : str
-        The topology's KIND.
-    opamps : int
-        The topology's OPAMPS.
+    section, model : Section, OpAmp
+        The gain section and the op-amp model.
+    kind, opamps : str, int
+        The topology's KIND and OPAMPS.
     design : callable
         The topology's ``design(section)``.
     noise_gain : callable
