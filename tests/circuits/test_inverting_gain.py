@@ -23,18 +23,13 @@ from bandwright.errors import InfeasibleDesign
 from bandwright.sections.section import Section
 
 try:
-    from lphp_support import IDEAL, check_interface, make_opamp, rel
+    from lphp_support import (FLAT_FREQS_HZ, IDEAL, check_interface, gain_section, make_opamp,
+                              rel)
     from symbolic_lp import element_symbols, noise_gain, transfer
 except ImportError:  # tests/circuits imported as a package
-    from .lphp_support import IDEAL, check_interface, make_opamp, rel
+    from .lphp_support import (FLAT_FREQS_HZ, IDEAL, check_interface, gain_section,
+                               make_opamp, rel)
     from .symbolic_lp import element_symbols, noise_gain, transfer
-
-FREQS_HZ = np.array([0.0, 10.0, 1e3, 1e5, 1e7])
-
-
-def _gain(g: float) -> Section:
-    return Section("gain", 0.0, 0.0, g)
-
 
 def test_interface():
     """[base.Topology] attributes and registry entry."""
@@ -51,7 +46,7 @@ def test_interface():
 def test_design_values(g, want):
     """Rf/Rin = |gain|, the smaller 10 kOhm, so the input resistance is >= 10 kOhm; the
     sign of the section's gain is ignored (the stage always inverts)."""
-    parts = ivg.design(_gain(g), c_farads=1e-9)
+    parts = ivg.design(gain_section(g), c_farads=1e-9)
     assert parts.keys() == want.keys()
     for k, v in want.items():
         assert rel(parts[k], v) < 1e-12
@@ -68,8 +63,8 @@ def test_transfer_and_noise_gain_of_the_element_list():
 @pytest.mark.parametrize("g", [-1.0, -2.0, -7.5, -100.0, -0.5, -0.01])
 def test_gain_is_exact_with_an_ideal_opamp(g):
     """[nodal] flat gain equal to the target at every frequency (ideal op-amp)."""
-    parts = ivg.design(_gain(g))
-    h = nodal_transfer(ivg.elements(parts, IDEAL), FREQS_HZ)
+    parts = ivg.design(gain_section(g))
+    h = nodal_transfer(ivg.elements(parts, IDEAL), FLAT_FREQS_HZ)
     assert np.max(np.abs(h - g)) < 1e-12 * abs(g)
     assert rel(ivg.ideal_figures(parts).gain, g) < 1e-12
 
@@ -79,7 +74,7 @@ def test_bandwidth_is_gbw_over_noise_gain(g):
     """[Franco] vs [nodal]: |H(f_b)| = |H(0)|/sqrt(2) at f_b = GBW (1 + NG/A0)/NG with
     NG = 1 + |G|; H(0) = G/(1 + NG/A0)."""
     model = make_opamp(1e6, dc_gain_db=120.0)
-    parts = ivg.design(_gain(g))
+    parts = ivg.design(gain_section(g))
     ng = ivg.noise_gain(parts)
     assert rel(ng, 1 + abs(g)) < 1e-12
     f_b = ivg.bandwidth_hz(parts, model)
@@ -92,14 +87,14 @@ def test_bandwidth_is_gbw_over_noise_gain(g):
 def test_unity_inverter_has_half_the_follower_bandwidth():
     """[Franco] NG = 2 for the unity inverter vs 1 for the follower."""
     model = make_opamp(1e6, dc_gain_db=240.0)
-    inv = ivg.bandwidth_hz(ivg.design(_gain(-1.0)), model)
-    fol = nig.bandwidth_hz(nig.design(_gain(1.0)), model)
+    inv = ivg.bandwidth_hz(ivg.design(gain_section(-1.0)), model)
+    fol = nig.bandwidth_hz(nig.design(gain_section(1.0)), model)
     assert rel(inv, fol / 2) < 1e-9
 
 
 def test_gbw_needed_gives_one_percent_error_at_f_max():
     """[Franco] vs [nodal]: with GBW = gbw_needed_for_hz, |H(f_max)| = 0.99 |H(0)|."""
-    section = _gain(-4.0)
+    section = gain_section(-4.0)
     need = ivg.gbw_needed_for_hz(section, 20e3)
     model = make_opamp(need, dc_gain_db=240.0)
     h = nodal_transfer(ivg.elements(ivg.design(section), model), np.array([0.0, 20e3]))
@@ -110,16 +105,16 @@ def test_gbw_needed_gives_one_percent_error_at_f_max():
 
 def test_limits_figures():
     """noise gain 1 + |G|, spread Rf/Rin, no Q; without max_freq_hz nothing is asked of GBW."""
-    lim = ivg.limits(_gain(-5.0), IDEAL)
+    lim = ivg.limits(gain_section(-5.0), IDEAL)
     assert lim.feasible and rel(lim.noise_gain, 6.0) < 1e-12 and lim.q_sensitivity == 0.0
     assert rel(lim.spread, 5.0) < 1e-12 and lim.opamps == 1
     assert lim.gbw_needed_hz == 0.0 and any("input resistance 1e+04" in r for r in lim.reasons)
 
 
 @pytest.mark.parametrize("section,words", [
-    (_gain(0.0), "non-zero"),
+    (gain_section(0.0), "non-zero"),
     (Section("highpass", 1e3, 1.0, -2.0), "builds 'gain'"),
-    (_gain(-5000.0), "ratio 5000"),
+    (gain_section(-5000.0), "ratio 5000"),
 ])
 def test_limits_reject(section, words):
     """Zero gain, wrong kind, a resistor ratio beyond 1000: infeasible."""
@@ -130,7 +125,7 @@ def test_limits_reject(section, words):
 def test_design_and_element_errors():
     """Zero gain: InfeasibleDesign; wrong kind, missing part: ValueError."""
     with pytest.raises(InfeasibleDesign):
-        ivg.design(_gain(0.0))
+        ivg.design(gain_section(0.0))
     with pytest.raises(ValueError):
         ivg.design(Section("lowpass", 1e3, 1.0, -1.0))
     with pytest.raises(ValueError):

@@ -17,21 +17,22 @@ import math
 import pytest
 import sympy as sp
 
-from bandwright.circuits import _lphp_common as common
 from bandwright.circuits import mfb_lowpass as mlp
 from bandwright.errors import InfeasibleDesign
 from bandwright.sections.section import Section
 
 try:
-    from lphp_support import (IDEAL, check_interface, make_opamp, max_response_error,
-                              numeric_figures, rational_parts, rel)
-    from symbolic_lp import (S, biquad_figures, dominant_pair_shift, element_symbols,
-                             noise_gain, transfer)
+    from lphp_support import (IDEAL, check_interface, exact_and_first_order_shifts,
+                              first_order_shift, make_opamp, max_response_error,
+                              noise_gain_coefficients, numeric_figures, rel, sympy_design_figures,
+                              sympy_q_sensitivities)
+    from symbolic_lp import S, biquad_figures, element_symbols, transfer
 except ImportError:  # tests/circuits imported as a package
-    from .lphp_support import (IDEAL, check_interface, make_opamp, max_response_error,
-                               numeric_figures, rational_parts, rel)
-    from .symbolic_lp import (S, biquad_figures, dominant_pair_shift, element_symbols,
-                              noise_gain, transfer)
+    from .lphp_support import (IDEAL, check_interface, exact_and_first_order_shifts,
+                               first_order_shift, make_opamp, max_response_error,
+                               noise_gain_coefficients, numeric_figures, rel, sympy_design_figures,
+                               sympy_q_sensitivities)
+    from .symbolic_lp import S, biquad_figures, element_symbols, transfer
 
 UNIT_PARTS = {"R1": 1.0, "R2": 1.0, "R3": 1.0, "C1": 1.0, "C2": 1.0}
 
@@ -98,12 +99,10 @@ def test_design_solves_the_sympy_equations(f0_hz, q, gain):
     """[sympy] the designed values put w0, Q and H0 of the derived H(s) on target."""
     parts = mlp.design(Section("lowpass", f0_hz, q, gain), c_farads=4.7e-9)
     assert min(parts["C1"], parts["C2"]) == 4.7e-9     # c_farads is the smaller capacitor
-    w0_sq, bw, k = biquad_figures(transfer(mlp.elements(parts, IDEAL),
-                                           values=rational_parts(parts)), "lowpass")
-    w0 = math.sqrt(float(w0_sq))
-    assert rel(w0 / (2 * math.pi), f0_hz) < 1e-12
-    assert rel(w0 / float(bw), q) < 1e-12
-    assert rel(float(k), gain) < 1e-12
+    f0_sym, q_sym, k = sympy_design_figures(mlp, parts)
+    assert rel(f0_sym, f0_hz) < 1e-12
+    assert rel(q_sym, q) < 1e-12
+    assert rel(k, gain) < 1e-12
 
 
 @pytest.mark.parametrize("f0_hz,q,gain", CASES)
@@ -122,10 +121,7 @@ def test_designed_section_hits_target_in_the_nodal_solver(f0_hz, q, gain):
 def test_noise_gain_numerator_matches_sympy(f0_hz, q, gain):
     """[sympy] NG(s) of a source in series with U1's + input, numerator over monic D(s)."""
     parts = mlp.design(Section("lowpass", f0_hz, q, gain), c_farads=1e-9)
-    ng = noise_gain(mlp.elements(parts, IDEAL), "U1", values=rational_parts(parts))
-    num, den = sp.fraction(sp.cancel(ng))
-    lead = sp.Poly(den, S).all_coeffs()[0]
-    coeffs = [float(c / lead) for c in sp.Poly(num, S).all_coeffs()]
+    ng, coeffs = noise_gain_coefficients(mlp, parts)
     for got, want in zip(mlp.noise_gain_numerator(parts), coeffs):
         assert rel(got, want) < 1e-9
     # At DC the loop is an inverting amplifier: NG(0) = 1 + K (Franco 2015, §1.3 [mem]).
@@ -136,12 +132,7 @@ def test_noise_gain_numerator_matches_sympy(f0_hz, q, gain):
 def test_finite_gbw_first_order_shift_matches_exact_poles(f0_hz, q, gain):
     """[sympy] poles with A = wt/s at e = f0/GBW = 1e-7 vs the first-order formula."""
     parts = mlp.design(Section("lowpass", f0_hz, q, gain), c_farads=1e-9)
-    e = sp.Rational(1, 10**7)
-    h = transfer(mlp.elements(parts, IDEAL), values=rational_parts(parts),
-                 opamp_gain=2 * sp.pi * sp.Rational(f0_hz) / e / S)
-    f_shift, q_shift = dominant_pair_shift(h, f0_hz, q)
-    fig = mlp.ideal_figures(parts)
-    k_f, k_q = common.finite_gbw_shift(fig.f0_hz, fig.q, mlp.noise_gain_numerator(parts))
+    e, (f_shift, q_shift), (k_f, k_q) = exact_and_first_order_shifts(mlp, parts, f0_hz, q)
     assert abs(f_shift / float(e) - k_f) < 1e-4 * max(1.0, abs(k_f))
     assert abs(q_shift / float(e) - k_q) < 1e-4 * max(1.0, abs(k_q))
 
@@ -150,8 +141,7 @@ def test_finite_gbw_in_the_project_model():
     """[nodal] single-pole op-amp (A0 200 dB), e = 1e-3: shifts within 2 % of first order."""
     f0_hz, q = 2e3, 2.0
     parts = mlp.design(Section("lowpass", f0_hz, q, -1.0), c_farads=1e-9)
-    fig0 = mlp.ideal_figures(parts)
-    k_f, k_q = common.finite_gbw_shift(fig0.f0_hz, fig0.q, mlp.noise_gain_numerator(parts))
+    k_f, k_q = first_order_shift(mlp, parts)
     fig = numeric_figures(mlp, parts, make_opamp(f0_hz * 1e3, dc_gain_db=200.0), f0_hz)
     assert rel(fig.f0_hz / f0_hz - 1, k_f * 1e-3) < 0.02
     assert rel(fig.q / q - 1, k_q * 1e-3) < 0.02
@@ -163,11 +153,7 @@ def test_finite_gbw_in_the_project_model():
 def test_q_sensitivity_is_one_half(f0_hz, q, gain):
     """[sympy] at the design point S^Q is 0 (R3), +-1/2 (C1, C2), +-K/(2(1+K)) (R1, R2)."""
     section = Section("lowpass", f0_hz, q, gain)
-    parts = mlp.design(section, c_farads=1e-9)
-    sym, (w0_sq, bw, _) = _symbolic_figures()
-    q_expr = sp.sqrt(w0_sq) / bw
-    at = {sym[k]: sp.Rational(v) for k, v in parts.items()}
-    sens = {k: float((x / q_expr * sp.diff(q_expr, x)).subs(at)) for k, x in sym.items()}
+    sens = sympy_q_sensitivities(mlp, mlp.design(section, c_farads=1e-9))
     kk = abs(gain)
     assert abs(sens["R3"]) < 1e-12
     assert rel(sens["C1"], 0.5) < 1e-12 and rel(sens["C2"], -0.5) < 1e-12

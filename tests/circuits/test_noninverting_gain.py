@@ -22,18 +22,13 @@ from bandwright.errors import InfeasibleDesign
 from bandwright.sections.section import Section
 
 try:
-    from lphp_support import IDEAL, check_interface, make_opamp, rel
+    from lphp_support import (FLAT_FREQS_HZ, IDEAL, check_interface, gain_section, make_opamp,
+                              rel)
     from symbolic_lp import element_symbols, noise_gain, transfer
 except ImportError:  # tests/circuits imported as a package
-    from .lphp_support import IDEAL, check_interface, make_opamp, rel
+    from .lphp_support import (FLAT_FREQS_HZ, IDEAL, check_interface, gain_section,
+                               make_opamp, rel)
     from .symbolic_lp import element_symbols, noise_gain, transfer
-
-FREQS_HZ = np.array([0.0, 10.0, 1e3, 1e5, 1e7])
-
-
-def _gain(g: float) -> Section:
-    return Section("gain", 0.0, 0.0, g)
-
 
 def test_interface():
     """[base.Topology] attributes and registry entry; every part optional."""
@@ -54,7 +49,7 @@ def test_interface():
 def test_design_forms_and_values(g, want):
     """Follower / amplifier / divider; the smaller resistor of a pair is 10 kOhm; |gain|
     within 0.1 % of 1 is the follower; the sign is ignored (all documented)."""
-    parts = nig.design(_gain(g), c_farads=1e-9)
+    parts = nig.design(gain_section(g), c_farads=1e-9)
     assert parts.keys() == want.keys()
     for k, v in want.items():
         assert rel(parts[k], v) < 1e-12
@@ -79,8 +74,8 @@ def test_transfer_of_the_combined_element_list():
 @pytest.mark.parametrize("g", [1.0, 1.01, 2.0, 7.5, 100.0, 0.9, 0.5, 0.01])
 def test_gain_is_exact_with_an_ideal_opamp(g):
     """[nodal] flat gain equal to the target at every frequency (ideal op-amp)."""
-    parts = nig.design(_gain(g))
-    h = nodal_transfer(nig.elements(parts, IDEAL), FREQS_HZ)
+    parts = nig.design(gain_section(g))
+    h = nodal_transfer(nig.elements(parts, IDEAL), FLAT_FREQS_HZ)
     assert np.max(np.abs(h - g)) < 1e-12 * g
     assert rel(nig.ideal_figures(parts).gain, g) < 1e-12
 
@@ -90,7 +85,7 @@ def test_bandwidth_is_gbw_over_noise_gain(g):
     """[Franco] vs [nodal]: |H(f_b)| = |H(0)|/sqrt(2) at f_b = GBW (1 + NG/A0)/NG;
     H(0) = G/(1 + NG/A0); f_b ~= GBW/NG."""
     model = make_opamp(1e6, dc_gain_db=120.0)
-    parts = nig.design(_gain(g))
+    parts = nig.design(gain_section(g))
     ng = nig.noise_gain(parts)
     f_b = nig.bandwidth_hz(parts, model)
     assert rel(f_b, 1e6 / ng) < 2 * ng / model.a0
@@ -102,7 +97,7 @@ def test_bandwidth_is_gbw_over_noise_gain(g):
 @pytest.mark.parametrize("g", [1.0, 3.0, 0.3])
 def test_gbw_needed_gives_one_percent_error_at_f_max(g):
     """[Franco] vs [nodal]: with GBW = gbw_needed_for_hz, |H(f_max)| = 0.99 |H(0)|."""
-    section = _gain(g)
+    section = gain_section(g)
     need = nig.gbw_needed_for_hz(section, 20e3)
     model = make_opamp(need, dc_gain_db=240.0)
     h = nodal_transfer(nig.elements(nig.design(section), model), np.array([0.0, 20e3]))
@@ -114,26 +109,26 @@ def test_gbw_needed_gives_one_percent_error_at_f_max(g):
 
 def test_limits_figures():
     """noise gain = G for the amplifier, 1 for follower and divider; no Q, so S^Q = 0."""
-    amp = nig.limits(_gain(5.0), IDEAL)
+    amp = nig.limits(gain_section(5.0), IDEAL)
     assert amp.feasible and rel(amp.noise_gain, 5.0) < 1e-12 and amp.q_sensitivity == 0.0
     assert rel(amp.spread, 4.0) < 1e-12
     assert any("amplifier" in r for r in amp.reasons)
-    assert nig.limits(_gain(1.0), IDEAL).noise_gain == 1.0
-    assert nig.limits(_gain(0.5), IDEAL).noise_gain == 1.0
-    no_freq = nig.limits(_gain(5.0), make_opamp(1e6))
+    assert nig.limits(gain_section(1.0), IDEAL).noise_gain == 1.0
+    assert nig.limits(gain_section(0.5), IDEAL).noise_gain == 1.0
+    no_freq = nig.limits(gain_section(5.0), make_opamp(1e6))
     assert no_freq.gbw_needed_hz == 0.0 and any("max_freq_hz" in r for r in no_freq.reasons)
 
 
 def test_near_unity_gain_is_noted():
     """A |gain| built at unity says so in the reasons."""
-    lim = nig.limits(_gain(0.9995), IDEAL)
+    lim = nig.limits(gain_section(0.9995), IDEAL)
     assert lim.feasible and any("built at unity" in r for r in lim.reasons)
 
 
 @pytest.mark.parametrize("section,words", [
-    (_gain(0.0), "non-zero"),
+    (gain_section(0.0), "non-zero"),
     (Section("lowpass", 1e3, 1.0, 2.0), "builds 'gain'"),
-    (_gain(2000.0), "ratio 1999"),
+    (gain_section(2000.0), "ratio 1999"),
 ])
 def test_limits_reject(section, words):
     """Zero gain, wrong kind, a resistor ratio beyond 1000: infeasible."""
@@ -144,7 +139,7 @@ def test_limits_reject(section, words):
 def test_design_and_element_errors():
     """Zero gain: InfeasibleDesign; wrong kind, half pair, unknown part: ValueError."""
     with pytest.raises(InfeasibleDesign):
-        nig.design(_gain(0.0))
+        nig.design(gain_section(0.0))
     with pytest.raises(ValueError):
         nig.design(Section("highpass", 1e3, 1.0, 1.0))
     with pytest.raises(ValueError):

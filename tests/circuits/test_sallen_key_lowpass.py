@@ -16,36 +16,27 @@ import math
 import pytest
 import sympy as sp
 
-from bandwright.circuits import _lphp_common as common
 from bandwright.circuits import sallen_key_lowpass as skl
 from bandwright.errors import InfeasibleDesign
 from bandwright.sections.section import Section
 
 try:
-    from lphp_support import (IDEAL, check_interface, make_opamp, max_response_error,
-                              numeric_figures, rational_parts, rel)
-    from symbolic_lp import (S, biquad_figures, dominant_pair_shift, element_symbols,
-                             noise_gain, transfer)
+    from lphp_support import (IDEAL, SALLEN_KEY_CASES, check_interface,
+                              exact_and_first_order_shifts, make_opamp, max_response_error,
+                              noise_gain_coefficients, numeric_figures, rel,
+                              sympy_design_figures, sympy_q_sensitivities)
+    from symbolic_lp import S, biquad_figures, element_symbols, transfer
 except ImportError:  # tests/circuits imported as a package
-    from .lphp_support import (IDEAL, check_interface, make_opamp, max_response_error,
-                               numeric_figures, rational_parts, rel)
-    from .symbolic_lp import (S, biquad_figures, dominant_pair_shift, element_symbols,
-                              noise_gain, transfer)
+    from .lphp_support import (IDEAL, SALLEN_KEY_CASES, check_interface,
+                               exact_and_first_order_shifts, make_opamp, max_response_error,
+                               noise_gain_coefficients, numeric_figures, rel,
+                               sympy_design_figures, sympy_q_sensitivities)
+    from .symbolic_lp import S, biquad_figures, element_symbols, transfer
 
 ALL_PARTS = {"R1": 1.0, "R2": 1.0, "C1": 1.0, "C2": 1.0, "Rf": 1.0, "Rg": 1.0}
 FOLLOWER_PARTS = {"R1": 1.0, "R2": 1.0, "C1": 1.0, "C2": 1.0}
 
-# (f0_hz, Q, gain): Butterworth/Chebyshev-like Qs, a Q below 1/2 (C1 < C2), the
-# equal-component gain 3 - 1/Q, and large gains.
-CASES = [
-    (1e3, 0.5412, 1.0),
-    (40e3, 1.3065, 1.0),
-    (100.0, 0.3, 1.0),
-    (5e3, 2.0, 1.5),
-    (5e3, 5.0, 3 - 1 / 5.0),
-    (2e3, 0.7071, 10.0),
-    (300.0, 8.0, 1.0),
-]
+CASES = SALLEN_KEY_CASES
 
 
 def test_interface():
@@ -99,12 +90,10 @@ def test_equal_components_when_gain_is_three_minus_one_over_q(q):
 def test_design_solves_the_sympy_equations(f0_hz, q, gain):
     """[sympy] the designed values put w0, Q and K of the derived H(s) on target."""
     parts = skl.design(Section("lowpass", f0_hz, q, gain), c_farads=4.7e-9)
-    els = skl.elements(parts, IDEAL)
-    w0_sq, bw, k = biquad_figures(transfer(els, values=rational_parts(parts)), "lowpass")
-    w0 = math.sqrt(float(w0_sq))
-    assert rel(w0 / (2 * math.pi), f0_hz) < 1e-12
-    assert rel(w0 / float(bw), q) < 1e-12
-    assert rel(float(k), gain) < 1e-12
+    f0_sym, q_sym, k = sympy_design_figures(skl, parts)
+    assert rel(f0_sym, f0_hz) < 1e-12
+    assert rel(q_sym, q) < 1e-12
+    assert rel(k, gain) < 1e-12
 
 
 @pytest.mark.parametrize("f0_hz,q,gain", CASES)
@@ -123,11 +112,7 @@ def test_designed_section_hits_target_in_the_nodal_solver(f0_hz, q, gain):
 def test_noise_gain_numerator_matches_sympy(f0_hz, q, gain):
     """[sympy] NG(s) of a source in series with U1's + input, numerator over monic D(s)."""
     parts = skl.design(Section("lowpass", f0_hz, q, gain), c_farads=1e-9)
-    els = skl.elements(parts, IDEAL)
-    ng = noise_gain(els, "U1", values=rational_parts(parts))
-    num, den = sp.fraction(sp.cancel(ng))
-    lead = sp.Poly(den, S).all_coeffs()[0]
-    coeffs = [float(c / lead) for c in sp.Poly(num, S).all_coeffs()]
+    _, coeffs = noise_gain_coefficients(skl, parts)
     for got, want in zip(skl.noise_gain_numerator(parts), coeffs):
         assert rel(got, want) < 1e-9
 
@@ -143,12 +128,7 @@ def test_unity_gain_noise_gain_at_f0_is_one_plus_two_q_squared(q):
 def test_finite_gbw_first_order_shift_matches_exact_poles(f0_hz, q, gain):
     """[sympy] poles with A = wt/s at e = f0/GBW = 1e-7 vs the first-order formula."""
     parts = skl.design(Section("lowpass", f0_hz, q, gain), c_farads=1e-9)
-    e = sp.Rational(1, 10**7)
-    h = transfer(skl.elements(parts, IDEAL), values=rational_parts(parts),
-                 opamp_gain=2 * sp.pi * sp.Rational(f0_hz) / e / S)
-    f_shift, q_shift = dominant_pair_shift(h, f0_hz, q)
-    fig = skl.ideal_figures(parts)
-    k_f, k_q = common.finite_gbw_shift(fig.f0_hz, fig.q, skl.noise_gain_numerator(parts))
+    e, (f_shift, q_shift), (k_f, k_q) = exact_and_first_order_shifts(skl, parts, f0_hz, q)
     assert abs(f_shift / float(e) - k_f) < 1e-4 * max(1.0, abs(k_f))
     assert abs(q_shift / float(e) - k_q) < 1e-4 * max(1.0, abs(k_q))
 
@@ -180,21 +160,12 @@ def test_gbw_needed_at_unity_gain_is_ten_q_f0(q):
     assert rel(lim.gbw_needed_hz, 10 * q * 5e3) < 1e-9
 
 
-def _sympy_max_q_sensitivity(parts):
-    """[sympy] max |S_x^Q| = |x/Q dQ/dx| over the parts, from the derived H(s)."""
-    els = skl.elements(parts, IDEAL)
-    sym = element_symbols(els)
-    w0_sq, bw, _ = biquad_figures(transfer(els), "lowpass")
-    q_expr = sp.sqrt(w0_sq) / bw
-    at = {sym[k]: sp.Rational(v) for k, v in parts.items()}
-    return max(abs(float((x / q_expr * sp.diff(q_expr, x)).subs(at))) for x in sym.values())
-
-
 @pytest.mark.parametrize("f0_hz,q,gain", CASES[:6])
 def test_q_sensitivity_matches_sympy(f0_hz, q, gain):
     """[sympy] limits().q_sensitivity is the largest classical sensitivity S_x^Q."""
     section = Section("lowpass", f0_hz, q, gain)
-    want = _sympy_max_q_sensitivity(skl.design(section, c_farads=1e-9))
+    sens = sympy_q_sensitivities(skl, skl.design(section, c_farads=1e-9))
+    want = max(map(abs, sens.values()))
     assert rel(skl.limits(section, IDEAL).q_sensitivity, want) < 1e-6
 
 
