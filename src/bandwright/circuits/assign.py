@@ -67,7 +67,9 @@ def _weakest_output(elements, freq_hz) -> tuple[str, float] | None:
 
 def _rank(lim: Limits) -> tuple[float, float, float]:
     # Cheapest first: fewest op-amps, then lowest Q sensitivity, then lowest noise gain.
-    return (lim.opamps, lim.q_sensitivity, lim.noise_gain)
+    # Sensitivities equal to two significant digits are a tie (0.5 against 0.5000001 is
+    # rounding, not a reason), which the noise gain then decides.
+    return (lim.opamps, float(f"{lim.q_sensitivity:.2g}"), lim.noise_gain)
 
 
 def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: str = "E12",
