@@ -2,7 +2,7 @@
 
 References used by the helpers: the project's nodal solver and polynomial reduction
 (``circuits.nodal``, ``circuits.figures``) for numbers, and ``symbolic.py`` (sympy nodal
-analysis) for formulas.
+analysis) for formulas. The helpers compute; the tests assert.
 """
 
 from __future__ import annotations
@@ -11,6 +11,7 @@ import math
 from types import ModuleType
 
 import numpy as np
+import pytest
 import sympy as sp
 
 from bandwright.circuits import TOPOLOGY_NAMES, topology
@@ -20,9 +21,16 @@ from bandwright.circuits.nodal import transfer as nodal_transfer
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section, section_response
 
+try:
+    from symbolic import bandpass_figures, noise_gain, part_symbols, transfer
+except ImportError:  # tests/circuits imported as a package
+    from .symbolic import bandpass_figures, noise_gain, part_symbols, transfer
+
 __all__ = ["make_opamp", "IDEAL", "GENERAL_PURPOSE", "check_interface", "ideal_figures",
            "built_figures", "max_response_error", "rel", "unit_parts", "exact",
-           "numeric_sensitivities", "numeric_noise_gain", "C_FARADS"]
+           "numeric_sensitivities", "numeric_noise_gain", "C_FARADS", "bandpass_section",
+           "symbolic_fixtures", "sensitivities_against_sympy", "sympy_noise_gains",
+           "built_shifts_per_e"]
 
 #: The impedance-level capacitor of the numeric checks.
 C_FARADS = 10e-9
@@ -123,3 +131,55 @@ def numeric_noise_gain(ng: sp.Expr, f0_hz: float) -> float:
 def rel(a: float, b: float) -> float:
     """Relative difference |a - b| / |b|."""
     return abs(a - b) / abs(b)
+
+
+def bandpass_section(f0_hz: float, q: float, gain: float) -> Section:
+    """A bandpass section."""
+    return Section(kind="bandpass", f0_hz=f0_hz, q=q, gain=gain)
+
+
+def symbolic_fixtures(mod: ModuleType):
+    """Module-scoped fixtures ``p`` and ``h_symbolic`` of topology `mod`, to assign in a
+    test module: ``p, h_symbolic = symbolic_fixtures(mod)``."""
+
+    @pytest.fixture(scope="module")
+    def p():
+        """A positive sympy symbol per part, named after it."""
+        return part_symbols(mod.elements(unit_parts(mod), IDEAL))
+
+    @pytest.fixture(scope="module")
+    def h_symbolic():
+        """[sympy] V(out)/V(in) of the element list, every part a symbol."""
+        return transfer(mod.elements(unit_parts(mod), IDEAL))
+
+    return p, h_symbolic
+
+
+def sensitivities_against_sympy(mod: ModuleType, section: Section, h_symbolic: sp.Expr):
+    """(parts, derived, mine) for `section` designed at 1 nF.
+
+    ``derived`` is S_x^Q = (x/Q) dQ/dx of the Q of `h_symbolic` (``bandpass_figures``) at
+    the designed values, with R1b taken to infinity when the topology has one and it is not
+    fitted; ``mine`` is the module's ``q_sensitivities(section)``.
+    """
+    parts = mod.design(section, c_farads=1e-9)
+    _, q_expr, _ = bandpass_figures(h_symbolic)
+    if "R1b" in mod.PARTS and "R1b" not in parts:
+        q_expr = sp.limit(q_expr, sp.Symbol("R1b", positive=True), sp.oo)
+    return parts, numeric_sensitivities(q_expr, parts), mod.q_sensitivities(section)
+
+
+def sympy_noise_gains(mod: ModuleType, section: Section,
+                      opamps: tuple[str, ...] = ("U1",)) -> list[float]:
+    """[sympy] |V(out)/e_n| at f0 for e_n in series with each op-amp's + input, in order,
+    of `section` designed at 1 nF (exact part values)."""
+    parts = mod.design(section, c_farads=1e-9)
+    els = mod.elements(parts, IDEAL)
+    vals = exact(parts)
+    return [numeric_noise_gain(noise_gain(els, u, values=vals), section.f0_hz) for u in opamps]
+
+
+def built_shifts_per_e(mod: ModuleType, section: Section, e: float) -> tuple[float, float]:
+    """[nodal] (df0/f0, dQ/Q) per e of the section built with GBW = f0/e (A0 240 dB)."""
+    fig = built_figures(mod, section, make_opamp(section.f0_hz / e, dc_gain_db=240))
+    return (fig.f0_hz / section.f0_hz - 1) / e, (fig.q / section.q - 1) / e

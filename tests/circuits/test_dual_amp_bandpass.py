@@ -18,20 +18,19 @@ import sympy as sp
 
 from bandwright.circuits import dual_amp_bandpass as dabp
 from bandwright.circuits.elements import Element, opamp
-from bandwright.sections.section import Section
 
 try:
-    from bandpass_support import (GENERAL_PURPOSE, IDEAL, built_figures, check_interface,
-                                  exact, ideal_figures, make_opamp, max_response_error,
-                                  numeric_noise_gain, numeric_sensitivities, rel, unit_parts)
-    from symbolic import (S, bandpass_figures, gbw_shift, noise_gain, part_symbols,
-                          transfer)
+    from bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_figures,
+                                  check_interface, ideal_figures, make_opamp, max_response_error,
+                                  rel, sensitivities_against_sympy, symbolic_fixtures,
+                                  sympy_noise_gains, unit_parts)
+    from symbolic import S, bandpass_figures, gbw_shift, transfer
 except ImportError:  # tests/circuits imported as a package
-    from .bandpass_support import (GENERAL_PURPOSE, IDEAL, built_figures, check_interface,
-                                   exact, ideal_figures, make_opamp, max_response_error,
-                                   numeric_noise_gain, numeric_sensitivities, rel, unit_parts)
-    from .symbolic import (S, bandpass_figures, gbw_shift, noise_gain, part_symbols,
-                           transfer)
+    from .bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_figures,
+                                   check_interface, ideal_figures, make_opamp, max_response_error,
+                                   rel, sensitivities_against_sympy, symbolic_fixtures,
+                                   sympy_noise_gains, unit_parts)
+    from .symbolic import S, bandpass_figures, gbw_shift, transfer
 
 CASES = [  # (f0_hz, Q, gain)
     (40e3, 10.0, 1.0),
@@ -41,19 +40,7 @@ CASES = [  # (f0_hz, Q, gain)
 ]
 
 
-def _section(f0_hz: float, q: float, gain: float) -> Section:
-    return Section(kind="bandpass", f0_hz=f0_hz, q=q, gain=gain)
-
-
-@pytest.fixture(scope="module")
-def p():
-    return part_symbols(dabp.elements(unit_parts(dabp), IDEAL))
-
-
-@pytest.fixture(scope="module")
-def h_symbolic():
-    """[sympy] V(out)/V(in) of the element list, every part a symbol."""
-    return transfer(dabp.elements(unit_parts(dabp), IDEAL))
+p, h_symbolic = symbolic_fixtures(dabp)
 
 
 def _symbolic_design():
@@ -108,7 +95,7 @@ def test_gic_net_transfer(p):
 def test_design_matches_formula(f0_hz, q, gain):
     """[W&T] equations with the divider, typed here independently."""
     c = 1e-9
-    parts = dabp.design(_section(f0_hz, q, gain), c_farads=c)
+    parts = dabp.design(bandpass_section(f0_hz, q, gain), c_farads=c)
     r = 1 / (2 * math.pi * f0_hz * c)
     g = min(gain, 2.0)
     for name in ("R2", "R3", "R4", "R5"):
@@ -124,7 +111,7 @@ def test_design_matches_formula(f0_hz, q, gain):
 @pytest.mark.parametrize("f0_hz,q,gain", CASES)
 def test_ideal_build_hits_target(f0_hz, q, gain):
     """[nodal] ideal op-amps: f0, Q and gain within 0.1 % (gain capped at 2)."""
-    fig = ideal_figures(dabp, _section(f0_hz, q, gain))
+    fig = ideal_figures(dabp, bandpass_section(f0_hz, q, gain))
     assert rel(fig.f0_hz, f0_hz) < 1e-3
     assert rel(fig.q, q) < 1e-3
     assert rel(fig.gain, min(gain, 2.0)) < 1e-3
@@ -132,19 +119,14 @@ def test_ideal_build_hits_target(f0_hz, q, gain):
 
 def test_response_is_the_standard_biquad():
     """[nodal] vs [biquad]: the whole response, two decades around f0."""
-    assert max_response_error(dabp, _section(7e3, 12.0, 1.5), gain=1.5) < 1e-9
+    assert max_response_error(dabp, bandpass_section(7e3, 12.0, 1.5), gain=1.5) < 1e-9
 
 
 @pytest.mark.parametrize("f0_hz,q,gain", CASES[:3])
-def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic, p):
+def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic):
     """[sympy] S_x^Q of the derived Q at the designed values."""
-    sec = _section(f0_hz, q, gain)
-    parts = dabp.design(sec, c_farads=1e-9)
-    _, q_expr, _ = bandpass_figures(h_symbolic)
-    if "R1b" not in parts:
-        q_expr = sp.limit(q_expr, p["R1b"], sp.oo)
-    derived = numeric_sensitivities(q_expr, parts)
-    mine = dabp.q_sensitivities(sec)
+    sec = bandpass_section(f0_hz, q, gain)
+    parts, derived, mine = sensitivities_against_sympy(dabp, sec, h_symbolic)
     assert set(mine) == set(parts)
     for name, value in mine.items():
         assert value == pytest.approx(derived[name], abs=1e-9)
@@ -152,12 +134,8 @@ def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic, p):
 
 def test_noise_gain_matches_sympy():
     """[sympy] |V(out)/e_n| at f0: U1 2 sqrt(4Q^2 + 1), U2 2 sqrt(2Q^2 + 2Q + 1)."""
-    sec = _section(2e3, 7.0, 0.5)
-    parts = dabp.design(sec, c_farads=1e-9)
-    els = dabp.elements(parts, IDEAL)
-    vals = exact(parts)
-    u1 = numeric_noise_gain(noise_gain(els, "U1", values=vals), sec.f0_hz)
-    u2 = numeric_noise_gain(noise_gain(els, "U2", values=vals), sec.f0_hz)
+    sec = bandpass_section(2e3, 7.0, 0.5)
+    u1, u2 = sympy_noise_gains(dabp, sec, ("U1", "U2"))
     assert u1 == pytest.approx(2 * math.sqrt(4 * 49 + 1), rel=1e-9)
     assert u2 == pytest.approx(2 * math.sqrt(2 * 49 + 14 + 1), rel=1e-9)
     assert dabp.noise_gain(sec) == pytest.approx(max(u1, u2))
@@ -168,14 +146,14 @@ def test_gbw_shift_matches_sympy_perturbation():
     q, _, design = _symbolic_design()
     k_f, k_q = gbw_shift(dabp.elements(unit_parts(dabp), IDEAL), design, q)
     assert (k_f, k_q) == (-2, 0)
-    assert dabp.gbw_shift(_section(1e3, 10.0, 1.0)) == (-2.0, 0.0)
+    assert dabp.gbw_shift(bandpass_section(1e3, 10.0, 1.0)) == (-2.0, 0.0)
 
 
 @pytest.mark.parametrize("q", [10.0, 50.0, 150.0])
 def test_built_q_second_order_only(q):
     """[nodal] GBW = 1000 f0: f0 moves by about -2e, Q by about -4 Q e^2 only."""
     e = 1e-3
-    sec = _section(10e3, q, 1.0)
+    sec = bandpass_section(10e3, q, 1.0)
     fig = built_figures(dabp, sec, make_opamp(sec.f0_hz / e, dc_gain_db=240))
     assert (fig.f0_hz / sec.f0_hz - 1) / e == pytest.approx(-2.0, rel=0.01)
     assert (fig.q / sec.q - 1) / e**2 == pytest.approx(-4 * q, rel=0.05)
@@ -192,7 +170,7 @@ def test_textbook_wiring_would_move_q():
     from bandwright.circuits.figures import section_figures
 
     e = 1e-4
-    sec = _section(10e3, 10.0, 1.0)
+    sec = bandpass_section(10e3, 10.0, 1.0)
     parts = dabp.design(sec, c_farads=1e-9)
     model = make_opamp(sec.f0_hz / e, dc_gain_db=240)
     ideal = section_figures(_rewired(dabp.elements(parts, IDEAL)), kind="bandpass",
@@ -205,17 +183,17 @@ def test_textbook_wiring_would_move_q():
 
 def test_limits():
     """GBW 20 Q f0; gain above 2 fails unless accepted; large spread at low gain and high Q."""
-    sec = _section(1e3, 150.0, 2.0)
+    sec = bandpass_section(1e3, 150.0, 2.0)
     lim = dabp.limits(sec, make_opamp(3e6))
     assert lim.feasible and lim.gbw_needed_hz == pytest.approx(20 * 150 * 1e3)
     assert lim.opamps == 2 and lim.q_sensitivity == pytest.approx(1.0)
     assert not dabp.limits(sec, make_opamp(2.9e6)).feasible
 
-    high = _section(1e3, 5.0, 4.0)
+    high = bandpass_section(1e3, 5.0, 4.0)
     assert not dabp.limits(high, GENERAL_PURPOSE).feasible
     assert any("exceeds the 2 V/V" in r for r in dabp.limits(high, GENERAL_PURPOSE).reasons)
     assert dabp.limits(high, GENERAL_PURPOSE, accept_gain_shortfall=True).feasible
 
-    wide = dabp.limits(_section(1e3, 150.0, 0.1), make_opamp(1e9))
+    wide = dabp.limits(bandpass_section(1e3, 150.0, 0.1), make_opamp(1e9))
     assert wide.spread == pytest.approx(2 * 150 / 0.1)
     assert not wide.feasible and any("spread 3000:1" in r for r in wide.reasons)

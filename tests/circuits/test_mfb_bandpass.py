@@ -23,15 +23,17 @@ from bandwright.circuits import mfb_bandpass as mfb
 from bandwright.sections.section import Section
 
 try:
-    from bandpass_support import (GENERAL_PURPOSE, IDEAL, built_figures, check_interface,
-                                  exact, ideal_figures, make_opamp, max_response_error,
-                                  numeric_noise_gain, numeric_sensitivities, rel, unit_parts)
-    from symbolic import S, bandpass_figures, gbw_shift, noise_gain, part_symbols, transfer
+    from bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
+                                  check_interface, ideal_figures, make_opamp, max_response_error,
+                                  rel, sensitivities_against_sympy, symbolic_fixtures,
+                                  sympy_noise_gains, unit_parts)
+    from symbolic import S, bandpass_figures, gbw_shift
 except ImportError:  # tests/circuits imported as a package
-    from .bandpass_support import (GENERAL_PURPOSE, IDEAL, built_figures, check_interface,
-                                   exact, ideal_figures, make_opamp, max_response_error,
-                                   numeric_noise_gain, numeric_sensitivities, rel, unit_parts)
-    from .symbolic import S, bandpass_figures, gbw_shift, noise_gain, part_symbols, transfer
+    from .bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
+                                   check_interface, ideal_figures, make_opamp, max_response_error,
+                                   rel, sensitivities_against_sympy, symbolic_fixtures,
+                                   sympy_noise_gains, unit_parts)
+    from .symbolic import S, bandpass_figures, gbw_shift
 
 CASES = [  # (f0_hz, Q, gain): below, at and (designed at 2Q^2) above the natural gain
     (40e3, 10.0, -10.0),
@@ -41,23 +43,15 @@ CASES = [  # (f0_hz, Q, gain): below, at and (designed at 2Q^2) above the natura
 ]
 
 
-def _section(f0_hz: float, q: float, gain: float) -> Section:
-    return Section(kind="bandpass", f0_hz=f0_hz, q=q, gain=gain)
-
-
-@pytest.fixture(scope="module")
-def h_symbolic():
-    """[sympy] V(out)/V(in) of the element list, every part a symbol."""
-    return transfer(mfb.elements(unit_parts(mfb), IDEAL))
+p, h_symbolic = symbolic_fixtures(mfb)
 
 
 def test_interface():
     check_interface(mfb, "mfb_bandpass", inverting=True, opamps=1)
 
 
-def test_transfer_matches_published_form(h_symbolic):
+def test_transfer_matches_published_form(h_symbolic, p):
     """[sympy] vs [W&T]: H = -(s/(R1a C1)) / (s^2 + s (C1+C2)/(R2 C1 C2) + 1/(R1 R2 C1 C2))."""
-    p = part_symbols(mfb.elements(unit_parts(mfb), IDEAL))
     r1 = p["R1a"] * p["R1b"] / (p["R1a"] + p["R1b"])
     c1, c2, r2 = p["C1"], p["C2"], p["R2"]
     published = -(S / (p["R1a"] * c1)) / (S**2 + S * (c1 + c2) / (r2 * c1 * c2)
@@ -65,10 +59,9 @@ def test_transfer_matches_published_form(h_symbolic):
     assert sp.simplify(h_symbolic - published) == 0
 
 
-def test_design_equations_give_target_symbolically(h_symbolic):
+def test_design_equations_give_target_symbolically(h_symbolic, p):
     """[sympy] the [W&T] equal-C design (w0 = 1, C = 1) gives w0 = 1, Q and -H0 exactly."""
     q, g = sp.symbols("Q H0", positive=True)
-    p = part_symbols(mfb.elements(unit_parts(mfb), IDEAL))
     r2 = 2 * q  # Q/(pi f0 C) with 2 pi f0 = 1
     design = {"R2": r2, "R1a": r2 / (2 * g), "R1b": r2 / (4 * q**2 - 2 * g), "C1": 1, "C2": 1}
     w0, q_expr, h0 = bandpass_figures(h_symbolic.subs({p[k]: v for k, v in design.items()}))
@@ -79,11 +72,11 @@ def test_design_equations_give_target_symbolically(h_symbolic):
 
 def test_reference_check_values():
     """[refs]: f0 40 kHz, Q 10, H0 10, C 1 nF (printed to 5 digits)."""
-    parts = mfb.design(_section(40e3, 10.0, -10.0), c_farads=1e-9)
+    parts = mfb.design(bandpass_section(40e3, 10.0, -10.0), c_farads=1e-9)
     assert parts["R2"] == pytest.approx(79.577e3, rel=1e-4)
     assert parts["R1a"] == pytest.approx(3.9789e3, rel=1e-4)
     assert parts["R1b"] == pytest.approx(209.41, rel=1e-4)
-    assert mfb.noise_gain(_section(40e3, 10.0, -10.0)) == pytest.approx(201)
+    assert mfb.noise_gain(bandpass_section(40e3, 10.0, -10.0)) == pytest.approx(201)
     assert list(parts) == [p for p in mfb.PARTS if p in parts]
 
 
@@ -91,7 +84,7 @@ def test_reference_check_values():
 def test_design_matches_formula(f0_hz, q, gain):
     """[W&T] equations, typed here independently, vs design()."""
     c = 4.7e-9
-    parts = mfb.design(_section(f0_hz, q, gain), c_farads=c)
+    parts = mfb.design(bandpass_section(f0_hz, q, gain), c_farads=c)
     g = min(abs(gain), 2 * q * q)
     r2 = q / (math.pi * f0_hz * c)
     assert parts["R2"] == pytest.approx(r2, rel=1e-12)
@@ -106,7 +99,7 @@ def test_design_matches_formula(f0_hz, q, gain):
 @pytest.mark.parametrize("f0_hz,q,gain", CASES)
 def test_ideal_build_hits_target(f0_hz, q, gain):
     """[nodal] ideal op-amp: f0, Q and gain within 0.1 % of the target (gain capped at 2Q^2)."""
-    sec = _section(f0_hz, q, gain)
+    sec = bandpass_section(f0_hz, q, gain)
     fig = ideal_figures(mfb, sec)
     assert rel(fig.f0_hz, f0_hz) < 1e-3
     assert rel(fig.q, q) < 1e-3
@@ -115,14 +108,14 @@ def test_ideal_build_hits_target(f0_hz, q, gain):
 
 def test_response_is_the_standard_biquad():
     """[nodal] vs [biquad]: the whole response, two decades around f0."""
-    sec = _section(2e3, 4.0, -3.0)
+    sec = bandpass_section(2e3, 4.0, -3.0)
     assert max_response_error(mfb, sec, gain=-3.0) < 1e-9
 
 
 def test_without_r1b_centre_gain_is_two_q_squared():
     """(common practice) equal-C MFB without R1b: centre gain -2Q^2 [nodal]."""
     for q in (2.0, 5.0, 12.0):
-        sec = _section(10e3, q, -2 * q * q)
+        sec = bandpass_section(10e3, q, -2 * q * q)
         parts = mfb.design(sec, c_farads=1e-9)
         assert "R1b" not in parts
         assert rel(ideal_figures(mfb, sec, 1e-9).gain, -2 * q * q) < 1e-9
@@ -131,13 +124,8 @@ def test_without_r1b_centre_gain_is_two_q_squared():
 @pytest.mark.parametrize("f0_hz,q,gain", CASES)
 def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic):
     """[sympy] S_x^Q = (x/Q) dQ/dx of the derived Q, at the designed values."""
-    sec = _section(f0_hz, q, gain)
-    parts = mfb.design(sec, c_farads=1e-9)
-    _, q_expr, _ = bandpass_figures(h_symbolic)
-    if "R1b" not in parts:
-        q_expr = sp.limit(q_expr, sp.Symbol("R1b", positive=True), sp.oo)
-    derived = numeric_sensitivities(q_expr, parts)
-    mine = mfb.q_sensitivities(sec)
+    sec = bandpass_section(f0_hz, q, gain)
+    parts, derived, mine = sensitivities_against_sympy(mfb, sec, h_symbolic)
     assert set(mine) == set(parts)
     for name, value in mine.items():
         assert value == pytest.approx(derived[name], abs=1e-9)
@@ -147,10 +135,9 @@ def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic):
 @pytest.mark.parametrize("f0_hz,q,gain", CASES[:3])
 def test_noise_gain_matches_sympy(f0_hz, q, gain):
     """[sympy] |V(out)/e_n| at f0 = 1 + 2Q^2 (common practice), whatever the gain."""
-    sec = _section(f0_hz, q, gain)
-    parts = mfb.design(sec, c_farads=1e-9)
-    ng = noise_gain(mfb.elements(parts, IDEAL), "U1", values=exact(parts))
-    assert numeric_noise_gain(ng, f0_hz) == pytest.approx(1 + 2 * q * q, rel=1e-9)
+    sec = bandpass_section(f0_hz, q, gain)
+    (u1,) = sympy_noise_gains(mfb, sec)
+    assert u1 == pytest.approx(1 + 2 * q * q, rel=1e-9)
     assert mfb.noise_gain(sec) == pytest.approx(1 + 2 * q * q)
 
 
@@ -160,7 +147,7 @@ def test_gbw_shift_matches_sympy_perturbation():
     design = {"R2": 2 * q, "R1a": q / g, "R1b": 2 * q / (4 * q**2 - 2 * g), "C1": 1, "C2": 1}
     k_f, k_q = gbw_shift(mfb.elements(unit_parts(mfb), IDEAL), design, q)
     for qq, gg in ((0.8, 0.5), (10.0, 10.0), (25.0, 3.0)):
-        sec = _section(1e3, qq, -gg)
+        sec = bandpass_section(1e3, qq, -gg)
         at = {q: qq, g: gg}
         assert mfb.gbw_shift(sec) == pytest.approx((float(k_f.subs(at)), float(k_q.subs(at))))
 
@@ -168,31 +155,31 @@ def test_gbw_shift_matches_sympy_perturbation():
 @pytest.mark.parametrize("q", [3.0, 10.0])
 def test_gbw_shift_matches_nodal(q):
     """[nodal] built with GBW = 1e4 f0: shifts within 2 % of the first-order figures."""
-    e = 1e-4
-    sec = _section(10e3, q, -1.0)
-    fig = built_figures(mfb, sec, make_opamp(sec.f0_hz / e, dc_gain_db=240))
+    sec = bandpass_section(10e3, q, -1.0)
+    df0_per_e, dq_per_e = built_shifts_per_e(mfb, sec, 1e-4)
     k_f, k_q = mfb.gbw_shift(sec)
-    assert (fig.f0_hz / sec.f0_hz - 1) / e == pytest.approx(k_f, rel=0.02)
-    assert (fig.q / sec.q - 1) / e == pytest.approx(k_q, rel=0.02)
+    assert df0_per_e == pytest.approx(k_f, rel=0.02)
+    assert dq_per_e == pytest.approx(k_q, rel=0.02)
 
 
 def test_limits_ask_more_gbw_as_q_rises():
     """(common practice) MFB needs more GBW at higher Q: 10 (1 + 2Q^2) f0 [rule of thumb]."""
-    needed = [mfb.limits(_section(10e3, q, -1.0), IDEAL).gbw_needed_hz for q in (1, 2, 5, 10, 20)]
+    needed = [mfb.limits(bandpass_section(10e3, q, -1.0), IDEAL).gbw_needed_hz
+              for q in (1, 2, 5, 10, 20)]
     assert all(b > a for a, b in zip(needed, needed[1:]))
     assert needed[3] == pytest.approx(10 * 201 * 10e3)
 
 
 def test_limits_reasons_carry_figures():
     """GBW shortfall names both figures; a gain above 2Q^2 fails unless accepted."""
-    sec = _section(40e3, 10.0, -10.0)
+    sec = bandpass_section(40e3, 10.0, -10.0)
     lim = mfb.limits(sec, make_opamp(10e6))
     assert not lim.feasible
     assert any("80.4 MHz" in r and "10 MHz" in r for r in lim.reasons)
     assert lim.noise_gain == pytest.approx(201) and lim.opamps == 1
     assert lim.spread == pytest.approx(4 * 10**2 - 2 * 10)  # R2 / R1b = 4Q^2 - 2|H0|
 
-    high = _section(1e3, 2.0, -20.0)  # natural gain 8
+    high = bandpass_section(1e3, 2.0, -20.0)  # natural gain 8
     assert not mfb.limits(high, GENERAL_PURPOSE).feasible
     assert any("exceeds the 8 V/V" in r for r in mfb.limits(high, GENERAL_PURPOSE).reasons)
     accepted = mfb.limits(high, GENERAL_PURPOSE, accept_gain_shortfall=True)
@@ -201,7 +188,7 @@ def test_limits_reasons_carry_figures():
 
 
 def test_limits_feasible_low_q():
-    lim = mfb.limits(_section(1e3, 2.0, -1.0), GENERAL_PURPOSE)
+    lim = mfb.limits(bandpass_section(1e3, 2.0, -1.0), GENERAL_PURPOSE)
     assert lim.feasible
     assert lim.spread == pytest.approx(4 * 2**2 - 2 * 1)  # R2 / R1b = 4Q^2 - 2|H0|
 
@@ -210,6 +197,6 @@ def test_bad_arguments():
     with pytest.raises(ValueError):
         mfb.design(Section(kind="lowpass", f0_hz=1e3, q=1.0, gain=1.0), c_farads=1e-9)
     with pytest.raises(ValueError):
-        mfb.design(_section(1e3, 1.0, 0.0), c_farads=1e-9)
+        mfb.design(bandpass_section(1e3, 1.0, 0.0), c_farads=1e-9)
     with pytest.raises(ValueError):
-        mfb.design(_section(1e3, 1.0, -1.0), c_farads=0.0)
+        mfb.design(bandpass_section(1e3, 1.0, -1.0), c_farads=0.0)

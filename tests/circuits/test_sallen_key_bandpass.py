@@ -20,20 +20,19 @@ import sympy as sp
 from bandwright.circuits import _bandpass_common as common
 from bandwright.circuits import sallen_key_bandpass as sk
 from bandwright.errors import InfeasibleDesign
-from bandwright.sections.section import Section
 
 try:
-    from bandpass_support import (GENERAL_PURPOSE, IDEAL, built_figures, check_interface,
-                                  exact, ideal_figures, make_opamp, max_response_error,
-                                  numeric_noise_gain, numeric_sensitivities, rel, unit_parts)
-    from symbolic import (bandpass_figures, gbw_shift, noise_gain, part_symbols, sensitivity,
-                          transfer)
+    from bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
+                                  check_interface, ideal_figures, make_opamp, max_response_error,
+                                  rel, sensitivities_against_sympy, symbolic_fixtures,
+                                  sympy_noise_gains, unit_parts)
+    from symbolic import bandpass_figures, gbw_shift, sensitivity
 except ImportError:  # tests/circuits imported as a package
-    from .bandpass_support import (GENERAL_PURPOSE, IDEAL, built_figures, check_interface,
-                                   exact, ideal_figures, make_opamp, max_response_error,
-                                   numeric_noise_gain, numeric_sensitivities, rel, unit_parts)
-    from .symbolic import (bandpass_figures, gbw_shift, noise_gain, part_symbols, sensitivity,
-                           transfer)
+    from .bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
+                                   check_interface, ideal_figures, make_opamp, max_response_error,
+                                   rel, sensitivities_against_sympy, symbolic_fixtures,
+                                   sympy_noise_gains, unit_parts)
+    from .symbolic import bandpass_figures, gbw_shift, sensitivity
 
 CASES = [  # (f0_hz, Q, gain): natural gain 3Q - 1 = 2.0, 8.0, 0.5, 5.0
     (1e3, 1.0, 1.0),
@@ -43,19 +42,7 @@ CASES = [  # (f0_hz, Q, gain): natural gain 3Q - 1 = 2.0, 8.0, 0.5, 5.0
 ]
 
 
-def _section(f0_hz: float, q: float, gain: float) -> Section:
-    return Section(kind="bandpass", f0_hz=f0_hz, q=q, gain=gain)
-
-
-@pytest.fixture(scope="module")
-def h_symbolic():
-    """[sympy] V(out)/V(in) of the element list, every part a symbol."""
-    return transfer(sk.elements(unit_parts(sk), IDEAL))
-
-
-@pytest.fixture(scope="module")
-def p():
-    return part_symbols(sk.elements(unit_parts(sk), IDEAL))
+p, h_symbolic = symbolic_fixtures(sk)
 
 
 def test_interface():
@@ -91,7 +78,7 @@ def test_design_equations_give_target_symbolically(h_symbolic, p):
 def test_design_matches_formula(f0_hz, q, gain):
     """[SK] equal-value equations with the divider, typed here independently."""
     c = 2.2e-9
-    parts = sk.design(_section(f0_hz, q, gain), c_farads=c)
+    parts = sk.design(bandpass_section(f0_hz, q, gain), c_farads=c)
     r = 1 / (2 * math.pi * f0_hz * c)
     k = 3 - 1 / q
     rho = min(gain / (k * q), 1.0)
@@ -110,7 +97,7 @@ def test_design_matches_formula(f0_hz, q, gain):
 @pytest.mark.parametrize("f0_hz,q,gain", CASES)
 def test_ideal_build_hits_target(f0_hz, q, gain):
     """[nodal] ideal op-amp: f0, Q and gain within 0.1 % (gain capped at 3Q - 1)."""
-    fig = ideal_figures(sk, _section(f0_hz, q, gain))
+    fig = ideal_figures(sk, bandpass_section(f0_hz, q, gain))
     assert rel(fig.f0_hz, f0_hz) < 1e-3
     assert rel(fig.q, q) < 1e-3
     assert rel(fig.gain, min(gain, 3 * q - 1)) < 1e-3
@@ -118,20 +105,15 @@ def test_ideal_build_hits_target(f0_hz, q, gain):
 
 def test_response_is_the_standard_biquad():
     """[nodal] vs [biquad]: the whole response, two decades around f0."""
-    sec = _section(3e3, 2.5, 4.0)
+    sec = bandpass_section(3e3, 2.5, 4.0)
     assert max_response_error(sk, sec, gain=4.0) < 1e-9
 
 
 @pytest.mark.parametrize("f0_hz,q,gain", CASES)
-def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic, p):
+def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic):
     """[sympy] S_x^Q of the derived Q at the designed values; they sum to 9Q - 9/2."""
-    sec = _section(f0_hz, q, gain)
-    parts = sk.design(sec, c_farads=1e-9)
-    _, q_expr, _ = bandpass_figures(h_symbolic)
-    if "R1b" not in parts:
-        q_expr = sp.limit(q_expr, p["R1b"], sp.oo)
-    derived = numeric_sensitivities(q_expr, parts)
-    mine = sk.q_sensitivities(sec)
+    sec = bandpass_section(f0_hz, q, gain)
+    parts, derived, mine = sensitivities_against_sympy(sk, sec, h_symbolic)
     assert set(mine) == set(parts)
     for name, value in mine.items():
         assert value == pytest.approx(derived[name], abs=1e-9)
@@ -143,10 +125,9 @@ def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic, p):
 @pytest.mark.parametrize("f0_hz,q,gain", CASES[:3])
 def test_noise_gain_matches_sympy(f0_hz, q, gain):
     """[sympy] |V(out)/e_n| at f0 = 3 (3Q - 1), whatever the divider."""
-    sec = _section(f0_hz, q, gain)
-    parts = sk.design(sec, c_farads=1e-9)
-    ng = noise_gain(sk.elements(parts, IDEAL), "U1", values=exact(parts))
-    assert numeric_noise_gain(ng, f0_hz) == pytest.approx(sk.noise_gain(sec), rel=1e-9)
+    sec = bandpass_section(f0_hz, q, gain)
+    (u1,) = sympy_noise_gains(sk, sec)
+    assert u1 == pytest.approx(sk.noise_gain(sec), rel=1e-9)
     assert sk.noise_gain(sec) == pytest.approx(3 * (3 * q - 1))
 
 
@@ -158,24 +139,23 @@ def test_gbw_shift_matches_sympy_perturbation():
     k_f, k_q = gbw_shift(sk.elements(unit_parts(sk), IDEAL), design, q)
     assert not ({rho} & (k_f.free_symbols | k_q.free_symbols))
     for qq in (0.75, 2.0, 8.0):
-        mine = sk.gbw_shift(_section(1e3, qq, 1.0))
+        mine = sk.gbw_shift(bandpass_section(1e3, qq, 1.0))
         assert mine == pytest.approx((float(k_f.subs(q, qq)), float(k_q.subs(q, qq))))
 
 
 @pytest.mark.parametrize("q", [1.0, 4.0])
 def test_gbw_shift_matches_nodal(q):
     """[nodal] built with GBW = 1e4 f0: shifts within 2 % of the first-order figures."""
-    e = 1e-4
-    sec = _section(10e3, q, 1.0)
-    fig = built_figures(sk, sec, make_opamp(sec.f0_hz / e, dc_gain_db=240))
+    sec = bandpass_section(10e3, q, 1.0)
+    df0_per_e, dq_per_e = built_shifts_per_e(sk, sec, 1e-4)
     k_f, k_q = sk.gbw_shift(sec)
-    assert (fig.f0_hz / sec.f0_hz - 1) / e == pytest.approx(k_f, rel=0.02)
-    assert (fig.q / sec.q - 1) / e == pytest.approx(k_q, rel=0.02)
+    assert df0_per_e == pytest.approx(k_f, rel=0.02)
+    assert dq_per_e == pytest.approx(k_q, rel=0.02)
 
 
 def test_limits_reject_q_20_with_general_purpose_opamp():
     """(common practice) positive feedback at Q 20: rejected, the reason giving the figures."""
-    sec = _section(1e3, 20.0, 1.0)
+    sec = bandpass_section(1e3, 20.0, 1.0)
     lim = sk.limits(sec, GENERAL_PURPOSE)
     assert not lim.feasible
     text = " ".join(lim.reasons)
@@ -188,16 +168,17 @@ def test_tolerance_q_max_is_where_the_shift_reaches_the_limit():
     """The Q bound quoted in the reason is where sum |S_x^Q| t_x = 50 % (sympy sums above)."""
     for r_tol, c_tol in ((0.01, None), (0.01, 0.05), (0.05, 0.05)):
         q_max = sk.tolerance_q_max(r_tol, c_tol)
-        shift = common.tolerance_shift(sk.q_sensitivities(_section(1e3, q_max, 1.0)), r_tol,
-                                       r_tol if c_tol is None else c_tol)
+        sens = sk.q_sensitivities(bandpass_section(1e3, q_max, 1.0))
+        shift = common.tolerance_shift(sens, r_tol, r_tol if c_tol is None else c_tol)
         assert shift == pytest.approx(common.TOLERANCE_Q_SHIFT_LIMIT)
-    assert sk.limits(_section(1e3, 5.0, 1.0), GENERAL_PURPOSE).feasible
-    assert not sk.limits(_section(1e3, 5.0, 1.0), GENERAL_PURPOSE, r_tolerance=0.05).feasible
+    sec = bandpass_section(1e3, 5.0, 1.0)
+    assert sk.limits(sec, GENERAL_PURPOSE).feasible
+    assert not sk.limits(sec, GENERAL_PURPOSE, r_tolerance=0.05).feasible
 
 
 def test_limits_gain_above_natural():
     """Gain above K Q = 3Q - 1 fails unless accepted; then the dB to make up is stated."""
-    sec = _section(1e3, 2.0, 10.0)
+    sec = bandpass_section(1e3, 2.0, 10.0)
     assert not sk.limits(sec, GENERAL_PURPOSE).feasible
     lim = sk.limits(sec, GENERAL_PURPOSE, accept_gain_shortfall=True)
     assert lim.feasible
@@ -206,7 +187,7 @@ def test_limits_gain_above_natural():
 
 def test_low_q_is_infeasible():
     """K = 3 - 1/Q must exceed 1: Q <= 1/2 cannot be built."""
-    sec = _section(1e3, 0.5, 1.0)
+    sec = bandpass_section(1e3, 0.5, 1.0)
     with pytest.raises(InfeasibleDesign):
         sk.design(sec, c_farads=1e-9)
     lim = sk.limits(sec, GENERAL_PURPOSE)

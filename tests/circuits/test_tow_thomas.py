@@ -21,18 +21,19 @@ import sympy as sp
 
 from bandwright.circuits import tow_thomas as tt
 from bandwright.circuits.nodal import transfer as nodal_transfer
-from bandwright.sections.section import Section
 
 try:
-    from bandpass_support import (IDEAL, built_figures, check_interface, exact,
-                                  ideal_figures, make_opamp, max_response_error,
-                                  numeric_noise_gain, numeric_sensitivities, rel, unit_parts)
-    from symbolic import S, bandpass_figures, gbw_shift, noise_gain, part_symbols, transfer
+    from bandpass_support import (IDEAL, bandpass_section, built_figures, built_shifts_per_e,
+                                  check_interface, ideal_figures, make_opamp, max_response_error,
+                                  rel, sensitivities_against_sympy, symbolic_fixtures,
+                                  sympy_noise_gains, unit_parts)
+    from symbolic import S, bandpass_figures, gbw_shift, transfer
 except ImportError:  # tests/circuits imported as a package
-    from .bandpass_support import (IDEAL, built_figures, check_interface, exact,
-                                   ideal_figures, make_opamp, max_response_error,
-                                   numeric_noise_gain, numeric_sensitivities, rel, unit_parts)
-    from .symbolic import S, bandpass_figures, gbw_shift, noise_gain, part_symbols, transfer
+    from .bandpass_support import (IDEAL, bandpass_section, built_figures, built_shifts_per_e,
+                                   check_interface, ideal_figures, make_opamp, max_response_error,
+                                   rel, sensitivities_against_sympy, symbolic_fixtures,
+                                   sympy_noise_gains, unit_parts)
+    from .symbolic import S, bandpass_figures, gbw_shift, transfer
 
 CASES = [  # (f0_hz, Q, gain)
     (40e3, 10.0, -1.0),
@@ -42,19 +43,7 @@ CASES = [  # (f0_hz, Q, gain)
 ]
 
 
-def _section(f0_hz: float, q: float, gain: float) -> Section:
-    return Section(kind="bandpass", f0_hz=f0_hz, q=q, gain=gain)
-
-
-@pytest.fixture(scope="module")
-def p():
-    return part_symbols(tt.elements(unit_parts(tt), IDEAL))
-
-
-@pytest.fixture(scope="module")
-def h_symbolic():
-    """[sympy] V(out)/V(in) of the element list, every part a symbol."""
-    return transfer(tt.elements(unit_parts(tt), IDEAL))
+p, h_symbolic = symbolic_fixtures(tt)
 
 
 def _symbolic_design():
@@ -98,7 +87,7 @@ def test_lowpass_and_inverter_nets(p):
 def test_design_matches_formula(f0_hz, q, gain):
     """[TT] equations, typed here independently."""
     c = 3.3e-9
-    parts = tt.design(_section(f0_hz, q, gain), c_farads=c)
+    parts = tt.design(bandpass_section(f0_hz, q, gain), c_farads=c)
     r = 1 / (2 * math.pi * f0_hz * c)
     for name in ("R2", "R4", "R5", "R6"):
         assert parts[name] == pytest.approx(r, rel=1e-12)
@@ -111,7 +100,7 @@ def test_design_matches_formula(f0_hz, q, gain):
 @pytest.mark.parametrize("f0_hz,q,gain", CASES)
 def test_ideal_build_hits_target(f0_hz, q, gain):
     """[nodal] ideal op-amps: f0, Q and gain (-|gain|) within 0.1 %."""
-    fig = ideal_figures(tt, _section(f0_hz, q, gain))
+    fig = ideal_figures(tt, bandpass_section(f0_hz, q, gain))
     assert rel(fig.f0_hz, f0_hz) < 1e-3
     assert rel(fig.q, q) < 1e-3
     assert rel(fig.gain, -abs(gain)) < 1e-3
@@ -119,13 +108,13 @@ def test_ideal_build_hits_target(f0_hz, q, gain):
 
 def test_response_is_the_standard_biquad():
     """[nodal] vs [biquad]: the whole response, two decades around f0."""
-    assert max_response_error(tt, _section(2e3, 6.0, -2.0), gain=-2.0) < 1e-9
+    assert max_response_error(tt, bandpass_section(2e3, 6.0, -2.0), gain=-2.0) < 1e-9
 
 
 def test_lowpass_net_passes_low_tones_numerically():
     """[nodal] a tone at f0/100 reaches the lowpass net at about |H0|/Q [TT], 100 times what
     reaches the output ([biquad]: |H0| (f/f0)/Q / (1 - (f/f0)^2))."""
-    sec = _section(6e3, 20.0, -2.0)
+    sec = bandpass_section(6e3, 20.0, -2.0)
     els = tt.elements(tt.design(sec, c_farads=1e-9), IDEAL)
     f = np.array([sec.f0_hz / 100])
     assert abs(nodal_transfer(els, f, out_net="lowpass")[0]) == pytest.approx(0.1, rel=1e-3)
@@ -136,11 +125,8 @@ def test_lowpass_net_passes_low_tones_numerically():
 @pytest.mark.parametrize("f0_hz,q,gain", CASES[:3])
 def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic):
     """[sympy] S_x^Q of the derived Q at the designed values."""
-    sec = _section(f0_hz, q, gain)
-    parts = tt.design(sec, c_farads=1e-9)
-    _, q_expr, _ = bandpass_figures(h_symbolic)
-    derived = numeric_sensitivities(q_expr, parts)
-    mine = tt.q_sensitivities(sec)
+    sec = bandpass_section(f0_hz, q, gain)
+    parts, derived, mine = sensitivities_against_sympy(tt, sec, h_symbolic)
     assert set(mine) == set(parts)
     for name, value in mine.items():
         assert value == pytest.approx(derived.get(name, 0.0), abs=1e-9)
@@ -149,11 +135,8 @@ def test_q_sensitivities_match_sympy(f0_hz, q, gain, h_symbolic):
 @pytest.mark.parametrize("q,gain", [(10.0, -1.0), (2.0, -8.0)])
 def test_noise_gain_matches_sympy(q, gain):
     """[sympy] |V(out)/e_n| at f0, largest over U1, U2, U3."""
-    sec = _section(5e3, q, gain)
-    parts = tt.design(sec, c_farads=1e-9)
-    els = tt.elements(parts, IDEAL)
-    gains = [numeric_noise_gain(noise_gain(els, u, values=exact(parts)), sec.f0_hz)
-             for u in ("U1", "U2", "U3")]
+    sec = bandpass_section(5e3, q, gain)
+    gains = sympy_noise_gains(tt, sec, ("U1", "U2", "U3"))
     g = abs(gain)
     assert gains == pytest.approx([math.hypot(g + q + 1, q), math.sqrt(2) * q, 2 * q],
                                   rel=1e-9)
@@ -166,7 +149,7 @@ def test_gbw_shift_matches_sympy_perturbation():
     k_f, k_q = gbw_shift(tt.elements(unit_parts(tt), IDEAL), design, q)
     assert sp.simplify(k_f + 1 + g / (2 * q)) == 0
     assert sp.simplify(k_q - 4 * q - g / (2 * q)) == 0
-    assert tt.gbw_shift(_section(1e3, 10.0, -3.0)) == pytest.approx((-1.15, 40.15))
+    assert tt.gbw_shift(bandpass_section(1e3, 10.0, -3.0)) == pytest.approx((-1.15, 40.15))
 
 
 def test_built_q_reference_value():
@@ -174,7 +157,7 @@ def test_built_q_reference_value():
     [TT]. Wiring: the classic three-op-amp loop, bandpass at the lossy integrator (module
     docstring). The reference value is about GBW alone, so A0 is made 240 dB here; with
     A0 = 120 dB the built Q is 2.5e-4 lower (10.4163)."""
-    sec = _section(10e3, 10.0, -1.0)
+    sec = bandpass_section(10e3, 10.0, -1.0)
     fig = built_figures(tt, sec, make_opamp(sec.f0_hz * 1e3, dc_gain_db=240))
     assert fig.q == pytest.approx(10.417, abs=5e-4)
     assert fig.q == pytest.approx(10 / (1 - 4 * 10 * 1e-3), rel=1e-4)
@@ -185,22 +168,21 @@ def test_built_q_reference_value():
 @pytest.mark.parametrize("q", [2.0, 10.0])
 def test_gbw_shift_matches_nodal(q):
     """[nodal] built with GBW = 1e4 f0: shifts within 2 % of the first-order figures."""
-    e = 1e-4
-    sec = _section(10e3, q, -1.0)
-    fig = built_figures(tt, sec, make_opamp(sec.f0_hz / e, dc_gain_db=240))
+    sec = bandpass_section(10e3, q, -1.0)
+    df0_per_e, dq_per_e = built_shifts_per_e(tt, sec, 1e-4)
     k_f, k_q = tt.gbw_shift(sec)
-    assert (fig.f0_hz / sec.f0_hz - 1) / e == pytest.approx(k_f, rel=0.02)
-    assert (fig.q / sec.q - 1) / e == pytest.approx(k_q, rel=0.02)
+    assert df0_per_e == pytest.approx(k_f, rel=0.02)
+    assert dq_per_e == pytest.approx(k_q, rel=0.02)
 
 
 def test_limits():
     """GBW from 4Qe <= 0.1 (about 40 Q f0); no gain limit; spread Q/|H0| at high gain."""
-    sec = _section(10e3, 10.0, -1.0)
+    sec = bandpass_section(10e3, 10.0, -1.0)
     lim = tt.limits(sec, make_opamp(3e6))
     assert lim.gbw_needed_hz == pytest.approx(10e3 * (40 + 0.05) / 0.1)
     assert not lim.feasible and any("4 MHz" in r and "3 MHz" in r for r in lim.reasons)
     ok = tt.limits(sec, make_opamp(5e6))
     assert ok.feasible and ok.opamps == 3 and ok.q_sensitivity == 1.0
     assert ok.spread == pytest.approx(10.0)
-    big_gain = tt.limits(_section(1e3, 20.0, -1000.0), make_opamp(1e9))
+    big_gain = tt.limits(bandpass_section(1e3, 20.0, -1000.0), make_opamp(1e9))
     assert big_gain.spread == pytest.approx(1000.0)  # RQ/Rin = |H0|
