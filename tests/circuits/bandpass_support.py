@@ -21,10 +21,7 @@ from bandwright.circuits.nodal import transfer as nodal_transfer
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section, section_response
 
-try:
-    from symbolic import bandpass_figures, noise_gain, part_symbols, transfer
-except ImportError:  # tests/circuits imported as a package
-    from .symbolic import bandpass_figures, noise_gain, part_symbols, transfer
+from symbolic import bandpass_figures, noise_gain, part_symbols, transfer
 
 __all__ = ["make_opamp", "IDEAL", "GENERAL_PURPOSE", "check_interface", "ideal_figures",
            "built_figures", "max_response_error", "rel", "unit_parts", "exact",

@@ -20,14 +20,8 @@ from bandwright.circuits.nodal import transfer
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section, section_response
 
-try:
-    from symbolic_lp import (S, biquad_figures, dominant_pair_shift, element_symbols,
-                             noise_gain)
-    from symbolic_lp import transfer as sympy_transfer
-except ImportError:  # tests/circuits imported as a package
-    from .symbolic_lp import (S, biquad_figures, dominant_pair_shift, element_symbols,
-                              noise_gain)
-    from .symbolic_lp import transfer as sympy_transfer
+from symbolic_lp import S, biquad_figures, dominant_pair_shift, element_symbols, noise_gain
+from symbolic_lp import transfer as sympy_transfer
 
 __all__ = ["make_opamp", "IDEAL", "check_interface", "numeric_figures", "max_response_error",
            "rational_parts", "rel", "sympy_design_figures", "noise_gain_coefficients",

@@ -22,14 +22,9 @@ from bandwright.circuits.nodal import transfer as nodal_transfer
 from bandwright.errors import InfeasibleDesign
 from bandwright.sections.section import Section
 
-try:
-    from lphp_support import (FLAT_FREQS_HZ, IDEAL, check_interface, gain_section, make_opamp,
-                              rel)
-    from symbolic_lp import element_symbols, noise_gain, transfer
-except ImportError:  # tests/circuits imported as a package
-    from .lphp_support import (FLAT_FREQS_HZ, IDEAL, check_interface, gain_section,
-                               make_opamp, rel)
-    from .symbolic_lp import element_symbols, noise_gain, transfer
+from lphp_support import (FLAT_FREQS_HZ, IDEAL, check_interface, gain_section, make_opamp,
+                          rel)
+from symbolic_lp import element_symbols, noise_gain, transfer
 
 def test_interface():
     """[base.Topology] attributes and registry entry."""

@@ -22,18 +22,11 @@ import sympy as sp
 from bandwright.circuits import mfb_bandpass as mfb
 from bandwright.sections.section import Section
 
-try:
-    from bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
-                                  check_interface, ideal_figures, make_opamp, max_response_error,
-                                  rel, sensitivities_against_sympy, symbolic_fixtures,
-                                  sympy_noise_gains, unit_parts)
-    from symbolic import S, bandpass_figures, gbw_shift
-except ImportError:  # tests/circuits imported as a package
-    from .bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
-                                   check_interface, ideal_figures, make_opamp, max_response_error,
-                                   rel, sensitivities_against_sympy, symbolic_fixtures,
-                                   sympy_noise_gains, unit_parts)
-    from .symbolic import S, bandpass_figures, gbw_shift
+from bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
+                              check_interface, ideal_figures, make_opamp, max_response_error,
+                              rel, sensitivities_against_sympy, symbolic_fixtures,
+                              sympy_noise_gains, unit_parts)
+from symbolic import S, bandpass_figures, gbw_shift
 
 CASES = [  # (f0_hz, Q, gain): below, at and (designed at 2Q^2) above the natural gain
     (40e3, 10.0, -10.0),

@@ -21,18 +21,11 @@ from bandwright.circuits import mfb_highpass as mhp
 from bandwright.errors import InfeasibleDesign
 from bandwright.sections.section import Section
 
-try:
-    from lphp_support import (IDEAL, check_interface, exact_and_first_order_shifts,
-                              first_order_shift, make_opamp, max_response_error,
-                              noise_gain_coefficients, numeric_figures, rel, sympy_design_figures,
-                              sympy_q_sensitivities)
-    from symbolic_lp import S, biquad_figures, element_symbols, transfer
-except ImportError:  # tests/circuits imported as a package
-    from .lphp_support import (IDEAL, check_interface, exact_and_first_order_shifts,
-                               first_order_shift, make_opamp, max_response_error,
-                               noise_gain_coefficients, numeric_figures, rel, sympy_design_figures,
-                               sympy_q_sensitivities)
-    from .symbolic_lp import S, biquad_figures, element_symbols, transfer
+from lphp_support import (IDEAL, check_interface, exact_and_first_order_shifts,
+                          first_order_shift, make_opamp, max_response_error,
+                          noise_gain_coefficients, numeric_figures, rel, sympy_design_figures,
+                          sympy_q_sensitivities)
+from symbolic_lp import S, biquad_figures, element_symbols, transfer
 
 UNIT_PARTS = {"C1": 1.0, "C2": 1.0, "C3": 1.0, "R1": 1.0, "R2": 1.0}
 

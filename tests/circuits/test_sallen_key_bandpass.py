@@ -21,18 +21,11 @@ from bandwright.circuits import _bandpass_common as common
 from bandwright.circuits import sallen_key_bandpass as sk
 from bandwright.errors import InfeasibleDesign
 
-try:
-    from bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
-                                  check_interface, ideal_figures, make_opamp, max_response_error,
-                                  rel, sensitivities_against_sympy, symbolic_fixtures,
-                                  sympy_noise_gains, unit_parts)
-    from symbolic import bandpass_figures, gbw_shift, sensitivity
-except ImportError:  # tests/circuits imported as a package
-    from .bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
-                                   check_interface, ideal_figures, make_opamp, max_response_error,
-                                   rel, sensitivities_against_sympy, symbolic_fixtures,
-                                   sympy_noise_gains, unit_parts)
-    from .symbolic import bandpass_figures, gbw_shift, sensitivity
+from bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
+                              check_interface, ideal_figures, make_opamp, max_response_error,
+                              rel, sensitivities_against_sympy, symbolic_fixtures,
+                              sympy_noise_gains, unit_parts)
+from symbolic import bandpass_figures, gbw_shift, sensitivity
 
 CASES = [  # (f0_hz, Q, gain): natural gain 3Q - 1 = 2.0, 8.0, 0.5, 5.0
     (1e3, 1.0, 1.0),

@@ -19,18 +19,11 @@ from bandwright.circuits import sallen_key_highpass as skh
 from bandwright.errors import InfeasibleDesign
 from bandwright.sections.section import Section
 
-try:
-    from lphp_support import (IDEAL, SALLEN_KEY_CASES, check_interface,
-                              exact_and_first_order_shifts, make_opamp, max_response_error,
-                              noise_gain_coefficients, numeric_figures, rel,
-                              sympy_design_figures, sympy_q_sensitivities)
-    from symbolic_lp import S, biquad_figures, element_symbols, transfer
-except ImportError:  # tests/circuits imported as a package
-    from .lphp_support import (IDEAL, SALLEN_KEY_CASES, check_interface,
-                               exact_and_first_order_shifts, make_opamp, max_response_error,
-                               noise_gain_coefficients, numeric_figures, rel,
-                               sympy_design_figures, sympy_q_sensitivities)
-    from .symbolic_lp import S, biquad_figures, element_symbols, transfer
+from lphp_support import (IDEAL, SALLEN_KEY_CASES, check_interface,
+                          exact_and_first_order_shifts, make_opamp, max_response_error,
+                          noise_gain_coefficients, numeric_figures, rel,
+                          sympy_design_figures, sympy_q_sensitivities)
+from symbolic_lp import S, biquad_figures, element_symbols, transfer
 
 ALL_PARTS = {"C1": 1.0, "C2": 1.0, "R1": 1.0, "R2": 1.0, "Rf": 1.0, "Rg": 1.0}
 FOLLOWER_PARTS = {"C1": 1.0, "C2": 1.0, "R1": 1.0, "R2": 1.0}

@@ -22,18 +22,11 @@ from bandwright.circuits import state_variable as sv
 from bandwright.circuits.nodal import transfer as nodal_transfer
 from bandwright.errors import InfeasibleDesign
 
-try:
-    from bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
-                                  check_interface, ideal_figures, make_opamp, max_response_error,
-                                  rel, sensitivities_against_sympy, symbolic_fixtures,
-                                  sympy_noise_gains, unit_parts)
-    from symbolic import S, bandpass_figures, gbw_shift, node_voltages
-except ImportError:  # tests/circuits imported as a package
-    from .bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
-                                   check_interface, ideal_figures, make_opamp, max_response_error,
-                                   rel, sensitivities_against_sympy, symbolic_fixtures,
-                                   sympy_noise_gains, unit_parts)
-    from .symbolic import S, bandpass_figures, gbw_shift, node_voltages
+from bandpass_support import (GENERAL_PURPOSE, IDEAL, bandpass_section, built_shifts_per_e,
+                              check_interface, ideal_figures, make_opamp, max_response_error,
+                              rel, sensitivities_against_sympy, symbolic_fixtures,
+                              sympy_noise_gains, unit_parts)
+from symbolic import S, bandpass_figures, gbw_shift, node_voltages
 
 CASES = [  # (f0_hz, Q, gain): natural gain 2Q - 1 = 19, 0.4, 59, 3
     (40e3, 10.0, -1.0),

@@ -22,18 +22,11 @@ import sympy as sp
 from bandwright.circuits import tow_thomas as tt
 from bandwright.circuits.nodal import transfer as nodal_transfer
 
-try:
-    from bandpass_support import (IDEAL, bandpass_section, built_figures, built_shifts_per_e,
-                                  check_interface, ideal_figures, make_opamp, max_response_error,
-                                  rel, sensitivities_against_sympy, symbolic_fixtures,
-                                  sympy_noise_gains, unit_parts)
-    from symbolic import S, bandpass_figures, gbw_shift, transfer
-except ImportError:  # tests/circuits imported as a package
-    from .bandpass_support import (IDEAL, bandpass_section, built_figures, built_shifts_per_e,
-                                   check_interface, ideal_figures, make_opamp, max_response_error,
-                                   rel, sensitivities_against_sympy, symbolic_fixtures,
-                                   sympy_noise_gains, unit_parts)
-    from .symbolic import S, bandpass_figures, gbw_shift, transfer
+from bandpass_support import (IDEAL, bandpass_section, built_figures, built_shifts_per_e,
+                              check_interface, ideal_figures, make_opamp, max_response_error,
+                              rel, sensitivities_against_sympy, symbolic_fixtures,
+                              sympy_noise_gains, unit_parts)
+from symbolic import S, bandpass_figures, gbw_shift, transfer
 
 CASES = [  # (f0_hz, Q, gain)
     (40e3, 10.0, -1.0),
