@@ -20,7 +20,6 @@ import math
 import os
 import re
 
-import numpy as np
 import pytest
 
 from bandwright import cli

@@ -9,7 +9,7 @@ import pytest
 from hypothesis import given, settings, strategies as st
 from scipy import signal
 
-from bandwright.prototype import prototype, prototype_response
+from bandwright.prototype import prototype
 from bandwright.sections import bandpass_sections, sections_from_poles
 from bandwright.sections.section import Section, section_response
 from bandwright.sections.split import cascade_response, wideband_sections

@@ -9,7 +9,6 @@ from typing import Literal
 import numpy as np
 
 from bandwright.prototype import bandpass_omega, minimum_order, order_for_point, prototype
-from bandwright.prototype.poles import Prototype
 from bandwright.sections import bandpass_sections, wideband_sections
 from bandwright.sections.section import Section
 from bandwright.sections.split import cascade_response

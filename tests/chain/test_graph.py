@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 
 import networkx as nx
 import numpy as np
