@@ -112,7 +112,9 @@ def render_audit(a, console: Console) -> None:
     """Print an audit to `console`."""
     _say(console, f"bandwright audit — {a.path}", style="bold")
     _requirement(a.requirement, a.chain.stages[0].model, console)
-    _chain(a.chain, a.analyses, console)
+    _chain(a.chain, a.analyses, console, first="ideal")
+    _say(console, "ideal: the parts as given with an ideal op-amp; built: with this op-amp "
+                  "(finite GBW), the first stage as the source drives it")
     _checks(a.checks, console)
 
 
@@ -169,15 +171,16 @@ def _unbuilt(d, console: Console) -> None:
     _say(console, t)
 
 
-def _chain(chain, an, console: Console) -> None:
-    t = _table("Chain, input to output", "#", "kind", "topology", "f0 asked→built",
-               "Q asked→built", "gain dB asked→built")
+def _chain(chain, an, console: Console, *, first: str = "asked") -> None:
+    """The chain table, stage details, node levels and noise. `first` names the left-hand
+    figures: "asked" in a plan, "ideal" (the parts with an ideal op-amp) in an audit."""
+    t = _table("Chain, input to output", "#", "kind", "topology", f"f0 {first}→built",
+               f"Q {first}→built", f"gain dB {first}→built")
     for st in chain.stages:
         tg, b = st.target, st.built
         f0 = "—" if st.kind == "gain" else f"{fmt_hz(tg.f0_hz)} → {fmt_hz(b.f0_hz)}"
         q = "—" if st.kind == "gain" else f"{tg.q:.4g} → {b.q:.4g}"
-        _row(t, str(st.position), st.kind, st.topology, f0, q,
-                  f"{_db(tg.gain)} → {_db(b.gain)}")
+        _row(t, str(st.position), st.kind, st.topology, f0, q, f"{_db(tg.gain)} → {_db(b.gain)}")
     _say(console, t)
     for st in chain.stages:
         parts = "  ".join(f"{n}={format_value(v, 'Ω' if n.startswith('R') else 'F')}"
