@@ -126,6 +126,12 @@ def plan(requirement: Requirement, *, family: str | None = None,
          progress: Callable[[str, int, int], None] | None = None) -> Plan:
     """Plan a chain for `requirement`.
 
+    Every candidate (family × order × path) is carried to a built chain: sections ordered
+    and scaled for dynamic range, a topology chosen for each by its reasons, parts rounded
+    and trimmed, then analysed, checked and given its Monte Carlo yield. Candidates are
+    ranked: buildable first, then fewest failing checks (the nearer yield among those that
+    miss it), fewest op-amps, fewest sections, lowest highest Q, widest dynamic range.
+
     Parameters
     ----------
     requirement : Requirement
@@ -327,7 +333,7 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
                           f"{format_value(z_in, 'Ω')} in band, too low for the "
                           f"{format_value(rs, 'Ω')} source")
             assignments.insert(0, buf)
-    chain = _trim_gain(assignments, req, model, windows)
+    chain = _build_and_trim(assignments, req, model, windows)
     an = analyse(chain, req)
     checks = tuple(all_checks(chain, an, req, windows=windows))
     return Design(candidate=cand, ordering=ordering, assignments=tuple(assignments),
@@ -345,7 +351,7 @@ def _chain_of(assignments: list[Assignment], req: Requirement, model: OpAmp) -> 
     return build_chain(stages, source_ohms=rs)
 
 
-def _trim_gain(assignments: list[Assignment], req: Requirement, model: OpAmp,
+def _build_and_trim(assignments: list[Assignment], req: Requirement, model: OpAmp,
                windows: PartWindows) -> Chain:
     """Build the chain, then trim stages' parts so its passband sits on the mask.
 
