@@ -158,10 +158,15 @@ def plan(requirement: Requirement, *, family: str | None = None,
         designs.append(build_design(c, requirement, model, windows=windows))
         if progress is not None:
             progress("candidates", len(designs), len(candidates))
-    # Every buildable candidate's yield: how many built boards meet the requirement is part of
-    # what makes one candidate better than another. The tighter-parts search, which costs
-    # several more runs, is for the chosen one only.
-    designs = [with_yield(d, requirement, progress=progress, offer=False) for d in designs]
+    # The yield of every candidate that passes its other checks: how many built boards meet
+    # the requirement then decides between them. One that already fails a check ranks by its
+    # failures, so its Monte Carlo is skipped — unless no candidate is clean, when the best
+    # of them gets one. The tighter-parts search, several runs more, is for the chosen only.
+    designs.sort(key=_rank)
+    clean = [d.buildable and d.failures == 0 for d in designs]
+    designs = [with_yield(d, requirement, progress=progress, offer=False)
+               if ok or (i == 0 and not any(clean)) else d
+               for i, (d, ok) in enumerate(zip(designs, clean))]
     designs.sort(key=_rank)
     designs[0] = with_gain_advice(designs[0], requirement,
                                   _rebuild(designs[0].candidate, model, windows, order))

@@ -271,8 +271,10 @@ def _candidates(s: Subject) -> str:
     out.append(_table(["#", "family", "path", "order", "sections", "op-amps", "highest Q",
                        "worst margin", "noise out", "dyn. range", "yield", "state"], rows,
                       num_cols=(3, 4, 5, 6, 7, 8, 9, 10), row_classes=classes))
-    out.append(f'<p class="note">Ranked: buildable first, then fewest failing checks, fewest '
-               f"op-amps, fewest sections, lowest highest Q, widest dynamic range. "
+    out.append(f'<p class="note">Ranked: buildable first, then fewest failing checks (the '
+               f"higher yield between two that miss it), fewest op-amps, fewest sections, lowest "
+               f"highest Q, widest dynamic range. The yield is not run for a candidate that "
+               f"fails other checks. "
                f"{_e(s.source.why).capitalize()}.</p></section>")
     return "".join(out)
 

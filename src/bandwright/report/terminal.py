@@ -90,7 +90,7 @@ def render_plan(p, console: Console) -> None:
     _say(console, cand)
     _say(console, "sects: sections; amps: op-amps; margin: worst node headroom, dB; noise: output "
                   "noise over the noise band, µV rms; DR: dynamic range, dB; yield: share of Monte "
-                  "Carlo boards that pass, %")
+                  "Carlo boards that pass, % (not run for a candidate that fails other checks)")
     d = p.chosen
     _say(console, f"Chosen: {d.candidate.family} {d.candidate.path}, order {d.candidate.order} "
                   f"({d.candidate.note}) — {p.why}.")
