@@ -12,16 +12,19 @@ import re
 
 import numpy as np
 import pytest
+from conftest import run_cli
 from scipy import signal
 
-from bandwright.advice import (MAX_BUILT_ORDER, frequency_of_omega, omega_for_loss,
-                               prototype_loss_db)
-from bandwright.candidates import MAX_ORDER, make_candidates
+from bandwright.advice import (
+    MAX_BUILT_ORDER,
+    frequency_of_omega,
+    omega_for_loss,
+    prototype_loss_db,
+)
+from bandwright.candidates import LOSS_SHARE, MAX_ORDER, make_candidates
 from bandwright.planner import plan
 from bandwright.prototype import bandpass_omega
 from bandwright.spec import load_spec, spec_from_dict
-
-from conftest import run_cli
 
 FAST_MC = "[tolerance]\nsamples = 10\n"
 
@@ -130,11 +133,13 @@ def test_order_above_the_most_supported_says_which_order_and_where_the_point_cou
     (check,) = [c for c in doc["checks"] if c["status"] == "fail"]
     assert check["id"] == "order"
     msg = check["message"]
-    # Order from references.md "Mask -> order" (Butterworth), with the planner's 0.9 share
-    # of max_loss_db: N >= log10[(10^10 - 1)/(10^0.09 - 1)] / (2 log10 Omega_s).
+    # Order from references.md "Mask -> order" (Butterworth), with the planner's share
+    # (LOSS_SHARE) of max_loss_db = 1 dB:
+    # N >= log10[(10^10 - 1)/(10^(share/10) - 1)] / (2 log10 Omega_s).
     pb = load_spec(spec).passband
     omega = float(bandpass_omega(940.0, pb.center_hz, pb.bandwidth_hz))
-    n = math.ceil(math.log10((10 ** 10 - 1) / (10 ** 0.09 - 1)) / (2 * math.log10(omega)))
+    n = math.ceil(math.log10((10 ** 10 - 1) / (10 ** (LOSS_SHARE / 10) - 1))
+                  / (2 * math.log10(omega)))
     assert f"order of {n} " in msg and f"{MAX_ORDER} is the most" in msg
     f_ok = float(re.search(r"move the point out to ([\d.]+) Hz", msg).group(1))
     assert f_ok < 940.0
