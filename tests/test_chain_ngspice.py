@@ -558,3 +558,41 @@ def test_audit_reproduces_a_plan_that_absorbed_the_source(tmp_path):
     must report the same first-stage figures and gbw check as the plan."""
     files = out_files("ultrasonic_ranging")
     _assert_same_figures(json.loads(files["plan.json"]), _audit_json(files, tmp_path))
+
+
+# --- 6. SNR and dynamic range from ngspice's own figures ---------------------------------------
+
+def test_snr_and_dynamic_range_from_ngspice(tmp_path):
+    """The report's SNR and dynamic range rebuilt from ngspice-39 alone: the in-band output
+    amplitude from its AC solution at the passband grid (max_vpk x max |V(out)|, rms = /√2),
+    every net's worst-case peak (signal plus tones) against the swing limit for the input
+    scale at which the first net clips, and the output noise from its ``.noise`` integral.
+    SNR = 20 log10(signal rms / noise rms); dynamic range = the same at the clipping scale
+    (definitions in docs/methods.md). Tolerance 0.3 dB: the integral's own (see the noise
+    test); the amplitudes agree to far better than 0.01 dB."""
+    name = "lockin_flicker"
+    p = planned(name)
+    d, req = p.chosen, p.requirement
+    an = d.analyses
+    nets = opamp_nets(d.chain)
+    band = [float(f) for f in passband_grid(req)]
+    tones = [t.freq_hz for t in req.input.tones]
+    (tmp_path / "ac").mkdir()
+    pts = run_ngspice_ac_points(chain_cir(name), band + tones, nets, tmp_path / "ac")
+    nb = len(band)
+    limit = {n.net: n.limit_vpk for n in an.nodes}
+    scale = math.inf
+    for net in nets:
+        mag = np.abs(pts[net])
+        peak = req.input.max_vpk * mag[:nb].max() + sum(
+            t.vpk * m for t, m in zip(req.input.tones, mag[nb:]))
+        scale = min(scale, limit[net] / peak)
+    signal_rms = req.input.max_vpk * np.abs(pts["out"][:nb]).max() / math.sqrt(2)
+    lo, hi = an.noise.band_hz
+    (tmp_path / "noise").mkdir()
+    ng = run_ngspice_noise(chain_cir(name), lo, hi, NOISE_POINTS_PER_DECADE, tmp_path / "noise")
+    snr = 20 * math.log10(signal_rms / ng.onoise_total_vrms)
+    dr = 20 * math.log10(scale * signal_rms / ng.onoise_total_vrms)
+    assert an.snr_db == pytest.approx(snr, abs=0.3)
+    assert an.dynamic_range_db == pytest.approx(dr, abs=0.3)
+    assert an.clip_scale == pytest.approx(scale, rel=1e-3)
