@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 
 import numpy as np
 import pytest
@@ -90,3 +91,25 @@ def test_bad_chain_file_names_stage_and_part(name, text, key, word, tmp_path):
     assert r.returncode == 2 and "Traceback" not in r.stderr
     assert len(r.stderr.strip().splitlines()) == 1
     assert not (tmp_path / "o").exists()
+
+
+def test_bom_lists_every_part_once_with_the_yield_tolerances(tmp_path):
+    """bom.csv: every element of the chain appears once under its designator, quantities add
+    up to the element count, and the tolerances are those the yield was computed for (the
+    scenario's [tolerance]: 0.1 % resistors, 1 % capacitors)."""
+    import csv
+    out = tmp_path / "o"
+    r = run_cli("plan", SCENARIOS / "lockin_mains.toml", "--out", out)
+    assert r.returncode == 0, r.stderr
+    rows = list(csv.DictReader((out / "bom.csv").read_text().splitlines()))
+    refs = [d for row in rows for d in row["designators"].split()]
+    assert len(refs) == len(set(refs)) == sum(int(row["quantity"]) for row in rows)
+    deck = (out / "chain.cir").read_text().splitlines()
+    # The chain's own elements in the deck carry their stage suffix ("R1a_s1", "XU1_s2").
+    parts = [ln.split()[0] for ln in deck
+             if ln[:1] in "RCX" and re.search(r"_s\d+$", ln.split()[0])]
+    assert sorted(refs) == sorted(p[1:] if p.startswith("X") else p for p in parts)
+    assert {row["tolerance"] for row in rows if row["part"] == "resistor"} == {"0.1 %"}
+    assert {row["tolerance"] for row in rows if row["part"] == "capacitor"} == {"1 %"}
+    assert {row["dielectric"] for row in rows if row["part"] == "capacitor"} <= {
+        "C0G/NP0", "film (PPS/PP)"}

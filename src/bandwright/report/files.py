@@ -84,8 +84,13 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
     return "\n".join(out)
 
 
-def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None) -> str:
-    """Bill of materials: one row per distinct part, with designators and quantity."""
+def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
+            r_pct: float | None = None, c_pct: float | None = None) -> str:
+    """Bill of materials: one row per distinct part, with designators and quantity.
+
+    The tolerance is the one the yield was computed for (`r_pct`, `c_pct`), else the one
+    customary for the part's series (common practice, ``parts.tolerance``).
+    """
     rows: dict[tuple, list[str]] = {}
     for e in flatten(chain):
         if e.kind == "opamp":
@@ -95,7 +100,10 @@ def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None) -> str:
             if series is None or not is_member(e.value, series):
                 series = next((s for s in ("E6", "E12", "E24", "E48", "E96", "E192")
                                if is_member(e.value, s)), "")
-            tol = f"{default_tolerance_pct(series):g} %" if series else ""
+            pct = r_pct if e.kind == "R" else c_pct
+            if pct is None and series:
+                pct = default_tolerance_pct(series)
+            tol = f"{pct:g} %" if pct is not None else ""
             unit = "Ω" if e.kind == "R" else "F"
             key = ("resistor" if e.kind == "R" else "capacitor", format_value(e.value, unit),
                    series, tol, dielectric(e.value) if e.kind == "C" else "")
@@ -109,13 +117,15 @@ def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None) -> str:
 
 
 def _files(chain: Chain, req, json_text: str, json_name: str, title: str,
-           r_series: str | None, c_series: str | None) -> dict[str, bytes]:
+           r_series: str | None, c_series: str | None, r_pct: float | None,
+           c_pct: float | None) -> dict[str, bytes]:
     return {
         json_name: (json_text + "\n").encode(),
         "chain.cir": spice_deck(flatten(chain), source_ohms=chain.source_ohms,
                                 temperature_c=req.environment.temperature_c, title=title).encode(),
         "chain.toml": chain_toml(chain, req, title=title).encode(),
-        "bom.csv": bom_csv(chain, r_series=r_series, c_series=c_series).encode(),
+        "bom.csv": bom_csv(chain, r_series=r_series, c_series=c_series, r_pct=r_pct,
+                           c_pct=c_pct).encode(),
     }
 
 
@@ -125,15 +135,18 @@ def plan_files(p, json_text: str) -> dict[str, bytes]:
     if d.chain is None:
         return {"plan.json": (json_text + "\n").encode(), **_graphic_files(p, None)}
     title = f"bandwright plan of {p.requirement.path}"
+    spreads = resolve_spreads(p.requirement)
     out = _files(d.chain, p.requirement, json_text, "plan.json", title,
-                 p.requirement.design.resistor_series, p.requirement.design.capacitor_series)
+                 p.requirement.design.resistor_series, p.requirement.design.capacitor_series,
+                 spreads.resistor_pct, spreads.capacitor_pct)
     return {**out, **_graphic_files(p, out["bom.csv"])}
 
 
 def audit_files(a, json_text: str) -> dict[str, bytes]:
     """Every file of an audit's --out folder."""
+    tol = a.requirement.tolerance  # explicit ones only: the parts' series are not known
     out = _files(a.chain, a.requirement, json_text, "audit.json",
-                 f"bandwright audit of {a.path}", None, None)
+                 f"bandwright audit of {a.path}", None, None, tol.resistor_pct, tol.capacitor_pct)
     return {**out, **_graphic_files(a, out["bom.csv"])}
 
 
