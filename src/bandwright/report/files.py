@@ -15,7 +15,7 @@ from bandwright.parts.notation import format_value
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
 from bandwright.report.spice import spice_deck
 
-__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv"]
+__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
              "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
@@ -116,16 +116,25 @@ def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
     return buf.getvalue()
 
 
-def _files(chain: Chain, req, json_text: str, json_name: str, title: str,
-           r_series: str | None, c_series: str | None, r_pct: float | None,
-           c_pct: float | None) -> dict[str, bytes]:
+def bom_args(req, *, planned: bool) -> dict[str, Any]:
+    """The series and tolerances the BOM states: a plan's series and the tolerances its yield
+    used; an audit's explicit `[tolerance]` only (its parts' series are not known)."""
+    if planned:
+        spreads = resolve_spreads(req)
+        return {"r_series": req.design.resistor_series, "c_series": req.design.capacitor_series,
+                "r_pct": spreads.resistor_pct, "c_pct": spreads.capacitor_pct}
+    return {"r_series": None, "c_series": None, "r_pct": req.tolerance.resistor_pct,
+            "c_pct": req.tolerance.capacitor_pct}
+
+
+def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
+           planned: bool) -> dict[str, bytes]:
     return {
         json_name: (json_text + "\n").encode(),
         "chain.cir": spice_deck(flatten(chain), source_ohms=chain.source_ohms,
                                 temperature_c=req.environment.temperature_c, title=title).encode(),
         "chain.toml": chain_toml(chain, req, title=title).encode(),
-        "bom.csv": bom_csv(chain, r_series=r_series, c_series=c_series, r_pct=r_pct,
-                           c_pct=c_pct).encode(),
+        "bom.csv": bom_csv(chain, **bom_args(req, planned=planned)).encode(),
     }
 
 
@@ -135,18 +144,14 @@ def plan_files(p, json_text: str) -> dict[str, bytes]:
     if d.chain is None:
         return {"plan.json": (json_text + "\n").encode(), **_graphic_files(p, None)}
     title = f"bandwright plan of {p.requirement.path}"
-    spreads = resolve_spreads(p.requirement)
-    out = _files(d.chain, p.requirement, json_text, "plan.json", title,
-                 p.requirement.design.resistor_series, p.requirement.design.capacitor_series,
-                 spreads.resistor_pct, spreads.capacitor_pct)
+    out = _files(d.chain, p.requirement, json_text, "plan.json", title, planned=True)
     return {**out, **_graphic_files(p, out["bom.csv"])}
 
 
 def audit_files(a, json_text: str) -> dict[str, bytes]:
     """Every file of an audit's --out folder."""
-    tol = a.requirement.tolerance  # explicit ones only: the parts' series are not known
     out = _files(a.chain, a.requirement, json_text, "audit.json",
-                 f"bandwright audit of {a.path}", None, None, tol.resistor_pct, tol.capacitor_pct)
+                 f"bandwright audit of {a.path}", planned=False)
     return {**out, **_graphic_files(a, out["bom.csv"])}
 
 

@@ -514,10 +514,8 @@ def html_report(obj, *, plots: dict | None = None, schematics: dict | None = Non
         from bandwright.report.schematic import schematic_files
         schematics = schematic_files(s.chain)
     if bom_text is None and s.chain is not None:
-        from bandwright.report.files import bom_csv
-        design = s.requirement.design if s.kind == "plan" else None
-        bom_text = bom_csv(s.chain, r_series=design.resistor_series if design else None,
-                           c_series=design.capacitor_series if design else None)
+        from bandwright.report.files import bom_args, bom_csv
+        bom_text = bom_csv(s.chain, **bom_args(s.requirement, planned=s.kind == "plan"))
     title = f"bandwright {s.kind} — {s.path}"
     nav = "".join(f'<a href="#{i}">{i}</a>' for i in SECTION_IDS)
     body = [
