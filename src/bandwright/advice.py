@@ -4,8 +4,7 @@ requirement the tool can meet, attached to the failing checks of a plan.
 Two cases live here (the third, a section no topology builds with the op-amp given, is
 answered in ``planner._nearest_fix`` with a faster op-amp class):
 
-* more sections than the planner orders and scales (``chain.ordering.MAX_SECTIONS``), or
-  a stopband that needs an order above ``candidates.MAX_ORDER``: which order the mask
+* a stopband that needs an order above ``candidates.MAX_ORDER``: which order the mask
   needs, the most the tool builds, and what that order reaches at the deciding stopband
   point (or where that point would have to move);
 * a chain that clips: node peaks scale with the chain's gain, so the largest gain that fits
@@ -21,17 +20,16 @@ from typing import Any, Callable
 import numpy as np
 
 from bandwright.candidates import MAX_ORDER, Candidate
-from bandwright.chain.ordering import MAX_SECTIONS
 from bandwright.checks.base import Check
 from bandwright.prototype import bandpass_omega, order_for_point
 from bandwright.spec.requirement import Requirement
 
 __all__ = ["MAX_BUILT_ORDER", "prototype_loss_db", "omega_for_loss", "frequency_of_omega",
-           "too_many_sections", "with_gain_advice"]
+           "order_beyond_reach", "with_gain_advice"]
 
 # The bandpass path has one section per prototype order: the section limit of the ordering
 # search caps it below MAX_ORDER.
-MAX_BUILT_ORDER = min(MAX_ORDER, MAX_SECTIONS)
+MAX_BUILT_ORDER = MAX_ORDER
 # The gain advice plans at most this many times; below the least gain a requirement may
 # ask (passband.gain_db >= -60 dB) it stops.
 _GAIN_TRIES = 3
@@ -111,22 +109,22 @@ def _needed_order(cand: Candidate, req: Requirement) -> tuple[int, int] | None:
     return orders[k], k
 
 
-def too_many_sections(cand: Candidate, req: Requirement) -> Check:
-    """The failing check of a candidate with more sections than the planner can order.
+def order_beyond_reach(cand: Candidate, req: Requirement) -> Check:
+    """The failing check of a candidate whose mask needs more than the largest order.
 
     Says which order the mask needs, the most the tool builds, and for the bandpass path
     what order `MAX_BUILT_ORDER` reaches at the deciding stopband point and how far out
     that point would have to move.
     """
     n = len(cand.sections)
-    head = (f"{n} sections ({cand.family} {cand.path}, order {cand.order}): the planner orders "
-            f"and scales at most {MAX_SECTIONS}")
+    head = (f"{n} sections ({cand.family} {cand.path}, order {cand.order}): the mask needs more "
+            f"than the largest order, {MAX_ORDER}")
     need = _needed_order(cand, req)
     if need is None or cand.note.startswith("order given"):
         tail = (f"; ask for order {MAX_BUILT_ORDER} or less"
                 if cand.path == "bandpass" or cand.note.startswith("order given")
                 else f"; {cand.note.split(';')[0]}: relax the stopband points that set it")
-        return Check(id="order", status="fail", value=float(n), limit=float(MAX_SECTIONS),
+        return Check(id="order", status="fail", value=float(n), limit=float(MAX_ORDER),
                      unit="sections", message=head + tail)
     order, k = need
     p = req.stopband[k]
@@ -139,8 +137,7 @@ def too_many_sections(cand: Candidate, req: Requirement) -> Check:
                                              p.min_loss_db),
                               pb.center_hz, pb.bandwidth_hz, upper=p.freq_hz > pb.center_hz)
     msg = (f"the stopband needs a {cand.family} order of {order} ({p.min_loss_db:g} dB at "
-           f"{p.freq_hz:.6g} Hz, Ω = {omega:.4g}); {cap} and builds at most {MAX_BUILT_ORDER} "
-           f"on the bandpass path ({MAX_SECTIONS} sections): order {MAX_BUILT_ORDER} gives "
+           f"{p.freq_hz:.6g} Hz, Ω = {omega:.4g}); {cap}: order {MAX_BUILT_ORDER} gives "
            f"{reach:.1f} dB there — ask for no more at {p.freq_hz:.6g} Hz, or move the point "
            f"out to {f_ok:.6g} Hz")
     return Check(id="order", status="fail", value=float(order), limit=float(MAX_BUILT_ORDER),

@@ -9,7 +9,7 @@ from typing import Callable
 
 import numpy as np
 
-from bandwright.advice import too_many_sections, with_gain_advice
+from bandwright.advice import order_beyond_reach, with_gain_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
@@ -18,7 +18,8 @@ from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.stage import with_parts
 from bandwright.chain.trim import passband_score, trim_stage
-from bandwright.chain.ordering import MAX_SECTIONS, Ordering, choose_order, make_problem
+from bandwright.chain.ordering import (MAX_SECTIONS, Ordering, choose_order, long_chain_order,
+                                      make_problem)
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
 from bandwright.checks.yield_check import yield_checks
@@ -280,11 +281,11 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
                  windows: PartWindows = PartWindows()) -> Design:
     """Order, scale, assign and analyse one candidate."""
     secs = cand.sections
-    if len(secs) > MAX_SECTIONS:
-        # The ordering search tabulates every subset of sections: beyond its limit the
-        # candidate is reported as infeasible, with the order that would work.
+    if len(secs) > MAX_SECTIONS and "capped" in cand.note:
+        # The mask needs more than the largest order: building the capped chain would only
+        # show a failing stopband; say instead which order it needs and what would fit.
         return Design(candidate=cand, ordering=None, assignments=(), chain=None,
-                      analyses=None, checks=(too_many_sections(cand, req),))
+                      analyses=None, checks=(order_beyond_reach(cand, req),))
     # Noise of each section as first assigned (equal gain split): the ordering's model.
     first = [_assign_with_backoff(s, s.gain, model, req, windows, rounded=False)[0]
              for s in secs]
@@ -295,10 +296,12 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
     # The sections' own gains already hold the reference gain and the shape's peak (an
     # even-order Chebyshev peaks above its centre), so their product is the chain's gain.
     total = float(np.prod([abs(s.gain) for s in secs]))
-    problem = make_problem(secs, psd, nf, total_gain=total,
-                           passband_hz=passband_grid(req), max_vpk=req.input.max_vpk,
-                           tones=[(t.freq_hz, t.vpk) for t in req.input.tones])
-    ordering = choose_order(problem, secs)
+    inputs = dict(total_gain=total, passband_hz=passband_grid(req), max_vpk=req.input.max_vpk,
+                  tones=[(t.freq_hz, t.vpk) for t in req.input.tones])
+    if len(secs) > MAX_SECTIONS:
+        ordering = long_chain_order(secs, psd, nf, **inputs)
+    else:
+        ordering = choose_order(make_problem(secs, psd, nf, **inputs), secs)
     assignments, leftover = [], 1.0
     for i, g in zip(ordering.order, ordering.gains):
         # A gain one section could not take is carried into the next one.

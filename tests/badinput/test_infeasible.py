@@ -149,12 +149,20 @@ def test_order_above_the_most_supported_says_which_order_and_where_the_point_cou
     assert cand.order <= MAX_BUILT_ORDER
 
 
-def test_given_order_above_the_section_limit_is_a_failing_check_not_a_crash(write_spec):
+def test_given_order_above_the_exact_search_is_built_in_increasing_q_order(write_spec):
+    """Order 16 (16 sections, past the 12 the exact ordering tabulates): the chain is still
+    planned, its sections in increasing Q (Moschytz 1975 [mem], references.md), and it meets
+    its mask as built; the report says which method ordered it."""
     spec = write_spec("[passband]\ncenter_hz = 1000\nbandwidth_hz = 100\n[design]\norder = 16\n"
-                      + FAST_MC)
+                      "family = \"butterworth\"\n[amplifier]\narchetype = \"fast\"\n" + FAST_MC)
     p = plan(load_spec(spec))
-    (check,) = _fails(p, "order")
-    assert "16 sections" in check.message and f"order {MAX_BUILT_ORDER} or less" in check.message
+    d = p.chosen
+    assert d.chain is not None and len(d.candidate.sections) == 16
+    assert d.ordering.method.startswith("increasing Q")
+    qs = [d.candidate.sections[i].q for i in d.ordering.order]
+    assert qs == sorted(qs)
+    assert not _fails(p, "mask")
+    assert not _fails(p, "order")
 
 
 @pytest.mark.parametrize("family,ripple_db,order", [("butterworth", 3.0103, 5),

@@ -94,3 +94,23 @@ def test_twelve_sections_by_dynamic_programming():
     assert result.method.startswith("dynamic")
     assert result.noise_vrms <= result.generated_vrms * (1 + 1e-12)
     assert result.noise_vrms <= result.increasing_q_vrms * (1 + 1e-12)
+
+
+def test_long_chain_order_follows_the_exact_model():
+    """Beyond 12 sections the chain is ordered by increasing Q (Moschytz 1975 [mem]); its
+    gains and noise come from the same equal-maxima model, evaluated along that one order:
+    checked here against the exact subset tables on a six-section chain."""
+    from bandwright.chain.ordering import long_chain_order
+    secs = bandpass_sections(prototype("chebyshev", 6, 0.5), center_hz=1.0, bandwidth_hz=0.1,
+                             gain=30.0)
+    nf = np.geomspace(0.8, 1.25, 301)
+    psd = np.random.default_rng(1).uniform(1, 3, (6, 1)) * np.ones((6, 301)) * 1e-16
+    kw = dict(total_gain=30.0, passband_hz=np.geomspace(0.95, 1.05, 101), max_vpk=1.0,
+              tones=[(0.7, 2.0)])
+    pr = make_problem(secs, psd, nf, **kw)
+    lo = long_chain_order(secs, psd, nf, **kw)
+    assert [secs[i].q for i in lo.order] == sorted(s.q for s in secs)
+    assert lo.noise_vrms == pytest.approx(math.sqrt(order_cost(pr, lo.order)), rel=1e-9)
+    assert lo.generated_vrms == pytest.approx(math.sqrt(order_cost(pr, tuple(range(6)))),
+                                              rel=1e-9)
+    np.testing.assert_allclose(lo.gains, stage_gains(pr, lo.order), rtol=1e-9)

@@ -32,7 +32,7 @@ import numpy as np
 from bandwright.sections.section import Section, section_response
 
 __all__ = ["OrderingProblem", "Ordering", "make_problem", "order_cost", "best_order_dp",
-           "best_order_brute", "best_order", "stage_gains", "choose_order",
+           "best_order_brute", "best_order", "stage_gains", "choose_order", "long_chain_order",
            "EXHAUSTIVE_MAX"]
 
 EXHAUSTIVE_MAX = 8
@@ -221,3 +221,41 @@ def choose_order(problem: OrderingProblem, sections: Sequence[Section]) -> Order
                     increasing_q_vrms=math.sqrt(order_cost(problem, inc_q)),
                     method="exhaustive" if problem.n <= EXHAUSTIVE_MAX else
                     "dynamic programming over subsets")
+
+
+def long_chain_order(sections: Sequence[Section], noise_psd: np.ndarray,
+                     noise_freq_hz: np.ndarray, *, total_gain: float, passband_hz: np.ndarray,
+                     max_vpk: float, tones: Sequence[tuple[float, float]] = ()) -> Ordering:
+    """Increasing-Q order with equal-maxima gains, for more sections than the exact search
+    takes (it tabulates all 2^n subsets).
+
+    Increasing Q keeps the early nodes' peaks low (Moschytz 1975 [mem]; references.md,
+    "Dynamic range"). The gains and the output noise follow the same model as
+    ``make_problem``, evaluated along the one order instead of over every subset.
+    """
+    n = len(sections)
+    unit = [Section(kind=s.kind, f0_hz=s.f0_hz, q=s.q, gain=1.0) for s in sections]
+    tf = np.array([t[0] for t in tones], dtype=float)
+    tv = np.array([t[1] for t in tones], dtype=float)
+    pb = np.asarray(passband_hz, dtype=float)
+    mag = np.abs(np.array([section_response(s, np.concatenate([pb, tf])) for s in unit]))
+    mag2 = np.abs(np.array([section_response(s, noise_freq_hz) for s in unit])) ** 2
+
+    def evaluate(order: tuple[int, ...]) -> tuple[float, tuple[float, ...]]:
+        prefix = np.cumprod(mag[list(order)], axis=0)
+        peaks = max_vpk * prefix[:, :pb.size].max(axis=1) + (prefix[:, pb.size:] * tv).sum(axis=1)
+        # after[k]: |H|² of every section behind position k.
+        rev = np.cumprod(mag2[list(order)][::-1], axis=0)[::-1]
+        after = np.vstack([rev[1:], np.ones((1, mag2.shape[1]))])
+        power = np.trapezoid(noise_psd[list(order)] * after, noise_freq_hz, axis=-1)
+        cost = float(np.sum((peaks / peaks[-1]) ** 2 * power))
+        gains = (total_gain * peaks[-1] / peaks[0],) + tuple(peaks[:-1] / peaks[1:])
+        return cost, tuple(float(g) for g in gains)
+
+    inc_q = tuple(sorted(range(n), key=lambda i: sections[i].q))
+    cost, gains = evaluate(inc_q)
+    return Ordering(order=inc_q, gains=gains, noise_vrms=math.sqrt(cost),
+                    generated_vrms=math.sqrt(evaluate(tuple(range(n)))[0]),
+                    increasing_q_vrms=math.sqrt(cost),
+                    method=f"increasing Q (more than {MAX_SECTIONS} sections: the exact "
+                           f"search would tabulate 2^{n} subsets)")
