@@ -187,7 +187,7 @@ def with_gain_advice(design, req: Requirement, rebuild: Callable[[Requirement], 
         trial = rebuild(replace(req, passband=replace(pb, gain_db=gain_db)))
         if trial.analyses is None:
             break
-        margin = min((n.margin_db for n in trial.analyses.nodes), default=math.inf)
+        margin = trial.analyses.worst_margin_db
         if margin >= 0:
             found = (gain_db, margin)
             break

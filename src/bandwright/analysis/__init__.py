@@ -53,6 +53,11 @@ class Analyses:
     snr_db: float
     dynamic_range_db: float
 
+    @property
+    def worst_margin_db(self) -> float:
+        """The smallest headroom margin over every op-amp output net, dB."""
+        return min((n.margin_db for n in self.nodes), default=math.inf)
+
 
 def _db(ratio: float) -> float:
     return 20 * math.log10(ratio) if ratio > 0 and math.isfinite(ratio) else -math.inf

@@ -103,11 +103,8 @@ def figure_error(fig: Figures, target: Section) -> float:
     for the f0 weight: a low-Q section inside a steep cascade still moves the cascade's
     band edge, whose slope is that of the whole chain.
     """
-    df, dq, dg = _relative(fig, target)
-    if not all(map(math.isfinite, (df, dq, dg))) or (target.kind != "gain" and fig.q <= 0):
-        return math.inf
-    q = max(target.q, _F0_WEIGHT_FLOOR)
-    return (q * df) ** 2 + (dq / 2) ** 2 + dg**2
+    return float(_error_batch(np.array([fig.f0_hz]), np.array([fig.q]), np.array([fig.gain]),
+                              target)[0])
 
 
 def _figures(topo: ModuleType, components: Mapping[str, float], model: OpAmp,
@@ -205,14 +202,10 @@ def _series_of(name: str, r_series: str, c_series: str) -> str:
 
 def _error_batch(f0_hz, q, gain, target: Section) -> np.ndarray:
     """``figure_error`` for arrays of figures (NaN and unstable samples → inf)."""
-    with np.errstate(invalid="ignore", divide="ignore"):
-        if target.kind == "gain":
-            e = (np.abs(gain) / abs(target.gain) - 1) ** 2
-        else:
-            qq = max(target.q, _F0_WEIGHT_FLOOR)
-            e = ((qq * (f0_hz / target.f0_hz - 1)) ** 2 + ((q / target.q - 1) / 2) ** 2
-                 + (np.abs(gain) / abs(target.gain) - 1) ** 2)
-            e = np.where(q > 0, e, np.inf)
+    with np.errstate(invalid="ignore", over="ignore"):
+        e = np.sum(_residuals(f0_hz, q, gain, target) ** 2, axis=-1)
+    if target.kind != "gain":
+        e = np.where(np.asarray(q) > 0, e, np.inf)
     return np.where(np.isfinite(e), e, np.inf)
 
 

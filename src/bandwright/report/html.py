@@ -255,7 +255,7 @@ def _candidates(s: Subject) -> str:
     rows, classes = [], []
     for i, d in enumerate(s.source.designs):
         c, an = d.candidate, d.analyses
-        margin = f"{min(n.margin_db for n in an.nodes):+.1f} dB" if an else "—"
+        margin = f"{an.worst_margin_db:+.1f} dB" if an else "—"
         noise = f"{an.noise.integrated_vrms * 1e6:.3g} µV" if an else "—"
         dr = f"{an.dynamic_range_db:.1f} dB" if an else "—"
         state = ("cannot build" if not d.buildable else

@@ -98,7 +98,7 @@ def _checks(checks) -> list[dict[str, Any]]:
 def _candidate_dict(d) -> dict[str, Any]:
     c = d.candidate
     an = d.analyses
-    margin = min((n.margin_db for n in an.nodes), default=None) if an else None
+    margin = an.worst_margin_db if an else None
     return {"family": c.family, "path": c.path, "order": c.order, "sections": len(c.sections),
             "highest_q": num(c.highest_q), "buildable": d.buildable, "opamps": d.opamps,
             "failed_checks": d.failures, "worst_margin_db": num(margin),

@@ -76,7 +76,7 @@ def render_plan(p, console: Console) -> None:
                   "margin", "noise", "DR", "yield", "verdict")
     for i, d in enumerate(p.designs):
         c, an = d.candidate, d.analyses
-        margin = f"{min(n.margin_db for n in an.nodes):+.1f}" if an else "—"
+        margin = f"{an.worst_margin_db:+.1f}" if an else "—"
         # (margin: worst headroom; noise: integrated output noise; DR: dynamic range)
         noise = f"{an.noise.integrated_vrms * 1e6:.3g}" if an else "—"
         dr = f"{an.dynamic_range_db:.1f}" if an else "—"
