@@ -456,7 +456,7 @@ def _noise(s: Subject) -> str:
         f"<p>Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over "
         f"{_e(fmt_hz(nz.band_hz[0]))}–{_e(fmt_hz(nz.band_hz[1]))}; SNR at full input "
         f"{an.snr_db:.1f} dB; dynamic range {an.dynamic_range_db:.1f} dB (input could grow "
-        f"{20 * math.log10(an.clip_scale):+.1f} dB before the first net clips).</p>")
+        f"{an.worst_margin_db:+.1f} dB before the first net clips).</p>")
     total2 = nz.integrated_vrms ** 2
     rows = [[_e(name), _e(source_label(s.chain, name)), f"{v * 1e6:.3g}",
              f"{100 * v * v / total2:.1f} %"] for name, v in nz.contributions_vrms[:10]]

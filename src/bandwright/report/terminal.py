@@ -210,7 +210,7 @@ def _chain(chain, an, console: Console, *, first: str = "asked") -> None:
     _say(console, 
         f"Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over {fmt_hz(nz.band_hz[0])}–"
         f"{fmt_hz(nz.band_hz[1])}; SNR at full input {an.snr_db:.1f} dB; dynamic range "
-        f"{an.dynamic_range_db:.1f} dB (input could grow {20 * math.log10(an.clip_scale):+.1f} dB "
+        f"{an.dynamic_range_db:.1f} dB (input could grow {an.worst_margin_db:+.1f} dB "
         f"before the first net clips)")
     top = _table("Largest noise sources at the output", "source", "µV rms", "share of power")
     total2 = nz.integrated_vrms**2
