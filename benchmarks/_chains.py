@@ -14,8 +14,8 @@ from bandwright.chain.graph import CHAIN_OUTPUT, Chain, build_chain
 from bandwright.chain.stage import Stage
 from bandwright.circuits.assign import assign
 from bandwright.parts.catalogue import archetype
-from bandwright.spec.loader import spec_from_dict
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.loader import spec_from_dict
+from bandwright.inputs.requirement import Requirement
 
 __all__ = ["six_section_chain", "grid_for_ngspice"]
 

@@ -21,7 +21,7 @@ import numpy as np
 from bandwright.analysis.grid import passband_grid
 from bandwright.candidates import make_candidates
 from bandwright.chain.ordering import EXHAUSTIVE_MAX, best_order, best_order_dp, make_problem
-from bandwright.spec.loader import spec_from_dict
+from bandwright.inputs.loader import spec_from_dict
 
 GOAL_S = 2.0
 

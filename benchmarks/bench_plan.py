@@ -42,7 +42,7 @@ def main() -> None:
           f"{startup:.3f} s (best of 3)")
     t0 = time.perf_counter()
     from bandwright.planner import plan
-    from bandwright.spec import load_spec
+    from bandwright.inputs import load_spec
     print(f"importing bandwright.planner in this process: {time.perf_counter() - t0:.3f} s")
 
     names = args.scenarios or sorted(p.stem for p in SCENARIOS.glob("*.toml"))

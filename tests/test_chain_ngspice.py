@@ -39,7 +39,7 @@ from bandwright.planner import plan
 from bandwright.report.files import plan_files
 from bandwright.report.json_out import dumps, plan_to_dict
 from bandwright.report.spice import spice_deck
-from bandwright.spec import spec_from_dict
+from bandwright.inputs import spec_from_dict
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from ngspice_runner import ngspice_available  # noqa: E402

@@ -27,7 +27,7 @@ from bandwright.candidates import LOSS_SHARE
 from bandwright.planner import plan
 from bandwright.report.json_out import dumps, plan_to_dict
 from bandwright.report.terminal import render_plan
-from bandwright.spec import spec_from_dict
+from bandwright.inputs import spec_from_dict
 
 from trust_support import (NON_FINITE_WORD, missing_figures, non_finite_paths,
                            recompute_mask, terminal_text)

@@ -26,7 +26,7 @@ from bandwright.planner import plan
 from bandwright.prototype import prototype
 from bandwright.sections import Section, bandpass_sections, section_response, sections_from_poles
 from bandwright.sections.split import cascade_response
-from bandwright.spec import spec_from_dict
+from bandwright.inputs import spec_from_dict
 
 DIGITS = 50
 

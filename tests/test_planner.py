@@ -10,7 +10,7 @@ from bandwright.analysis.response import read_mask
 from bandwright.candidates import make_candidates
 from bandwright.checks.mask import mask_checks
 from bandwright.sections.split import cascade_response
-from bandwright.spec import spec_from_dict
+from bandwright.inputs import spec_from_dict
 
 
 @settings(max_examples=60, deadline=None)

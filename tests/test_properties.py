@@ -23,12 +23,13 @@ import numpy as np
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from bandwright import audit as audit_module
+from bandwright.inputs import chain_file as chain_file_module
 from bandwright.circuits import TOPOLOGY_NAMES, topology
 from bandwright.errors import SpecError
 from bandwright.planner import plan
 from bandwright.report.json_out import dumps, plan_to_dict
-from bandwright.spec import spec_from_dict
-from bandwright.spec.loader import AMPLIFIER_KEYS, TOLERANCE_KEYS
+from bandwright.inputs import spec_from_dict
+from bandwright.inputs.loader import AMPLIFIER_KEYS, TOLERANCE_KEYS
 
 from trust_support import missing_figures, non_finite_paths, recompute_mask
 
@@ -150,9 +151,9 @@ CHAIN = {
 
 
 def _load_chain_only_spec_errors(doc) -> None:
-    with mock.patch.object(audit_module, "read_toml", lambda path: doc):
+    with mock.patch.object(chain_file_module, "read_toml", lambda path: doc):
         try:
-            audit_module.load_chain("prop-chain.toml")
+            chain_file_module.load_chain("prop-chain.toml")
         except SpecError as exc:
             assert exc.path == "prop-chain.toml"
 
@@ -189,7 +190,7 @@ def test_audit_of_random_parts_ends_in_a_result_or_a_spec_error(stages):
     figure finite or reported as null by design) or says these parts make no working
     circuit — never another exception."""
     doc = {"input": {"max_vpk": 0.1}, "stage": stages}
-    with mock.patch.object(audit_module, "read_toml", lambda path: doc):
+    with mock.patch.object(chain_file_module, "read_toml", lambda path: doc):
         try:
             a = audit_module.audit("prop-audit.toml")
         except SpecError as exc:

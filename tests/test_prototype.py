@@ -67,7 +67,7 @@ def test_edge_loss_is_exactly_max_loss(family, loss, n):
 
 def test_band_edges_from_centre_and_width():
     """references.md check value [calc]: f0 40 kHz, BW 4 kHz → 38 049.969, 42 049.969 Hz."""
-    from bandwright.spec import spec_from_dict
+    from bandwright.inputs import spec_from_dict
     req = spec_from_dict({"passband": {"center_hz": 40000, "bandwidth_hz": 4000},
                           "design": {"order": 2}})
     assert req.passband.low_hz == pytest.approx(38049.969, abs=1e-3)

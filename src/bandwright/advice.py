@@ -22,7 +22,7 @@ import numpy as np
 from bandwright.candidates import MAX_ORDER, Candidate
 from bandwright.checks.base import Check
 from bandwright.prototype import bandpass_omega, order_for_point
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.requirement import Requirement
 
 __all__ = ["MAX_BUILT_ORDER", "prototype_loss_db", "omega_for_loss", "frequency_of_omega",
            "order_beyond_reach", "with_gain_advice"]

@@ -8,7 +8,7 @@ from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.errors import SpecError
 from bandwright.parts.catalogue import ARCHETYPES, make_opamp
 from bandwright.parts.opamp import OpAmp
-from bandwright.spec.requirement import AmplifierChoice, Supply
+from bandwright.inputs.requirement import AmplifierChoice, Supply
 
 __all__ = ["resolve_amplifier"]
 

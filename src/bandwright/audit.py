@@ -3,9 +3,7 @@ checks as a plan."""
 
 from __future__ import annotations
 
-import difflib
 import math
-import re
 from dataclasses import dataclass, replace
 from pathlib import Path
 
@@ -18,41 +16,14 @@ from bandwright.chain import Chain, Stage, build_chain
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
 from bandwright.checks.yield_check import yield_checks
-from bandwright.circuits import TOPOLOGY_NAMES, topology
 from bandwright.circuits.figures import section_figures, transfer_polynomials
 from bandwright.errors import SpecError
-from bandwright.parts.notation import parse_value
+from bandwright.inputs.chain_file import load_chain
+from bandwright.inputs.loader import HALF_POWER_DB
+from bandwright.inputs.requirement import Passband, Requirement
 from bandwright.sections.section import Section
-from bandwright.spec.loader import (HALF_POWER_DB, TOLERANCE_KEYS, read_passband, read_stop,
-                                    read_tolerance,
-                                    read_amplifier, read_common_tables)
-from bandwright.spec.reader import TableReader, read_toml
-from bandwright.spec.requirement import Passband, Requirement
 
-__all__ = ["Audit", "audit", "load_chain"]
-
-AUDIT_TABLES = ("passband", "stopband", "stage", "input", "supply", "amplifier", "environment",
-                "tolerance",
-                "noise")
-# Values outside these are typing errors, not parts (1 mΩ … 1 TΩ, 1 fF … 1 F).
-_R_RANGE = (1e-3, 1e12)
-_C_RANGE = (1e-15, 1.0)
-# A unit written on a part value: ohms, or farads ("F", or "f" after a prefix: "10uf"; a
-# lowercase "f" right after a digit is femto, see parts.notation).
-_OHMS_UNIT = re.compile(r"(?:(?i:ohms?)|[\u03a9\u2126])\s*$")
-_FARAD_UNIT = re.compile(r"(?:F|(?<=[^\d\s.])f)\s*$")
-
-
-def _unit_clash(name: str, raw) -> str:
-    """Why a resistor written in farads (or a capacitor in ohms) is refused; "" if fine."""
-    if not isinstance(raw, str):
-        return ""
-    if name.startswith("R") and _FARAD_UNIT.search(raw):
-        return f"{name} is a resistor, but the value is in farads"
-    if name.startswith("C") and _OHMS_UNIT.search(raw):
-        return f"{name} is a capacitor, but the value is in ohms"
-    return ""
-
+__all__ = ["Audit", "audit"]
 
 @dataclass(frozen=True)
 class Audit:
@@ -82,42 +53,6 @@ class Audit:
     yield_result: YieldResult | None = None
 
 
-def _stage_parts(path: str, key: str, topo, table) -> dict[str, float]:
-    if not isinstance(table, dict):
-        raise SpecError(path, key, "expected a table of part = value", value=table)
-    optional = set(getattr(topo, "OPTIONAL_PARTS", ()))
-    required = [p for p in topo.PARTS if p not in optional]
-    for name in table:
-        if name not in topo.PARTS:
-            close = difflib.get_close_matches(name, topo.PARTS, n=1, cutoff=0.5)
-            hint = f"; did you mean '{close[0]}'?" if close else ""
-            raise SpecError(path, f"{key}.{name}", f"{topo.NAME} has no part {name} (its parts: "
-                            f"{', '.join(topo.PARTS)}){hint}")
-    for name in required:
-        if name not in table:
-            raise SpecError(path, f"{key}.{name}", f"missing: {topo.NAME} needs "
-                            f"{', '.join(required)}")
-    out = {}
-    for name, raw in table.items():
-        k = f"{key}.{name}"
-        clash = _unit_clash(name, raw)
-        if clash:
-            raise SpecError(path, k, clash, value=raw)
-        try:
-            v = parse_value(raw)
-        except (ValueError, TypeError) as exc:
-            raise SpecError(path, k, str(exc), value=raw) from None
-        lo, hi = _R_RANGE if name.startswith("R") else _C_RANGE
-        if not v > 0:
-            raise SpecError(path, k, "must be > 0", value=raw)
-        if not lo <= v <= hi:
-            unit = "Ω" if name.startswith("R") else "F"
-            raise SpecError(path, k, f"outside the plausible range {lo:g} … {hi:g} {unit}",
-                            value=raw)
-        out[name] = v
-    return out
-
-
 def _near_hz(elements) -> float:
     """Pole frequency of the circuit with ideal op-amps (the pair the figures report)."""
     num, den = transfer_polynomials(elements)
@@ -126,55 +61,6 @@ def _near_hz(elements) -> float:
     if roots.size == 0:
         return 1.0
     return float(np.exp(np.mean(np.log(np.abs(roots)))) / (2 * math.pi))
-
-
-def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]:
-    """Parse and validate an audit file; returns (requirement-or-None, common tables, stage
-    specs (position, topology module, parts, amplifier choice))."""
-    p = str(path)
-    doc = read_toml(path)
-    top = TableReader(p, "", doc, AUDIT_TABLES)
-    common = read_common_tables(p, doc)
-    passband = None
-    if top.has("passband"):
-        passband = read_passband(TableReader(p, "passband", doc["passband"],
-                                              ("center_hz", "bandwidth_hz", "low_hz", "high_hz",
-                                               "max_loss_db", "gain_db", "gain_tolerance_db")))
-    stops = tuple(read_stop(p, i, t, passband) for i, t in enumerate(top.tables("stopband"))) \
-        if passband is not None else ()
-    if top.tables("stopband") and passband is None:
-        raise SpecError(p, "stopband", "stopband points need a [passband] to be relative to")
-    stage_tables = top.tables("stage")
-    if not stage_tables:
-        raise SpecError(p, "stage", "no [[stage]] tables: an audit needs the chain's stages")
-    specs = []
-    for i, t in enumerate(stage_tables):
-        key = f"stage[{i}]"
-        st = TableReader(p, key, t, ("topology", "parts", "amplifier"))
-        name = st.string("topology")
-        if name is None:
-            raise SpecError(p, f"{key}.topology", f"missing; one of {', '.join(TOPOLOGY_NAMES)}")
-        if name not in TOPOLOGY_NAMES:
-            close = difflib.get_close_matches(name, TOPOLOGY_NAMES, n=1, cutoff=0.5)
-            hint = f"; did you mean '{close[0]}'?" if close else \
-                f"; known: {', '.join(TOPOLOGY_NAMES)}"
-            raise SpecError(p, f"{key}.topology", "unknown topology" + hint, value=name)
-        topo = topology(name)
-        if not st.has("parts"):
-            raise SpecError(p, f"{key}.parts", f"missing; {name} needs {', '.join(topo.PARTS)}")
-        parts = _stage_parts(p, f"{key}.parts", topo, t["parts"])
-        amp = read_amplifier(p, f"{key}.amplifier", t["amplifier"]) if st.has("amplifier") \
-            else None
-        specs.append((i + 1, topo, parts, amp, key))
-    common["tolerance"] = read_tolerance(TableReader(p, "tolerance", doc.get("tolerance", {}),
-                                                     TOLERANCE_KEYS))
-    req = None
-    if passband is not None:
-        req = Requirement(path=p, passband=passband, stopband=stops, input=common["input"],
-                          supply=common["supply"], amplifier=common["amplifier"],
-                          environment=common["environment"], noise=common["noise"],
-                          tolerance=common["tolerance"])
-    return req, common, specs
 
 
 def _build_stage(path: str, position: int, topo, parts, model, key: str,

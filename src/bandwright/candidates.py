@@ -12,8 +12,8 @@ from bandwright.prototype import bandpass_omega, minimum_order, order_for_point,
 from bandwright.sections import bandpass_sections, wideband_sections
 from bandwright.sections.section import Section
 from bandwright.sections.split import cascade_response
-from bandwright.spec.requirement import Requirement
-from bandwright.types import FAMILIES
+from bandwright.inputs.requirement import Requirement
+from bandwright.vocabulary import FAMILIES
 
 __all__ = ["Candidate", "make_candidates", "WIDEBAND_RATIO", "MAX_ORDER"]
 

@@ -17,8 +17,8 @@ from bandwright import __version__
 from bandwright.checks.base import worst_status
 from bandwright.errors import SpecError
 from bandwright.report.outdir import OutDirRefused, check_out_dir, write_out_dir
-from bandwright.spec.reader import with_line
-from bandwright.types import FAMILIES
+from bandwright.inputs.reader import with_line
+from bandwright.vocabulary import FAMILIES
 
 __all__ = ["main", "build_parser"]
 
@@ -73,7 +73,7 @@ def _run_plan(args: argparse.Namespace) -> int:
     from bandwright.report.json_out import dumps, plan_to_dict
     from bandwright.report.files import plan_files
     from bandwright.report.terminal import render_plan
-    from bandwright.spec import load_spec
+    from bandwright.inputs import load_spec
 
     from bandwright.report.progress import stderr_progress
 

@@ -33,7 +33,7 @@ from bandwright.parts.notation import format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.requirement import Requirement
 
 __all__ = ["Plan", "Design", "plan", "build_design", "with_yield"]
 

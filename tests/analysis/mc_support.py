@@ -14,8 +14,8 @@ from bandwright.circuits import mfb_bandpass, tow_thomas
 from bandwright.circuits.figures import section_figures
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
-from bandwright.spec.loader import spec_from_dict
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.loader import spec_from_dict
+from bandwright.inputs.requirement import Requirement
 
 MODEL = OpAmp(name="mc-test", gbw_hz=5e6, dc_gain_db=100.0, slew_v_per_us=5.0,
               swing_to_rail_v=1.0, noise_v_per_rthz=1e-8, noise_a_per_rthz=1e-12,

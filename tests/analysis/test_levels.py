@@ -13,7 +13,7 @@ from bandwright.circuits import topology
 from bandwright.circuits.figures import section_figures
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
-from bandwright.spec import spec_from_dict
+from bandwright.inputs import spec_from_dict
 
 IDEAL = OpAmp(name="ideal", gbw_hz=math.inf, dc_gain_db=300.0, slew_v_per_us=10.0,
               swing_to_rail_v=1.0, noise_v_per_rthz=5e-9, noise_a_per_rthz=0.0,

@@ -19,7 +19,7 @@ from pathlib import Path
 import pytest
 
 from bandwright import cli
-from bandwright.spec.reader import key_lines
+from bandwright.inputs.reader import key_lines
 
 from conftest import run_cli
 

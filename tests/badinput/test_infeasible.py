@@ -24,7 +24,7 @@ from bandwright.advice import (
 from bandwright.candidates import LOSS_SHARE, MAX_ORDER, make_candidates
 from bandwright.planner import plan
 from bandwright.prototype import bandpass_omega
-from bandwright.spec import load_spec, spec_from_dict
+from bandwright.inputs import load_spec, spec_from_dict
 
 FAST_MC = "[tolerance]\nsamples = 10\n"
 

@@ -25,7 +25,7 @@ from bandwright.planner import plan
 from bandwright.report.files import plan_files
 from bandwright.report.json_out import dumps, plan_to_dict
 from bandwright.report.terminal import render_plan
-from bandwright.spec.loader import load_spec
+from bandwright.inputs.loader import load_spec
 
 ROOT = Path(__file__).resolve().parents[2]
 SCENARIOS = tuple(sorted((ROOT / "scenarios").glob("*.toml")))

@@ -18,7 +18,7 @@ from bandwright.report.files import audit_files, plan_files
 from bandwright.report.html import SECTION_IDS, html_report
 from bandwright.report.json_out import audit_to_dict, dumps, plan_to_dict
 from bandwright.report.terminal import fmt_hz, render_audit
-from bandwright.spec.loader import spec_from_dict
+from bandwright.inputs.loader import spec_from_dict
 
 from report_cases import SCENARIO_NAMES, case, chromium, chromium_render, terminal_text
 

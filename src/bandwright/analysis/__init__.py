@@ -12,7 +12,7 @@ from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
 from bandwright.analysis.response import MaskReading, Response, read_mask
 from bandwright.chain.graph import CHAIN_OUTPUT, Chain
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.requirement import Requirement
 
 __all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis"]
 

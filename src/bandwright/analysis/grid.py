@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.requirement import Requirement
 
 __all__ = ["response_grid", "passband_grid", "noise_band", "noise_grid"]
 

@@ -10,7 +10,7 @@ import numpy as np
 
 from bandwright.chain.graph import Chain, flatten, net_transfers
 from bandwright.circuits.nodal import ac_solve, drawn_impedance
-from bandwright.spec.requirement import InputSignal, Supply
+from bandwright.inputs.requirement import InputSignal, Supply
 
 __all__ = ["net_transfers", "NodeLevel", "node_levels", "swing_limit_vpk", "output_loads"]
 

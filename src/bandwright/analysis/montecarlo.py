@@ -43,7 +43,7 @@ from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
 from bandwright.chain.stage import stage_output_nets
 from bandwright.circuits.figures import transfer_polynomials_many
 from bandwright.parts.tolerance import default_tolerance_pct
-from bandwright.spec.requirement import Requirement, Tolerance
+from bandwright.inputs.requirement import Requirement, Tolerance
 
 __all__ = ["Spreads", "SampleColumn", "Driver", "Offer", "YieldResult", "resolve_spreads",
            "sample_columns", "sample_values", "monte_carlo", "tighter_offer", "plan_yield",

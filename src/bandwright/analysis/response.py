@@ -8,7 +8,7 @@ from typing import Callable
 import numpy as np
 
 from bandwright.analysis.grid import passband_grid
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.requirement import Requirement
 
 __all__ = ["Response", "MaskReading", "read_mask", "to_db"]
 

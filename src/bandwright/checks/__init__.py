@@ -9,7 +9,7 @@ from bandwright.checks.chain_checks import (drive_checks, gbw_checks, headroom_c
                                             noise_checks, parts_checks, slew_checks)
 from bandwright.checks.mask import mask_checks
 from bandwright.parts.windows import PartWindows
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.requirement import Requirement
 
 __all__ = ["Check", "worst_status", "all_checks"]
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from bandwright.types import CheckStatus
+from bandwright.vocabulary import CheckStatus
 
 __all__ = ["Check", "worst_status"]
 

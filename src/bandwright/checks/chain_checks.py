@@ -11,7 +11,7 @@ from bandwright.circuits import topology
 from bandwright.parts.notation import format_value
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.requirement import Requirement
 
 __all__ = ["headroom_checks", "slew_checks", "drive_checks", "gbw_checks", "noise_checks",
            "parts_checks", "WARN_MARGIN_DB"]

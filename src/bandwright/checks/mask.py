@@ -6,7 +6,7 @@ import numpy as np
 
 from bandwright.analysis.response import MaskReading
 from bandwright.checks.base import Check
-from bandwright.spec.requirement import Requirement
+from bandwright.inputs.requirement import Requirement
 
 __all__ = ["mask_checks"]
 

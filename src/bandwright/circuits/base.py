@@ -8,7 +8,7 @@ from typing import Mapping, Protocol
 from bandwright.circuits.elements import Element
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
-from bandwright.types import StageKind
+from bandwright.vocabulary import StageKind
 
 __all__ = ["Topology", "Limits", "Figures"]
 

@@ -46,7 +46,7 @@ from numpy.polynomial import polynomial as npoly
 from bandwright.circuits.base import Figures
 from bandwright.circuits.elements import Element
 from bandwright.circuits.nodal import mna_system
-from bandwright.types import StageKind
+from bandwright.vocabulary import StageKind
 
 __all__ = ["transfer_polynomials", "transfer_polynomials_many", "polynomial_degree",
            "section_figures", "section_figures_batch"]

@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 
-from bandwright.types import Family
+from bandwright.vocabulary import Family
 
 __all__ = ["bandpass_omega", "order_for_point", "minimum_order"]
 

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from bandwright.types import Family
+from bandwright.vocabulary import Family
 
 __all__ = ["Prototype", "butterworth_poles", "chebyshev_poles", "prototype", "prototype_response"]
 

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from bandwright.types import StageKind
+from bandwright.vocabulary import StageKind
 
 __all__ = ["Section", "section_response"]
 

@@ -7,12 +7,12 @@ from pathlib import Path
 from typing import Any
 
 from bandwright.errors import SpecError
-from bandwright.spec.reader import TableReader, read_toml
-from bandwright.spec.requirement import (
+from bandwright.inputs.reader import TableReader, read_toml
+from bandwright.inputs.requirement import (
     AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
     Requirement, StopbandPoint, Supply, Tolerance, Tone,
 )
-from bandwright.types import FAMILIES
+from bandwright.vocabulary import FAMILIES
 
 __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "read_passband",
            "read_stop", "FREQ_RANGE_HZ", "MIN_FRACTIONAL_BANDWIDTH", "MAX_VOLTS",

@@ -6,8 +6,8 @@ from __future__ import annotations
 import pytest
 
 from bandwright.errors import SpecError
-from bandwright.spec import load_spec
-from bandwright.spec.requirement import Tolerance
+from bandwright.inputs import load_spec
+from bandwright.inputs.requirement import Tolerance
 
 GOOD = """
 [passband]

@@ -6,7 +6,7 @@ from __future__ import annotations
 import pytest
 
 from bandwright.errors import SpecError
-from bandwright.spec import load_spec
+from bandwright.inputs import load_spec
 
 from conftest import SCENARIOS, run_cli
 

@@ -1,7 +1,7 @@
 """The requirement: dataclasses, the TOML loader and its validation."""
 
-from bandwright.spec.loader import load_spec, spec_from_dict
-from bandwright.spec.requirement import (
+from bandwright.inputs.loader import load_spec, spec_from_dict
+from bandwright.inputs.requirement import (
     AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
     Requirement, StopbandPoint, Supply, Tone,
 )
