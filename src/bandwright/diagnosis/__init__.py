@@ -329,7 +329,7 @@ def diagnose(audit, sweep: Sweep) -> Diagnosis:
     order = np.argsort(-np.abs(full.x))
     changes = tuple((model.variables[j].stage, model.variables[j].part, _pct(full.x[j]))
                     for j in order if abs(_pct(full.x[j])) > 0.05)
-    message = _message(suspects, unexplained, residual_db, meas.noise_db)
+    message = _message(suspects, unexplained, residual_db, meas.noise_db, changes)
     return Diagnosis(sweep=sweep, suspects=suspects, stages=stages, residual_db=residual_db,
                      noise_db=meas.noise_db, unexplained=unexplained, message=message,
                      planned_db=planned_db, fitted_db=fitted_db, mask_checks=mask,
@@ -376,7 +376,8 @@ def _suspects(model: ChainModel, single: SingleFit, meas: Measurement, audit,
     return tuple(out)
 
 
-def _message(suspects, unexplained: bool, residual_db: float, noise_db: float) -> str:
+def _message(suspects, unexplained: bool, residual_db: float, noise_db: float,
+             changes) -> str:
     if unexplained:
         return (f"no change of part values explains the measurement: the best fit leaves "
                 f"{residual_db:.3f} dB rms against a measurement noise of {noise_db:.3f} dB; "
@@ -385,6 +386,11 @@ def _message(suspects, unexplained: bool, residual_db: float, noise_db: float) -
         return (f"the measurement matches the chain as designed within its noise "
                 f"({residual_db:.3f} dB rms, noise {noise_db:.3f} dB)")
     s = suspects[0]
+    if s.residual_db > UNEXPLAINED_RATIO * noise_db:
+        moved = ", ".join(f"{p} of stage {k} {c:+.1f} %" for k, p, c in changes[:4])
+        return (f"no single part explains the measurement ({s.part} of stage {s.stage} alone "
+                f"leaves {s.residual_db:.3f} dB rms, noise {noise_db:.3f} dB); several parts "
+                f"are off together, most likely {moved}")
     alt = f" (or {', '.join(e.part + ' of stage ' + str(e.stage) for e in s.equivalent)})" \
         if s.equivalent else ""
     return (f"stage {s.stage}: {s.part} {s.change_pct:+.1f} %{alt} explains the measurement "
