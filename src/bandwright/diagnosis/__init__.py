@@ -48,7 +48,7 @@ EQUIVALENT_CHI2 = 9.0
 #: ... or by less than this share of the effect's own size (columns nearly parallel:
 #: cos > 0.9987).
 PARALLEL_SHARE = 0.05
-_MAX_SUSPECTS = 8
+_MAX_SUSPECTS = 5
 
 
 @dataclass(frozen=True, slots=True)
