@@ -298,15 +298,20 @@ def diagnose(audit, sweep: Sweep) -> Diagnosis:
     meas = _measurement(model, sweep)
     single = fit_each(model, meas)
     j_best = int(np.argmin(single.cost))
-    full = fit_all(model, meas)
     start = np.zeros(model.size)
     start[j_best] = single.x[j_best]
-    again = fit_all(model, meas, start=start)
-    if again.cost < full.cost:
-        full = again
-    n_points = meas.points
+    full = fit_all(model, meas, start=start)
     lh0 = model.log_h_parts(np.zeros(model.size), meas.w_rad_s).sum(axis=0)
     planned_db = DB_PER_NEPER * lh0.real
+    single_rms = float(np.sqrt(np.mean((sweep.gain_db - planned_db
+                                        - single.change_db[j_best]) ** 2)))
+    if single_rms > UNEXPLAINED_RATIO * meas.noise_db:
+        # No single part explains the sweep: try the descent from the design as well (the
+        # cost has more than one valley once several parts are off).
+        again = fit_all(model, meas)
+        if again.cost < full.cost:
+            full = again
+    n_points = meas.points
     # The curve the residual is measured against: the all-parts fit, unless one part
     # alone (which may move further than the drift bound) fits better.
     if single.data_cost[j_best] < full.data_cost:
