@@ -30,6 +30,7 @@ REF = Path(__file__).resolve().parent / "reference" / "diagnosis"
 MFB_TT = "three_stage_mfb_tow_thomas"            # mfb, Tow-Thomas, mfb (Q 3 to 7)
 SV_DA = "three_stage_state_variable_dual_amp"    # state-variable, two dual-amp (Q 90 to 185)
 LP_HP = "four_stage_lowpass_highpass"            # two Sallen-Key highpass, two mfb lowpass
+SIX = "six_stage_mixed"                          # Tow-Thomas, four mfb, Sallen-Key bandpass
 NOISE_DB = 0.05
 
 
@@ -71,6 +72,8 @@ CASES = [
     (SV_DA, 1, "U2.gbw", 0.60),
     (LP_HP, 1, "C1", 1.08),
     (LP_HP, 3, "R2", 0.94),
+    (SIX, 4, "R3", 0.94),
+    (SIX, 1, "C2", 1.08),
 ]
 
 
