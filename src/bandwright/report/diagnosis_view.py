@@ -86,6 +86,12 @@ _HEAD = ("#", "stage", "part", "change", "confidence", "residual", "cannot be to
          "fit instead", "with the fix")
 
 
+def _suspects_title(d) -> str:
+    if d.unexplained:
+        return "Closest single-part changes (none explains the sweep: read them as hints only)"
+    return "Suspects, most likely first"
+
+
 def render_diagnosis(a, console: Console) -> None:
     """The diagnosis paragraph, suspects and stage tables on the terminal (nothing when the
     audit ran without ``--measured``)."""
@@ -103,7 +109,7 @@ def render_diagnosis(a, console: Console) -> None:
                   f"{'UNEXPLAINED' if d.unexplained else 'explained'}. The measured chain "
                   f"{_verdict(d.mask_pass) if d.mask_pass is not None else 'has no mask'}.")
     if d.suspects:
-        t = _table("Suspects, most likely first", *_HEAD, wrap=("cannot be told from",))
+        t = _table(_suspects_title(d), *_HEAD, wrap=("cannot be told from",))
         for r in _rows(d):
             _row(t, *r)
         _say(console, t)
@@ -139,6 +145,7 @@ def diagnosis_html(a, plots: dict | None) -> str:
            f"{d.noise_db:.3f} dB; the measured chain "
            f"{e(_verdict(d.mask_pass)) if d.mask_pass is not None else 'has no mask'}.</p>"]
     if d.suspects:
+        out.append(f"<h3>{e(_suspects_title(d))}</h3>")
         out.append("<table><thead><tr>" + "".join(f"<th>{e(h)}</th>" for h in _HEAD)
                    + "</tr></thead><tbody>")
         for r in _rows(d):
