@@ -139,7 +139,7 @@ def audit(path: str | Path, *, measured: str | Path | None = None) -> Audit:
         req = Requirement(path=p, passband=_passband_from_response(chain, common),
                           input=common["input"], supply=common["supply"],
                           amplifier=common["amplifier"], environment=common["environment"],
-                          noise=common["noise"])
+                          noise=common["noise"], tolerance=common["tolerance"])
     an = analyse(chain, req, with_mask=has_mask)
     checks = tuple(all_checks(chain, an, req))
     result = None
