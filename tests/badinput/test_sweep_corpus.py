@@ -88,3 +88,27 @@ def test_a_sweep_inside_the_passband_is_accepted_and_one_outside_refused(tmp_pat
     check_covers(s, 3000.0, 6000.0)
     with pytest.raises(SpecError, match="inside the passband"):
         check_covers(s, 20e3, 30e3)
+
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+_CELL = st.one_of(st.floats(allow_nan=True, allow_infinity=True).map(repr),
+                  st.sampled_from(["", "nan", "1k", "-3dB", " 7 ", "1e3", "#", "0"]),
+                  st.text(max_size=4))
+
+
+@settings(max_examples=60)
+@given(st.lists(st.lists(_CELL, min_size=0, max_size=4), max_size=14),
+       st.sampled_from(["freq_hz,gain_db", "gain_db,freq_hz,phase_deg", "freq_hz", "x,y"]))
+def test_the_reader_raises_only_spec_error_on_arbitrary_rows(tmp_path_factory, rows, header):
+    """Property: whatever the rows hold, a Sweep or a SpecError with a line, never another
+    exception (the CLI turns a SpecError into one line and exit 2)."""
+    p = tmp_path_factory.mktemp("h") / "s.csv"
+    p.write_text("\n".join([header] + [",".join(r) for r in rows]) + "\n")
+    try:
+        s = load_sweep(p)
+    except SpecError as exc:
+        assert exc.line is not None and exc.key in ("freq_hz", "gain_db", "phase_deg")
+    else:
+        assert s.freq_hz.size >= MIN_POINTS and np.all(np.diff(s.freq_hz) > 0)
+        assert np.all(np.isfinite(s.gain_db))
