@@ -11,6 +11,7 @@ import errno
 import os
 import signal
 import sys
+import warnings
 from pathlib import Path
 
 from rich.console import Console
@@ -78,6 +79,13 @@ def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     err = Console(stderr=True, highlight=False, soft_wrap=True)
     previous = _install_term_handler()
+    # stderr carries our own lines only: library warnings (numpy on a degenerate design,
+    # matplotlib on a crowded figure) are not the user's to read. `python -W ...` still
+    # shows them.
+    quiet = warnings.catch_warnings()
+    quiet.__enter__()
+    if not sys.warnoptions:
+        warnings.simplefilter("ignore")
     try:
         if args.command == "plan" and args.order is not None and not 1 <= args.order <= 20:
             raise SpecError("--order", "", f"order {args.order} outside 1 to 20")
@@ -110,6 +118,7 @@ def main(argv: list[str] | None = None) -> int:
                   f"{getattr(cause, 'strerror', None) or cause}", markup=False)
         return 2
     finally:
+        quiet.__exit__(None, None, None)
         if previous is not None:
             signal.signal(signal.SIGTERM, previous)
 
@@ -209,7 +218,11 @@ def _run_audit(args: argparse.Namespace) -> int:
     from bandwright.report.json_out import audit_to_dict, dumps
     from bandwright.report.terminal import render_audit
 
-    result = audit(args.chain)
+    from bandwright.report.progress import stderr_progress
+
+    with stderr_progress() as bar:
+        result = audit(args.chain, progress=None if bar is None else
+                       (lambda done, total: bar("yield", done, total)))
     text = dumps(audit_to_dict(result))
     if args.out is not None:
         _write(args, audit_files(result, text))
