@@ -1,7 +1,8 @@
 """Command line: `bandwright plan` and `bandwright audit`.
 
 Exit 0: every check passes (warnings allowed); 1: it ran and some check failed;
-2: bad input or usage (one line on stderr, nothing written).
+2: bad input or usage, or a failed write of --out or stdout (one line on stderr, nothing
+written); 130 / 143: stopped by SIGINT / SIGTERM (one line); 141: stdout closed early (quiet).
 """
 
 from __future__ import annotations
