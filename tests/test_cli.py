@@ -128,3 +128,14 @@ def test_closed_stdout_pipe_exits_quietly_with_141(tmp_path):
             os.close(write)
         assert r.returncode == 141, r.stderr
         assert r.stderr == ""
+
+
+def test_closed_stdout_is_one_line_and_exit_2():
+    """Started with stdout closed (`>&-`): Python has no sys.stdout at all."""
+    import subprocess
+    import sys
+    r = subprocess.run(f'"{sys.executable}" -m bandwright plan "{SCENARIO}" --json >&-',
+                       shell=True, stderr=subprocess.PIPE, text=True)
+    assert r.returncode == 2, r.stderr
+    assert r.stderr.strip().splitlines() == [
+        "bandwright: cannot write to standard output: it is closed"]

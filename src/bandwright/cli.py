@@ -138,6 +138,8 @@ def _inputs(args: argparse.Namespace) -> tuple[str, ...]:
 
 def _quiet_stdout() -> None:
     """Point stdout at /dev/null, so that the flush at exit cannot fail a second time."""
+    if sys.stdout is None:
+        return
     try:
         sys.stdout.flush()
     except (OSError, ValueError):
@@ -153,6 +155,8 @@ def _quiet_stdout() -> None:
 def _emit(show) -> None:
     """Run `show()`, which writes to stdout, and flush; a write error becomes _StdoutFailed."""
     try:
+        if sys.stdout is None:  # started with stdout closed (`>&-`)
+            raise OSError(errno.EBADF, "it is closed")
         show()
         sys.stdout.flush()
     except OSError as exc:
