@@ -13,7 +13,8 @@ from bandwright.advice import order_beyond_reach, with_gain_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
-from bandwright.analysis.montecarlo import YieldResult, monte_carlo, tighter_offer
+from bandwright.advice.tolerance import tighter_offer
+from bandwright.analysis.montecarlo import YieldResult, monte_carlo
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.stage import with_parts
@@ -192,7 +193,7 @@ def with_yield(design: Design, requirement: Requirement, *,
                offer: bool = True) -> Design:
     """`design` with its Monte Carlo yield and the `yield` check; unchanged when it has no
     chain. With `offer`, a yield below target also gets the tighter parts that would reach
-    it (``analysis.montecarlo.plan_yield``); a result already computed is reused."""
+    it (``advice.tolerance.plan_yield``); a result already computed is reused."""
     if design.chain is None:
         return design
     report = None if progress is None else (lambda done, total: progress("yield", done, total))

@@ -18,7 +18,7 @@ def yield_checks(result: YieldResult) -> list[Check]:
     Parameters
     ----------
     result : YieldResult
-        From ``analysis.montecarlo.plan_yield`` (its `offer` is quoted when the yield
+        From ``advice.tolerance.plan_yield`` (its `offer` is quoted when the yield
         falls short).
 
     Returns
