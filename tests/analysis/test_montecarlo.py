@@ -254,7 +254,9 @@ def test_every_sample_gets_the_same_verdict_from_ngspice(mixed, tmp_path):
     n = 40
     r = monte_carlo(chain, req, samples=n, seed=21, with_sensitivities=False)
     assert 0 < r.yield_fraction < 1          # both verdicts occur
-    assert all(v > 0 for v in r.fail_counts.values())  # and every way of failing
+    # and every way of failing a stable board can (these boards are all stable)
+    assert r.fail_counts["unstable"] == 0
+    assert all(v > 0 for k, v in r.fail_counts.items() if k != "unstable")
     values = sample_values(chain, r.spreads, samples=n, seed=21)
     got = _ngspice_verdicts(chain, req, values, tmp_path)
     np.testing.assert_array_equal(got, r.passed)

@@ -15,13 +15,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from bandwright.analysis.grid import passband_grid
+from bandwright.analysis.stability import routh_stable, scale_rad_s
 from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
 from bandwright.chain.stage import stage_output_nets
 from bandwright.circuits.figures import transfer_polynomials_many
 from bandwright.inputs.requirement import Requirement
 
-__all__ = ["Grid", "StagePolynomials", "stage_polynomials", "chain_mag_sq", "mag_sq",
-           "power_coefficients"]
+__all__ = ["Grid", "StagePolynomials", "stage_polynomials", "chain_mag_sq", "chain_stable",
+           "mag_sq", "power_coefficients"]
 
 
 def power_coefficients(coefs: np.ndarray) -> np.ndarray:
@@ -101,11 +102,20 @@ class StagePolynomials:
         Numerator to each net, ascending powers of s.
     den : ndarray, shape (S, d + 1)
         The stage's one denominator, ascending powers of s (its roots are the poles).
+    w_rad_s : ndarray, shape (S,)
+        The stage's characteristic frequency per board (``analysis.stability.scale_rad_s``),
+        the scale its coefficients are read in.
     """
 
     nets: tuple[str, ...]
     nums: np.ndarray
     den: np.ndarray
+    w_rad_s: np.ndarray
+
+    @property
+    def stable(self) -> np.ndarray:
+        """Per board: every pole of the stage in the open left half-plane (Routh–Hurwitz)."""
+        return routh_stable(self.den, self.w_rad_s)
 
 
 def stage_polynomials(chain: Chain, values: list[np.ndarray],
@@ -131,7 +141,8 @@ def stage_polynomials(chain: Chain, values: list[np.ndarray],
         nets = tuple(stage_output_nets(st))   # "out" last: internal nets see the stage input
         nums, den = transfer_polynomials_many(st.elements, out_nets=nets, source_ohms=rs,
                                               values=values[k], gbw_scale=gbw[k])
-        out.append(StagePolynomials(nets=nets, nums=nums, den=den))
+        out.append(StagePolynomials(nets=nets, nums=nums, den=den,
+                                    w_rad_s=scale_rad_s(st.elements, values[k])))
     return out
 
 
@@ -164,3 +175,12 @@ def chain_mag_sq(chain: Chain, grid: Grid, polys: list[StagePolynomials]
                 m2 = mag_sq(num, sp.den, w_lvl)
                 out[nets[local]] = m2 if before is None else m2 * before[:, grid.levels]
     return out
+
+
+def chain_stable(polys: list[StagePolynomials]) -> np.ndarray:
+    """Per board: every stage stable. The op-amp outputs are ideal sources, so the chain's
+    poles are the union of its stages' poles."""
+    ok = None
+    for sp in polys:
+        ok = sp.stable if ok is None else ok & sp.stable
+    return ok

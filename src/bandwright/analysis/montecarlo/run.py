@@ -32,11 +32,11 @@ import numpy as np
 from bandwright.analysis.grid import response_grid
 from bandwright.analysis.montecarlo import sampling
 from bandwright.analysis.montecarlo.drivers import Driver, DriverStats
-from bandwright.analysis.montecarlo.kernel import Grid, chain_mag_sq, stage_polynomials
+from bandwright.analysis.montecarlo.kernel import Grid, stage_polynomials
 from bandwright.analysis.montecarlo.sampling import (Spreads, draw, factors, resolve_spreads,
                                                      sample_columns, stage_inputs, stage_spans,
                                                      tolerances)
-from bandwright.analysis.montecarlo.verdicts import REASONS, verdicts
+from bandwright.analysis.montecarlo.verdicts import REASONS, judge
 from bandwright.analysis.sensitivity import StageSensitivity, chain_sensitivities
 from bandwright.chain.graph import CHAIN_OUTPUT, Chain
 from bandwright.inputs.requirement import Requirement
@@ -48,8 +48,6 @@ ENVELOPE_PERCENTILES = (1.0, 50.0, 99.0)
 # The envelope is read from at most this many samples (the first ones): percentiles of
 # 20,000 i.i.d. samples are already far finer than a plot shows, and memory stays bounded.
 _ENVELOPE_MAX = 20_000
-# Mask comparisons use the same float slack as checks.mask.
-_SLACK_DB = 1e-9
 _Z95 = 1.959963984540054  # two-sided 95 % normal quantile
 
 Progress = Callable[[int, int], None]
@@ -86,11 +84,13 @@ class YieldResult:
     samples, seed : int
     spreads : Spreads
     passed : ndarray of bool, shape (samples,)
-        Per sample: meets the mask and the headroom.
+        Per sample: stable, meets the mask and the headroom.
     mask_ok, headroom_ok : ndarray of bool, shape (samples,)
+        Per sample: stable and meets the mask; free of a headroom failure (an unstable
+        board is counted as unstable only).
     fail_counts : dict of str to int
-        Failing samples per reason: "passband loss", "passband gain", "stopband",
-        "headroom" (a sample may fail several).
+        Failing samples per reason (``verdicts.REASONS``): "unstable", "passband loss",
+        "passband gain", "stopband", "headroom" (a stable sample may fail several).
     yield_fraction : float
     interval : (float, float)
         Wilson score interval, 95 % ([1]_).
@@ -111,7 +111,10 @@ class YieldResult:
         Set by ``plan_yield`` when the yield is below `min_yield`.
     nominal_margin_db : float
         How far the nominal board stays inside the requirement: minus its worst excess, dB
-        (negative when it fails). A margin near 0 dB means about half of any spread fails.
+        (negative when it fails; -inf when it is unstable). A margin near 0 dB means about
+        half of any spread fails.
+    stable : ndarray of bool, shape (samples,)
+        Per sample: every stage's poles in the left half-plane.
     """
 
     samples: int
@@ -132,6 +135,7 @@ class YieldResult:
     sensitivities: tuple[StageSensitivity, ...] = ()
     offer: Offer | None = None
     nominal_margin_db: float = math.nan
+    stable: np.ndarray | None = None
 
     @property
     def meets_target(self) -> bool:
@@ -202,7 +206,9 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
     (tolerance t at 3 sigma); every op-amp's GBW the same with the GBW spread, independently
     per op-amp. The draws come from ``numpy.random.default_rng(seed)`` chunk by chunk in a
     fixed order (``sample_values``), so a seed repeats a run exactly. Yield is the share of
-    samples passing; its interval is Wilson's ([1]_). Which parts decide it: for every
+    samples passing: stable (every stage's denominator Hurwitz, ``analysis.stability``: |H|^2
+    alone would pass an oscillator whose poles mirror a good board's) and inside the mask
+    and the headroom; its interval is Wilson's ([1]_). Which parts decide it: for every
     sample the worst excess over the requirement in dB (passband loss, passband gain,
     stopband loss or headroom; > 0 fails), and for every part the share of the variance of
     that excess explained by the part's value alone -- its first-order index, estimated from
@@ -224,30 +230,30 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
     rng = np.random.default_rng(seed)
     stats = DriverStats(cols, spreads.distribution)
 
-    def judge(u: np.ndarray) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray]]:
+    def judge_u(u: np.ndarray) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray]]:
         values, gbw = stage_inputs(chain, spans, factors(u, tol))
-        t2 = chain_mag_sq(chain, grid, stage_polynomials(chain, values, gbw))
-        return t2, verdicts(t2, chain, grid, requirement)
+        return judge(chain, grid, requirement, stage_polynomials(chain, values, gbw))
 
-    _, v_nom = judge(np.zeros((1, len(cols))))
-    nominal_ok = bool(v_nom["excess"][0] <= _SLACK_DB)
+    # The nominal board on its own, judged as every sample is.
+    _, v_nom = judge_u(np.zeros((1, len(cols))))
+    nominal_ok = bool(v_nom["ok"][0])
     nominal_margin = float(-v_nom["excess"][0])
 
-    passed, mask_ok, head_ok = [], [], []
+    passed, mask_ok, head_ok, stable = [], [], [], []
     fail_counts = {k: 0 for k in REASONS}
     env_rows: list[np.ndarray] = []
     kept = 0
     done = 0
     for n in sampling.chunks(samples):
         u = draw(rng, n, len(cols), spreads.distribution)
-        t2, v = judge(u)
-        m_ok = v["passband loss"] & v["passband gain"] & v["stopband"]
-        ok = m_ok & v["headroom"]
+        t2, v = judge_u(u)
+        m_ok, ok = v["mask"], v["ok"]
         for k in fail_counts:
             fail_counts[k] += int(np.count_nonzero(~v[k]))
         passed.append(ok)
         mask_ok.append(m_ok)
         head_ok.append(v["headroom"])
+        stable.append(v["unstable"])
         stats.add(u, ~ok, v["excess"])
         if kept < _ENVELOPE_MAX:
             take = min(n, _ENVELOPE_MAX - kept)
@@ -270,4 +276,5 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
         fail_counts=fail_counts, yield_fraction=k / samples,
         interval=wilson_interval(k, samples), min_yield=float(tol_req.min_yield),
         nominal_passes=nominal_ok, freq_hz=env_f, envelope_db=env, drivers=drivers,
-        explained=explained, sensitivities=sens, nominal_margin_db=nominal_margin)
+        explained=explained, sensitivities=sens, nominal_margin_db=nominal_margin,
+        stable=np.concatenate(stable))
