@@ -12,7 +12,7 @@ from bandwright.circuits import topologies_of_kind
 from bandwright.circuits.base import Limits
 from bandwright.circuits.elements import opamp_output_nets
 from bandwright.circuits.nodal import ac_solve, drawn_impedance, input_impedance_min
-from bandwright.circuits.realize import Realization, realize
+from bandwright.circuits.realize import Realization, choose_capacitor, realize
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.notation import format_value
 from bandwright.parts.opamp import OpAmp
@@ -134,6 +134,57 @@ def _window_factor(components, windows: PartWindows) -> float | None:
     return None
 
 
+@dataclass(frozen=True, slots=True)
+class _Look:
+    components: tuple[tuple[str, float], ...]
+    elements: tuple
+
+
+def _look(topo, section: Section, model: OpAmp, level: float, *, c_series: str,
+          windows: PartWindows) -> _Look:
+    """The ideal design of `section` at impedance `level` (no predistortion, no rounding):
+    enough to read its loads and part windows, which GBW predistortion hardly moves."""
+    target = Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q,
+                     gain=abs(section.gain))
+    c = choose_capacitor(topo, target, series=c_series, windows=windows, model=model,
+                         level=level)
+    values = topo.design(target, c_farads=c)
+    return _Look(components=tuple((n, v) for n, v in values.items() if math.isfinite(v)),
+                 elements=tuple(topo.elements(values, model)))
+
+
+def _choose_level(build, topo, start: float, model: OpAmp,
+                  input_floor: tuple[np.ndarray, float] | None, windows: PartWindows
+                  ) -> tuple[float, tuple[str, float] | None]:
+    """The impedance level to build `topo` at: `start`, or the level that clears a load
+    rule (``_level_problem``) and then brings the parts into their windows, as far as
+    ``LEVEL_MAX`` either way; with the load rule still broken there, if any. Looked at on
+    the ideal design only (``_look``: the series search is the costly part, done once at
+    the level chosen)."""
+    level = start
+    look = build(topo, level, exact=True)
+    problem = _level_problem(look, model, input_floor)
+    for _ in range(_LEVEL_TRIES if problem is not None else 0):
+        new = level * problem[1] * _LEVEL_MARGIN
+        if new > LEVEL_MAX:
+            return level, problem
+        level = new
+        look = build(topo, level, exact=True)
+        problem = _level_problem(look, model, input_floor)
+        if problem is None:
+            break
+    if problem is not None:
+        return level, problem
+    notes = violations(dict(look.components), windows)
+    factor = _window_factor(look.components, windows) if notes else None
+    if factor is not None and 1 / LEVEL_MAX <= level * factor <= LEVEL_MAX:
+        moved = build(topo, level * factor, exact=True)
+        if _level_problem(moved, model, input_floor) is None and \
+                len(violations(dict(moved.components), windows)) < len(notes):
+            level *= factor
+    return level, None
+
+
 def _level_text(level: float) -> str:
     return f"impedance level ×{level:.3g}"
 
@@ -205,32 +256,21 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
     built = []
 
     def build(topo, level, exact=False):
+        if exact:
+            return _look(topo, section, model, level, c_series=c_series, windows=windows)
         return realize(topo, section, model, r_series=r_series, c_series=c_series,
-                       windows=windows, source_ohms=source_ohms,
-                       rounded=rounded and not exact, level=level)
+                       windows=windows, source_ohms=source_ohms, rounded=rounded,
+                       level=level)
 
     for topo, lim in feasible:
-        level = start
         try:
-            real = build(topo, level)
-            problem = _level_problem(real, model, input_floor)
-            # Other levels are looked at with exact parts (the series search is the costly
-            # part); the level that clears the rule is then built with series parts.
-            probe, moved = problem, False
-            for _ in range(_LEVEL_TRIES if problem is not None else 0):
-                new = level * probe[1] * _LEVEL_MARGIN
-                if new > LEVEL_MAX:
-                    break
-                level, moved = new, True
-                probe = _level_problem(build(topo, level, exact=True), model, input_floor)
-                if probe is None:
-                    break
-            if moved:
-                real = build(topo, level)
-                problem = _level_problem(real, model, input_floor)
+            level, problem = _choose_level(build, topo, start, model, input_floor, windows)
+            real = build(topo, level) if problem is None else None
         except (ValueError, InfeasibleDesign, np.linalg.LinAlgError) as exc:
             rejected.append((topo.NAME, f"could not be built: {exc}"))
             continue
+        if problem is None:
+            problem = _level_problem(real, model, input_floor)
         if problem is not None:
             rejected.append((topo.NAME, problem[0] + (f" (at {_level_text(level)}; at most "
                                                       f"×{LEVEL_MAX:g} is tried)"
@@ -243,23 +283,6 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
                              f"{dq:+.2%} in Q, {dg:+.2%} in gain"))
             continue
         notes = tuple(violations(dict(real.components), windows))
-        factor = _window_factor(real.components, windows) if notes else None
-        if factor is not None and 1 / LEVEL_MAX <= level * factor <= LEVEL_MAX:
-            # Parts outside their windows: the level that brings them in, if it keeps the
-            # load rules and the built figures.
-            try:
-                look = build(topo, level * factor, exact=True)
-                moved = build(topo, level * factor) if rounded and \
-                    len(violations(dict(look.components), windows)) < len(notes) and \
-                    _level_problem(look, model, input_floor) is None else look
-            except (ValueError, InfeasibleDesign, np.linalg.LinAlgError):
-                moved = None
-            if moved is not None and _level_problem(moved, model, input_floor) is None:
-                df, dq, dg = moved.errors()
-                moved_notes = tuple(violations(dict(moved.components), windows))
-                if abs(df) <= BUILT_F0_TOLERANCE and abs(dq) <= BUILT_Q_TOLERANCE and \
-                        abs(dg) <= BUILT_GAIN_TOLERANCE and len(moved_notes) < len(notes):
-                    real, level, notes = moved, level * factor, moved_notes
         built.append((topo, lim, real, notes, level))
         if not notes:
             break
