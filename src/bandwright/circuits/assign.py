@@ -318,7 +318,9 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
 
 
 def _with_shortfall(section: Section, model: OpAmp, rejected: list[tuple[str, str]], *,
-                    only: frozenset[str] | None, **kwargs) -> Assignment | None:
+                    only: frozenset[str] | None, r_series: str, c_series: str,
+                    windows: PartWindows, input_floor: tuple[np.ndarray, float] | None,
+                    source_ohms: float, rounded: bool) -> Assignment | None:
     """The cheapest topology that reaches `section`'s Q but not its gain, built at its
     natural gain (``assign`` with ``accept_gain_shortfall``); None when there is none."""
     offers = []
@@ -340,7 +342,9 @@ def _with_shortfall(section: Section, model: OpAmp, rejected: list[tuple[str, st
     offers.sort(key=lambda t: _rank(t[1]))
     for topo, lim, reach in offers:
         lower = Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q, gain=reach)
-        a = assign(lower, model, only=frozenset({topo.NAME}), **kwargs)
+        a = assign(lower, model, only=frozenset({topo.NAME}), r_series=r_series,
+                   c_series=c_series, windows=windows, input_floor=input_floor,
+                   source_ohms=source_ohms, rounded=rounded)
         if a.realization is None:
             continue
         short_db = 20 * math.log10(abs(section.gain) / reach)

@@ -250,5 +250,5 @@ def ordering_built_text(o) -> str:
     return (f"As built: {o.built_noise_vrms * 1e6:.3g} µV rms of output noise from the stages' "
             f"own transfers and noise (planning model: {o.noise_vrms * 1e6:.3g} µV); "
             f"{o.built_gain_over_generated_db:+.1f} dB of dynamic range over the same built "
-            f"stages in the order as generated, {o.built_gain_over_increasing_q_db:+.1f} dB "
-            f"over increasing Q; {o.placement}.")
+            f"stages (parts and gains as built) in the order as generated, "
+            f"{o.built_gain_over_increasing_q_db:+.1f} dB over increasing Q; {o.placement}.")
