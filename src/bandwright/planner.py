@@ -450,6 +450,7 @@ def _for_noise_budget(design: Design, req: Requirement, model: OpAmp, windows: P
     best = design
     first_noise = design.analyses.noise.integrated_vrms
     tried: set[int] = set()
+    changes: list[str] = []
     for _ in range(_RECHOICE_ROUNDS):
         shares = _stage_shares(best.analyses, len(assignments))
         order = [k for k in np.argsort(shares)[::-1] if k not in tried and shares[k] > 0]
@@ -490,19 +491,23 @@ def _for_noise_budget(design: Design, req: Requirement, model: OpAmp, windows: P
         stages[k] = replace(stages[k], reason=trial[k].reason, rejected=trial[k].rejected)
         chain = build_chain(stages, source_ohms=chain.source_ohms)
         assignments = trial
+        changes.append(f"stage {k + 1}: {what} ({before * 1e6:.3g} → "
+                       f"{an.noise.integrated_vrms * 1e6:.3g} µV)")
         best = replace(best, assignments=tuple(trial), chain=chain, analyses=an,
                        checks=checks, ordering=claims(chain))
         if not _noise_failed(checks):
             break
     if best is design:
-        return design
-    if _noise_failed(best.checks):
-        best = replace(best, checks=tuple(
-            replace(c, message=c.message + f"; the least found by re-choosing stages' "
-                    f"topologies and impedance levels: {best.analyses.noise.integrated_vrms * 1e6:.3g}"
-                    f" µV rms (first built: {first_noise * 1e6:.3g} µV)")
-            if c.id == "noise" else c for c in best.checks))
-    return best
+        advice = ("; no other topology or impedance level of the noisiest stages lowers it "
+                  "without failing another check: a quieter op-amp class, or more gain early")
+    elif _noise_failed(best.checks):
+        advice = (f"; chosen again for it: {'; '.join(changes)}, still above the budget "
+                  f"(first built: {first_noise * 1e6:.3g} µV): a quieter op-amp class, or "
+                  f"more gain early")
+    else:
+        return best
+    return replace(best, checks=tuple(replace(c, message=c.message + advice)
+                                      if c.id == "noise" else c for c in best.checks))
 
 
 def _tables_of(element_lists, req: Requirement, source_ohms: float = 0.0):
