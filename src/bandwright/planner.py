@@ -13,6 +13,7 @@ from bandwright.advice import order_beyond_reach, with_gain_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
+from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.analysis.montecarlo import YieldResult, monte_carlo, tighter_offer
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
@@ -540,15 +541,25 @@ def _place(assignments: list[Assignment], origin: list[int | None], req: Require
     if len(assignments) < 2 or len(assignments) > MAX_SECTIONS + 2:
         return assignments, origin, ""
     tables = _tables_of([a.realization.elements for a in assignments], req)
-    order, method = best_built_order(tables)
+    limit = min(swing_limit_vpk(req.supply, e.model.swing_to_rail_v)
+                for a in assignments for e in a.realization.elements if e.kind == "opamp")
+    order, method = best_built_order(tables, limit_vpk=limit)
     here = tuple(range(len(assignments)))
     n_new, p_new = built_figures(tables, order)
     n_old, p_old = built_figures(tables, here)
     gain_db = 20 * math.log10((n_old * p_old) / (n_new * p_new))
+    if p_new > limit and p_old > limit:
+        # Nothing fits the swing: the lowest peak, however noisy.
+        gain_db = math.inf if p_new < p_old else -math.inf
+    elif p_old > limit >= p_new:
+        gain_db = math.inf
+    elif p_new > limit >= p_old:
+        gain_db = -math.inf
     if order == here or not gain_db >= _PLACE_MIN_DB:
         return assignments, origin, f"built stages kept in the model's order ({method})"
-    note = (f"built stages placed again ({method}): {gain_db:+.1f} dB of dynamic range over "
-            f"the model's order")
+    note = (f"built stages placed again ({method}): " +
+            (f"{gain_db:+.1f} dB of dynamic range over the model's order"
+             if math.isfinite(gain_db) else "the model's order clips on the swing"))
     return [assignments[i] for i in order], [origin[i] for i in order], note
 
 

@@ -392,9 +392,11 @@ def _dp_under(tables: BuiltTables, allowed: np.ndarray, first: int | None
 _PEAK_LEVELS = 16
 
 
-def best_built_order(tables: BuiltTables, *, first: int | None = None
-                     ) -> tuple[tuple[int, ...], str]:
-    """The order of built stages with the most dynamic range (least noise × highest peak).
+def best_built_order(tables: BuiltTables, *, first: int | None = None,
+                     limit_vpk: float = math.inf) -> tuple[tuple[int, ...], str]:
+    """The order of built stages with the most dynamic range (least noise × highest peak)
+    among those whose highest stage-output peak stays within `limit_vpk` (the swing); the
+    lowest peak when none does.
 
     Every permutation for up to ``EXHAUSTIVE_MAX`` stages. Beyond, dynamic programming over
     subsets for each of up to 16 ceilings on the node peak (the least-noise order whose
@@ -408,27 +410,33 @@ def best_built_order(tables: BuiltTables, *, first: int | None = None
     method : str
     """
     n = tables.n
+
+    def score(order) -> tuple[bool, float]:
+        noise, top = built_figures(tables, order)
+        clips = top > limit_vpk
+        return clips, top if clips else noise * top
+
     if n <= EXHAUSTIVE_MAX:
-        best, best_cost = None, math.inf
+        best, best_cost = None, (True, math.inf)
         rest = [i for i in range(n) if i != first]
         for perm in itertools.permutations(rest):
             order = perm if first is None else (first,) + perm
-            noise, top = built_figures(tables, order)
-            if noise * top < best_cost:
-                best, best_cost = order, noise * top
+            cost = score(order)
+            if cost < best_cost:
+                best, best_cost = order, cost
         return tuple(best), "exhaustive"
     levels = np.unique(tables.peak[1:])
     if levels.size > _PEAK_LEVELS:
         levels = np.quantile(levels, np.linspace(0, 1, _PEAK_LEVELS))
     levels = np.maximum(levels, tables.peak[-1])
-    best, best_cost = None, math.inf
+    best, best_cost = None, (True, math.inf)
     for ceiling in np.unique(levels):
         allowed = tables.peak <= ceiling * (1 + 1e-12)
         allowed[0] = allowed[-1] = True
         order, _ = _dp_under(tables, allowed, first)
         if order is None:
             continue
-        noise, top = built_figures(tables, order)
-        if noise * top < best_cost:
-            best, best_cost = order, noise * top
+        cost = score(order)
+        if cost < best_cost:
+            best, best_cost = order, cost
     return tuple(best), f"dynamic programming over subsets under {levels.size} peak ceilings"
