@@ -137,14 +137,17 @@ def impedance_target_ohms(model: OpAmp | None, windows: PartWindows,
 
 
 def choose_capacitor(topo: ModuleType, section: Section, *, series: str,
-                     windows: PartWindows, model: OpAmp | None = None) -> float:
+                     windows: PartWindows, model: OpAmp | None = None,
+                     level: float = 1.0) -> float:
     """A series capacitor value that sets the stage's impedance level.
 
     Impedance scaling (R·k, C/k) leaves f0, Q and gain unchanged (Schaumann & Van
     Valkenburg 2001, §6 [mem]). With an op-amp model the resistors' geometric mean is put
     at ``impedance_target_ohms`` (where they stop adding much noise), as far as every part
-    stays inside its window; otherwise the resistors are centred in their window. The value
-    is rounded to the capacitor series and kept inside the capacitor window.
+    stays inside its window; otherwise the resistors are centred in their window. `level`
+    multiplies that first impedance level (a stage that loads its op-amp at the first level
+    is tried higher); the value is rounded to the capacitor series and kept inside the
+    capacitor window.
     """
     if not any(p.startswith("C") for p in topo.PARTS):
         return _REFERENCE_C_FARADS
@@ -161,7 +164,8 @@ def choose_capacitor(topo: ModuleType, section: Section, *, series: str,
         k_hi = min(windows.r_max_ohms / r.max(), c.min() / windows.c_min_farads)
         if k_lo <= k_hi:
             k = float(np.clip(target / np.exp(np.mean(np.log(r))), k_lo, k_hi))
-    cap = float(np.clip(_REFERENCE_C_FARADS / k, windows.c_min_farads, windows.c_max_farads))
+    cap = float(np.clip(_REFERENCE_C_FARADS / (k * level), windows.c_min_farads,
+                        windows.c_max_farads))
     return float(nearest(cap, series))
 
 
@@ -368,7 +372,8 @@ def round_to_series(topo: ModuleType, values: Mapping[str, float], target: Secti
 
 def realize(topo: ModuleType, target: Section, model: OpAmp, *, r_series: str = "E96",
             c_series: str = "E12", windows: PartWindows = PartWindows(),
-            source_ohms: float = 0.0, rounded: bool = True) -> Realization:
+            source_ohms: float = 0.0, rounded: bool = True,
+            level: float = 1.0) -> Realization:
     """Build `target` with topology module `topo` and op-amp `model`.
 
     Parameters
@@ -387,9 +392,13 @@ def realize(topo: ModuleType, target: Section, model: OpAmp, *, r_series: str = 
     rounded : bool
         False skips the series search (exact values as built): a quick look, e.g. for the
         noise model of the section ordering.
+    level : float
+        Factor on the impedance level ``choose_capacitor`` picks first (resistors × level,
+        capacitors ÷ level, then rounded to the series).
     """
     target = Section(kind=target.kind, f0_hz=target.f0_hz, q=target.q, gain=abs(target.gain))
-    c = choose_capacitor(topo, target, series=c_series, windows=windows, model=model)
+    c = choose_capacitor(topo, target, series=c_series, windows=windows, model=model,
+                         level=level)
     asked, exact = predistort(topo, target, model, c_farads=c, source_ohms=source_ohms)
     _, ideal = _figures(topo, exact, model, target, source_ohms)
     if rounded:

@@ -20,7 +20,7 @@ from bandwright import __version__
 from bandwright.checks.base import worst_status
 from bandwright.parts.notation import format_value
 from bandwright.report.subject import Subject, net_label, stage_label, subject_of
-from bandwright.report.terminal import fmt_hz
+from bandwright.report.terminal import fmt_hz, ordering_built_text
 
 __all__ = ["html_report", "SECTION_IDS", "svg_inline", "verdict_text"]
 
@@ -314,6 +314,8 @@ def _chain(s: Subject, schematics: dict) -> str:
                    f"{o.gain_over_generated_db:+.1f} dB of dynamic range over the order as "
                    f"generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
                    "(planning model, equal-maxima gains).</p>")
+        if math.isfinite(o.built_noise_vrms):
+            out.append(f'<p class="note">{_e(ordering_built_text(o))}</p>')
     out.append("</section>")
     return "".join(out)
 

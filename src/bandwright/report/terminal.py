@@ -12,7 +12,7 @@ from rich.text import Text
 
 from bandwright.parts.notation import format_value
 
-__all__ = ["render_plan", "render_audit", "fmt_hz"]
+__all__ = ["render_plan", "render_audit", "fmt_hz", "ordering_built_text"]
 
 _VERDICT = {"pass": "ok", "warn": "WARN", "fail": "FAIL"}
 
@@ -103,6 +103,8 @@ def render_plan(p, console: Console) -> None:
             f"Section order ({o.method}): {o.gain_over_generated_db:+.1f} dB of dynamic range over "
             f"the order as generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
             f"(planning model, equal-maxima gains).")
+        if math.isfinite(o.built_noise_vrms):
+            _say(console, ordering_built_text(o))
     if getattr(d, "yield_result", None) is not None:
         _yield(d.yield_result, console)
     _checks(d.checks, console)
@@ -243,3 +245,12 @@ def _fmt(x: float | None, unit: str) -> str:
     if unit in ("ohm", "Hz", "Vrms", "Vpk"):
         return format_value(x, _SHOWN_UNIT[unit])
     return f"{x:.4g} {_SHOWN_UNIT.get(unit, unit)}".strip()
+
+
+def ordering_built_text(o) -> str:
+    """The ordering's figures for the chain as built, beside the planning model's."""
+    return (f"As built: {o.built_noise_vrms * 1e6:.3g} µV rms of output noise from the stages' "
+            f"own transfers and noise (planning model: {o.noise_vrms * 1e6:.3g} µV); "
+            f"{o.built_gain_over_generated_db:+.1f} dB of dynamic range over the same built "
+            f"stages (parts and gains as built) in the order as generated, "
+            f"{o.built_gain_over_increasing_q_db:+.1f} dB over increasing Q; {o.placement}.")
