@@ -21,6 +21,7 @@ import numpy as np
 import pytest
 from scipy import signal
 
+from bandwright.candidates import LOSS_SHARE
 from bandwright.circuits.nodal import ac_solve
 from bandwright.planner import plan
 from bandwright.prototype import prototype
@@ -200,7 +201,9 @@ def _spec(f0_hz, fbw, order, archetype, max_loss_db=1.0):
             "tolerance": {"samples": 10}}
 
 
-_EPS = math.sqrt(10 ** (0.9 * 3.0103 / 10) - 1)  # order 1, the planner's 0.9 loss share
+# Order 1: the one real prototype pole is -1/eps, eps at the share of max_loss_db the planner
+# designs the prototype for, so Q = Qbp * eps (docs/methods.md, "Prototype → sections").
+_EPS = math.sqrt(10 ** (LOSS_SHARE * 3.0103 / 10) - 1)
 BUILT = {
     # A section of Q 500 asked (three op-amps): poles 1e-3 of |p| from the axis.
     "Q500 at 1 kHz": _spec(1e3, _EPS / 500, 1, "fast", max_loss_db=3.0103),
@@ -234,6 +237,9 @@ def test_built_stages_match_an_mpmath_nodal_solution(name):
         assert abs(mp.mpf(f0) - ref_f0) <= 1e-8 * ref_f0, st.topology
         assert abs(mp.mpf(q) - ref_q) <= 1e-7 * ref_q, st.topology
     if name.startswith("Q500"):
+        # The section asked really is the Q 500 the case is named for (its only section).
+        (asked,) = [st.target.q for st in p.chosen.chain.stages if st.kind != "gain"]
+        assert asked == pytest.approx(500, rel=1e-9)
         # The planner may trim the section's parts against the passband (a mask with no
         # stopband point lets Q fall a little): the pole pair stays within 1/600 of |p| of
         # the axis.

@@ -26,10 +26,9 @@ from bandwright.report.spice import (TINY_SOURCE_OHMS, noise_sense_gain,
                                      opamp_subckt, spice_deck, subckt_name)
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from ngspice_runner import ngspice_available  # noqa: E402
 from spice_tools import run_ngspice_ac, run_ngspice_noise, run_ngspice_op  # noqa: E402
 
-needs_ngspice = pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+needs_ngspice = pytest.mark.ngspice
 
 
 # --- circuits ------------------------------------------------------------------------------

@@ -149,6 +149,7 @@ def test_order_above_the_most_supported_says_which_order_and_where_the_point_cou
     assert cand.order <= MAX_BUILT_ORDER
 
 
+@pytest.mark.slow
 def test_given_order_above_the_exact_search_is_built_in_increasing_q_order(write_spec):
     """Order 16 (16 sections, past the 12 the exact ordering tabulates): the chain is still
     planned, its sections in increasing Q (Moschytz 1975 [mem], references.md), and it meets

@@ -9,14 +9,13 @@ import math
 
 import numpy as np
 import pytest
+import sympy as sp
 from numpy.polynomial import polynomial as npoly
 
 from bandwright.circuits.elements import capacitor, opamp, resistor
 from bandwright.circuits.figures import polynomial_degree, section_figures, transfer_polynomials
 from bandwright.circuits.nodal import passive_names, transfer
 from bandwright.parts.opamp import OpAmp
-
-sp = pytest.importorskip("sympy")
 
 
 def generic_opamp(gbw_hz: float = math.inf, dc_gain_db: float = math.inf) -> OpAmp:

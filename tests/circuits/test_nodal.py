@@ -18,7 +18,7 @@ from bandwright.circuits.nodal import (BOLTZMANN_J_PER_K, ac_solve, mna_system, 
 from bandwright.parts.opamp import OpAmp
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-from ngspice_runner import WRDATA_SETUP, ngspice_available, read_wrdata, run_ngspice  # noqa: E402
+from ngspice_runner import WRDATA_SETUP, read_wrdata, run_ngspice  # noqa: E402
 
 K_B = 1.380649e-23  # exact, SI 2019 (references.md)
 T_25C = 298.15
@@ -252,7 +252,7 @@ def test_noninverting_amp_voltage_noise_with_finite_gbw():
 
 # --- ngspice cross-checks -------------------------------------------------------------------
 
-needs_ngspice = pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+needs_ngspice = pytest.mark.ngspice
 
 # Behavioural op-amp for ngspice: VCVS of gain A0, then a pole made of a VCCS wired as a
 # 1 S conductance (noiseless, unlike a resistor) charging Cp = A0/wt, then a unity buffer:

@@ -6,7 +6,6 @@ read by ngspice-39 (the installed Debian package, run below: "M" is milli, "Meg"
 """
 
 import re
-import shutil
 import subprocess
 
 import numpy as np
@@ -119,7 +118,7 @@ def _ngspice_dc_levels(values: list[str]) -> np.ndarray:
     return np.array([float(found[str(i)]) for i in range(1, len(values) + 1)])
 
 
-@pytest.mark.skipif(shutil.which("ngspice") is None, reason="ngspice not installed")
+@pytest.mark.ngspice
 def test_ngspice_reads_format_spice_as_meant():
     """ngspice-39 reads every format_spice text back to the value (7 printed digits)."""
     values = np.array([1.23456e-15, 4.7e-12, 9.87654e-9, 2.2e-6, 3.3e-3, 0.5, 1.0, 220.0,
@@ -128,7 +127,7 @@ def test_ngspice_reads_format_spice_as_meant():
     np.testing.assert_allclose(got, values, rtol=1e-6)
 
 
-@pytest.mark.skipif(shutil.which("ngspice") is None, reason="ngspice not installed")
+@pytest.mark.ngspice
 def test_ngspice_reads_bare_M_as_milli():
     """Why format_spice exists: ngspice-39 reads "1M" and "1m" as 1e-3 and "1Meg" as 1e6."""
     got = _ngspice_dc_levels(["1M", "1m", "1Meg", "1MEG"])
