@@ -13,7 +13,8 @@ from bandwright.advice import order_beyond_reach, with_gain_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
-from bandwright.analysis.montecarlo import YieldResult, monte_carlo, tighter_offer
+from bandwright.analysis.montecarlo import (YieldResult, monte_carlo, resolve_spreads,
+                                            tighter_offer)
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.stage import with_parts
@@ -22,6 +23,7 @@ from bandwright.chain.ordering import (MAX_SECTIONS, Ordering, choose_order, lon
                                       make_problem)
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
+from bandwright.checks.chain_checks import stage_gbw_needed_hz
 from bandwright.checks.yield_check import yield_checks
 from bandwright.circuits.assign import Assignment, assign
 from bandwright.circuits.nodal import (input_impedance_max, input_impedance_min,
@@ -29,7 +31,7 @@ from bandwright.circuits.nodal import (input_impedance_max, input_impedance_min,
 from bandwright.circuits import topologies_of_kind
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.catalogue import archetype, suggest_faster
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
@@ -239,10 +241,13 @@ def _assign(section: Section, model: OpAmp, req: Requirement, windows: PartWindo
     # Every stage is driven by an op-amp (or the source, behind a follower when needed):
     # its input must not load that op-amp below its minimum load, in band or at a tone.
     freqs = np.concatenate([passband_grid(req), [t.freq_hz for t in req.input.tones]])
+    # The topologies' tolerance rules are judged at the tolerances the yield is run at.
+    spreads = resolve_spreads(req)
     return assign(section, model, r_series=req.design.resistor_series,
                   c_series=req.design.capacitor_series, windows=windows,
                   input_floor=(freqs, model.min_load_ohms), source_ohms=source_ohms,
-                  rounded=rounded)
+                  rounded=rounded, r_tolerance=spreads.resistor_pct / 100,
+                  c_tolerance=spreads.capacitor_pct / 100)
 
 
 def _with_gain(section: Section, gain: float) -> Section:
@@ -386,11 +391,24 @@ def _build_and_trim(assignments: list[Assignment], req: Requirement, model: OpAm
             stages = list(chain.stages)
             stages[k] = with_parts(st, new, source_ohms=rs,
                                    note="parts trimmed for the chain's passband")
+            if _trim_breaks_gbw_rule(st, stages[k]):
+                continue
             chain = build_chain(stages, source_ohms=chain.source_ohms)
             changed = True
         if not changed:
             break
     return chain
+
+
+def _trim_breaks_gbw_rule(before: Stage, after: Stage) -> bool:
+    """Whether a trim moved a stage's figures to where its op-amp no longer meets the GBW
+    rule it met before (a trim rounds the chain's passband; it must not buy that with a
+    failing ``gbw`` check)."""
+    try:
+        need_after = stage_gbw_needed_hz(after)
+    except ValueError:
+        return True
+    return need_after > after.model.gbw_hz >= stage_gbw_needed_hz(before)
 
 
 def _stage(position: int, a: Assignment, model: OpAmp) -> Stage:
@@ -414,10 +432,10 @@ def _nearest_fix(section: Section, model: OpAmp) -> str:
         return ""
     name = suggest_faster(need)
     if name is None:
-        return (f"; no op-amp class reaches the {format_value(need, 'Hz')} GBW it needs: "
+        return (f"; no op-amp class reaches the {format_hz(need)} GBW it needs: "
                 f"widen the band (lower Q) or lower the order")
-    return (f"; it needs {format_value(need, 'Hz')} GBW at the least: an op-amp of the "
-            f"'{name}' class ({format_value(archetype(name).gbw_hz, 'Hz')}) would do")
+    return (f"; it needs {format_hz(need)} GBW at the least: an op-amp of the "
+            f"'{name}' class ({format_hz(archetype(name).gbw_hz)}) would do")
 
 
 def _unbuildable(cand: Candidate, ordering: Ordering | None,

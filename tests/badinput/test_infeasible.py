@@ -54,7 +54,7 @@ def test_q_beyond_the_op_amp_names_the_gbw_needed_and_a_class_that_builds_it(wri
     failing = [c for c in doc["checks"] if c["status"] == "fail"]
     assert failing and all(c["id"] == "topology" for c in failing)
     msg = failing[0]["message"]
-    need = re.search(r"it needs ([\d.]+)MHz GBW", msg)
+    need = re.search(r"it needs ([\d.]+) MHz GBW", msg)
     cls = re.search(r"an op-amp of the '([\w-]+)' class", msg)
     assert need and cls, msg
     assert float(need.group(1)) * 1e6 > 3e6  # more than the general class has

@@ -134,7 +134,7 @@ def test_finite_gbw_in_the_project_model(q):
     S_K^Q / A0 = 2 Q^2 / A0, 2 % of this shift at Q = 3).
 
     At unity gain with equal R the first-order shifts are df0/f0 = -Q e, dQ/Q = +Q e
-    (derived in circuits._lphp_common).
+    (derived in circuits._filter_and_gain).
     """
     f0_hz = 2e3
     gbw_hz = f0_hz * q * 1e3
@@ -146,11 +146,12 @@ def test_finite_gbw_in_the_project_model(q):
 
 
 @pytest.mark.parametrize("q", [0.5412, 1.3065, 4.0])
-def test_gbw_needed_at_unity_gain_is_ten_q_f0(q):
-    """[derived] 10 % first-order shift at Q e = 0.1; a tenth of the common-practice
-    100 x gain x Q x f0 that assumes no predistortion."""
+def test_gbw_needed_at_unity_gain_is_ten_max_q2_1_f0(q):
+    """[derived] |df0/f0| = |dQ/Q| = Q e at unity gain, so the pole movement of circuits.rules,
+    max(Q·Q e, Q e, e), reaches 10 % at GBW = 10 max(Q², 1) f0 (against the
+    common-practice 100 x gain x Q x f0, which assumes no predistortion)."""
     lim = skl.limits(Section("lowpass", 5e3, q, 1.0), IDEAL)
-    assert rel(lim.gbw_needed_hz, 10 * q * 5e3) < 1e-9
+    assert rel(lim.gbw_needed_hz, 10 * max(q * q, 1.0) * 5e3) < 1e-9
 
 
 @pytest.mark.parametrize("f0_hz,q,gain", CASES[:6])
@@ -189,7 +190,7 @@ def test_limits_feasible_section_reports_figures():
     assert lim.opamps == 1
     assert rel(lim.spread, 16.0) < 1e-12
     assert any("C1/C2 = 16" in r for r in lim.reasons)
-    assert any("2e+04 Hz needed" in r for r in lim.reasons)
+    assert any("needs 40 kHz GBW" in r for r in lim.reasons)  # 10 Q² f0
 
 
 @pytest.mark.parametrize("section,words", [

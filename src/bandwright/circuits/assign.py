@@ -12,7 +12,7 @@ from bandwright.circuits.elements import opamp_output_nets
 from bandwright.circuits.nodal import ac_solve, drawn_impedance, input_impedance_min
 from bandwright.circuits.realize import Realization, realize
 from bandwright.errors import InfeasibleDesign
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
@@ -75,7 +75,8 @@ def _rank(lim: Limits) -> tuple[float, float, float]:
 def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: str = "E12",
            windows: PartWindows = PartWindows(),
            input_floor: tuple[np.ndarray, float] | None = None,
-           source_ohms: float = 0.0, rounded: bool = True) -> Assignment:
+           source_ohms: float = 0.0, rounded: bool = True,
+           r_tolerance: float | None = None, c_tolerance: float | None = None) -> Assignment:
     """Choose the cheapest topology that really builds `section` with op-amp `model`.
 
     Every topology of the section's kind is asked for its limits (Q and gain reach, GBW
@@ -84,8 +85,12 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
     within 1 %, 5 % and 5 % of the target wins. A design inside the part windows is preferred
     to one outside them. With `input_floor` = (freq_hz, ohms), a design whose input
     impedance falls below `ohms` at those frequencies is rejected: the stage before it
-    could not drive it.
+    could not drive it. `r_tolerance` and `c_tolerance` (relative, 0.05 for 5 %) are the
+    part tolerances a bandpass topology's Q-shift rule is judged at (None: the topology's
+    default, 1 %); the planner passes the requirement's.
     """
+    tolerances = {} if r_tolerance is None else {"r_tolerance": r_tolerance,
+                                                 "c_tolerance": c_tolerance}
     rejected: list[tuple[str, str]] = []
     feasible = []
     for topo in topologies_of_kind(section.kind):
@@ -95,7 +100,9 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
         signed = Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q,
                          gain=sign * abs(section.gain))
         try:
-            lim = topo.limits(signed, model)
+            # Only the bandpass topologies have a tolerance rule (their Q-shift limit).
+            lim = topo.limits(signed, model,
+                              **(tolerances if section.kind == "bandpass" else {}))
         except (ValueError, InfeasibleDesign) as exc:
             rejected.append((topo.NAME, str(exc)))
             continue
@@ -153,7 +160,7 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
             rejected.append((t.NAME, f"feasible, but costlier: {l.opamps} op-amp(s), "
                              f"|S_Q| {l.q_sensitivity:.3g}, noise gain {l.noise_gain:.3g}"))
     reason = (f"{lim.opamps} op-amp(s), Q sensitivity {lim.q_sensitivity:.3g}, noise gain "
-              f"{lim.noise_gain:.3g}; needs {lim.gbw_needed_hz / 1e6:.3g} MHz GBW, the op-amp "
-              f"has {model.gbw_hz / 1e6:.3g} MHz")
+              f"{lim.noise_gain:.3g}; needs {format_hz(lim.gbw_needed_hz, significant=3)} "
+              f"GBW, the op-amp has {format_hz(model.gbw_hz, significant=3)}")
     return Assignment(section=section, realization=real, limits=lim, reason=reason,
                       rejected=tuple(rejected), window_notes=notes)

@@ -32,7 +32,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 
-from bandwright.circuits import _lphp_common as common
+from bandwright.circuits import _filter_and_gain as common
 from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, capacitor, resistor
 from bandwright.parts.opamp import OpAmp
@@ -189,7 +189,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Limits
         Infeasible for |gain| < 1, a spread (R2/R1 = 4 Q^2 at unity gain) above
         ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
-        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
+        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._filter_and_gain``).
     """
     return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
                                 ideal_figures=ideal_figures,

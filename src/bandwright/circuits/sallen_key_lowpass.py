@@ -36,7 +36,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 
-from bandwright.circuits import _lphp_common as common
+from bandwright.circuits import _filter_and_gain as common
 from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, capacitor, resistor
 from bandwright.errors import InfeasibleDesign
@@ -255,7 +255,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Limits
         Infeasible for |gain| < 1, a spread above ``MAX_SPREAD`` or too little
         GBW. ``gbw_needed_hz`` keeps the first-order finite-GBW shifts of f0 and Q within
-        10 % (derived, see ``circuits._lphp_common``; at unity gain it is 10 Q f0, a tenth
+        10 % (derived, see ``circuits._filter_and_gain``; at unity gain it is 10 Q f0, a tenth
         of the common-practice 100 Q f0 that assumes no predistortion). ``spread`` is the
         larger of C1/C2 (the resistors are equal) and Rf/Rg. ``noise_gain`` is |NG(j w0)|,
         1 + 2 Q^2 at unity gain: far above K near f0.

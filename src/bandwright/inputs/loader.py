@@ -12,6 +12,7 @@ from bandwright.inputs.requirement import (
     AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
     Requirement, StopbandPoint, Supply, Tolerance, Tone,
 )
+from bandwright.parts.eseries import SERIES_NAMES
 from bandwright.vocabulary import FAMILIES
 
 __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "read_passband",
@@ -20,7 +21,6 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
            "DISTRIBUTIONS"]
 
-SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
                   "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",

@@ -10,7 +10,7 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
 
 __all__ = ["render_plan", "render_audit", "fmt_hz"]
 
@@ -27,12 +27,8 @@ def _row(table: Table, *cells: str) -> None:
     table.add_row(*(Text(c) for c in cells))
 
 
-def fmt_hz(f: float) -> str:
-    """Frequency with an SI prefix: 40 kHz, 3.16 Hz, 1.2 MHz."""
-    for scale, unit in ((1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz")):
-        if abs(f) >= scale:
-            return f"{f / scale:.4g} {unit}"
-    return f"{f * 1e3:.4g} mHz"
+# The package's one Hz formatter, under the name the renderers import it by.
+fmt_hz = format_hz
 
 
 def _db(x: float) -> str:
