@@ -42,7 +42,7 @@ from bandwright.analysis.sensitivity import StageSensitivity, chain_sensitivitie
 from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
 from bandwright.chain.stage import stage_output_nets
 from bandwright.circuits.figures import transfer_polynomials_many
-from bandwright.parts.tolerance import default_tolerance_pct
+from bandwright.parts.tolerance import DEFAULT_TOLERANCE_PCT, default_tolerance_pct
 from bandwright.inputs.requirement import Requirement, Tolerance
 
 __all__ = ["Spreads", "SampleColumn", "Driver", "Offer", "YieldResult", "resolve_spreads",
@@ -74,7 +74,8 @@ _MIN_FACTOR = 1e-3
 #: (common practice; ``parts.tolerance``).
 RESISTOR_STEPS_PCT = (20.0, 10.0, 5.0, 2.0, 1.0, 0.5, 0.25, 0.1)
 CAPACITOR_STEPS_PCT = (20.0, 10.0, 5.0, 2.0, 1.0)
-_GRADE = {20.0: "E6", 10.0: "E12", 5.0: "E24", 2.0: "E48", 1.0: "E96", 0.5: "E192"}
+# Tolerance -> the series customarily sold at it (E6 rather than E3 at 20 %: later wins).
+_GRADE = {pct: name for name, pct in DEFAULT_TOLERANCE_PCT.items()}
 # Mask comparisons use the same float slack as checks.mask.
 _SLACK_DB = 1e-9
 _Z95 = 1.959963984540054  # two-sided 95 % normal quantile

@@ -60,7 +60,7 @@ def _requirement(req, model, console: Console) -> None:
     _say(console, f"Input: up to {inp.max_vpk:g} Vpk in band from {format_value(inp.source_ohms, 'Ω')}"
                   f"; tones: {tones}")
     _say(console, f"Rails {req.supply.rails_v[0]:g} / {req.supply.rails_v[1]:+g} V; op-amp "
-                  f"'{model.name}': {model.gbw_hz / 1e6:.3g} MHz GBW, {model.slew_v_per_us:g} V/µs, "
+                  f"'{model.name}': {fmt_hz(model.gbw_hz, significant=3)} GBW, {model.slew_v_per_us:g} V/µs, "
                   f"{model.noise_v_per_rthz * 1e9:.3g} nV/√Hz; {req.environment.temperature_c:g} °C")
 
 
