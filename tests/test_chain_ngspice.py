@@ -269,7 +269,7 @@ def test_response_matches_ngspice_ac(name, tmp_path):
 def test_node_levels_match_ngspice(name, tmp_path):
     """``nodes[].peak_vpk`` from ngspice's node voltages: for every op-amp output n,
     peak = max_vpk * max over the passband |V(n)| + sum over tones vpk * |V(n, f_tone)|
-    (references.md, "Headroom / slew"), VIN being 1 V open circuit behind RSRC as the
+    (docs/methods.md, "Headroom / slew"), VIN being 1 V open circuit behind RSRC as the
     requirement's amplitudes are.
 
     ngspice runs one-point sweeps at the tool's passband grid (``passband_grid``: 101 log
@@ -436,7 +436,7 @@ def test_single_high_q_section_in_ngspice(tmp_path):
     st = d.chain.stages[0]
     assert st.kind == "bandpass"
     # One real prototype pole: the section sits at the centre with Q = (f0/BW) / alpha0
-    # (references.md, "Poles -> sections"); the Butterworth pole of order 1 designed for an
+    # (docs/methods.md, "Poles -> sections"); the Butterworth pole of order 1 designed for an
     # edge loss a is alpha0 = 1/eps = 1/sqrt(10^(a/10) - 1), a being the candidate's ripple
     # (the planner keeps part of max_loss_db in reserve for the parts).
     f0_target, q_target = st.target.f0_hz, st.target.q
@@ -531,7 +531,7 @@ def _audit_json(files: dict[str, bytes], folder: Path) -> dict:
 def test_audit_of_written_chain_reproduces_the_plan(name, tmp_path):
     """plan_files written to a folder, then ``python -m bandwright audit chain.toml
     --json``: the response, every stage's built f0, Q and gain, and every check (id, stage,
-    net, status; value and limit) equal the plan's JSON within 1e-6 relative (design.md:
+    net, status; value and limit) equal the plan's JSON within 1e-6 relative (docs/design.md:
     chain.toml is written "so that `bandwright audit DIR/chain.toml` reproduces the plan's
     figures"). The parts in chain.toml are series values written to 6 digits, so they are
     the planned parts exactly, and 1e-6 leaves room only for the last digits of the same
@@ -562,7 +562,7 @@ def test_cli_plan_out_then_audit(tmp_path):
 
 
 def test_audit_runs_the_yield_check_as_the_plan_does(tmp_path):
-    """design.md lists `yield` among the check ids and says an audit is a plan whose
+    """docs/design.md lists `yield` among the check ids and says an audit is a plan whose
     stages came from a file: the audited chain.toml should carry the plan's yield check
     (the Monte Carlo draws are seeded, so the same chain gives the same share)."""
     files = out_files("lockin_mains")

@@ -35,7 +35,7 @@ def test_json_is_exactly_one_object_with_design_keys():
 
 
 def test_response_grid_meets_design_density():
-    """design.md: ≥ 100 points a decade, ≥ 50 inside the passband."""
+    """docs/design.md: ≥ 100 points a decade, ≥ 50 inside the passband."""
     doc = json.loads(run_cli("plan", SCENARIO, "--json").stdout)
     f = doc["response"]["freq_hz"]
     decades = math.log10(f[-1] / f[0])

@@ -44,7 +44,7 @@ def _spec(f0_hz: float, fbw: float, order: int, family: str = "butterworth",
 
 def _q500_fbw() -> float:
     """Fractional bandwidth whose order-1 section has Q = 500 at max_loss_db 3.0103: the
-    real prototype pole is -1/eps, so Q = Qbp * eps (references.md, "Poles -> sections")."""
+    real prototype pole is -1/eps, so Q = Qbp * eps (docs/methods.md, "Poles -> sections")."""
     eps = math.sqrt(10 ** (LOSS_SHARE * 3.0103 / 10) - 1)
     return eps / 500
 

@@ -3,11 +3,11 @@
 the imaginary axis (Q 500 built, Q 5000 ideal), op-amp poles seven decades from the section.
 
 The reference throughout is **mpmath at 50 significant digits**, computed independently of
-the package: prototype poles from their closed forms (references.md, "Prototype scaling"),
+the package: prototype poles from their closed forms (docs/methods.md, "Prototype scaling"),
 the bandpass substitution solved as a quadratic, the bandpass magnitude from the closed-form
-prototype magnitude through Ω(f) = (f² − f0²)/(f·BW) (references.md, "Mask → order";
+prototype magnitude through Ω(f) = (f² − f0²)/(f·BW) (docs/methods.md, "Mask → order";
 Williams & Taylor 2006, §2 and §5.1 [mem]), and a small modified-nodal-analysis solver of our
-element lists written here (standard MNA stamps; the op-amp row is design.md's single-pole
+element lists written here (standard MNA stamps; the op-amp row is docs/design.md's single-pole
 model V_out = A0/(1 + s·A0/ωt) · (V+ − V−)). scipy.signal.lp2bp_zpk, in float64, is also held
 to the mpmath poles, to show the float64 split is as good as scipy's.
 """
@@ -43,7 +43,7 @@ def _precision():
 
 
 def _mp_prototype_poles(family: str, order: int, ripple_db: float) -> list:
-    """Closed forms of references.md "Prototype scaling", in mpmath."""
+    """Closed forms of docs/methods.md "Prototype scaling", in mpmath."""
     eps = mp.sqrt(mp.power(10, mp.mpf(ripple_db) / 10) - 1)
     a = mp.asinh(1 / eps) / order
     poles = []

@@ -4,7 +4,7 @@ References named beside each check:
 - [sympy] nodal analysis of the module's own element list (tests/circuits/symbolic.py);
 - [W&T] Williams & Taylor, *Electronic Filter Design Handbook*, 4th ed., 2006, §5.2 [mem]:
   equal C, R2 = Q/(pi f0 C), R1a = R2/(2|H0|), R1b = R2/(4Q^2 - 2|H0|);
-- [refs] the project's check values (docs/references.md, [calc] from those equations):
+- [refs] the project's check values (docs/methods.md, [calc] from those equations):
   f0 40 kHz, Q 10, H0 10, C 1 nF -> R2 79.577 kOhm, R1a 3.9789 kOhm, R1b 209.41 Ohm,
   noise gain 201;
 - [biquad] the standard bandpass biquad (sections.section_response);

@@ -176,7 +176,7 @@ def test_limits_reject_slow_opamp_and_large_spread():
 
 
 def test_gain_sign_is_ignored_and_the_circuit_inverts():
-    """The chain's gains are magnitudes (design.md): +3 designs as -3, built gain -3 [nodal]."""
+    """The chain's gains are magnitudes (docs/design.md): +3 designs as -3, built gain -3 [nodal]."""
     pos = mhp.design(Section("highpass", 1e3, 1.5, 3.0), c_farads=1e-9)
     assert pos == mhp.design(Section("highpass", 1e3, 1.5, -3.0), c_farads=1e-9)
     assert rel(numeric_figures(mhp, pos, IDEAL, 1e3).gain, -3.0) < 1e-9

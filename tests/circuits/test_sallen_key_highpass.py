@@ -4,7 +4,7 @@ References named beside each check:
 - [sympy] nodal analysis of the module's own element list (tests/circuits/symbolic_lp.py);
 - [biquad] the standard second-order highpass K s^2/(s^2 + (w0/Q) s + w0^2), Schaumann &
   Van Valkenburg, *Design of Analog Filters*, 2001, ch. 4 [mem] (sections.section_response);
-- [refs] docs/references.md, "Lowpass/highpass": unity-gain equal-C R2/R1 = 4Q^2;
+- [refs] docs/methods.md, "Lowpass/highpass": unity-gain equal-C R2/R1 = 4Q^2;
 - [SK55] Sallen & Key, IRE Trans. CT-2, 1955 [mem]: equal components give Q = 1/(3 - K)
   (the highpass is the RC dual of the lowpass);
 - [nodal] the project's nodal solver / polynomial reduction (circuits.nodal, circuits.figures).
@@ -180,7 +180,7 @@ def test_limits_reject_what_the_topology_cannot_build(section, words):
 
 
 def test_gain_sign_is_ignored_and_the_circuit_does_not_invert():
-    """The chain's gains are magnitudes (design.md): -2 designs as +2, built gain +2 [nodal]."""
+    """The chain's gains are magnitudes (docs/design.md): -2 designs as +2, built gain +2 [nodal]."""
     neg = skh.design(Section("highpass", 1e3, 1.5, -2.0), c_farads=1e-9)
     assert neg == skh.design(Section("highpass", 1e3, 1.5, 2.0), c_farads=1e-9)
     assert rel(numeric_figures(skh, neg, IDEAL, 1e3).gain, 2.0) < 1e-9

@@ -4,7 +4,7 @@ References named beside each check:
 - [sympy] nodal analysis of the module's own element list (tests/circuits/symbolic_lp.py);
 - [biquad] the standard second-order lowpass K w0^2/(s^2 + (w0/Q) s + w0^2), Schaumann &
   Van Valkenburg, *Design of Analog Filters*, 2001, ch. 4 [mem] (sections.section_response);
-- [refs] docs/references.md, "Lowpass/highpass": unity-gain equal-R C1/C2 = 4Q^2;
+- [refs] docs/methods.md, "Lowpass/highpass": unity-gain equal-R C1/C2 = 4Q^2;
 - [SK55] Sallen & Key, IRE Trans. CT-2, 1955 [mem]: equal components give Q = 1/(3 - K);
 - [nodal] the project's nodal solver / polynomial reduction (circuits.nodal, circuits.figures).
 """
@@ -170,7 +170,7 @@ def test_unity_gain_sensitivity_is_one_half():
 
 @pytest.mark.parametrize("q", [1.0, 2.0, 5.0])
 def test_equal_component_gain_sensitivity_is_3q_minus_1(q):
-    """[SK55; references.md Sallen-Key: S_K^Q = 3Q - 1] via sympy on the derived Q(K)."""
+    """[SK55; docs/methods.md Sallen-Key: S_K^Q = 3Q - 1] via sympy on the derived Q(K)."""
     kk = sp.Symbol("K", positive=True)
     parts = skl.design(Section("lowpass", 1e3, q, 3 - 1 / q), c_farads=1e-9)
     els = skl.elements(parts, IDEAL)
@@ -208,7 +208,7 @@ def test_limits_reject_what_the_topology_cannot_build(section, words):
 
 
 def test_gain_sign_is_ignored_and_the_circuit_does_not_invert():
-    """The chain's gains are magnitudes (design.md): -2 designs as +2, built gain +2 [nodal]."""
+    """The chain's gains are magnitudes (docs/design.md): -2 designs as +2, built gain +2 [nodal]."""
     neg = skl.design(Section("lowpass", 1e3, 1.5, -2.0), c_farads=1e-9)
     assert neg == skl.design(Section("lowpass", 1e3, 1.5, 2.0), c_farads=1e-9)
     assert rel(numeric_figures(skl, neg, IDEAL, 1e3).gain, 2.0) < 1e-9

@@ -1,4 +1,4 @@
-"""Checks of a built chain: headroom, slew, drive, gbw, noise, parts (design.md check ids)."""
+"""Checks of a built chain: headroom, slew, drive, gbw, noise, parts (docs/design.md check ids)."""
 
 from __future__ import annotations
 

@@ -237,7 +237,7 @@ def section_problems(section: Section, *, kind: str, min_gain: float = 0.0) -> l
     """Reasons a section cannot be built by a topology of `kind`, or [].
 
     The sign of ``section.gain`` is not checked: the chain's gains are magnitudes and a
-    topology's sign is its ``INVERTING`` flag (design.md; ``circuits.assign``).
+    topology's sign is its ``INVERTING`` flag (docs/design.md; ``circuits.assign``).
 
     Parameters
     ----------

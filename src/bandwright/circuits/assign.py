@@ -95,7 +95,7 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
     feasible = []
     for topo in topologies_of_kind(section.kind):
         # Each topology is asked for the gain with its own sign: an inverting circuit
-        # realises -|G|; the chain's reference gain is a magnitude (design.md).
+        # realises -|G|; the chain's reference gain is a magnitude (docs/design.md).
         sign = -1.0 if getattr(topo, "INVERTING", False) else 1.0
         signed = Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q,
                          gain=sign * abs(section.gain))

@@ -8,7 +8,7 @@ gain errors into the dB they cost at the band edge.
 
 The finite-GBW criterion
 ------------------------
-A single-pole op-amp (design.md, "The op-amp is a model") moves a section's pole pair. To
+A single-pole op-amp (docs/design.md, "The op-amp is a model") moves a section's pole pair. To
 first order in e = f0/GBW each topology's shift is ``df0/f0 ~= k_f e`` and
 ``dQ/Q ~= k_q e`` (derived per topology, checked with sympy in the tests). What a response
 feels is the movement against the pole pair's own bandwidth f0/Q: its frequency moves by
@@ -22,7 +22,7 @@ keeps e itself within the share: the shifts are an expansion in e, and a low-Q s
 whose pole barely moves would otherwise be given an op-amp only a few times faster than its
 f0, where the op-amp's own pole joins the section's (a Q 0.5 multiple-feedback highpass at
 e = 0.4 moves 28 % of its bandwidth where the first order says 10 %). The planner
-predistorts for the nominal shift (design.md, "Built, not ideal"); the limit keeps that
+predistorts for the nominal shift (docs/design.md, "Built, not ideal"); the limit keeps that
 correction where the first-order model holds, and keeps a spread of GBW from unit to unit
 (``[tolerance] gbw_spread_pct``) from moving the pole far. At the limit the exact movement
 (poles of the full circuit) stays within ``POLE_MOVEMENT_AT_LIMIT`` (20 %) of the

@@ -67,7 +67,7 @@ def load_spec(path: str | Path) -> Requirement:
 
 
 def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requirement:
-    """Validate a parsed requirement document (see design.md for the keys)."""
+    """Validate a parsed requirement document (see docs/design.md for the keys)."""
     top = TableReader(path, "", doc, TOP_TABLES)
     if not top.has("passband"):
         raise SpecError(path, "passband", "missing table [passband]")

@@ -38,7 +38,7 @@ def _amplifier_lines(model, header: str) -> list[str]:
 
 
 def chain_toml(chain: Chain, req, *, title: str) -> str:
-    """The chain in the audit format (design.md), so that `bandwright audit` reproduces it."""
+    """The chain in the audit format (docs/design.md), so that `bandwright audit` reproduces it."""
     out = [f"# {title}", "# Audit file written by bandwright: `bandwright audit chain.toml`.", ""]
     pb = req.passband
     if pb is not None:
