@@ -59,6 +59,11 @@ def write_spec(tmp_path):
     return _write
 
 
+def exit_code_of(doc: dict) -> int:
+    """The exit status design.md gives a plan or audit JSON: 1 when a check fails, else 0."""
+    return 1 if any(c["status"] == "fail" for c in doc["checks"]) else 0
+
+
 def run_cli(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess:
     """Run `python -m bandwright ARGS` as a user would."""
     return subprocess.run([sys.executable, "-m", "bandwright", *map(str, args)],

@@ -42,6 +42,7 @@ from bandwright.report.spice import spice_deck
 from bandwright.inputs import spec_from_dict
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
+from conftest import exit_code_of  # noqa: E402
 from spice_tools import (run_ngspice_ac, run_ngspice_ac_lin, run_ngspice_ac_points,  # noqa: E402
                          run_ngspice_noise)
 
@@ -523,8 +524,9 @@ def _audit_json(files: dict[str, bytes], folder: Path) -> dict:
     r = subprocess.run([sys.executable, "-m", "bandwright", "audit",
                         str(folder / "chain.toml"), "--json"],
                        capture_output=True, text=True, cwd=folder)
-    assert r.returncode in (0, 1), r.stderr
-    return json.loads(r.stdout)
+    doc = json.loads(r.stdout)
+    assert r.returncode == exit_code_of(doc), r.stderr
+    return doc
 
 
 @pytest.mark.parametrize("name", ["audio_band"])
@@ -552,12 +554,12 @@ def test_cli_plan_out_then_audit(tmp_path):
     rp = subprocess.run([sys.executable, "-m", "bandwright", "plan",
                          str(SCENARIOS / "lockin_mains.toml"), "--json", "--out", str(out)],
                         capture_output=True, text=True)
-    assert rp.returncode in (0, 1), rp.stderr
     plan_doc = json.loads(rp.stdout)
+    assert rp.returncode == exit_code_of(plan_doc), rp.stderr
     assert json.loads((out / "plan.json").read_text()) == plan_doc
     ra = subprocess.run([sys.executable, "-m", "bandwright", "audit", str(out / "chain.toml"),
                          "--json"], capture_output=True, text=True)
-    assert ra.returncode in (0, 1), ra.stderr
+    assert ra.returncode == rp.returncode, ra.stderr
     _assert_same_figures(plan_doc, json.loads(ra.stdout))
 
 
