@@ -60,7 +60,7 @@ def write_spec(tmp_path):
 
 
 def exit_code_of(doc: dict) -> int:
-    """The exit status design.md gives a plan or audit JSON: 1 when a check fails, else 0."""
+    """The exit status docs/design.md gives a plan or audit JSON: 1 when a check fails, else 0."""
     return 1 if any(c["status"] == "fail" for c in doc["checks"]) else 0
 
 
