@@ -11,7 +11,8 @@ from bandwright.analysis.grid import noise_band, noise_grid, passband_grid, resp
 from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
 from bandwright.analysis.response import MaskReading, Response, read_mask
-from bandwright.chain.graph import CHAIN_OUTPUT, Chain
+from bandwright.analysis.stability import StagePoles, stage_poles
+from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
 from bandwright.inputs.requirement import Requirement
 
 __all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis"]
@@ -41,6 +42,9 @@ class Analyses:
     dynamic_range_db : float
         Largest undistorted in-band output (rms, the input scaled by `clip_scale`) over
         the integrated output noise.
+    stability : tuple of StagePoles
+        Every stage's poles as built and whether they all lie in the left half-plane
+        (``analysis.stability``); the steady-state figures above mean nothing otherwise.
     """
 
     response: Response
@@ -52,6 +56,12 @@ class Analyses:
     clip_scale: float
     snr_db: float
     dynamic_range_db: float
+    stability: tuple[StagePoles, ...] = ()
+
+    @property
+    def stable(self) -> bool:
+        """Every stage's poles in the open left half-plane."""
+        return all(p.stable for p in self.stability)
 
     @property
     def worst_margin_db(self) -> float:
@@ -84,6 +94,10 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
     sig_rms = out_node.signal_vpk / math.sqrt(2)
     snr = _db(sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
     dr = _db(scale * sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
+    poles = tuple(stage_poles(st.elements, position=st.position,
+                              source_ohms=chain.source_ohms
+                              if chain.input_of(st) == CHAIN_INPUT else 0.0)
+                  for st in chain.stages)
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
-                    dynamic_range_db=dr)
+                    dynamic_range_db=dr, stability=poles)
