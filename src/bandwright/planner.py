@@ -15,7 +15,7 @@ from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
 from bandwright.advice.tolerance import tighter_offer
 from bandwright.analysis.levels import swing_limit_vpk
-from bandwright.analysis.montecarlo import YieldResult, monte_carlo
+from bandwright.analysis.montecarlo import YieldResult, monte_carlo, resolve_spreads
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.stage import with_parts
@@ -28,6 +28,7 @@ from bandwright.chain.ordering import (MAX_SECTIONS, Ordering, best_built_order,
                                       long_chain_order, make_problem)
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
+from bandwright.checks.chain_checks import stage_gbw_needed_hz
 from bandwright.checks.yield_check import yield_checks
 from bandwright.circuits.assign import Assignment, assign
 from bandwright.circuits.nodal import (ac_solve, input_impedance_max, input_impedance_min,
@@ -35,7 +36,7 @@ from bandwright.circuits.nodal import (ac_solve, input_impedance_max, input_impe
 from bandwright.circuits import topologies_of_kind
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.catalogue import archetype, suggest_faster
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
@@ -270,10 +271,14 @@ def _assign(section: Section, model: OpAmp, req: Requirement, windows: PartWindo
     # Every stage is driven by an op-amp (or the source, behind a follower when needed):
     # its input must not load that op-amp below its minimum load, in band or at a tone.
     freqs = np.concatenate([passband_grid(req), [t.freq_hz for t in req.input.tones]])
+    # The topologies' tolerance rules are judged at the tolerances the yield is run at.
+    spreads = resolve_spreads(req)
     return assign(section, model, r_series=req.design.resistor_series,
                   c_series=req.design.capacitor_series, windows=windows,
                   input_floor=(freqs, model.min_load_ohms), source_ohms=source_ohms,
-                  rounded=rounded, accept_gain_shortfall=accept_gain_shortfall)
+                  rounded=rounded, accept_gain_shortfall=accept_gain_shortfall,
+                  r_tolerance=spreads.resistor_pct / 100,
+                  c_tolerance=spreads.capacitor_pct / 100)
 
 
 def _with_gain(section: Section, gain: float) -> Section:
@@ -444,10 +449,13 @@ def _alternatives(a: Assignment, model: OpAmp, req: Requirement, windows: PartWi
 def _assign_only(a: Assignment, name: str, model: OpAmp, req: Requirement,
                  windows: PartWindows, source_ohms: float, level: float) -> Assignment:
     freqs = np.concatenate([passband_grid(req), [t.freq_hz for t in req.input.tones]])
+    spreads = resolve_spreads(req)
     return assign(a.section, model, r_series=req.design.resistor_series,
                   c_series=req.design.capacitor_series, windows=windows,
                   input_floor=(freqs, model.min_load_ohms), source_ohms=source_ohms,
-                  only=frozenset({name}), level=level)
+                  only=frozenset({name}), level=level,
+                  r_tolerance=spreads.resistor_pct / 100,
+                  c_tolerance=spreads.capacitor_pct / 100)
 
 
 def _for_noise_budget(design: Design, req: Requirement, model: OpAmp, windows: PartWindows,
@@ -656,11 +664,24 @@ def _build_and_trim(assignments: list[Assignment], req: Requirement, model: OpAm
                         f"more than the {100 * trim.REDESIGN_SHARE:g} % a rounding trim moves it — "
                         f"a redesign of this section, not rounding")
             stages[k] = with_parts(st, new.components, source_ohms=rs, note=note)
+            if _trim_breaks_gbw_rule(st, stages[k]):
+                continue
             chain = build_chain(stages, source_ohms=chain.source_ohms)
             changed = True
         if not changed:
             break
     return chain
+
+
+def _trim_breaks_gbw_rule(before: Stage, after: Stage) -> bool:
+    """Whether a trim moved a stage's figures to where its op-amp no longer meets the GBW
+    rule it met before (a trim rounds the chain's passband; it must not buy that with a
+    failing ``gbw`` check)."""
+    try:
+        need_after = stage_gbw_needed_hz(after)
+    except ValueError:
+        return True
+    return need_after > after.model.gbw_hz >= stage_gbw_needed_hz(before)
 
 
 def _stage(position: int, a: Assignment, model: OpAmp) -> Stage:
@@ -684,10 +705,10 @@ def _nearest_fix(section: Section, model: OpAmp) -> str:
         return ""
     name = suggest_faster(need)
     if name is None:
-        return (f"; no op-amp class reaches the {format_value(need, 'Hz')} GBW it needs: "
+        return (f"; no op-amp class reaches the {format_hz(need)} GBW it needs: "
                 f"widen the band (lower Q) or lower the order")
-    return (f"; it needs {format_value(need, 'Hz')} GBW at the least: an op-amp of the "
-            f"'{name}' class ({format_value(archetype(name).gbw_hz, 'Hz')}) would do")
+    return (f"; it needs {format_hz(need)} GBW at the least: an op-amp of the "
+            f"'{name}' class ({format_hz(archetype(name).gbw_hz)}) would do")
 
 
 def _unbuildable(cand: Candidate, ordering: Ordering | None,

@@ -22,7 +22,6 @@ import pytest
 from bandwright.analysis.grid import passband_grid
 from bandwright.inputs.loader import load_spec
 
-from ngspice_runner import ngspice_available
 from spice_tools import run_ngspice_ac_points
 
 CASE_B = Path(__file__).resolve().parent.parent / "cases" / "skirt_trim.toml"
@@ -42,7 +41,7 @@ def planned(tmp_path_factory):
     return _plan(tmp_path_factory.mktemp("skirt"))
 
 
-@pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+@pytest.mark.ngspice
 def test_trimmed_chain_keeps_both_stopband_points_in_ngspice(planned, tmp_path):
     """The chosen chain as built and trimmed, read by ngspice-39 from its own deck: at least
     41 dB below the 20 dB reference at 500 Hz and 2 kHz, and no more than 1 dB of passband

@@ -244,7 +244,7 @@ def long_chain_order(sections: Sequence[Section], noise_psd: np.ndarray,
     """Increasing-Q order with equal-maxima gains, for more sections than the exact search
     takes (it tabulates all 2^n subsets).
 
-    Increasing Q keeps the early nodes' peaks low (Moschytz 1975 [mem]; references.md,
+    Increasing Q keeps the early nodes' peaks low (Moschytz 1975 [mem]; docs/methods.md,
     "Dynamic range"). The gains and the output noise follow the same model as
     ``make_problem``, evaluated along the one order instead of over every subset.
     """

@@ -14,7 +14,7 @@ from bandwright.circuits.elements import opamp_output_nets
 from bandwright.circuits.nodal import ac_solve, drawn_impedance, input_impedance_min
 from bandwright.circuits.realize import Realization, choose_capacitor, realize
 from bandwright.errors import InfeasibleDesign
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
@@ -210,7 +210,8 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
            input_floor: tuple[np.ndarray, float] | None = None,
            source_ohms: float = 0.0, rounded: bool = True,
            accept_gain_shortfall: bool = False,
-           only: frozenset[str] | None = None, level: float = 1.0) -> Assignment:
+           only: frozenset[str] | None = None, level: float = 1.0,
+           r_tolerance: float | None = None, c_tolerance: float | None = None) -> Assignment:
     """Choose the cheapest topology that really builds `section` with op-amp `model`.
 
     Every topology of the section's kind is asked for its limits (Q and gain reach, GBW
@@ -219,7 +220,9 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
     within 1 %, 5 % and 5 % of the target wins. A design inside the part windows is preferred
     to one outside them. With `input_floor` = (freq_hz, ohms), a design whose input
     impedance falls below `ohms` at those frequencies is rejected: the stage before it
-    could not drive it.
+    could not drive it. `r_tolerance` and `c_tolerance` (relative, 0.05 for 5 %) are the
+    part tolerances a bandpass topology's Q-shift rule is judged at (None: the topology's
+    default, 1 %); the planner passes the requirement's.
 
     The impedance level is part of each design: a topology that breaks a load rule (its
     input, its own network) or leaves the part windows at the first level is built again
@@ -233,18 +236,22 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
     (a factor on ``realize.choose_capacitor``'s).
     """
     start = level
+    tolerances = {} if r_tolerance is None else {"r_tolerance": r_tolerance,
+                                                 "c_tolerance": c_tolerance}
     rejected: list[tuple[str, str]] = []
     feasible = []
     for topo in topologies_of_kind(section.kind):
         if only is not None and topo.NAME not in only:
             continue
         # Each topology is asked for the gain with its own sign: an inverting circuit
-        # realises -|G|; the chain's reference gain is a magnitude (design.md).
+        # realises -|G|; the chain's reference gain is a magnitude (docs/design.md).
         sign = -1.0 if getattr(topo, "INVERTING", False) else 1.0
         signed = Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q,
                          gain=sign * abs(section.gain))
         try:
-            lim = topo.limits(signed, model)
+            # Only the bandpass topologies have a tolerance rule (their Q-shift limit).
+            lim = topo.limits(signed, model,
+                              **(tolerances if section.kind == "bandpass" else {}))
         except (ValueError, InfeasibleDesign) as exc:
             rejected.append((topo.NAME, str(exc)))
             continue
@@ -291,7 +298,8 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
             short = _with_shortfall(section, model, rejected, r_series=r_series,
                                     c_series=c_series, windows=windows,
                                     input_floor=input_floor, source_ohms=source_ohms,
-                                    rounded=rounded, only=only)
+                                    rounded=rounded, only=only, r_tolerance=r_tolerance,
+                                    c_tolerance=c_tolerance)
             if short is not None:
                 return short
         why = "no topology of kind " + section.kind + " can build this section"
@@ -309,8 +317,8 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
             rejected.append((t.NAME, f"feasible, but costlier: {l.opamps} op-amp(s), "
                              f"|S_Q| {l.q_sensitivity:.3g}, noise gain {l.noise_gain:.3g}"))
     reason = (f"{lim.opamps} op-amp(s), Q sensitivity {lim.q_sensitivity:.3g}, noise gain "
-              f"{lim.noise_gain:.3g}; needs {lim.gbw_needed_hz / 1e6:.3g} MHz GBW, the op-amp "
-              f"has {model.gbw_hz / 1e6:.3g} MHz")
+              f"{lim.noise_gain:.3g}; needs {format_hz(lim.gbw_needed_hz, significant=3)} "
+              f"GBW, the op-amp has {format_hz(model.gbw_hz, significant=3)}")
     if level != 1.0:
         reason += f"; built at {_level_text(level)} of the first level"
     return Assignment(section=section, realization=real, limits=lim, reason=reason,
@@ -320,7 +328,8 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
 def _with_shortfall(section: Section, model: OpAmp, rejected: list[tuple[str, str]], *,
                     only: frozenset[str] | None, r_series: str, c_series: str,
                     windows: PartWindows, input_floor: tuple[np.ndarray, float] | None,
-                    source_ohms: float, rounded: bool) -> Assignment | None:
+                    source_ohms: float, rounded: bool, r_tolerance: float | None = None,
+                    c_tolerance: float | None = None) -> Assignment | None:
     """The cheapest topology that reaches `section`'s Q but not its gain, built at its
     natural gain (``assign`` with ``accept_gain_shortfall``); None when there is none."""
     offers = []
@@ -334,7 +343,9 @@ def _with_shortfall(section: Section, model: OpAmp, rejected: list[tuple[str, st
         try:
             lim = topo.limits(Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q,
                                       gain=sign * abs(section.gain)), model,
-                              accept_gain_shortfall=True)
+                              accept_gain_shortfall=True,
+                              **({} if r_tolerance is None else
+                                 {"r_tolerance": r_tolerance, "c_tolerance": c_tolerance}))
         except (ValueError, InfeasibleDesign):
             continue
         if lim.feasible:
@@ -344,7 +355,8 @@ def _with_shortfall(section: Section, model: OpAmp, rejected: list[tuple[str, st
         lower = Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q, gain=reach)
         a = assign(lower, model, only=frozenset({topo.NAME}), r_series=r_series,
                    c_series=c_series, windows=windows, input_floor=input_floor,
-                   source_ohms=source_ohms, rounded=rounded)
+                   source_ohms=source_ohms, rounded=rounded, r_tolerance=r_tolerance,
+                   c_tolerance=c_tolerance)
         if a.realization is None:
             continue
         short_db = 20 * math.log10(abs(section.gain) / reach)

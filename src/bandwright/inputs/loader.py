@@ -12,6 +12,7 @@ from bandwright.inputs.requirement import (
     AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
     Requirement, StopbandPoint, Supply, Tolerance, Tone,
 )
+from bandwright.parts.eseries import SERIES_NAMES
 from bandwright.vocabulary import FAMILIES
 
 __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "read_passband",
@@ -20,7 +21,6 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
            "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES"]
 
-SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
                   "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms",
                   "current_noise_corner_hz")
@@ -81,7 +81,7 @@ def load_spec(path: str | Path) -> Requirement:
 
 
 def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requirement:
-    """Validate a parsed requirement document (see design.md for the keys)."""
+    """Validate a parsed requirement document (see docs/design.md for the keys)."""
     top = TableReader(path, "", doc, TOP_TABLES)
     if not top.has("passband"):
         raise SpecError(path, "passband", "missing table [passband]")

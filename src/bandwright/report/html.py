@@ -200,12 +200,12 @@ def _summary(s: Subject) -> str:
     if s.chain is not None:
         models = sorted({st.model.name for st in s.chain.stages})
         m = s.chain.stages[0].model
-        rows.append(("op-amp", f"'{', '.join(models)}': {m.gbw_hz / 1e6:.3g} MHz GBW, "
+        rows.append(("op-amp", f"'{', '.join(models)}': {fmt_hz(m.gbw_hz, significant=3)} GBW, "
                                f"{m.slew_v_per_us:g} V/µs, {m.noise_v_per_rthz * 1e9:.3g} "
                                "nV/√Hz"))
     elif s.kind == "plan":
         m = s.source.model
-        rows.append(("op-amp", f"'{m.name}': {m.gbw_hz / 1e6:.3g} MHz GBW"))
+        rows.append(("op-amp", f"'{m.name}': {fmt_hz(m.gbw_hz, significant=3)} GBW"))
     band = req.noise.band_hz
     rows.append(("noise band", f"{fmt_hz(band[0])} to {fmt_hz(band[1])}" if band
                  else "the passband"))

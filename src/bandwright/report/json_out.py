@@ -1,4 +1,4 @@
-"""The JSON object of design.md, built from a Plan or an Audit (a renderer: no maths here)."""
+"""The JSON object of docs/design.md, built from a Plan or an Audit (a renderer: no maths here)."""
 
 from __future__ import annotations
 
@@ -109,7 +109,7 @@ def _candidate_dict(d) -> dict[str, Any]:
 
 
 def plan_to_dict(p) -> dict[str, Any]:
-    """The plan as design.md's JSON object (plus a few keys of our own)."""
+    """The plan as docs/design.md's JSON object (plus a few keys of our own)."""
     d = p.chosen
     c = d.candidate
     out: dict[str, Any] = {

@@ -10,7 +10,7 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
 
 __all__ = ["render_plan", "render_audit", "fmt_hz", "ordering_built_text"]
 
@@ -27,12 +27,8 @@ def _row(table: Table, *cells: str) -> None:
     table.add_row(*(Text(c) for c in cells))
 
 
-def fmt_hz(f: float) -> str:
-    """Frequency with an SI prefix: 40 kHz, 3.16 Hz, 1.2 MHz."""
-    for scale, unit in ((1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz")):
-        if abs(f) >= scale:
-            return f"{f / scale:.4g} {unit}"
-    return f"{f * 1e3:.4g} mHz"
+# The package's one Hz formatter, under the name the renderers import it by.
+fmt_hz = format_hz
 
 
 def _db(x: float) -> str:
@@ -64,7 +60,7 @@ def _requirement(req, model, console: Console) -> None:
     _say(console, f"Input: up to {inp.max_vpk:g} Vpk in band from {format_value(inp.source_ohms, 'Ω')}"
                   f"; tones: {tones}")
     _say(console, f"Rails {req.supply.rails_v[0]:g} / {req.supply.rails_v[1]:+g} V; op-amp "
-                  f"'{model.name}': {model.gbw_hz / 1e6:.3g} MHz GBW, {model.slew_v_per_us:g} V/µs, "
+                  f"'{model.name}': {fmt_hz(model.gbw_hz, significant=3)} GBW, {model.slew_v_per_us:g} V/µs, "
                   f"{model.noise_v_per_rthz * 1e9:.3g} nV/√Hz; {req.environment.temperature_c:g} °C")
 
 
