@@ -129,7 +129,7 @@ def audit(path: str | Path) -> Audit:
         req = Requirement(path=p, passband=_passband_from_response(chain, common),
                           input=common["input"], supply=common["supply"],
                           amplifier=common["amplifier"], environment=common["environment"],
-                          noise=common["noise"])
+                          noise=common["noise"], converter=common.get("converter"))
     an = analyse(chain, req, with_mask=has_mask)
     checks = tuple(all_checks(chain, an, req))
     result = None

@@ -15,7 +15,7 @@ from bandwright.parts.notation import format_value
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
 from bandwright.report.spice import spice_deck
 
-__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args"]
+__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "converter_lines"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
              "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
@@ -37,6 +37,19 @@ def _amplifier_lines(model, header: str) -> list[str]:
     return lines
 
 
+def converter_lines(conv) -> list[str]:
+    """`[converter]` as the requirement gave it (optional keys only when given)."""
+    if conv is None:
+        return []
+    out = ["[converter]", f"sample_rate_hz = {conv.sample_rate_hz!r}", f"bits = {conv.bits}",
+           f"full_scale_vpp = {conv.full_scale_vpp!r}"]
+    for key in ("enob", "input_ohms", "max_alias_dbfs"):
+        if getattr(conv, key) is not None:
+            out.append(f"{key} = {getattr(conv, key)!r}")
+    out += [f"input_farads = {conv.input_farads!r}", f"headroom_db = {conv.headroom_db!r}", ""]
+    return out
+
+
 def chain_toml(chain: Chain, req, *, title: str) -> str:
     """The chain in the audit format (design.md), so that `bandwright audit` reproduces it."""
     out = [f"# {title}", "# Audit file written by bandwright: `bandwright audit chain.toml`.", ""]
@@ -46,8 +59,9 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
                 f"max_loss_db = {pb.max_loss_db!r}", f"gain_db = {pb.gain_db!r}",
                 f"gain_tolerance_db = {pb.gain_tolerance_db!r}", ""]
         for sp in req.stopband:
-            out += ["[[stopband]]", f"freq_hz = {sp.freq_hz!r}", f"min_loss_db = {sp.min_loss_db!r}",
-                    ""]
+            out += ["[[stopband]]"] + ([f"# added by the planner: {sp.added}"] if getattr(
+                sp, "added", "") else []) + [f"freq_hz = {sp.freq_hz!r}",
+                                              f"min_loss_db = {sp.min_loss_db!r}", ""]
     inp = req.input
     out += ["[input]", f"max_vpk = {inp.max_vpk!r}", f"source_ohms = {inp.source_ohms!r}"]
     for t in inp.tones:
@@ -65,6 +79,7 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
         if req.noise.max_output_vrms:
             out.append(f"max_output_vrms = {req.noise.max_output_vrms!r}")
         out.append("")
+    out += converter_lines(getattr(req, "converter", None))
     tol = getattr(req, "tolerance", None)
     if tol is not None:
         spreads = resolve_spreads(req)
