@@ -13,6 +13,7 @@ from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.montecarlo import YieldResult, plan_yield
 from bandwright.chain import Chain, Stage, build_chain
+from bandwright.chain.graph import attach_converter
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
 from bandwright.checks.yield_check import yield_checks
@@ -130,6 +131,7 @@ def audit(path: str | Path) -> Audit:
                           input=common["input"], supply=common["supply"],
                           amplifier=common["amplifier"], environment=common["environment"],
                           noise=common["noise"], converter=common.get("converter"))
+    chain = attach_converter(chain, req.converter)
     an = analyse(chain, req, with_mask=has_mask)
     checks = tuple(all_checks(chain, an, req))
     result = None

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -11,10 +11,12 @@ from bandwright.analysis.grid import noise_band, noise_grid, passband_grid, resp
 from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
 from bandwright.analysis.response import MaskReading, Response, read_mask
-from bandwright.chain.graph import CHAIN_OUTPUT, Chain
+from bandwright.analysis.converter import ConverterAnalysis, converter_analysis
+from bandwright.chain.graph import CHAIN_OUTPUT, Chain, attach_converter
 from bandwright.inputs.requirement import Requirement
 
-__all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis"]
+__all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis",
+           "ConverterAnalysis"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -41,6 +43,8 @@ class Analyses:
     dynamic_range_db : float
         Largest undistorted in-band output (rms, the input scaled by `clip_scale`) over
         the integrated output noise.
+    converter : ConverterAnalysis or None
+        The converter's view (full scale, folds, noise to the bits); None without one.
     """
 
     response: Response
@@ -52,6 +56,7 @@ class Analyses:
     clip_scale: float
     snr_db: float
     dynamic_range_db: float
+    converter: ConverterAnalysis | None = None
 
     @property
     def worst_margin_db(self) -> float:
@@ -65,6 +70,9 @@ def _db(ratio: float) -> float:
 
 def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -> Analyses:
     """Run every analysis on `chain` for `requirement`'s input, supply and noise band."""
+    conv = getattr(requirement, "converter", None)
+    if conv is not None and chain.converter is None:
+        chain = attach_converter(chain, conv)
     grid = response_grid(requirement)
     nets = net_transfers(chain, grid)
     response = Response(freq_hz=grid, h=nets[CHAIN_OUTPUT])
@@ -79,11 +87,21 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
     nf = noise_grid(requirement)
     noise = chain_noise(chain, nf, band_hz=band, temperature_c=requirement.environment.temperature_c,
                         transfer_out=respond(nf))
+    if conv is None and requirement.noise.band_hz is None:
+        # Beside the band integrated, the whole report grid: how much lies outside it.
+        wide = (float(grid[0]), float(grid[-1]))
+        wf = np.geomspace(wide[0], wide[1], 401)
+        w = chain_noise(chain, wf, band_hz=wide, temperature_c=requirement.environment.temperature_c,
+                        transfer_out=respond(wf))
+        noise = replace(noise, wide_band_hz=wide, wide_vrms=w.integrated_vrms)
     out_node = next(n for n in nodes if n.net == CHAIN_OUTPUT)
     scale = min((n.limit_vpk / n.peak_vpk for n in nodes if n.peak_vpk > 0), default=math.inf)
     sig_rms = out_node.signal_vpk / math.sqrt(2)
     snr = _db(sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
     dr = _db(scale * sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
+    conv_an = None if conv is None else converter_analysis(
+        chain, requirement, nodes=nodes, noise=noise, clip_scale=scale,
+        signal_out_vpk=out_node.signal_vpk)
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
-                    dynamic_range_db=dr)
+                    dynamic_range_db=dr, converter=conv_an)

@@ -8,7 +8,7 @@ import io
 from typing import Any
 
 from bandwright.analysis.montecarlo import resolve_spreads
-from bandwright.chain.graph import Chain, flatten
+from bandwright.chain.graph import Chain, converter_elements, flatten
 from bandwright.parts.catalogue import ARCHETYPES
 from bandwright.parts.eseries import is_member
 from bandwright.parts.notation import format_value
@@ -146,7 +146,9 @@ def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
            planned: bool) -> dict[str, bytes]:
     return {
         json_name: (json_text + "\n").encode(),
-        "chain.cir": spice_deck(flatten(chain), source_ohms=chain.source_ohms,
+        # The converter's input load sits on "out" in the deck too (not in the BOM).
+        "chain.cir": spice_deck(flatten(chain) + converter_elements(chain),
+                                source_ohms=chain.source_ohms,
                                 temperature_c=req.environment.temperature_c, title=title).encode(),
         "chain.toml": chain_toml(chain, req, title=title).encode(),
         "bom.csv": bom_csv(chain, **bom_args(req, planned=planned)).encode(),
