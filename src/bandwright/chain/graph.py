@@ -158,4 +158,6 @@ def net_transfers(chain: Chain, freq_hz: np.ndarray) -> dict[str, np.ndarray]:
             if d["stage"] is st:
                 out[net] = out[inp] * sol.at(d["local"])
     del out[CHAIN_INPUT]
+    if chain.converter is not None:
+        out[CONVERTER_NET] = out[CHAIN_OUTPUT]   # the same wire
     return out
