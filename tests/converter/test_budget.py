@@ -112,3 +112,56 @@ def test_enob_sets_the_converter_noise(audited):
     r = dataclasses.replace(req, converter=dataclasses.replace(req.converter, enob=10.0))
     q10 = analyse(audited.chain, r).converter.quantisation_vrms
     assert q10 / audited.analyses.converter.quantisation_vrms == pytest.approx(4.0, rel=1e-12)
+
+
+def test_a_slow_driver_is_flagged_by_the_settling_estimate(audited):
+    """At 2 MS/s and 12 bits the estimate asks 12·ln2·2e6/π = 5.2953 MHz [calc]: the 3 MHz
+    op-amp gets a warning on the converter's node (a warning only: an estimate)."""
+    from bandwright.analysis import analyse
+    from bandwright.checks.alias import settling_checks
+    req = audited.requirement
+    r = dataclasses.replace(req, converter=dataclasses.replace(req.converter,
+                                                               sample_rate_hz=2e6))
+    (check,) = settling_checks(analyse(audited.chain, r))
+    assert check.value == pytest.approx(12 * math.log(2) * 2e6 / math.pi, rel=1e-12)
+    assert check.value == pytest.approx(5.2953e6, rel=1e-4)
+    assert check.status == "warn" and check.net == "adc"
+    (ok,) = settling_checks(audited.analyses)
+    assert ok.status == "pass"
+
+
+@pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+def test_without_a_converter_the_whole_span_noise_matches_ngspice(tmp_path):
+    """Without [converter] the report shows the noise over its whole grid beside the
+    band's: ngspice-39 .noise over the same span (onoise_total) within 2 %; the passband
+    figure is the smaller."""
+    text = CHAIN.read_text()
+    head, rest = text.split("[converter]", 1)
+    path = tmp_path / "plain.toml"
+    path.write_text(head + "[[stage]]" + rest.split("[[stage]]", 1)[1])
+    a = audit(path)
+    assert a.analyses.converter is None
+    nz = a.analyses.noise
+    lo, hi = nz.wide_band_hz
+    deck = spice_deck(flatten(a.chain), source_ohms=a.chain.source_ohms, temperature_c=25.0,
+                      title="whole span noise")
+    ng = run_ngspice_noise(deck, lo, hi, 200, tmp_path)
+    assert nz.wide_vrms == pytest.approx(ng.onoise_total_vrms, rel=0.02)
+    assert nz.band_hz == (1000.0, 5000.0) and nz.integrated_vrms < nz.wide_vrms
+
+
+def test_the_converter_input_loads_the_last_op_amp(audited):
+    """The drive check of "out" sees the converter's input in parallel with the feedback
+    network: a 1 kΩ input is below the 2 kΩ the 'general' op-amp drives (its catalogue
+    figure), so the check fails; the least load is below 1 kΩ (a parallel combination is
+    below each branch, common practice)."""
+    from bandwright.analysis import analyse
+    from bandwright.checks.chain_checks import drive_checks
+    req = audited.requirement
+    r = dataclasses.replace(req, converter=dataclasses.replace(req.converter, input_ohms=1e3))
+    an = analyse(audited.chain, r)
+    out = next(n for n in an.nodes if n.net == "out")
+    before = next(n for n in audited.analyses.nodes if n.net == "out")
+    assert out.load_ohms < 1e3 < before.load_ohms
+    (check,) = [c for c in drive_checks(an) if c.net == "out"]
+    assert check.status == "fail" and "converter input" in check.message

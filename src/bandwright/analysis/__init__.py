@@ -71,8 +71,8 @@ def _db(ratio: float) -> float:
 def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -> Analyses:
     """Run every analysis on `chain` for `requirement`'s input, supply and noise band."""
     conv = getattr(requirement, "converter", None)
-    if conv is not None and chain.converter is None:
-        chain = attach_converter(chain, conv)
+    if conv is not None and chain.converter != conv:
+        chain = attach_converter(chain, conv)   # the requirement's converter decides
     grid = response_grid(requirement)
     nets = net_transfers(chain, grid)
     response = Response(freq_hz=grid, h=nets[CHAIN_OUTPUT])
