@@ -98,3 +98,20 @@ def test_json_converter_block(planned):
     assert conv["folds"][0]["alias_hz"] == pytest.approx(40000)
     assert any(n["net"] == CONVERTER_NET for n in doc["nodes"])
     assert doc["noise"]["band_hz"][1] == pytest.approx(100000)
+
+
+def test_audit_of_the_written_chain_reproduces_the_converter_figures(planned, tmp_path):
+    """chain.toml carries [converter] and the added stopband points: the audit of it gives
+    the plan's converter block to float precision."""
+    from bandwright.audit import audit
+    from bandwright.report.files import chain_toml
+    from bandwright.report.json_out import converter_dict
+    path = tmp_path / "chain.toml"
+    path.write_text(chain_toml(planned.chosen.chain, planned.requirement, title="t"))
+    assert "# added by the planner" in path.read_text()
+    a = audit(path)
+    got, want = converter_dict(a.analyses.converter), converter_dict(
+        planned.chosen.analyses.converter)
+    for key in ("peak_vpk", "margin_db", "snr_db", "dynamic_range_db", "total_vrms"):
+        assert got[key] == pytest.approx(want[key], rel=1e-9), key
+    assert got["folds"] == want["folds"]
