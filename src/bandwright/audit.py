@@ -43,6 +43,8 @@ class Audit:
     yield_result : YieldResult or None
         Monte Carlo yield at the file's `[tolerance]` (customary E96/E12 tolerances when it
         has none); only when the file states a mask.
+    diagnosis : Diagnosis or None
+        What a measured sweep (`--measured`) says about the chain (``bandwright.diagnosis``).
     """
 
     path: str
@@ -52,6 +54,7 @@ class Audit:
     analyses: Analyses
     checks: tuple[Check, ...]
     yield_result: YieldResult | None = None
+    diagnosis: object = None
 
 
 def _near_hz(elements) -> float:
@@ -105,14 +108,21 @@ def _passband_from_response(chain: Chain, req_common: dict) -> Passband:
                     gain_db=float(20 * math.log10(mag[k])))
 
 
-def audit(path: str | Path) -> Audit:
+def audit(path: str | Path, *, measured: str | Path | None = None) -> Audit:
     """Read an audit file and run every analysis and check on the chain it describes.
+
+    Parameters
+    ----------
+    path : str or Path
+        The audit file (chain.toml).
+    measured : str or Path, optional
+        A measured sweep (SWEEP.csv) to diagnose the chain against.
 
     Raises
     ------
     SpecError
         Bad file: syntax, unknown topology, missing or extra part, bad value (naming the
-        stage and the part).
+        stage and the part); a bad sweep (naming its file, line and column).
     """
     p = str(path)
     req, common, specs = load_chain(path)
@@ -130,7 +140,8 @@ def audit(path: str | Path) -> Audit:
         req = Requirement(path=p, passband=_passband_from_response(chain, common),
                           input=common["input"], supply=common["supply"],
                           amplifier=common["amplifier"], environment=common["environment"],
-                          noise=common["noise"], converter=common.get("converter"))
+                          noise=common["noise"], tolerance=common["tolerance"],
+                          converter=common.get("converter"))
     chain = attach_converter(chain, req.converter)
     an = analyse(chain, req, with_mask=has_mask)
     checks = tuple(all_checks(chain, an, req))
@@ -138,5 +149,10 @@ def audit(path: str | Path) -> Audit:
     if has_mask:  # the yield is the share of boards meeting the mask: it needs one
         result = plan_yield(chain, req)
         checks += tuple(yield_checks(result))
-    return Audit(path=p, requirement=req, has_mask=has_mask, chain=chain, analyses=an,
-                 checks=checks, yield_result=result)
+    out = Audit(path=p, requirement=req, has_mask=has_mask, chain=chain, analyses=an,
+                checks=checks, yield_result=result)
+    if measured is not None:
+        from bandwright.diagnosis import diagnose
+        from bandwright.inputs.sweep_file import load_sweep
+        out = replace(out, diagnosis=diagnose(out, load_sweep(measured)))
+    return out
