@@ -9,7 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
-from bandwright.amplifier import resolve_amplifier
+from bandwright.amplifier import check_tones, resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.montecarlo import YieldResult, plan_yield
 from bandwright.chain import Chain, Stage, build_chain
@@ -108,7 +108,8 @@ def _passband_from_response(chain: Chain, req_common: dict) -> Passband:
                     gain_db=float(20 * math.log10(mag[k])))
 
 
-def audit(path: str | Path, *, measured: str | Path | None = None) -> Audit:
+def audit(path: str | Path, *, measured: str | Path | None = None,
+          progress=None) -> Audit:
     """Read an audit file and run every analysis and check on the chain it describes.
 
     Parameters
@@ -117,6 +118,8 @@ def audit(path: str | Path, *, measured: str | Path | None = None) -> Audit:
         The audit file (chain.toml).
     measured : str or Path, optional
         A measured sweep (SWEEP.csv) to diagnose the chain against.
+    progress : callable(done, total), optional
+        Hears how far the Monte Carlo yield has come.
 
     Raises
     ------
@@ -131,6 +134,8 @@ def audit(path: str | Path, *, measured: str | Path | None = None) -> Audit:
     for position, topo, parts, amp, key in specs:
         model = default if amp is None else resolve_amplifier(amp, path=p, key=f"{key}.amplifier",
                                                               supply=common["supply"])
+        check_tones(model, common["input"].tones, path=p,
+                    key="amplifier" if amp is None else f"{key}.amplifier")
         # The first stage's figures are those the source sees, as in a plan.
         rs = common["input"].source_ohms if position == 1 else 0.0
         stages.append(_build_stage(p, position, topo, parts, model, key, rs))
@@ -147,7 +152,7 @@ def audit(path: str | Path, *, measured: str | Path | None = None) -> Audit:
     checks = tuple(all_checks(chain, an, req))
     result = None
     if has_mask:  # the yield is the share of boards meeting the mask: it needs one
-        result = plan_yield(chain, req)
+        result = plan_yield(chain, req, progress=progress)
         checks += tuple(yield_checks(result))
     out = Audit(path=p, requirement=req, has_mask=has_mask, chain=chain, analyses=an,
                 checks=checks, yield_result=result)

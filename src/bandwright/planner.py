@@ -155,7 +155,7 @@ def plan(requirement: Requirement, *, family: str | None = None,
         When the amplifier the requirement names does not exist or cannot swing on its rails.
     """
     model = resolve_amplifier(requirement.amplifier, path=requirement.path,
-                              supply=requirement.supply)
+                              supply=requirement.supply, tones=requirement.input.tones)
     # A converter may need stopband points the mask does not hold (each says why).
     requirement = replace(requirement,
                           stopband=requirement.stopband + anti_alias_points(requirement))

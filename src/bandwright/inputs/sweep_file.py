@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from bandwright.errors import SpecError
+from bandwright.inputs.reader import read_input_bytes
 
 __all__ = ["Sweep", "load_sweep", "check_covers", "MIN_POINTS", "COLUMNS"]
 
@@ -90,10 +91,7 @@ def load_sweep(path: str | Path) -> Sweep:
         message names the file, the line and the column.
     """
     p = str(path)
-    try:
-        raw = Path(path).read_bytes()
-    except OSError as exc:
-        raise SpecError(p, "", f"cannot read file: {exc.strerror or exc}") from None
+    raw = read_input_bytes(path)  # a regular file of bounded size, as every input
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:

@@ -24,7 +24,11 @@ from __future__ import annotations
 import io
 import math
 
-import matplotlib
+from bandwright.report._mpl import quiet_matplotlib
+
+quiet_matplotlib()  # before matplotlib is imported: its config and cache folder
+
+import matplotlib  # noqa: E402
 import numpy as np
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
