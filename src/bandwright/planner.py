@@ -12,12 +12,15 @@ import numpy as np
 from bandwright.advice import order_beyond_reach, with_gain_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
+from bandwright.analysis.aliasing import anti_alias_points
+from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.analysis.grid import noise_grid, passband_grid
 from bandwright.advice.tolerance import tighter_offer
 from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.analysis.montecarlo import YieldResult, monte_carlo, resolve_spreads
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
+from bandwright.chain.graph import attach_converter
 from bandwright.chain.stage import with_parts
 from bandwright.analysis.mask import trim_judge
 from bandwright.chain.graph import net_transfers
@@ -172,6 +175,9 @@ def plan(requirement: Requirement, *, family: str | None = None,
     """
     model = resolve_amplifier(requirement.amplifier, path=requirement.path,
                               supply=requirement.supply, tones=requirement.input.tones)
+    # A converter may need stopband points the mask does not hold (each says why).
+    requirement = replace(requirement,
+                          stopband=requirement.stopband + anti_alias_points(requirement))
     candidates = make_candidates(requirement, family=family, order=order)
     designs = []
     for c in candidates:
@@ -339,7 +345,8 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
     # even-order Chebyshev peaks above its centre), so their product is the chain's gain.
     total = float(np.prod([abs(s.gain) for s in secs]))
     inputs = dict(total_gain=total, passband_hz=passband_grid(req), max_vpk=req.input.max_vpk,
-                  tones=[(t.freq_hz, t.vpk) for t in req.input.tones])
+                  tones=[(t.freq_hz, t.vpk) for t in req.input.tones],
+                  last_ratio=_last_node_ratio(req, model))
     if len(secs) > MAX_SECTIONS:
         ordering = long_chain_order(secs, psd, nf, **inputs)
     else:
@@ -397,7 +404,7 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
                           f"{format_value(z_in, 'Ω')} in band, too low for the "
                           f"{format_value(rs, 'Ω')} source")
             assignments.insert(0, buf)
-    chain = _build_and_trim(assignments, req, model, windows)
+    chain = attach_converter(_build_and_trim(assignments, req, model, windows), req.converter)
     an = analyse(chain, req)
     checks = tuple(all_checks(chain, an, req, windows=windows))
     ordering = _built_claims(ordering, chain, origin, secs, req)
@@ -618,6 +625,17 @@ def _built_claims(ordering: Ordering, chain: Chain, origin: list[int | None],
     return replace(ordering, built_noise_vrms=noise,
                    built_gain_over_generated_db=over(arranged(lambda i: i)),
                    built_gain_over_increasing_q_db=over(arranged(lambda i: secs[i].q)))
+
+
+def _last_node_ratio(req: Requirement, model: OpAmp) -> float:
+    """The op-amps' swing over the last node's limit, the converter's full scale where that
+    is lower (1 without a converter; ``chain.ordering``): when the peak sits at full scale
+    less ``headroom_db``, every op-amp net sits the same margin inside its swing."""
+    conv = req.converter
+    if conv is None:
+        return 1.0
+    swing = swing_limit_vpk(req.supply, model.swing_to_rail_v)
+    return swing / min(swing, conv.full_scale_vpk)
 
 
 def _chain_of(assignments: list[Assignment], req: Requirement, model: OpAmp) -> Chain:

@@ -8,7 +8,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from bandwright.chain.graph import Chain, flatten, net_transfers
+from bandwright.chain.graph import (CHAIN_OUTPUT, CONVERTER_NET, Chain, converter_elements,
+                                    flatten, net_transfers)
 from bandwright.circuits.nodal import ac_solve, drawn_impedance
 from bandwright.inputs.requirement import InputSignal, Supply
 
@@ -92,13 +93,23 @@ def node_levels(chain: Chain, *, passband_hz: np.ndarray, signal: InputSignal,
             limit_vpk=swing_limit_vpk(supply, st.model.swing_to_rail_v), signal_vpk=sig,
             slew_needed_v_per_us=slew, slew_v_per_us=st.model.slew_v_per_us,
             load_ohms=loads[net], min_load_ohms=st.model.min_load_ohms))
+    if chain.converter is not None:
+        # The converter's input is the output wire: the same worst case, against its own
+        # full scale (its slew and load belong to the op-amp at "out", checked there).
+        last = next(n for n in out if n.net == CHAIN_OUTPUT)
+        out.append(NodeLevel(
+            net=CONVERTER_NET, stage=last.stage, peak_vpk=last.peak_vpk,
+            limit_vpk=chain.converter.full_scale_vpk, signal_vpk=last.signal_vpk,
+            slew_needed_v_per_us=last.slew_needed_v_per_us, slew_v_per_us=last.slew_v_per_us,
+            load_ohms=math.inf, min_load_ohms=0.0))
     return tuple(out)
 
 
 def output_loads(chain: Chain, freq_hz: np.ndarray) -> dict[str, float]:
     """Smallest |V/I| each op-amp output sees over `freq_hz`: its feedback network and the
-    next stage's input, from a solve of the whole chain as one element list."""
-    flat = flatten(chain)
+    next stage's input (the converter's input load at the output), from a solve of the whole
+    chain as one element list."""
+    flat = flatten(chain) + converter_elements(chain)
     sol = ac_solve(flat, np.asarray(freq_hz, dtype=float), source_ohms=chain.source_ohms)
     out = {}
     for net in chain.output_nets:

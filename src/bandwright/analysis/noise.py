@@ -31,6 +31,10 @@ class NoiseAnalysis:
     band_hz : (float, float)
     input_referred_v_per_rthz : ndarray
         Output density over |T(f)| to the output (source open-circuit voltage).
+    wide_band_hz : (float, float) or None
+        Without a converter: the whole report grid's span, beside the band integrated.
+    wide_vrms : float or None
+        The output noise integrated over `wide_band_hz`.
     """
 
     freq_hz: np.ndarray
@@ -40,6 +44,8 @@ class NoiseAnalysis:
     integrated_vrms: float
     band_hz: tuple[float, float]
     input_referred_v_per_rthz: np.ndarray
+    wide_band_hz: tuple[float, float] | None = None
+    wide_vrms: float | None = None
 
 
 def chain_noise(chain: Chain, freq_hz: np.ndarray, *, band_hz: tuple[float, float],

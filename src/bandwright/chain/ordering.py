@@ -18,6 +18,12 @@ Model (Schaumann & Van Valkenburg 2001, ch. 6, equal-maxima scaling [mem]; Mosch
 
 Output noise at a fixed output level is what separates orders, so the least noise is the
 most dynamic range.
+
+When the last node has a lower limit than the op-amps before it (a converter whose full
+scale sits inside the op-amps' swing), equal maxima means equal margins: every
+internal node peaks at r = (op-amp swing) / (last node's limit) times the output's level,
+so it reaches its own limit at the same input as the output reaches the converter's. The
+gain behind an internal node then falls by r and its noise cost by r² (``last_ratio``).
 """
 
 from __future__ import annotations
@@ -58,11 +64,22 @@ class OrderingProblem:
     peak: np.ndarray
     after_noise: np.ndarray
     total_gain: float
+    last_ratio: float = 1.0
+
+    def level_ratio2(self) -> np.ndarray:
+        """(P(S) / (P(all) · r_S))² for every subset, r_S = `last_ratio` for every subset
+        but the full one (the output), 1 for it."""
+        full = (1 << self.n) - 1
+        r2 = (self.peak / self.peak[full]) ** 2 / self.last_ratio ** 2
+        r2[full] = 1.0
+        return r2
 
     def cost(self, i: int, subset: int) -> float:
         """c(i, S): stage i's noise power at the output when S (with i) comes first."""
         full = (1 << self.n) - 1
-        return float((self.peak[subset] / self.peak[full]) ** 2 * self.after_noise[i, subset])
+        r = 1.0 if subset == full else self.last_ratio
+        return float((self.peak[subset] / (self.peak[full] * r)) ** 2
+                     * self.after_noise[i, subset])
 
 
 def _subset_products(log_mag: np.ndarray) -> np.ndarray:
@@ -77,7 +94,8 @@ def _subset_products(log_mag: np.ndarray) -> np.ndarray:
 
 def make_problem(sections: Sequence[Section], noise_psd: np.ndarray, noise_freq_hz: np.ndarray,
                  *, total_gain: float, passband_hz: np.ndarray, max_vpk: float,
-                 tones: Sequence[tuple[float, float]] = ()) -> OrderingProblem:
+                 tones: Sequence[tuple[float, float]] = (),
+                 last_ratio: float = 1.0) -> OrderingProblem:
     """Tables for `sections` (their shapes; gains are ignored).
 
     Parameters
@@ -92,6 +110,8 @@ def make_problem(sections: Sequence[Section], noise_psd: np.ndarray, noise_freq_
     max_vpk : float
         In-band input amplitude.
     tones : sequence of (freq_hz, vpk)
+    last_ratio : float
+        Internal nodes' limit over the last node's (>= 1; 1: the same limit everywhere).
     """
     n = len(sections)
     if n > MAX_SECTIONS:
@@ -111,7 +131,8 @@ def make_problem(sections: Sequence[Section], noise_psd: np.ndarray, noise_freq_
     # One section at a time keeps the peak memory at 2^n × F, not n × 2^n × F.
     after_noise = np.array([np.trapezoid(noise_psd[i] * after, noise_freq_hz, axis=-1)
                             for i in range(n)])
-    return OrderingProblem(n=n, peak=peak, after_noise=after_noise, total_gain=float(total_gain))
+    return OrderingProblem(n=n, peak=peak, after_noise=after_noise, total_gain=float(total_gain),
+                           last_ratio=float(last_ratio))
 
 
 def order_cost(problem: OrderingProblem, order: Sequence[int]) -> float:
@@ -143,7 +164,7 @@ def best_order_dp(problem: OrderingProblem) -> tuple[tuple[int, ...], float]:
     last = np.full(size, -1, dtype=int)
     best[0] = 0.0
     full = size - 1
-    ratio2 = (problem.peak / problem.peak[full]) ** 2
+    ratio2 = problem.level_ratio2()
     for subset in range(1, size):
         members = [i for i in range(n) if subset >> i & 1]
         prev = np.array([subset ^ (1 << i) for i in members])
@@ -167,12 +188,16 @@ def best_order(problem: OrderingProblem) -> tuple[tuple[int, ...], float]:
 
 def stage_gains(problem: OrderingProblem, order: Sequence[int]) -> tuple[float, ...]:
     """Equal-maxima gains (V/V, magnitudes) of the sections in `order`: the first
-    G·P(all)/P(S1), then P(S_{k-1})/P(S_k); their product is G."""
+    G·P(all)/P(S1), then P(S_{k-1})/P(S_k); their product is G. With a `last_ratio` r the
+    internal nodes run r times hotter: the first gain is r times larger, the last r times
+    smaller."""
     full = (1 << problem.n) - 1
+    r = problem.last_ratio
     gains, subset, prev_peak = [], 0, None
     for i in order:
         subset |= 1 << i
-        p = problem.peak[subset]
+        # An internal node's level is r times the output's: its P(S) counts as P(S)/r.
+        p = problem.peak[subset] / (1.0 if subset == full else r)
         gains.append(problem.total_gain * problem.peak[full] / p if prev_peak is None
                      else prev_peak / p)
         prev_peak = p
@@ -240,7 +265,8 @@ def choose_order(problem: OrderingProblem, sections: Sequence[Section]) -> Order
 
 def long_chain_order(sections: Sequence[Section], noise_psd: np.ndarray,
                      noise_freq_hz: np.ndarray, *, total_gain: float, passband_hz: np.ndarray,
-                     max_vpk: float, tones: Sequence[tuple[float, float]] = ()) -> Ordering:
+                     max_vpk: float, tones: Sequence[tuple[float, float]] = (),
+                     last_ratio: float = 1.0) -> Ordering:
     """Increasing-Q order with equal-maxima gains, for more sections than the exact search
     takes (it tabulates all 2^n subsets).
 
@@ -259,6 +285,7 @@ def long_chain_order(sections: Sequence[Section], noise_psd: np.ndarray,
     def evaluate(order: tuple[int, ...]) -> tuple[float, tuple[float, ...]]:
         prefix = np.cumprod(mag[list(order)], axis=0)
         peaks = max_vpk * prefix[:, :pb.size].max(axis=1) + (prefix[:, pb.size:] * tv).sum(axis=1)
+        peaks[:-1] /= last_ratio   # internal nodes run r times hotter (stage_gains)
         # after[k]: |H|² of every section behind position k.
         rev = np.cumprod(mag2[list(order)][::-1], axis=0)[::-1]
         after = np.vstack([rev[1:], np.ones((1, mag2.shape[1]))])

@@ -8,14 +8,14 @@ import io
 from typing import Any
 
 from bandwright.analysis.montecarlo import resolve_spreads
-from bandwright.chain.graph import Chain, flatten
+from bandwright.chain.graph import Chain, converter_elements, flatten
 from bandwright.parts.catalogue import ARCHETYPES
 from bandwright.parts.eseries import SERIES_NAMES, is_member
 from bandwright.parts.notation import format_value
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
 from bandwright.report.spice import spice_deck
 
-__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args"]
+__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "converter_lines"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
              "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz")
@@ -37,6 +37,19 @@ def _amplifier_lines(model, header: str) -> list[str]:
     return lines
 
 
+def converter_lines(conv) -> list[str]:
+    """`[converter]` as the requirement gave it (optional keys only when given)."""
+    if conv is None:
+        return []
+    out = ["[converter]", f"sample_rate_hz = {conv.sample_rate_hz!r}", f"bits = {conv.bits}",
+           f"full_scale_vpp = {conv.full_scale_vpp!r}"]
+    for key in ("enob", "input_ohms", "max_alias_dbfs"):
+        if getattr(conv, key) is not None:
+            out.append(f"{key} = {getattr(conv, key)!r}")
+    out += [f"input_farads = {conv.input_farads!r}", f"headroom_db = {conv.headroom_db!r}", ""]
+    return out
+
+
 def chain_toml(chain: Chain, req, *, title: str) -> str:
     """The chain in the audit format (docs/design.md), so that `bandwright audit` reproduces it."""
     out = [f"# {title}", "# Audit file written by bandwright: `bandwright audit chain.toml`.", ""]
@@ -46,8 +59,9 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
                 f"max_loss_db = {pb.max_loss_db!r}", f"gain_db = {pb.gain_db!r}",
                 f"gain_tolerance_db = {pb.gain_tolerance_db!r}", ""]
         for sp in req.stopband:
-            out += ["[[stopband]]", f"freq_hz = {sp.freq_hz!r}", f"min_loss_db = {sp.min_loss_db!r}",
-                    ""]
+            out += ["[[stopband]]"] + ([f"# added by the planner: {sp.added}"] if getattr(
+                sp, "added", "") else []) + [f"freq_hz = {sp.freq_hz!r}",
+                                              f"min_loss_db = {sp.min_loss_db!r}", ""]
     inp = req.input
     out += ["[input]", f"max_vpk = {inp.max_vpk!r}", f"source_ohms = {inp.source_ohms!r}"]
     for t in inp.tones:
@@ -65,6 +79,7 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
         if req.noise.max_output_vrms:
             out.append(f"max_output_vrms = {req.noise.max_output_vrms!r}")
         out.append("")
+    out += converter_lines(getattr(req, "converter", None))
     tol = getattr(req, "tolerance", None)
     if tol is not None:
         spreads = resolve_spreads(req)
@@ -131,7 +146,9 @@ def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
            planned: bool) -> dict[str, bytes]:
     return {
         json_name: (json_text + "\n").encode(),
-        "chain.cir": spice_deck(flatten(chain), source_ohms=chain.source_ohms,
+        # The converter's input load sits on "out" in the deck too (not in the BOM).
+        "chain.cir": spice_deck(flatten(chain) + converter_elements(chain),
+                                source_ohms=chain.source_ohms,
                                 temperature_c=req.environment.temperature_c, title=title).encode(),
         "chain.toml": chain_toml(chain, req, title=title).encode(),
         "bom.csv": bom_csv(chain, **bom_args(req, planned=planned)).encode(),

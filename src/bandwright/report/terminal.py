@@ -11,6 +11,7 @@ from rich.table import Table
 from rich.text import Text
 
 from bandwright.parts.notation import format_hz, format_value
+from bandwright.report import converter_view
 
 __all__ = ["render_plan", "render_audit", "fmt_hz", "ordering_built_text"]
 
@@ -54,7 +55,8 @@ def _requirement(req, model, console: Console) -> None:
         f"{fmt_hz(pb.bandwidth_hz)}, {pb.bandwidth_hz / pb.center_hz:.3g} of centre); gain "
         f"{pb.gain_db:g} dB ± {pb.gain_tolerance_db:g}; at most {pb.max_loss_db:.4g} dB loss in band")
     for sp in req.stopband:
-        _say(console, f"Stop: at least {sp.min_loss_db:g} dB down at {fmt_hz(sp.freq_hz)}")
+        _say(console, f"Stop: at least {sp.min_loss_db:g} dB down at {fmt_hz(sp.freq_hz)}"
+                      f"{converter_view.added_text(sp)}")
     inp = req.input
     tones = ", ".join(f"{t.vpk:g} Vpk at {fmt_hz(t.freq_hz)}" for t in inp.tones) or "none"
     _say(console, f"Input: up to {inp.max_vpk:g} Vpk in band from {format_value(inp.source_ohms, 'Ω')}"
@@ -62,6 +64,8 @@ def _requirement(req, model, console: Console) -> None:
     _say(console, f"Rails {req.supply.rails_v[0]:g} / {req.supply.rails_v[1]:+g} V; op-amp "
                   f"'{model.name}': {fmt_hz(model.gbw_hz, significant=3)} GBW, {model.slew_v_per_us:g} V/µs, "
                   f"{model.noise_v_per_rthz * 1e9:.3g} nV/√Hz; {req.environment.temperature_c:g} °C")
+    if getattr(req, "converter", None) is not None:
+        _say(console, "Converter: " + converter_view.requirement_text(req.converter))
 
 
 def render_plan(p, console: Console) -> None:
@@ -212,11 +216,17 @@ def _chain(chain, an, console: Console, *, first: str = "asked") -> None:
         f"{fmt_hz(nz.band_hz[1])}; SNR at full input {an.snr_db:.1f} dB; dynamic range "
         f"{an.dynamic_range_db:.1f} dB (input could grow {an.worst_margin_db:+.1f} dB "
         f"before the first net clips)")
+    wide = converter_view.noise_band_text(nz, fmt_hz)
+    if wide:
+        _say(console, wide)
     top = _table("Largest noise sources at the output", "source", "µV rms", "share of power")
     total2 = nz.integrated_vrms**2
     for name, v in nz.contributions_vrms[:6]:
         _row(top, name, f"{v * 1e6:.3g}", f"{100 * v * v / total2:.1f} %")
     _say(console, top)
+    if getattr(an, "converter", None) is not None:
+        for block in converter_view.terminal_blocks(an.converter):
+            _say(console, block)
 
 
 def _checks(checks, console: Console) -> None:
