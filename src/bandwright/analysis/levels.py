@@ -16,8 +16,12 @@ __all__ = ["net_transfers", "NodeLevel", "node_levels", "swing_limit_vpk", "outp
 
 
 def swing_limit_vpk(supply: Supply, swing_to_rail_v: float) -> float:
-    """V_lim = min(V+, |V-|) - swing_to_rail (references.md, "Headroom / slew")."""
-    return min(supply.rails_v[1], -supply.rails_v[0]) - swing_to_rail_v
+    """V_lim = min(V+ - V_ref, V_ref - V-) - swing_to_rail: the swing around the signal
+    reference (references.md, "Headroom / slew"; split rails: V_ref = 0, min(V+, |V-|)).
+    """
+    lo, hi = supply.rails_v
+    ref = supply.reference_v
+    return min(hi - ref, ref - lo) - swing_to_rail_v
 
 
 @dataclass(frozen=True, slots=True)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -18,7 +19,7 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "read_stop", "FREQ_RANGE_HZ", "MIN_FRACTIONAL_BANDWIDTH", "MAX_VOLTS",
            "AMPLIFIER_RANGES",
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
-           "DISTRIBUTIONS"]
+           "DISTRIBUTIONS", "SUPPLY_KEYS", "INPUT_LEVEL_KEYS", "read_supply", "read_dc_level"]
 
 SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
@@ -28,6 +29,8 @@ TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", 
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
                   "seed", "min_yield")
 DISTRIBUTIONS = ("uniform", "gaussian")
+SUPPLY_KEYS = ("rails_v", "reference_v")
+INPUT_LEVEL_KEYS = ("dc_v",)
 _MAX_TOLERANCE_PCT = 50.0
 _MAX_SAMPLES = 1_000_000
 HALF_POWER_DB = 10 * math.log10(2)
@@ -93,7 +96,8 @@ def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requi
 def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
     """The tables a requirement and an audit file share: input, supply, amplifier,
     environment, noise."""
-    inp = TableReader(path, "input", doc.get("input", {}), ("max_vpk", "source_ohms", "tone"))
+    inp = TableReader(path, "input", doc.get("input", {}),
+                      ("max_vpk", "source_ohms", "tone") + INPUT_LEVEL_KEYS)
     tones = []
     for i, t in enumerate(inp.tables("tone")):
         tr = TableReader(path, f"input.tone[{i}]", t, ("freq_hz", "vpk"))
@@ -106,14 +110,8 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
                                source_ohms=inp.number("source_ohms", 0.0, nonnegative=True,
                                                       high=_MAX_OHMS),
                                tones=tuple(tones))
-    sup = TableReader(path, "supply", doc.get("supply", {}), ("rails_v",))
-    rails = sup.pair("rails_v", low=-MAX_VOLTS, high=MAX_VOLTS) or (-5.0, 5.0)
-    if not rails[0] < rails[1]:
-        raise sup.error("rails_v", "rails reversed: expected [negative, positive]")
-    if not rails[0] < 0 < rails[1]:
-        raise sup.error("rails_v", "expected split rails around the signal reference, "
-                        "[negative, positive] (for a single supply give them relative to the "
-                        "mid-supply reference, e.g. [-2.5, 2.5])")
+    supply = read_supply(TableReader(path, "supply", doc.get("supply", {}), SUPPLY_KEYS))
+    input_signal = replace(input_signal, dc_v=read_dc_level(inp, supply))
     env = TableReader(path, "environment", doc.get("environment", {}), ("temperature_c",))
     noi = TableReader(path, "noise", doc.get("noise", {}), ("band_hz", "max_output_vrms"))
     band = noi.pair("band_hz", positive=True, low=_F_LO, high=_F_HI)
@@ -121,7 +119,7 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
         raise noi.error("band_hz", "expected [low, high] with low < high")
     return {
         "input": input_signal,
-        "supply": Supply(rails_v=rails),
+        "supply": supply,
         "amplifier": read_amplifier(path, "amplifier", doc.get("amplifier", {})),
         "environment": Environment(
             temperature_c=env.number("temperature_c", 25.0, low=-273.15, high=300.0)),
@@ -129,6 +127,45 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
                              max_output_vrms=noi.number("max_output_vrms", None, positive=True,
                                                         high=MAX_VOLTS)),
     }
+
+
+def read_supply(sup: TableReader) -> Supply:
+    """`[supply]`: `rails_v` and, for a single supply, `reference_v`.
+
+    A lower rail at or above 0 V is a single supply, its reference mid-supply unless
+    `reference_v` says otherwise; split rails (lower below 0, upper above) keep the
+    reference at ground. Whether the reference leaves the op-amp its swing is checked once
+    the op-amp is known (``amplifier.resolve_amplifier``).
+    """
+    rails = sup.pair("rails_v", low=-MAX_VOLTS, high=MAX_VOLTS) or (-5.0, 5.0)
+    if rails[0] == rails[1]:
+        raise sup.error("rails_v", "rails equal: expected [lower, upper] with lower < upper")
+    if not rails[0] < rails[1]:
+        raise sup.error("rails_v", "rails reversed: expected [lower, upper] with lower < upper")
+    single = rails[0] >= 0
+    if not single and not rails[1] > 0:
+        raise sup.error("rails_v", "both rails at or below 0 V: expected split rails "
+                        "[negative, positive] or a single supply [0, positive]")
+    if not single:
+        ref = sup.number("reference_v", 0.0)
+        if ref != 0:
+            raise sup.error("reference_v", "split rails keep the signal reference at ground "
+                            "(0 V); reference_v applies to a single supply, rails_v = [0, V+]")
+        return Supply(rails_v=rails, reference_v=0.0)
+    ref = sup.number("reference_v", (rails[0] + rails[1]) / 2)
+    if not rails[0] < ref < rails[1]:
+        raise sup.error("reference_v", f"must lie between the rails {rails[0]:g} V and "
+                        f"{rails[1]:g} V")
+    return Supply(rails_v=rails, reference_v=ref)
+
+
+def read_dc_level(inp: TableReader, supply: Supply) -> float:
+    """`[input] dc_v`: the source's DC level (default 0 V), inside the rails."""
+    dc_v = inp.number("dc_v", 0.0, low=-MAX_VOLTS, high=MAX_VOLTS)
+    lo, hi = supply.rails_v
+    if not lo <= dc_v <= hi:
+        raise inp.error("dc_v", f"beyond the rails [{lo:g}, {hi:g}] V")
+    return dc_v
 
 
 def read_amplifier(path: str, prefix: str, table: Any) -> AmplifierChoice:
