@@ -7,6 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from bandwright.analysis.bias import BiasAnalysis, bias_points, chain_reference
 from bandwright.analysis.grid import noise_band, noise_grid, passband_grid, response_grid
 from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
@@ -41,6 +42,8 @@ class Analyses:
     dynamic_range_db : float
         Largest undistorted in-band output (rms, the input scaled by `clip_scale`) over
         the integrated output noise.
+    bias : BiasAnalysis or None
+        DC bias point of every op-amp output and the chain's reference (``analysis.bias``).
     """
 
     response: Response
@@ -52,6 +55,7 @@ class Analyses:
     clip_scale: float
     snr_db: float
     dynamic_range_db: float
+    bias: BiasAnalysis | None = None
 
     @property
     def worst_margin_db(self) -> float:
@@ -73,12 +77,15 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
         return net_transfers(chain, f)[CHAIN_OUTPUT]
 
     mask = read_mask(respond, requirement) if with_mask else None
+    reference = chain_reference(chain, requirement)
+    bias = bias_points(chain, requirement, reference)
     nodes = node_levels(chain, passband_hz=passband_grid(requirement), signal=requirement.input,
-                        supply=requirement.supply)
+                        supply=requirement.supply, reference=reference,
+                        bias_v={n: b.dc_v for n, b in bias.nets.items()})
     band = noise_band(requirement)
     nf = noise_grid(requirement)
     noise = chain_noise(chain, nf, band_hz=band, temperature_c=requirement.environment.temperature_c,
-                        transfer_out=respond(nf))
+                        transfer_out=respond(nf), reference=reference)
     out_node = next(n for n in nodes if n.net == CHAIN_OUTPUT)
     scale = min((n.limit_vpk / n.peak_vpk for n in nodes if n.peak_vpk > 0), default=math.inf)
     sig_rms = out_node.signal_vpk / math.sqrt(2)
@@ -86,4 +93,4 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
     dr = _db(scale * sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
-                    dynamic_range_db=dr)
+                    dynamic_range_db=dr, bias=bias)

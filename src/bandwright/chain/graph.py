@@ -15,6 +15,7 @@ import numpy as np
 from bandwright.chain.stage import Stage, stage_output_nets
 from bandwright.circuits.elements import GROUND, Element
 from bandwright.circuits.nodal import ac_solve
+from bandwright.circuits.reference import referenced
 
 __all__ = ["Chain", "build_chain", "global_net", "flatten", "net_transfers", "CHAIN_INPUT",
            "CHAIN_OUTPUT"]
@@ -92,8 +93,12 @@ def build_chain(stages: Sequence[Stage], *, source_ohms: float = 0.0) -> Chain:
     return Chain(stages=tuple(stages), graph=g, source_ohms=float(source_ohms))
 
 
-def flatten(chain: Chain) -> tuple[Element, ...]:
-    """The whole chain as one element list (global nets; names suffixed "_s{k}")."""
+def flatten(chain: Chain, reference=None) -> tuple[Element, ...]:
+    """The whole chain as one element list (global nets; names suffixed "_s{k}").
+
+    With a single-supply `reference` (``circuits.reference.Reference``) every stage's
+    ground connection goes to the reference net and the reference network is appended.
+    """
     out: list[Element] = []
     for i, st in enumerate(chain.stages):
         last = i == len(chain.stages) - 1
@@ -102,6 +107,8 @@ def flatten(chain: Chain) -> tuple[Element, ...]:
             nets = tuple(global_net(st, n, last=last, input_net=inp) for n in e.nets)
             out.append(Element(name=f"{e.name}_s{st.position}", kind=e.kind, nets=nets,
                                value=e.value, model=e.model))
+    if reference is not None and reference.single:
+        out = [*referenced(out), *reference.elements]
     return tuple(out)
 
 

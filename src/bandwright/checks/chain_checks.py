@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 from bandwright.analysis import Analyses
+from bandwright.analysis.bias import describe
 from bandwright.chain.graph import Chain
 from bandwright.checks.base import Check
 from bandwright.circuits import topology
@@ -27,11 +28,15 @@ def headroom_checks(an: Analyses) -> list[Check]:
         m = n.margin_db
         status = "fail" if m < 0 else ("warn" if m < WARN_MARGIN_DB else "pass")
         what = "clips" if m < 0 else "peaks"
+        b = an.bias.nets.get(n.net) if an.bias is not None else None
+        around = f"; {describe(b)}" if b is not None else ""
         out.append(Check(
             id="headroom", status=status, value=n.peak_vpk, limit=n.limit_vpk, unit="Vpk",
             stage=n.stage, net=n.net,
             message=f"{what} at {n.peak_vpk:.3g} Vpk (in-band {n.signal_vpk:.3g} + tones "
-                    f"{n.peak_vpk - n.signal_vpk:.3g}); margin {m:+.1f} dB"))
+                    f"{n.peak_vpk - n.signal_vpk:.3g}){around}; {n.upper_margin_v:+.3g} V to "
+                    f"the upper swing limit {n.swing_high_v:.3g} V, {n.lower_margin_v:+.3g} V "
+                    f"to the lower {n.swing_low_v:.3g} V; margin {m:+.1f} dB"))
     return out
 
 

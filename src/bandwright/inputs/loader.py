@@ -19,11 +19,14 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "read_stop", "FREQ_RANGE_HZ", "MIN_FRACTIONAL_BANDWIDTH", "MAX_VOLTS",
            "AMPLIFIER_RANGES",
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
-           "DISTRIBUTIONS", "SUPPLY_KEYS", "INPUT_LEVEL_KEYS", "read_supply", "read_dc_level"]
+           "DISTRIBUTIONS", "SUPPLY_KEYS", "INPUT_LEVEL_KEYS", "read_supply", "read_dc_level",
+           "AMPLIFIER_DC_KEYS", "read_amplifier_dc"]
 
+#: The op-amp's DC errors (signed), read by ``read_amplifier_dc``.
+AMPLIFIER_DC_KEYS = ("offset_v", "bias_current_a")
 SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
-                  "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
+                  "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms") + AMPLIFIER_DC_KEYS
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
               "noise", "tolerance")
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
@@ -45,7 +48,8 @@ _MAX_OHMS = 1e12
 AMPLIFIER_RANGES = {"gbw_hz": (1.0, 1e11), "dc_gain_db": (20.0, 200.0),
                     "slew_v_per_us": (1e-6, 1e6), "swing_to_rail_v": (0.0, 100.0),
                     "noise_v_per_rthz": (0.0, 1e-3), "noise_a_per_rthz": (0.0, 1e-6),
-                    "noise_corner_hz": (0.0, 1e9), "min_load_ohms": (1e-3, 1e12)}
+                    "noise_corner_hz": (0.0, 1e9), "min_load_ohms": (1e-3, 1e12),
+                    "offset_v": (-0.1, 0.1), "bias_current_a": (-1e-5, 1e-5)}
 _F_LO, _F_HI = FREQ_RANGE_HZ
 
 
@@ -171,8 +175,10 @@ def read_dc_level(inp: TableReader, supply: Supply) -> float:
 def read_amplifier(path: str, prefix: str, table: Any) -> AmplifierChoice:
     """`[amplifier]` (or a stage's own): archetype name plus explicit overrides."""
     amp = TableReader(path, prefix, table, ("archetype",) + AMPLIFIER_KEYS)
-    overrides = []
+    overrides = read_amplifier_dc(amp)
     for key in AMPLIFIER_KEYS:
+        if key in AMPLIFIER_DC_KEYS:
+            continue
         if amp.has(key):
             value = amp.number(key, nonnegative=True)
             if key in ("gbw_hz", "slew_v_per_us", "dc_gain_db") and not value > 0:
@@ -182,6 +188,17 @@ def read_amplifier(path: str, prefix: str, table: Any) -> AmplifierChoice:
                 raise amp.error(key, f"outside {lo:g} … {hi:g}, the range of an op-amp model")
             overrides.append((key, value))
     return AmplifierChoice(archetype=amp.string("archetype"), overrides=tuple(overrides))
+
+
+def read_amplifier_dc(amp: TableReader) -> list[tuple[str, float]]:
+    """The op-amp's DC errors, `offset_v` (V) and `bias_current_a` (A into each input),
+    signed, within AMPLIFIER_RANGES."""
+    out = []
+    for key in AMPLIFIER_DC_KEYS:
+        if amp.has(key):
+            lo, hi = AMPLIFIER_RANGES[key]
+            out.append((key, amp.number(key, low=lo, high=hi)))
+    return out
 
 
 def read_passband(pb: TableReader) -> Passband:

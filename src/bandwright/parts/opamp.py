@@ -37,6 +37,12 @@ class OpAmp:
         1/f corner of both noise densities, Hz (0: white only).
     min_load_ohms : float
         Smallest load the output may drive with full swing, ohms.
+    offset_v : float
+        Input offset voltage, V, signed: the output sits where V+ + offset_v = V- would
+        put it. Used only for the DC bias points.
+    bias_current_a : float
+        Input bias current into each input pin, A, signed (positive: into the pin). Used
+        only for the DC bias points.
     """
 
     name: str
@@ -48,6 +54,8 @@ class OpAmp:
     noise_a_per_rthz: float
     noise_corner_hz: float
     min_load_ohms: float = 2000.0
+    offset_v: float = 0.0
+    bias_current_a: float = 0.0
 
     @property
     def a0(self) -> float:

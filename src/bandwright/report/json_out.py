@@ -79,7 +79,7 @@ def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
                    "limit_vpk": num(n.limit_vpk), "margin_db": num(n.margin_db),
                    "signal_vpk": num(n.signal_vpk),
                    "slew_needed_v_per_us": num(n.slew_needed_v_per_us),
-                   "load_ohms": num(n.load_ohms)} for n in an.nodes],
+                   "load_ohms": num(n.load_ohms), "dc_v": num(n.dc_v)} for n in an.nodes],
         "noise": {"freq_hz": _nums(nz.freq_hz), "output_v_per_rthz": _nums(nz.output_v_per_rthz),
                   "integrated_vrms": num(nz.integrated_vrms), "band_hz": list(nz.band_hz),
                   "input_referred_v_per_rthz": _nums(nz.input_referred_v_per_rthz),
