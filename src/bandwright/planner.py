@@ -10,6 +10,7 @@ from typing import Callable
 import numpy as np
 
 from bandwright.advice import order_beyond_reach, with_gain_advice
+from bandwright.supply_advice import with_supply_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
@@ -171,6 +172,8 @@ def plan(requirement: Requirement, *, family: str | None = None,
     designs.sort(key=_rank)
     designs[0] = with_gain_advice(designs[0], requirement,
                                   _rebuild(designs[0].candidate, model, windows, order))
+    designs[0] = with_supply_advice(designs[0], requirement,
+                                    _rebuild_any(designs[0].candidate, windows, order))
     designs[0] = with_yield(designs[0], requirement, progress=progress)
     return Plan(requirement=requirement, model=model, designs=tuple(designs),
                 why=_why(designs))
@@ -184,6 +187,15 @@ def _rebuild(cand: Candidate, model: OpAmp, windows: PartWindows, order: int | N
         same = [c for c in make_candidates(req, family=cand.family, order=order)
                 if c.path == cand.path]
         return build_design(same[0], req, model, windows=windows)
+    return rebuild
+
+
+def _rebuild_any(cand: Candidate, windows: PartWindows, order: int | None
+                 ) -> Callable[[Requirement], Design]:
+    """As ``_rebuild``, with the op-amp and supply the requirement names."""
+    def rebuild(req: Requirement) -> Design:
+        model = resolve_amplifier(req.amplifier, path=req.path, supply=req.supply)
+        return _rebuild(cand, model, windows, order)(req)
     return rebuild
 
 

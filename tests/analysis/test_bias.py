@@ -130,6 +130,7 @@ parts = { Rf = "9k", Rg = "1k" }
     head = next(c for c in a.checks if c.id == "headroom")
     assert head.status == "fail" and node.upper_margin_v < 0
     assert "bias +4 V" in head.message
+    assert "block DC" in head.message and "moves it +4 V from the reference" in head.message
 
 
 def test_input_with_only_capacitors_has_no_dc_return():

@@ -8,6 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from bandwright.analysis.bias import BiasAnalysis, bias_points, chain_reference
+from bandwright.analysis.input_range import InputLevel, input_levels
 from bandwright.analysis.grid import noise_band, noise_grid, passband_grid, response_grid
 from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
@@ -44,6 +45,9 @@ class Analyses:
         the integrated output noise.
     bias : BiasAnalysis or None
         DC bias point of every op-amp output and the chain's reference (``analysis.bias``).
+    inputs : tuple of InputLevel
+        Common-mode level at every op-amp's + input (single supply only,
+        ``analysis.input_range``).
     """
 
     response: Response
@@ -56,6 +60,7 @@ class Analyses:
     snr_db: float
     dynamic_range_db: float
     bias: BiasAnalysis | None = None
+    inputs: tuple[InputLevel, ...] = ()
 
     @property
     def worst_margin_db(self) -> float:
@@ -93,4 +98,6 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
     dr = _db(scale * sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
-                    dynamic_range_db=dr, bias=bias)
+                    dynamic_range_db=dr, bias=bias,
+                    inputs=input_levels(chain, requirement, bias,
+                                        passband_hz=passband_grid(requirement)))

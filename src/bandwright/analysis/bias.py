@@ -10,7 +10,7 @@ which stage's offset dominates where. Offsets add up through every DC-coupled st
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from bandwright.chain.graph import Chain, flatten
 from bandwright.circuits.nodal import dc_solve
@@ -79,12 +79,15 @@ class BiasAnalysis:
         The chain's reference (split rails: ground).
     reference_dc_v : float
         The level the reference net actually sits at, V (0 on split rails).
+    plus_dc : dict of str to (str, float)
+        Every op-amp's (flat name) + input net and its DC level, V.
     """
 
     nets: dict[str, NetBias]
     floating: tuple[FloatingInput, ...]
     reference: Reference
     reference_dc_v: float
+    plus_dc: dict[str, tuple[str, float]] = field(default_factory=dict)
 
 
 def chain_reference(chain: Chain, requirement: Requirement) -> Reference:
@@ -144,8 +147,9 @@ def bias_points(chain: Chain, requirement: Requirement, reference: Reference) ->
                      for e in flat if e.kind == "opamp" for n in e.nets[:2]
                      if n in sol.floating)
     ref_dc = sol.at(REFERENCE_NET) if reference.single and REFERENCE_NET in sol.nets else 0.0
+    plus_dc = {e.name: (e.nets[0], sol.at(e.nets[0])) for e in flat if e.kind == "opamp"}
     return BiasAnalysis(nets=nets, floating=floating, reference=reference,
-                        reference_dc_v=ref_dc)
+                        reference_dc_v=ref_dc, plus_dc=plus_dc)
 
 
 def _volts(v: float) -> str:

@@ -19,6 +19,8 @@ __all__ = ["headroom_checks", "slew_checks", "drive_checks", "gbw_checks", "nois
 
 # Less than this much headroom is a warning: op-amp swing figures are typical, not minimum.
 WARN_MARGIN_DB = 1.0
+# A source DC level that moves a net by more than this share of its room is worth a word.
+_SOURCE_SHIFT_SHARE = 0.1
 
 
 def headroom_checks(an: Analyses) -> list[Check]:
@@ -30,6 +32,14 @@ def headroom_checks(an: Analyses) -> list[Check]:
         what = "clips" if m < 0 else "peaks"
         b = an.bias.nets.get(n.net) if an.bias is not None else None
         around = f"; {describe(b)}" if b is not None else ""
+        if b is not None:
+            shift = b.source_v - an.bias.reference.reference_v
+            if abs(shift) > _SOURCE_SHIFT_SHARE * max(n.limit_vpk, 0.0) + 1e-3:
+                # DC blocks are not placed automatically: say where the level comes from.
+                around += (f"; the source's DC level (input.dc_v) moves it {shift:+.3g} V "
+                           f"from the reference through DC-coupled stages: block DC (a "
+                           f"series capacitor with a resistor to the reference) ahead of the "
+                           f"first stage with DC gain, or bias the source at the reference")
         out.append(Check(
             id="headroom", status=status, value=n.peak_vpk, limit=n.limit_vpk, unit="Vpk",
             stage=n.stage, net=n.net,

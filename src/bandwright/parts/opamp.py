@@ -43,6 +43,9 @@ class OpAmp:
     bias_current_a : float
         Input bias current into each input pin, A, signed (positive: into the pin). Used
         only for the DC bias points.
+    input_cm_to_rail_v : float
+        How close the inputs' common-mode level may come to each rail, V (negative: that
+        far beyond the rail, a rail-to-rail input). Checked on a single supply.
     """
 
     name: str
@@ -56,6 +59,7 @@ class OpAmp:
     min_load_ohms: float = 2000.0
     offset_v: float = 0.0
     bias_current_a: float = 0.0
+    input_cm_to_rail_v: float = 0.0
 
     @property
     def a0(self) -> float:

@@ -80,6 +80,7 @@ def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
                    "signal_vpk": num(n.signal_vpk),
                    "slew_needed_v_per_us": num(n.slew_needed_v_per_us),
                    "load_ohms": num(n.load_ohms), "dc_v": num(n.dc_v)} for n in an.nodes],
+        **_reference_dict(an),
         "noise": {"freq_hz": _nums(nz.freq_hz), "output_v_per_rthz": _nums(nz.output_v_per_rthz),
                   "integrated_vrms": num(nz.integrated_vrms), "band_hz": list(nz.band_hz),
                   "input_referred_v_per_rthz": _nums(nz.input_referred_v_per_rthz),
@@ -87,6 +88,18 @@ def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
                                     for s, v in nz.contributions_vrms],
                   "snr_db": num(an.snr_db), "dynamic_range_db": num(an.dynamic_range_db)},
     }
+
+
+def _reference_dict(an) -> dict[str, Any]:
+    """`reference` (single supply only: split rails add nothing): the network, its level."""
+    b = getattr(an, "bias", None)
+    if b is None or not b.reference.single:
+        return {}
+    r = b.reference
+    return {"reference": {"reference_v": num(r.reference_v), "dc_v": num(b.reference_dc_v),
+                          "buffered": r.buffered, "reason": r.reason,
+                          "components": {e.name: num(e.value) for e in r.elements
+                                         if e.kind in ("R", "C")}}}
 
 
 def _checks(checks) -> list[dict[str, Any]]:
