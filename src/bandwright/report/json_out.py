@@ -205,6 +205,9 @@ def audit_to_dict(a) -> dict[str, Any]:
     out.update(chain_dict(a.chain, a.analyses, a.checks))
     y = getattr(a, "yield_result", None)
     out["yield"] = yield_dict(y) if y is not None else None
+    if getattr(a, "diagnosis", None) is not None:
+        from bandwright.report.diagnosis_view import diagnosis_dict
+        out["diagnosis"] = diagnosis_dict(a.diagnosis)
     return out
 
 

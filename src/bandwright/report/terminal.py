@@ -116,6 +116,8 @@ def render_audit(a, console: Console) -> None:
     _say(console, "ideal: the parts as given with an ideal op-amp; built: with this op-amp "
                   "(finite GBW), the first stage as the source drives it")
     _checks(a.checks, console)
+    from bandwright.report.diagnosis_view import render_diagnosis
+    render_diagnosis(a, console)
 
 
 def _yield(y, console: Console) -> None:
