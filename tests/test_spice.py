@@ -261,7 +261,8 @@ def test_noise_matches_nodal_solver(case, tmp_path):
     share = _opamp_share(ref)
     if opamp_noise:
         assert share.max() > 0.5
-        white = [replace(e, model=replace(e.model, noise_corner_hz=0.0))
+        white = [replace(e, model=replace(e.model, noise_corner_hz=0.0,
+                                          current_noise_corner_hz=0.0))
                  if e.kind == "opamp" else e for e in els]
         low = noise(white, spice.freq_hz[:1], source_ohms=source_ohms,
                     temperature_c=temperature_c)

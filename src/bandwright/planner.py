@@ -10,15 +10,19 @@ from typing import Callable
 import numpy as np
 
 from bandwright.advice import order_beyond_reach, with_gain_advice
-from bandwright.supply_advice import with_supply_advice
+from bandwright.advice.supply import with_supply_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.grid import noise_grid, passband_grid
-from bandwright.analysis.montecarlo import YieldResult, monte_carlo, tighter_offer
+from bandwright.advice.tolerance import tighter_offer
+from bandwright.analysis.montecarlo import YieldResult, monte_carlo
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.stage import with_parts
-from bandwright.chain.trim import passband_score, trim_stage
+from bandwright.analysis.mask import trim_judge
+from bandwright.chain.graph import net_transfers
+from bandwright.chain import trim
+from bandwright.chain.trim import trim_stage
 from bandwright.chain.ordering import (MAX_SECTIONS, Ordering, choose_order, long_chain_order,
                                       make_problem)
 from bandwright.checks import all_checks
@@ -204,7 +208,7 @@ def with_yield(design: Design, requirement: Requirement, *,
                offer: bool = True) -> Design:
     """`design` with its Monte Carlo yield and the `yield` check; unchanged when it has no
     chain. With `offer`, a yield below target also gets the tighter parts that would reach
-    it (``analysis.montecarlo.plan_yield``); a result already computed is reused."""
+    it (``advice.tolerance.plan_yield``); a result already computed is reused."""
     if design.chain is None:
         return design
     report = None if progress is None else (lambda done, total: progress("yield", done, total))
@@ -377,27 +381,33 @@ def _build_and_trim(assignments: list[Assignment], req: Requirement, model: OpAm
 
     Rounded parts leave each section a little off; in a staggered chain those errors add up
     to a passband error no single section shows. Stages are trimmed from the output back
-    (``chain.trim.trim_stage``), each judged by the whole chain's passband.
+    (``chain.trim.trim_stage``), each judged by the whole chain against the whole
+    requirement (``analysis.mask.trim_judge``: passband, every stopband point, every
+    output's headroom). A trim that moves a stage's f0 beyond ``chain.trim.REDESIGN_SHARE``
+    is a redesign and the stage's reasons say so.
     """
     chain = _chain_of(assignments, req, model)
-    pb = req.passband
-    band = passband_grid(req)
+    judge = trim_judge(chain, req)
     for _ in range(_TRIM_PASSES):
-        if passband_score(chain, band, gain_db=pb.gain_db, max_loss_db=pb.max_loss_db,
-                          tol_db=pb.gain_tolerance_db) <= _TRIM_WHEN_ABOVE:
+        now = judge(net_transfers(chain, judge.freq_hz))
+        if now[1][0] <= _TRIM_WHEN_ABOVE:
             break  # comfortably inside: leave every section on its own target
         changed = False
         for k in range(len(chain.stages) - 1, -1, -1):
-            new = trim_stage(chain, k, band, gain_db=pb.gain_db, max_loss_db=pb.max_loss_db,
-                             tol_db=pb.gain_tolerance_db, r_series=req.design.resistor_series,
+            new = trim_stage(chain, k, freq_hz=judge.freq_hz, judge=judge,
+                             r_series=req.design.resistor_series,
                              c_series=req.design.capacitor_series)
             if new is None:
                 continue
             st = chain.stages[k]
             rs = chain.source_ohms if k == 0 else 0.0
             stages = list(chain.stages)
-            stages[k] = with_parts(st, new, source_ohms=rs,
-                                   note="parts trimmed for the chain's passband")
+            note = "parts trimmed for the chain's mask"
+            if new.redesign:
+                note = (f"parts re-chosen for the chain's mask: f0 moved {100 * new.f0_shift:+.1f} %, "
+                        f"more than the {100 * trim.REDESIGN_SHARE:g} % a rounding trim moves it — "
+                        f"a redesign of this section, not rounding")
+            stages[k] = with_parts(st, new.components, source_ohms=rs, note=note)
             chain = build_chain(stages, source_ohms=chain.source_ohms)
             changed = True
         if not changed:

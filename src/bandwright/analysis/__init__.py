@@ -13,7 +13,8 @@ from bandwright.analysis.grid import noise_band, noise_grid, passband_grid, resp
 from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
 from bandwright.analysis.response import MaskReading, Response, read_mask
-from bandwright.chain.graph import CHAIN_OUTPUT, Chain
+from bandwright.analysis.stability import StagePoles, stage_poles
+from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
 from bandwright.inputs.requirement import Requirement
 
 __all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis"]
@@ -43,6 +44,9 @@ class Analyses:
     dynamic_range_db : float
         Largest undistorted in-band output (rms, the input scaled by `clip_scale`) over
         the integrated output noise.
+    stability : tuple of StagePoles
+        Every stage's poles as built and whether they all lie in the left half-plane
+        (``analysis.stability``); the steady-state figures above mean nothing otherwise.
     bias : BiasAnalysis or None
         DC bias point of every op-amp output and the chain's reference (``analysis.bias``).
     inputs : tuple of InputLevel
@@ -59,8 +63,14 @@ class Analyses:
     clip_scale: float
     snr_db: float
     dynamic_range_db: float
+    stability: tuple[StagePoles, ...] = ()
     bias: BiasAnalysis | None = None
     inputs: tuple[InputLevel, ...] = ()
+
+    @property
+    def stable(self) -> bool:
+        """Every stage's poles in the open left half-plane."""
+        return all(p.stable for p in self.stability)
 
     @property
     def worst_margin_db(self) -> float:
@@ -96,8 +106,12 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
     sig_rms = out_node.signal_vpk / math.sqrt(2)
     snr = _db(sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
     dr = _db(scale * sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
+    poles = tuple(stage_poles(st.elements, position=st.position,
+                              source_ohms=chain.source_ohms
+                              if chain.input_of(st) == CHAIN_INPUT else 0.0)
+                  for st in chain.stages)
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
-                    dynamic_range_db=dr, bias=bias,
+                    dynamic_range_db=dr, stability=poles, bias=bias,
                     inputs=input_levels(chain, requirement, bias,
                                         passband_hz=passband_grid(requirement)))

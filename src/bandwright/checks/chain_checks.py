@@ -80,13 +80,23 @@ def drive_checks(an: Analyses) -> list[Check]:
     return out
 
 
-def gbw_checks(chain: Chain) -> list[Check]:
+def gbw_checks(chain: Chain, stability=()) -> list[Check]:
     """Per stage: the GBW its topology needs at the f0, Q and gain it was built for, against
-    the op-amp's. The built figures are used, so a plan and the audit of its parts agree."""
+    the op-amp's. The built figures are used, so a plan and the audit of its parts agree.
+    A stage whose poles `stability` (``analysis.stability.StagePoles`` per stage) puts in
+    the right half-plane is said to be unstable: no GBW figure describes it."""
+    from bandwright.checks.stability import unstable_message
     out = []
+    unstable = {sp.position: sp for sp in stability if not sp.stable}
     for st in chain.stages:
         b = st.built
         have = st.model.gbw_hz
+        if st.position in unstable:
+            out.append(Check(
+                id="gbw", status="fail", value=None, limit=have, unit="Hz", stage=st.position,
+                message=f"{st.topology} is unstable with these parts and this op-amp: "
+                        f"{unstable_message(unstable[st.position])}"))
+            continue
         if st.kind != "gain" and not (math.isfinite(b.q) and b.q > 0
                                       and math.isfinite(b.f0_hz) and b.f0_hz > 0):
             # Audited parts can make a stage that oscillates with this op-amp: a figure of

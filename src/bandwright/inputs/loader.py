@@ -27,7 +27,8 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
 AMPLIFIER_DC_KEYS = ("offset_v", "bias_current_a", "input_cm_to_rail_v")
 SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
-                  "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms") + AMPLIFIER_DC_KEYS
+                  "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms",
+                  "current_noise_corner_hz") + AMPLIFIER_DC_KEYS
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
               "noise", "tolerance")
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
@@ -62,6 +63,7 @@ AMPLIFIER_RANGES = {"gbw_hz": (1.0, 1e11), "dc_gain_db": (20.0, 200.0),
                     "slew_v_per_us": (1e-6, 1e6), "swing_to_rail_v": (0.0, 100.0),
                     "noise_v_per_rthz": (0.0, 1e-3), "noise_a_per_rthz": (0.0, 1e-6),
                     "noise_corner_hz": (0.0, 1e9), "min_load_ohms": (1e-3, 1e12),
+                    "current_noise_corner_hz": (0.0, 1e9),
                     "offset_v": (-0.1, 0.1), "bias_current_a": (-1e-5, 1e-5),
                     "input_cm_to_rail_v": (-1.0, 100.0)}
 _F_LO, _F_HI = FREQ_RANGE_HZ

@@ -19,8 +19,8 @@ from bandwright.report.spice import spice_deck
 __all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
-             "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "offset_v", "bias_current_a",
-             "input_cm_to_rail_v")
+             "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz",
+             "offset_v", "bias_current_a", "input_cm_to_rail_v")
 
 
 def _toml_value(v: Any) -> str:
