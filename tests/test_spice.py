@@ -94,12 +94,12 @@ def test_hand_built_mfb_section_meets_its_design_equations():
 # --- the deck's text (docs/design.md, "Interfaces": chain.cir) --------------------------------
 
 def test_deck_text_follows_the_chain_cir_interface():
-    """docs/design.md: VIN src 0 AC 1, RSRC src in (source_ohms), .temp, no .control, .end last."""
+    """docs/design.md: VIN src 0 DC <dc_v> AC 1, RSRC src in (source_ohms), .temp, no .control, .end last."""
     deck = spice_deck(inverting_amp(generic_opamp(**NOISY)), source_ohms=600.0,
                       temperature_c=40.0, title="inverting amplifier")
     lines = deck.splitlines()
     assert lines[0] == "inverting amplifier"
-    assert any(re.fullmatch(r"VIN src 0 AC 1( DC 0)?", line) for line in lines)
+    assert any(re.fullmatch(r"VIN src 0 DC 0 AC 1", line) for line in lines)
     rsrc = [line.split() for line in lines if line.startswith("RSRC ")]
     assert len(rsrc) == 1 and rsrc[0][1:3] == ["src", "in"]
     assert parse_value(rsrc[0][3]) == 600.0

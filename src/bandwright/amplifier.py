@@ -28,6 +28,16 @@ def resolve_amplifier(choice: AmplifierChoice, *, path: str, key: str = "amplifi
                         + ", ".join(ARCHETYPES), value=choice.archetype) from None
     except ValueError as exc:
         raise SpecError(path, key, str(exc)) from None
+    # A reference off-centre by choice is its own error; rails too close for any reference
+    # fall through to the rails' message below.
+    if (supply is not None and supply.single
+            and swing_limit_vpk(supply, model.swing_to_rail_v) <= 0
+            and (supply.rails_v[1] - supply.rails_v[0]) / 2 > model.swing_to_rail_v):
+        lo, hi = supply.rails_v
+        raise SpecError(path, "supply.reference_v",
+                        f"the reference {supply.reference_v:g} V is within the op-amp's swing "
+                        f"loss ({model.swing_to_rail_v:g} V) of a rail [{lo:g}, {hi:g}] V: no "
+                        f"output swing around it", value=supply.reference_v)
     if supply is not None and swing_limit_vpk(supply, model.swing_to_rail_v) <= 0:
         raise SpecError(path, "supply.rails_v",
                         f"rails leave no output swing: the op-amp needs "

@@ -10,13 +10,13 @@ from typing import Callable
 import numpy as np
 
 from bandwright.advice import order_beyond_reach, with_gain_advice
+from bandwright.advice.supply import with_supply_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.analysis.aliasing import anti_alias_points
 from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.analysis.grid import noise_grid, passband_grid
 from bandwright.advice.tolerance import tighter_offer
-from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.analysis.montecarlo import YieldResult, monte_carlo, resolve_spreads
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
@@ -196,6 +196,8 @@ def plan(requirement: Requirement, *, family: str | None = None,
     designs.sort(key=_rank)
     designs[0] = with_gain_advice(designs[0], requirement,
                                   _rebuild(designs[0].candidate, model, windows, order))
+    designs[0] = with_supply_advice(designs[0], requirement,
+                                    _rebuild_any(designs[0].candidate, windows, order))
     designs[0] = with_yield(designs[0], requirement, progress=progress)
     return Plan(requirement=requirement, model=model, designs=tuple(designs),
                 why=_why(designs))
@@ -209,6 +211,15 @@ def _rebuild(cand: Candidate, model: OpAmp, windows: PartWindows, order: int | N
         same = [c for c in make_candidates(req, family=cand.family, order=order)
                 if c.path == cand.path]
         return build_design(same[0], req, model, windows=windows)
+    return rebuild
+
+
+def _rebuild_any(cand: Candidate, windows: PartWindows, order: int | None
+                 ) -> Callable[[Requirement], Design]:
+    """As ``_rebuild``, with the op-amp and supply the requirement names."""
+    def rebuild(req: Requirement) -> Design:
+        model = resolve_amplifier(req.amplifier, path=req.path, supply=req.supply)
+        return _rebuild(cand, model, windows, order)(req)
     return rebuild
 
 

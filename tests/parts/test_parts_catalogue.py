@@ -16,10 +16,20 @@ from bandwright.parts.catalogue import (ARCHETYPES, DEFAULT_ARCHETYPE, OVERRIDE_
                                         make_opamp, suggest_faster)
 from bandwright.parts.opamp import OpAmp
 
-NAMES = ["micropower", "precision", "general", "low-noise", "wideband", "fast"]
+NAMES = ["micropower", "precision", "general", "low-noise", "wideband", "fast", "rail-to-rail",
+         "rail-to-rail-precision"]
+#: Signed figures: DC errors and a common-mode range that may reach beyond the rails.
+SIGNED = ("offset_v", "bias_current_a", "input_cm_to_rail_v")
 
 
-def test_six_archetypes_named_as_their_keys():
+def test_rail_to_rail_classes_leave_the_faster_class_suggestions_alone():
+    """They share GBW with general and precision, and the name breaks the tie."""
+    assert suggest_faster(2e6) == "general" and suggest_faster(0.5e6) == "precision"
+    assert ARCHETYPES["rail-to-rail"].swing_to_rail_v < 0.05
+    assert ARCHETYPES["rail-to-rail"].input_cm_to_rail_v < 0
+
+
+def test_archetypes_named_as_their_keys():
     assert list(ARCHETYPES) == NAMES
     for name, amp in ARCHETYPES.items():
         assert isinstance(amp, OpAmp)
@@ -33,7 +43,7 @@ def test_figures_are_finite_and_in_range(name):
     for field in dataclasses.fields(OpAmp):
         if field.name != "name":
             value = getattr(amp, field.name)
-            assert math.isfinite(value) and value >= 0, field.name
+            assert math.isfinite(value) and (value >= 0 or field.name in SIGNED), field.name
     assert amp.gbw_hz > 0 and amp.slew_v_per_us > 0 and amp.min_load_ohms > 0
     assert amp.dc_gain_db >= 80  # open-loop gain of every voltage-feedback class, common practice
 
@@ -47,9 +57,13 @@ def test_single_pole_model_is_unity_at_gbw(name):
 
 
 def test_class_traits_common_practice():
-    gbw = {n: a.gbw_hz for n, a in ARCHETYPES.items()}
-    assert list(gbw) == sorted(gbw, key=gbw.get)  # listed from slowest to fastest
-    amps = ARCHETYPES.values()
+    # The six general classes, listed from slowest to fastest; the rail-to-rail classes
+    # follow them and have the smallest swing of all.
+    general = {n: ARCHETYPES[n] for n in NAMES[:6]}
+    gbw = {n: a.gbw_hz for n, a in general.items()}
+    assert list(gbw) == sorted(gbw, key=gbw.get)
+    assert min(ARCHETYPES.values(), key=lambda a: a.swing_to_rail_v).name.startswith("rail-to-rail")
+    amps = general.values()
     assert min(amps, key=lambda a: a.noise_v_per_rthz).name == "low-noise"
     assert max(amps, key=lambda a: a.dc_gain_db).name == "precision"
     assert min(amps, key=lambda a: a.noise_corner_hz).name == "precision"
@@ -74,7 +88,8 @@ def test_make_opamp_defaults_to_general():
 def test_make_opamp_applies_every_override_key():
     overrides = {"gbw_hz": 12e6, "dc_gain_db": 96.0, "slew_v_per_us": 9.0, "swing_to_rail_v": 0.2,
                  "noise_v_per_rthz": 7e-9, "noise_a_per_rthz": 0.3e-12, "noise_corner_hz": 0.0,
-                 "min_load_ohms": 1e3, "current_noise_corner_hz": 40.0}
+                 "min_load_ohms": 1e3, "current_noise_corner_hz": 40.0, "offset_v": -50e-6,
+                 "bias_current_a": -1e-9, "input_cm_to_rail_v": -0.1}
     assert set(overrides) == set(OVERRIDE_KEYS)
     amp = make_opamp(archetype="wideband", overrides=overrides)
     assert amp.name == "custom"

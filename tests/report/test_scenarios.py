@@ -16,6 +16,8 @@ EXPECTED = {
     "lockin_mains": (0, None, None),
     "machine_vibration": (0, None, None),
     "ultrasonic_ranging": (0, None, None),
+    # One 3.3 V rail: every output biased at the 1.65 V reference, every + input in range.
+    "piezo_pump_3v3": (0, None, None),
     # Staggered sections of Q 80 to 160: built and inside the mask, but not in production.
     "tone_detector": (1, "yield", "boards"),
 }
@@ -38,3 +40,14 @@ def test_scenario_plans_as_expected(name):
         assert all(word in c.message for c in failing)
     # Every plan meets its mask as built, whatever else it shows.
     assert all(c.status != "fail" for c in p.checks if c.id == "mask")
+
+
+def test_single_supply_scenario_sits_at_its_reference():
+    """The 3.3 V scenario: every op-amp output's bias point within 20 mV of the 1.65 V
+    reference (the source is biased there too, so only op-amp offsets move it), and the
+    reference network is in the plan."""
+    p = case("piezo_pump_3v3").plan
+    an = p.chosen.analyses
+    assert all(abs(n.dc_v - 1.65) < 0.02 for n in an.nodes)
+    assert an.bias.reference.single and an.bias.reference.elements
+    assert any(c.id == "input_range" for c in p.checks)

@@ -5,6 +5,7 @@
 | ``order`` | a stopband that needs an order above the largest: which order, what fits |
 | ``gain`` | a chain that clips: the largest gain that fits, planned again to make sure |
 | ``tolerance`` | a yield below target: the tighter parts that reach it |
+| ``supply`` | a single-supply chain that clips: why, and a rail-to-rail class or a higher supply, planned |
 
 A section no topology builds with the op-amp given is answered in ``planner._nearest_fix``
 with a faster op-amp class.
@@ -15,7 +16,9 @@ from __future__ import annotations
 from bandwright.advice.gain import with_gain_advice
 from bandwright.advice.order import (MAX_BUILT_ORDER, frequency_of_omega, omega_for_loss,
                                      order_beyond_reach, prototype_loss_db)
+from bandwright.advice.supply import with_supply_advice
 from bandwright.advice.tolerance import plan_yield, tighter_offer
 
 __all__ = ["MAX_BUILT_ORDER", "prototype_loss_db", "omega_for_loss", "frequency_of_omega",
-           "order_beyond_reach", "with_gain_advice", "tighter_offer", "plan_yield"]
+           "order_beyond_reach", "with_gain_advice", "tighter_offer", "plan_yield",
+           "with_supply_advice"]

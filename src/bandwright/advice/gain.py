@@ -71,6 +71,9 @@ def with_gain_advice(design, req: Requirement, rebuild: Callable[[Requirement], 
                   f"(asked: {pb.gain_db:g} dB): lower input.max_vpk{tones}, or widen the rails")
     else:
         where = ("converter's full scale" if worst.net == "adc" else
+                 f"swing around the {req.supply.reference_v:g} V reference on "
+                 f"{req.supply.rails_v[0]:g}/{req.supply.rails_v[1]:g} V"
+                 if req.supply.single else
                  f"swing on {req.supply.rails_v[0]:g}/{req.supply.rails_v[1]:+g} V rails")
         advice = (f"; at most about {found[0]:.1f} dB of gain fits the ±{worst.limit_vpk:.3g} V "
                   f"{where} with "

@@ -7,6 +7,8 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from bandwright.analysis.bias import BiasAnalysis, bias_points, chain_reference
+from bandwright.analysis.input_range import InputLevel, input_levels
 from bandwright.analysis.grid import noise_band, noise_grid, passband_grid, response_grid
 from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
@@ -49,6 +51,11 @@ class Analyses:
         (``analysis.stability``); the steady-state figures above mean nothing otherwise.
     converter : ConverterAnalysis or None
         The converter's view (full scale, folds, noise to the bits); None without one.
+    bias : BiasAnalysis or None
+        DC bias point of every op-amp output and the chain's reference (``analysis.bias``).
+    inputs : tuple of InputLevel
+        Common-mode level at every op-amp's + input (single supply only,
+        ``analysis.input_range``).
     """
 
     response: Response
@@ -62,6 +69,8 @@ class Analyses:
     dynamic_range_db: float
     stability: tuple[StagePoles, ...] = ()
     converter: ConverterAnalysis | None = None
+    bias: BiasAnalysis | None = None
+    inputs: tuple[InputLevel, ...] = ()
 
     @property
     def stable(self) -> bool:
@@ -91,18 +100,21 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
         return net_transfers(chain, f)[CHAIN_OUTPUT]
 
     mask = read_mask(respond, requirement) if with_mask else None
+    reference = chain_reference(chain, requirement)
+    bias = bias_points(chain, requirement, reference)
     nodes = node_levels(chain, passband_hz=passband_grid(requirement), signal=requirement.input,
-                        supply=requirement.supply)
+                        supply=requirement.supply, reference=reference,
+                        bias_v={n: b.dc_v for n, b in bias.nets.items()})
     band = noise_band(requirement)
     nf = noise_grid(requirement)
     noise = chain_noise(chain, nf, band_hz=band, temperature_c=requirement.environment.temperature_c,
-                        transfer_out=respond(nf))
+                        transfer_out=respond(nf), reference=reference)
     if conv is None and requirement.noise.band_hz is None:
         # Beside the band integrated, the whole report grid: how much lies outside it.
         wide = (float(grid[0]), float(grid[-1]))
         wf = np.geomspace(wide[0], wide[1], 401)
         w = chain_noise(chain, wf, band_hz=wide, temperature_c=requirement.environment.temperature_c,
-                        transfer_out=respond(wf))
+                        transfer_out=respond(wf), reference=reference)
         noise = replace(noise, wide_band_hz=wide, wide_vrms=w.integrated_vrms)
     out_node = next(n for n in nodes if n.net == CHAIN_OUTPUT)
     scale = min((n.limit_vpk / n.peak_vpk for n in nodes if n.peak_vpk > 0), default=math.inf)
@@ -118,4 +130,6 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
         signal_out_vpk=out_node.signal_vpk)
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
-                    dynamic_range_db=dr, stability=poles, converter=conv_an)
+                    dynamic_range_db=dr, stability=poles, converter=conv_an, bias=bias,
+                    inputs=input_levels(chain, requirement, bias,
+                                        passband_hz=passband_grid(requirement)))

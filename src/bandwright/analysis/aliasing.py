@@ -14,7 +14,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from bandwright.inputs.requirement import Converter, Requirement, StopbandPoint
+from bandwright.inputs.requirement import Requirement, StopbandPoint
 
 __all__ = ["Fold", "alias_hz", "tone_label", "tone_folds", "fold_intervals",
            "folded_noise_vrms", "noise_fold_top_hz", "vrms_dbfs", "vpk_dbfs",

@@ -17,8 +17,12 @@ __all__ = ["net_transfers", "NodeLevel", "node_levels", "swing_limit_vpk", "outp
 
 
 def swing_limit_vpk(supply: Supply, swing_to_rail_v: float) -> float:
-    """V_lim = min(V+, |V-|) - swing_to_rail (docs/methods.md, "Headroom / slew")."""
-    return min(supply.rails_v[1], -supply.rails_v[0]) - swing_to_rail_v
+    """V_lim = min(V+ - V_ref, V_ref - V-) - swing_to_rail: the swing around the signal
+    reference (docs/methods.md, "Headroom / slew"; split rails: V_ref = 0, min(V+, |V-|)).
+    """
+    lo, hi = supply.rails_v
+    ref = supply.reference_v
+    return min(hi - ref, ref - lo) - swing_to_rail_v
 
 
 @dataclass(frozen=True, slots=True)
@@ -54,6 +58,19 @@ class NodeLevel:
     slew_v_per_us: float
     load_ohms: float
     min_load_ohms: float
+    dc_v: float = 0.0
+    swing_low_v: float = -math.inf
+    swing_high_v: float = math.inf
+
+    @property
+    def upper_margin_v(self) -> float:
+        """How far the worst positive peak stays below the upper swing limit, V."""
+        return self.swing_high_v - (self.dc_v + self.peak_vpk)
+
+    @property
+    def lower_margin_v(self) -> float:
+        """How far the worst negative peak stays above the lower swing limit, V."""
+        return (self.dc_v - self.peak_vpk) - self.swing_low_v
 
     @property
     def margin_db(self) -> float:
@@ -64,8 +81,14 @@ class NodeLevel:
 
 
 def node_levels(chain: Chain, *, passband_hz: np.ndarray, signal: InputSignal,
-                supply: Supply) -> tuple[NodeLevel, ...]:
+                supply: Supply, bias_v: dict[str, float] | None = None,
+                reference=None) -> tuple[NodeLevel, ...]:
     """Worst-case peak, slew and load at every op-amp output.
+
+    With `bias_v` (DC level of each net, ``analysis.bias``) the limit is the room the bias
+    leaves: the smaller of (V+ - swing) - bias and bias - (V- + swing), so a net clips when
+    bias + peak passes the upper swing limit or bias - peak the lower. Without it each net
+    sits at the reference.
 
     Notes
     -----
@@ -79,7 +102,7 @@ def node_levels(chain: Chain, *, passband_hz: np.ndarray, signal: InputSignal,
     tv = np.array([t.vpk for t in signal.tones], dtype=float)
     freqs = np.concatenate([pb, tf])
     transfers = net_transfers(chain, freqs)
-    loads = output_loads(chain, freqs)
+    loads = output_loads(chain, freqs, reference=reference)
     out = []
     for net in chain.output_nets:
         st = chain.stage_of(net)
@@ -88,28 +111,39 @@ def node_levels(chain: Chain, *, passband_hz: np.ndarray, signal: InputSignal,
         tones = float(np.sum(tv * mag[pb.size:]))
         slew = 2 * math.pi * (signal.max_vpk * float(np.max(pb * mag[: pb.size]))
                               + float(np.sum(tf * tv * mag[pb.size:]))) / 1e6
+        swing = st.model.swing_to_rail_v
+        low_v, high_v = supply.rails_v[0] + swing, supply.rails_v[1] - swing
+        if bias_v is None:
+            dc_v, limit = supply.reference_v, swing_limit_vpk(supply, swing)
+        else:
+            dc_v = bias_v[net]
+            limit = min(high_v - dc_v, dc_v - low_v)
         out.append(NodeLevel(
             net=net, stage=st.position, peak_vpk=sig + tones,
-            limit_vpk=swing_limit_vpk(supply, st.model.swing_to_rail_v), signal_vpk=sig,
+            limit_vpk=limit, signal_vpk=sig,
             slew_needed_v_per_us=slew, slew_v_per_us=st.model.slew_v_per_us,
-            load_ohms=loads[net], min_load_ohms=st.model.min_load_ohms))
+            load_ohms=loads[net], min_load_ohms=st.model.min_load_ohms,
+            dc_v=dc_v, swing_low_v=low_v, swing_high_v=high_v))
     if chain.converter is not None:
         # The converter's input is the output wire: the same worst case, against its own
-        # full scale (its slew and load belong to the op-amp at "out", checked there).
+        # full scale around the signal reference (its slew and load belong to the op-amp at
+        # "out", checked there).
         last = next(n for n in out if n.net == CHAIN_OUTPUT)
+        fs = chain.converter.full_scale_vpk
         out.append(NodeLevel(
             net=CONVERTER_NET, stage=last.stage, peak_vpk=last.peak_vpk,
-            limit_vpk=chain.converter.full_scale_vpk, signal_vpk=last.signal_vpk,
+            limit_vpk=fs - abs(last.dc_v - supply.reference_v), signal_vpk=last.signal_vpk,
             slew_needed_v_per_us=last.slew_needed_v_per_us, slew_v_per_us=last.slew_v_per_us,
-            load_ohms=math.inf, min_load_ohms=0.0))
+            load_ohms=math.inf, min_load_ohms=0.0, dc_v=last.dc_v,
+            swing_low_v=supply.reference_v - fs, swing_high_v=supply.reference_v + fs))
     return tuple(out)
 
 
-def output_loads(chain: Chain, freq_hz: np.ndarray) -> dict[str, float]:
+def output_loads(chain: Chain, freq_hz: np.ndarray, *, reference=None) -> dict[str, float]:
     """Smallest |V/I| each op-amp output sees over `freq_hz`: its feedback network and the
     next stage's input (the converter's input load at the output), from a solve of the whole
-    chain as one element list."""
-    flat = flatten(chain) + converter_elements(chain)
+    chain as one element list (with its reference network on a single supply)."""
+    flat = flatten(chain, reference) + converter_elements(chain)
     sol = ac_solve(flat, np.asarray(freq_hz, dtype=float), source_ohms=chain.source_ohms)
     out = {}
     for net in chain.output_nets:

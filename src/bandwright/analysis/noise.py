@@ -49,16 +49,19 @@ class NoiseAnalysis:
 
 
 def chain_noise(chain: Chain, freq_hz: np.ndarray, *, band_hz: tuple[float, float],
-                temperature_c: float, transfer_out: np.ndarray) -> NoiseAnalysis:
+                temperature_c: float, transfer_out: np.ndarray,
+                reference=None) -> NoiseAnalysis:
     """Adjoint noise analysis of the whole chain as one element list.
 
     Notes
     -----
     Every resistor's 4kTR (source resistance included), every op-amp's e_n (white + 1/f) and
     i_n into each input; output PSD S = Σ |G_i|² S_i (docs/methods.md, "Noise"; Motchenbacher &
-    Connelly 1993, ch. 2 [mem]); integrated by the trapezoid rule over `band_hz`.
+    Connelly 1993, ch. 2 [mem]); integrated by the trapezoid rule over `band_hz`. On a
+    single supply the `reference` network is part of the list: its divider's 4kTR and its
+    follower's noise count.
     """
-    res = nodal_noise(flatten(chain), freq_hz, out_net=CHAIN_OUTPUT,
+    res = nodal_noise(flatten(chain, reference), freq_hz, out_net=CHAIN_OUTPUT,
                       source_ohms=chain.source_ohms, temperature_c=temperature_c)
     total = float(res.integrated_vrms(band_hz))
     shares = []

@@ -19,6 +19,7 @@ from bandwright.chain.stage import Stage, stage_output_nets
 from bandwright.circuits.elements import GROUND, Element
 from bandwright.circuits.nodal import ac_solve
 from bandwright.inputs.requirement import Converter
+from bandwright.circuits.reference import referenced
 
 __all__ = ["Chain", "build_chain", "global_net", "flatten", "net_transfers", "CHAIN_INPUT",
            "CHAIN_OUTPUT", "CONVERTER_NET", "attach_converter", "converter_elements"]
@@ -128,8 +129,12 @@ def converter_elements(chain: Chain) -> tuple[Element, ...]:
     return tuple(out)
 
 
-def flatten(chain: Chain) -> tuple[Element, ...]:
-    """The whole chain as one element list (global nets; names suffixed "_s{k}")."""
+def flatten(chain: Chain, reference=None) -> tuple[Element, ...]:
+    """The whole chain as one element list (global nets; names suffixed "_s{k}").
+
+    With a single-supply `reference` (``circuits.reference.Reference``) every stage's
+    ground connection goes to the reference net and the reference network is appended.
+    """
     out: list[Element] = []
     for i, st in enumerate(chain.stages):
         last = i == len(chain.stages) - 1
@@ -138,6 +143,8 @@ def flatten(chain: Chain) -> tuple[Element, ...]:
             nets = tuple(global_net(st, n, last=last, input_net=inp) for n in e.nets)
             out.append(Element(name=f"{e.name}_s{st.position}", kind=e.kind, nets=nets,
                                value=e.value, model=e.model))
+    if reference is not None and reference.single:
+        out = [*referenced(out), *reference.elements]
     return tuple(out)
 
 

@@ -6,6 +6,7 @@ from bandwright.analysis import Analyses
 from bandwright.chain.graph import Chain
 from bandwright.checks.alias import alias_checks, settling_checks
 from bandwright.checks.base import Check, worst_status
+from bandwright.checks.bias_checks import dc_return_checks, input_range_checks
 from bandwright.checks.chain_checks import (drive_checks, gbw_checks, headroom_checks,
                                             noise_checks, parts_checks, slew_checks)
 from bandwright.checks.mask import mask_checks
@@ -25,6 +26,8 @@ def all_checks(chain: Chain, an: Analyses, requirement: Requirement, *,
     if an.mask is not None:
         out += mask_checks(an.mask, requirement)
     out += headroom_checks(an)
+    out += dc_return_checks(an)
+    out += input_range_checks(an)
     out += slew_checks(an)
     out += drive_checks(an)
     out += settling_checks(an)

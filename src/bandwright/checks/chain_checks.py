@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 from bandwright.analysis import Analyses
+from bandwright.analysis.bias import describe
 from bandwright.chain.graph import CONVERTER_NET, Chain
 from bandwright.checks.base import Check
 from bandwright.circuits import topology
@@ -18,6 +19,8 @@ __all__ = ["headroom_checks", "slew_checks", "drive_checks", "gbw_checks", "nois
 
 # Less than this much headroom is a warning: op-amp swing figures are typical, not minimum.
 WARN_MARGIN_DB = 1.0
+# A source DC level that moves a net by more than this share of its room is worth a word.
+_SOURCE_SHIFT_SHARE = 0.1
 
 
 def headroom_checks(an: Analyses) -> list[Check]:
@@ -33,11 +36,24 @@ def headroom_checks(an: Analyses) -> list[Check]:
         what = ("overranges the converter" if conv else "clips") if m < 0 else "peaks"
         tail = f" of the converter's ±{n.limit_vpk:.4g} V full scale (aim: {warn_db:g} dB " \
                f"below it)" if conv else ""
+        b = an.bias.nets.get(n.net) if an.bias is not None else None
+        around = f"; {describe(b)}" if b is not None else ""
+        if b is not None:
+            shift = b.source_v - an.bias.reference.reference_v
+            if abs(shift) > _SOURCE_SHIFT_SHARE * max(n.limit_vpk, 0.0) + 1e-3:
+                # DC blocks are not placed automatically: say where the level comes from.
+                around += (f"; the source's DC level (input.dc_v) moves it {shift:+.3g} V "
+                           f"from the reference through DC-coupled stages: block DC (a "
+                           f"series capacitor with a resistor to the reference) ahead of the "
+                           f"first stage with DC gain, or bias the source at the reference")
+        swing = "" if conv else (f"; {n.upper_margin_v:+.3g} V to the upper swing limit "
+                                 f"{n.swing_high_v:.3g} V, {n.lower_margin_v:+.3g} V to the "
+                                 f"lower {n.swing_low_v:.3g} V")
         out.append(Check(
             id="headroom", status=status, value=n.peak_vpk, limit=n.limit_vpk, unit="Vpk",
             stage=n.stage, net=n.net,
             message=f"{what} at {n.peak_vpk:.3g} Vpk (in-band {n.signal_vpk:.3g} + tones "
-                    f"{n.peak_vpk - n.signal_vpk:.3g}); margin {m:+.1f} dB{tail}"))
+                    f"{n.peak_vpk - n.signal_vpk:.3g}){around}{swing}; margin {m:+.1f} dB{tail}"))
     return out
 
 

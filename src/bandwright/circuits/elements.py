@@ -12,11 +12,15 @@ from typing import Literal
 
 from bandwright.parts.opamp import OpAmp
 
-__all__ = ["Element", "ElementKind", "GROUND", "resistor", "capacitor", "opamp",
+__all__ = ["Element", "ElementKind", "GROUND", "REFERENCE_NET", "SUPPLY_NET", "resistor", "capacitor", "opamp",
            "opamp_output_nets", "passive_values"]
 
 ElementKind = Literal["R", "C", "opamp"]
 GROUND = "0"
+#: The signal reference of a single supply (mid-rail): where a split-rail circuit has ground.
+REFERENCE_NET = "ref"
+#: The positive rail of a single supply: a DC source, so an AC ground.
+SUPPLY_NET = "vcc"
 
 
 @dataclass(frozen=True, slots=True)

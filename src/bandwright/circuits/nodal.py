@@ -40,7 +40,7 @@ from typing import Sequence
 
 import numpy as np
 
-from bandwright.circuits.elements import GROUND, Element
+from bandwright.circuits.elements import GROUND, SUPPLY_NET, Element
 
 __all__ = [
     "BOLTZMANN_J_PER_K",
@@ -55,6 +55,9 @@ __all__ = [
     "drawn_impedance",
     "input_impedance_min",
     "input_impedance_max",
+    "DcSolution",
+    "dc_solve",
+    "floating_nets",
 ]
 
 BOLTZMANN_J_PER_K = 1.380649e-23  # exact since the 2019 SI redefinition
@@ -126,7 +129,7 @@ class MnaSystem:
         KeyError
             If the net is not in the element list.
         """
-        if net == GROUND:
+        if net in (GROUND, SUPPLY_NET):
             return -1
         try:
             return self.nets.index(net)
@@ -135,10 +138,11 @@ class MnaSystem:
 
 
 def _net_order(elements: Sequence[Element], input_net: str) -> tuple[str, ...]:
+    # The supply rail is an ideal DC source: for small signals it is ground.
     nets: list[str] = [input_net] if input_net != GROUND else []
     for e in elements:
         for n in e.nets:
-            if n != GROUND and n not in nets:
+            if n not in (GROUND, SUPPLY_NET) and n not in nets:
                 nets.append(n)
     return tuple(nets)
 
@@ -219,6 +223,7 @@ def mna_system(elements: Sequence[Element], *, input_net: str = "in", source_ohm
     gnd = size  # ground gets a scratch slot that is sliced off, so stamps need no branches
     idx = {n: i for i, n in enumerate(nets)}
     idx[GROUND] = gnd
+    idx[SUPPLY_NET] = gnd
 
     passives = [e for e in elements if e.kind in ("R", "C")]
     n_p = len(passives)
@@ -351,7 +356,7 @@ class NodalSolution:
         KeyError
             If `net` is not in the circuit.
         """
-        if net == GROUND:
+        if net in (GROUND, SUPPLY_NET):
             return np.zeros(self.voltages.shape[:-1], dtype=complex)
         if net not in self.nets:
             raise KeyError(f"net {net!r} is not in the element list (nets: {self.nets})")
@@ -630,3 +635,185 @@ def input_impedance_max(elements, freq_hz: np.ndarray) -> float:
     """Largest |Z_in| of a stage over `freq_hz` (inf when it draws no current)."""
     z = _input_impedance(elements, freq_hz)
     return float(z.max()) if z.size else math.inf
+
+
+@dataclass(frozen=True, slots=True)
+class DcSolution:
+    """Operating point of an element list, split by source (superposition).
+
+    Attributes
+    ----------
+    nets : tuple of str
+        Non-ground nets, in the order of the last axis of every array.
+    shares : dict of str to ndarray of float, shape (N,)
+        Node voltages caused by each DC source alone, V: "input" (the source's DC level),
+        "<net> fixed" (a net held at a fixed voltage), "<op-amp> offset", "<op-amp> bias+",
+        "<op-amp> bias-" (input bias currents into the + and - pins).
+    floating : tuple of str
+        Nets with no DC path (through resistors, op-amp outputs or sources) to a held net;
+        they were tied to ground through ``FLOAT_SHUNT_OHMS`` to keep the system solvable,
+        so their voltages mean little.
+    """
+
+    nets: tuple[str, ...]
+    shares: dict[str, np.ndarray]
+    floating: tuple[str, ...]
+
+    @property
+    def voltages(self) -> np.ndarray:
+        """Total node voltages, V (the sum of every share)."""
+        return np.sum(np.stack(list(self.shares.values())), axis=0) if self.shares else \
+            np.zeros(len(self.nets))
+
+    def at(self, net: str, share: str | None = None) -> float:
+        """Voltage of `net` (0 for ground), total or of one share, V."""
+        if net == GROUND:
+            return 0.0
+        v = self.voltages if share is None else self.shares[share]
+        return float(v[self.nets.index(net)])
+
+
+#: Shunt that holds a net with no DC path (SPICE's ``rshunt`` idea): large enough to leave
+#: every other net alone, small enough for a well-posed solve.
+FLOAT_SHUNT_OHMS = 1e15
+
+
+def floating_nets(elements: Sequence[Element], *, held: Sequence[str]) -> tuple[str, ...]:
+    """Nets with no DC path to a held net.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The element list.
+    held : sequence of str
+        Nets whose DC voltage is set from outside (ground, sources, fixed nets).
+
+    Returns
+    -------
+    tuple of str
+        Nets that reach no held net and no op-amp output through resistors, in element
+        order. An op-amp input among them has no DC return path: its bias current has
+        nowhere to go and its operating point is undefined.
+
+    Notes
+    -----
+    At DC a capacitor is an open circuit and an op-amp output a voltage source; a net is
+    defined when a chain of resistors joins it to a source (Vlach & Singhal 1994, ch. 3:
+    a node with no conductive path makes G singular [mem]).
+    """
+    import networkx as nx
+
+    g = nx.Graph()
+    anchored = {GROUND, SUPPLY_NET, *held}
+    for e in elements:
+        g.add_nodes_from(e.nets)
+        if e.kind == "R":
+            g.add_edge(*e.nets)
+        elif e.kind == "opamp":
+            anchored.add(e.nets[2])
+    reach: set[str] = set()
+    for n in anchored:
+        if n in g:
+            reach |= nx.node_connected_component(g, n)
+    out: list[str] = []
+    for e in elements:
+        for n in e.nets:
+            if n not in reach and n not in anchored and n not in out:
+                out.append(n)
+    return tuple(out)
+
+
+def dc_solve(elements: Sequence[Element], *, input_net: str = "in", source_ohms: float = 0.0,
+             input_dc_v: float = 0.0, fixed_v: dict[str, float] | None = None) -> DcSolution:
+    """DC operating point with the op-amps' offset voltages and input bias currents.
+
+    Parameters
+    ----------
+    elements : sequence of Element
+        The element list (capacitors are open at DC).
+    input_net : str
+        Net driven by the signal source through `source_ohms`.
+    source_ohms : float
+        Source resistance, ohms (0: the source holds `input_net`).
+    input_dc_v : float
+        The source's open-circuit DC level, V.
+    fixed_v : dict of str to float, optional
+        Nets held at a fixed voltage by ideal sources (a rail, an ideal reference), V.
+
+    Returns
+    -------
+    DcSolution
+        Every source's share of every node voltage, and the nets without a DC path.
+
+    Notes
+    -----
+    The MNA system of ``mna_system`` at s = 0 ([1]_, [2]_ ch. 3), solved once for all
+    right-hand sides. An op-amp with offset V_os and input bias current I_b into each pin
+    (the usual DC error model: Franco 2015, §5.1-5.2 [mem]) has the row
+    ``V_out/A0 - (V+ - V-) = V_os`` and sinks I_b at each input net. Each source is a
+    column of its own, so the shares add up to the operating point (superposition; the
+    model is linear).
+    """
+    fixed = dict(fixed_v or {})
+    held = [input_net, *fixed]
+    floating = floating_nets(elements, held=held)
+    nets: list[str] = [input_net]
+    for e in elements:
+        for n in e.nets:
+            if n != GROUND and n not in nets:
+                nets.append(n)
+    for n in fixed:
+        if n not in nets:
+            nets.append(n)
+    n_nets = len(nets)
+    ideal_source = source_ohms == 0.0
+    opamps = [e for e in elements if e.kind == "opamp"]
+    fixed_names = list(fixed)
+    size = n_nets + int(ideal_source) + len(fixed_names) + len(opamps)
+    idx = {n: i for i, n in enumerate(nets)}
+    idx[GROUND] = size  # scratch slot, sliced off
+    g = np.zeros((size + 1, size + 1))
+    for e in elements:
+        if e.kind == "R":
+            a, b = idx[e.nets[0]], idx[e.nets[1]]
+            y = 1.0 / e.value
+            g[a, a] += y
+            g[b, b] += y
+            g[a, b] -= y
+            g[b, a] -= y
+    for n in floating:
+        g[idx[n], idx[n]] += 1.0 / FLOAT_SHUNT_OHMS
+    columns: list[tuple[str, dict[int, float]]] = []
+    k_in = idx[input_net]
+    row = n_nets
+    if ideal_source:
+        g[row, k_in] = g[k_in, row] = 1.0
+        columns.append(("input", {row: input_dc_v}))
+        row += 1
+    else:
+        g[k_in, k_in] += 1.0 / source_ohms
+        columns.append(("input", {k_in: input_dc_v / source_ohms}))
+    for n in fixed_names:
+        g[row, idx[n]] = g[idx[n], row] = 1.0
+        columns.append((f"{n} fixed", {row: fixed[n]}))
+        row += 1
+    for e in opamps:
+        plus, minus, out = (idx[n] for n in e.nets)
+        model = e.model
+        g[row, out] = 0.0 if math.isinf(model.gbw_hz) else 1.0 / model.a0
+        g[row, plus] -= 1.0
+        g[row, minus] += 1.0
+        g[out, row] += 1.0
+        vos = getattr(model, "offset_v", 0.0)
+        ib = getattr(model, "bias_current_a", 0.0)
+        columns.append((f"{e.name} offset", {row: vos}))
+        columns.append((f"{e.name} bias+", {plus: -ib}))
+        columns.append((f"{e.name} bias-", {minus: -ib}))
+        row += 1
+    rhs = np.zeros((size + 1, len(columns)))
+    for j, (_, entries) in enumerate(columns):
+        for i, v in entries.items():
+            rhs[i, j] += v
+    x = np.linalg.solve(g[:size, :size], rhs[:size])
+    shares = {name: x[:n_nets, j].copy() for j, (name, _) in enumerate(columns)}
+    return DcSolution(nets=tuple(nets), shares=shares, floating=floating)

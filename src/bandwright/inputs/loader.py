@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -20,11 +21,15 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "AMPLIFIER_RANGES",
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
            "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES",
-           "CONVERTER_KEYS", "read_converter"]
+           "CONVERTER_KEYS", "read_converter",
+           "SUPPLY_KEYS", "INPUT_LEVEL_KEYS", "read_supply", "read_dc_level",
+           "AMPLIFIER_DC_KEYS", "read_amplifier_dc"]
 
+#: The op-amp's DC errors (signed) and input common-mode range, read by ``read_amplifier_dc``.
+AMPLIFIER_DC_KEYS = ("offset_v", "bias_current_a", "input_cm_to_rail_v")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
                   "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms",
-                  "current_noise_corner_hz")
+                  "current_noise_corner_hz") + AMPLIFIER_DC_KEYS
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
               "noise", "tolerance", "converter")
 CONVERTER_KEYS = ("sample_rate_hz", "bits", "full_scale_vpp", "enob", "input_ohms",
@@ -32,6 +37,8 @@ CONVERTER_KEYS = ("sample_rate_hz", "bits", "full_scale_vpp", "enob", "input_ohm
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
                   "seed", "min_yield")
 DISTRIBUTIONS = ("uniform", "gaussian")
+SUPPLY_KEYS = ("rails_v", "reference_v")
+INPUT_LEVEL_KEYS = ("dc_v",)
 _MAX_TOLERANCE_PCT = 50.0
 # Monte Carlo time grows linearly with samples × stages; 100,000 samples of a two-stage
 # chain take about half a minute here, with a progress bar (docs/user-guide.md).
@@ -59,7 +66,9 @@ AMPLIFIER_RANGES = {"gbw_hz": (1.0, 1e11), "dc_gain_db": (20.0, 200.0),
                     "slew_v_per_us": (1e-6, 1e6), "swing_to_rail_v": (0.0, 100.0),
                     "noise_v_per_rthz": (0.0, 1e-3), "noise_a_per_rthz": (0.0, 1e-6),
                     "noise_corner_hz": (0.0, 1e9), "min_load_ohms": (1e-3, 1e12),
-                    "current_noise_corner_hz": (0.0, 1e9)}
+                    "current_noise_corner_hz": (0.0, 1e9),
+                    "offset_v": (-0.1, 0.1), "bias_current_a": (-1e-5, 1e-5),
+                    "input_cm_to_rail_v": (-1.0, 100.0)}
 _F_LO, _F_HI = FREQ_RANGE_HZ
 
 
@@ -112,7 +121,8 @@ def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requi
 def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
     """The tables a requirement and an audit file share: input, supply, amplifier,
     environment, noise."""
-    inp = TableReader(path, "input", doc.get("input", {}), ("max_vpk", "source_ohms", "tone"))
+    inp = TableReader(path, "input", doc.get("input", {}),
+                      ("max_vpk", "source_ohms", "tone") + INPUT_LEVEL_KEYS)
     tones = []
     if len(inp.tables("tone")) > MAX_TONES:
         raise SpecError(path, "input.tone", f"{len(inp.tables('tone'))} tones; at most "
@@ -128,14 +138,8 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
                                source_ohms=inp.number("source_ohms", 0.0, nonnegative=True,
                                                       high=_MAX_OHMS),
                                tones=tuple(tones))
-    sup = TableReader(path, "supply", doc.get("supply", {}), ("rails_v",))
-    rails = sup.pair("rails_v", low=-MAX_VOLTS, high=MAX_VOLTS) or (-5.0, 5.0)
-    if not rails[0] < rails[1]:
-        raise sup.error("rails_v", "rails reversed: expected [negative, positive]")
-    if not rails[0] < 0 < rails[1]:
-        raise sup.error("rails_v", "expected split rails around the signal reference, "
-                        "[negative, positive] (for a single supply give them relative to the "
-                        "mid-supply reference, e.g. [-2.5, 2.5])")
+    supply = read_supply(TableReader(path, "supply", doc.get("supply", {}), SUPPLY_KEYS))
+    input_signal = replace(input_signal, dc_v=read_dc_level(inp, supply))
     env = TableReader(path, "environment", doc.get("environment", {}), ("temperature_c",))
     noi = TableReader(path, "noise", doc.get("noise", {}), ("band_hz", "max_output_vrms"))
     band = noi.pair("band_hz", positive=True, low=_F_LO, high=_F_HI)
@@ -143,7 +147,7 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
         raise noi.error("band_hz", "expected [low, high] with low < high")
     return {
         "input": input_signal,
-        "supply": Supply(rails_v=rails),
+        "supply": supply,
         "amplifier": read_amplifier(path, "amplifier", doc.get("amplifier", {})),
         "environment": Environment(
             temperature_c=env.number("temperature_c", 25.0, low=TEMPERATURE_RANGE_C[0],
@@ -154,11 +158,52 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
     }
 
 
+def read_supply(sup: TableReader) -> Supply:
+    """`[supply]`: `rails_v` and, for a single supply, `reference_v`.
+
+    A lower rail at or above 0 V is a single supply, its reference mid-supply unless
+    `reference_v` says otherwise; split rails (lower below 0, upper above) keep the
+    reference at ground. Whether the reference leaves the op-amp its swing is checked once
+    the op-amp is known (``amplifier.resolve_amplifier``).
+    """
+    rails = sup.pair("rails_v", low=-MAX_VOLTS, high=MAX_VOLTS) or (-5.0, 5.0)
+    if rails[0] == rails[1]:
+        raise sup.error("rails_v", "rails equal: expected [lower, upper] with lower < upper")
+    if not rails[0] < rails[1]:
+        raise sup.error("rails_v", "rails reversed: expected [lower, upper] with lower < upper")
+    single = rails[0] >= 0
+    if not single and not rails[1] > 0:
+        raise sup.error("rails_v", "both rails at or below 0 V: expected split rails "
+                        "[negative, positive] or a single supply [0, positive]")
+    if not single:
+        ref = sup.number("reference_v", 0.0)
+        if ref != 0:
+            raise sup.error("reference_v", "split rails keep the signal reference at ground "
+                            "(0 V); reference_v applies to a single supply, rails_v = [0, V+]")
+        return Supply(rails_v=rails, reference_v=0.0)
+    ref = sup.number("reference_v", (rails[0] + rails[1]) / 2)
+    if not rails[0] < ref < rails[1]:
+        raise sup.error("reference_v", f"must lie between the rails {rails[0]:g} V and "
+                        f"{rails[1]:g} V")
+    return Supply(rails_v=rails, reference_v=ref)
+
+
+def read_dc_level(inp: TableReader, supply: Supply) -> float:
+    """`[input] dc_v`: the source's DC level (default 0 V), inside the rails."""
+    dc_v = inp.number("dc_v", 0.0, low=-MAX_VOLTS, high=MAX_VOLTS)
+    lo, hi = supply.rails_v
+    if not lo <= dc_v <= hi:
+        raise inp.error("dc_v", f"beyond the rails [{lo:g}, {hi:g}] V")
+    return dc_v
+
+
 def read_amplifier(path: str, prefix: str, table: Any) -> AmplifierChoice:
     """`[amplifier]` (or a stage's own): archetype name plus explicit overrides."""
     amp = TableReader(path, prefix, table, ("archetype",) + AMPLIFIER_KEYS)
-    overrides = []
+    overrides = read_amplifier_dc(amp)
     for key in AMPLIFIER_KEYS:
+        if key in AMPLIFIER_DC_KEYS:
+            continue
         if amp.has(key):
             value = amp.number(key, nonnegative=True)
             if key in ("gbw_hz", "slew_v_per_us", "dc_gain_db") and not value > 0:
@@ -168,6 +213,18 @@ def read_amplifier(path: str, prefix: str, table: Any) -> AmplifierChoice:
                 raise amp.error(key, f"outside {lo:g} … {hi:g}, the range of an op-amp model")
             overrides.append((key, value))
     return AmplifierChoice(archetype=amp.string("archetype"), overrides=tuple(overrides))
+
+
+def read_amplifier_dc(amp: TableReader) -> list[tuple[str, float]]:
+    """The op-amp's DC errors, `offset_v` (V) and `bias_current_a` (A into each input),
+    signed, and `input_cm_to_rail_v` (V; negative: beyond the rail), within
+    AMPLIFIER_RANGES."""
+    out = []
+    for key in AMPLIFIER_DC_KEYS:
+        if amp.has(key):
+            lo, hi = AMPLIFIER_RANGES[key]
+            out.append((key, amp.number(key, low=lo, high=hi)))
+    return out
 
 
 def read_passband(pb: TableReader) -> Passband:

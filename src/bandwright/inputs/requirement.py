@@ -70,11 +70,26 @@ class InputSignal:
     max_vpk: float = 1.0
     source_ohms: float = 0.0
     tones: tuple[Tone, ...] = ()
+    #: `[input] dc_v`: the source's DC level (open-circuit voltage at DC), V.
+    dc_v: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
 class Supply:
+    """`[supply]`: the rails and the signal reference the chain is built around.
+
+    Split rails (lower rail below 0, upper above) have their reference at ground, 0 V. A
+    single supply (lower rail at or above 0) has it at `reference_v`, mid-supply unless
+    given.
+    """
+
     rails_v: tuple[float, float] = (-5.0, 5.0)
+    reference_v: float = 0.0
+
+    @property
+    def single(self) -> bool:
+        """True for a single supply: the lower rail at or above 0 V."""
+        return self.rails_v[0] >= 0.0
 
 
 @dataclass(frozen=True, slots=True)

@@ -3,21 +3,27 @@
 The archetypes are classes of op-amp, not products: each carries round, typical figures
 of its class (common practice), to be overridden key by key by the requirement.
 
-=============  ========  ======  =======  =======  ========  =========  ======  =======  =======
-name           GBW       A0      slew     swing    e_n       i_n        corner  i corner load
-=============  ========  ======  =======  =======  ========  =========  ======  =======  =======
-micropower     200 kHz   100 dB  0.1      0.05 V   50 nV     1 fA       200 Hz  200 Hz   20 kΩ
-precision      1 MHz     130 dB  0.4      1.0 V    8 nV      100 fA     3 Hz    100 Hz   2 kΩ
-general        3 MHz     100 dB  5        1.0 V    15 nV     10 fA      50 Hz   50 Hz    2 kΩ
-low-noise      10 MHz    110 dB  7        1.5 V    3 nV      500 fA     10 Hz   10 Hz    600 Ω
-wideband       50 MHz    100 dB  30       1.0 V    6 nV      1 pA       200 Hz  200 Hz   500 Ω
-fast           200 MHz   85 dB   300      1.2 V    4 nV      2 pA       1 kHz   1 kHz    150 Ω
-=============  ========  ======  =======  =======  ========  =========  ======  =======  =======
+======================  ========  ======  =====  =======  ======  ======  ======  ========  =====  ======  ======  =======
+name                    GBW       A0      slew   swing    e_n     i_n     corner  i corner  load   V_os    I_b     CM
+======================  ========  ======  =====  =======  ======  ======  ======  ========  =====  ======  ======  =======
+micropower              200 kHz   100 dB  0.1    0.05 V   50 nV   1 fA    200 Hz  200 Hz    20 kΩ  1 mV    1 pA    0.1 V
+precision               1 MHz     130 dB  0.4    1.0 V    8 nV    100 fA  3 Hz    100 Hz    2 kΩ   60 µV   2 nA    1.5 V
+general                 3 MHz     100 dB  5      1.0 V    15 nV   10 fA   50 Hz   50 Hz     2 kΩ   1 mV    20 pA   1.5 V
+low-noise               10 MHz    110 dB  7      1.5 V    3 nV    500 fA  10 Hz   10 Hz     600 Ω  100 µV  200 nA  2.0 V
+wideband                50 MHz    100 dB  30     1.0 V    6 nV    1 pA    200 Hz  200 Hz    500 Ω  1 mV    2 µA    1.5 V
+fast                    200 MHz   85 dB   300    1.2 V    4 nV    2 pA    1 kHz   1 kHz     150 Ω  2 mV    5 µA    1.5 V
+rail-to-rail            3 MHz     110 dB  2      0.02 V   12 nV   5 fA    200 Hz  200 Hz    2 kΩ   0.5 mV  1 pA    -0.1 V
+rail-to-rail-precision  1 MHz     120 dB  0.5    0.01 V   20 nV   10 fA   10 Hz   10 Hz     10 kΩ  10 µV   50 pA   -0.1 V
+======================  ========  ======  =====  =======  ======  ======  ======  ========  =====  ======  ======  =======
 
 Slew in V/µs, noise densities per √Hz, "corner" the voltage noise's 1/f corner, "i corner"
-the current noise's, "load" the smallest load for full swing. The precision class has a
-bipolar input: its current noise turns up (1/f) far above its voltage-noise corner (common
-practice); the others keep one corner for both.
+the current noise's, "load" the smallest load for full swing, V_os the input offset voltage
+and I_b the input bias current into each pin (typical magnitudes of the class, common
+practice; taken as positive: the bias points use them as given), CM how close the inputs'
+common-mode level may come to each rail (negative: beyond the rail). The precision class has
+a bipolar input: its current noise turns up (1/f) far above its voltage-noise corner (common
+practice); the others keep one corner for both. The two rail-to-rail classes share their GBW
+with precision and general, so the faster class ``suggest_faster`` names is unchanged.
 """
 
 from __future__ import annotations
@@ -39,23 +45,40 @@ DEFAULT_ARCHETYPE = "general"
 ARCHETYPES: dict[str, OpAmp] = {
     "micropower": OpAmp(name="micropower", gbw_hz=200e3, dc_gain_db=100.0, slew_v_per_us=0.1,
                         swing_to_rail_v=0.05, noise_v_per_rthz=50e-9, noise_a_per_rthz=1e-15,
-                        noise_corner_hz=200.0, min_load_ohms=20e3),
+                        noise_corner_hz=200.0, min_load_ohms=20e3,
+                        offset_v=0.001, bias_current_a=1e-12, input_cm_to_rail_v=0.1),
     "precision": OpAmp(name="precision", gbw_hz=1e6, dc_gain_db=130.0, slew_v_per_us=0.4,
                        swing_to_rail_v=1.0, noise_v_per_rthz=8e-9, noise_a_per_rthz=100e-15,
                        noise_corner_hz=3.0, min_load_ohms=2e3,
+                       offset_v=6e-05, bias_current_a=2e-09, input_cm_to_rail_v=1.5,
                        current_noise_corner_hz=100.0),
     "general": OpAmp(name="general", gbw_hz=3e6, dc_gain_db=100.0, slew_v_per_us=5.0,
                      swing_to_rail_v=1.0, noise_v_per_rthz=15e-9, noise_a_per_rthz=10e-15,
-                     noise_corner_hz=50.0, min_load_ohms=2e3),
+                     noise_corner_hz=50.0, min_load_ohms=2e3,
+                     offset_v=0.001, bias_current_a=2e-11, input_cm_to_rail_v=1.5),
     "low-noise": OpAmp(name="low-noise", gbw_hz=10e6, dc_gain_db=110.0, slew_v_per_us=7.0,
                        swing_to_rail_v=1.5, noise_v_per_rthz=3e-9, noise_a_per_rthz=500e-15,
-                       noise_corner_hz=10.0, min_load_ohms=600.0),
+                       noise_corner_hz=10.0, min_load_ohms=600.0,
+                       offset_v=0.0001, bias_current_a=2e-07, input_cm_to_rail_v=2.0),
     "wideband": OpAmp(name="wideband", gbw_hz=50e6, dc_gain_db=100.0, slew_v_per_us=30.0,
                       swing_to_rail_v=1.0, noise_v_per_rthz=6e-9, noise_a_per_rthz=1e-12,
-                      noise_corner_hz=200.0, min_load_ohms=500.0),
+                      noise_corner_hz=200.0, min_load_ohms=500.0,
+                      offset_v=0.001, bias_current_a=2e-06, input_cm_to_rail_v=1.5),
     "fast": OpAmp(name="fast", gbw_hz=200e6, dc_gain_db=85.0, slew_v_per_us=300.0,
                   swing_to_rail_v=1.2, noise_v_per_rthz=4e-9, noise_a_per_rthz=2e-12,
-                  noise_corner_hz=1e3, min_load_ohms=150.0),
+                  noise_corner_hz=1e3, min_load_ohms=150.0,
+                  offset_v=0.002, bias_current_a=5e-06, input_cm_to_rail_v=1.5),
+    # Rail-to-rail input and output classes for low single supplies: the output swings to
+    # within tens of mV of each rail, the inputs work 0.1 V beyond either rail.
+    "rail-to-rail": OpAmp(name="rail-to-rail", gbw_hz=3e6, dc_gain_db=110.0, slew_v_per_us=2.0,
+                          swing_to_rail_v=0.02, noise_v_per_rthz=12e-9, noise_a_per_rthz=5e-15,
+                          noise_corner_hz=200.0, min_load_ohms=2e3,
+                          offset_v=0.0005, bias_current_a=1e-12, input_cm_to_rail_v=-0.1),
+    "rail-to-rail-precision": OpAmp(name="rail-to-rail-precision", gbw_hz=1e6,
+                                    dc_gain_db=120.0, slew_v_per_us=0.5, swing_to_rail_v=0.01,
+                                    noise_v_per_rthz=20e-9, noise_a_per_rthz=10e-15,
+                                    noise_corner_hz=10.0, min_load_ohms=10e3, offset_v=1e-05,
+                                    bias_current_a=5e-11, input_cm_to_rail_v=-0.1),
 }
 
 # Requirement key -> (lowest allowed value, whether the lowest is allowed itself).
@@ -68,6 +91,10 @@ _OVERRIDE_RULES: dict[str, tuple[float, bool]] = {
     "noise_a_per_rthz": (0.0, True),
     "noise_corner_hz": (0.0, True),
     "min_load_ohms": (0.0, False),
+    # Signed DC errors: any finite value (checked against AMPLIFIER_RANGES by the loader).
+    "offset_v": (-math.inf, True),
+    "bias_current_a": (-math.inf, True),
+    "input_cm_to_rail_v": (-math.inf, True),
     "current_noise_corner_hz": (0.0, True),
 }
 OVERRIDE_KEYS: tuple[str, ...] = tuple(_OVERRIDE_RULES)

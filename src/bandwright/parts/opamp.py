@@ -38,6 +38,15 @@ class OpAmp:
         unless `current_noise_corner_hz` is set.
     min_load_ohms : float
         Smallest load the output may drive with full swing, ohms.
+    offset_v : float
+        Input offset voltage, V, signed: the output sits where V+ + offset_v = V- would
+        put it. Used only for the DC bias points.
+    bias_current_a : float
+        Input bias current into each input pin, A, signed (positive: into the pin). Used
+        only for the DC bias points.
+    input_cm_to_rail_v : float
+        How close the inputs' common-mode level may come to each rail, V (negative: that
+        far beyond the rail, a rail-to-rail input). Checked on a single supply.
     current_noise_corner_hz : float
         1/f corner of the current noise, Hz; None at construction means the same as
         `noise_corner_hz`. A bipolar input's current-noise corner often lies far above its
@@ -53,6 +62,9 @@ class OpAmp:
     noise_a_per_rthz: float
     noise_corner_hz: float
     min_load_ohms: float = 2000.0
+    offset_v: float = 0.0
+    bias_current_a: float = 0.0
+    input_cm_to_rail_v: float = 0.0
     current_noise_corner_hz: float | None = None   # a float once constructed
 
     def __post_init__(self) -> None:

@@ -8,6 +8,7 @@ import io
 from typing import Any
 
 from bandwright.analysis.montecarlo import resolve_spreads
+from bandwright.analysis.bias import chain_reference
 from bandwright.chain.graph import Chain, converter_elements, flatten
 from bandwright.parts.catalogue import ARCHETYPES
 from bandwright.parts.eseries import SERIES_NAMES, is_member
@@ -18,7 +19,8 @@ from bandwright.report.spice import spice_deck
 __all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "converter_lines"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
-             "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz")
+             "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz",
+             "offset_v", "bias_current_a", "input_cm_to_rail_v")
 
 
 def _toml_value(v: Any) -> str:
@@ -64,9 +66,14 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
                                               f"min_loss_db = {sp.min_loss_db!r}", ""]
     inp = req.input
     out += ["[input]", f"max_vpk = {inp.max_vpk!r}", f"source_ohms = {inp.source_ohms!r}"]
+    if inp.dc_v:
+        out.append(f"dc_v = {inp.dc_v!r}")
     for t in inp.tones:
         out += ["[[input.tone]]", f"freq_hz = {t.freq_hz!r}", f"vpk = {t.vpk!r}"]
-    out += ["", "[supply]", f"rails_v = {_toml_value(list(req.supply.rails_v))}", ""]
+    out += ["", "[supply]", f"rails_v = {_toml_value(list(req.supply.rails_v))}"]
+    if req.supply.single:
+        out.append(f"reference_v = {req.supply.reference_v!r}")
+    out.append("")
     models = {st.model for st in chain.stages}
     shared = len(models) == 1
     if shared:
@@ -100,14 +107,14 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
 
 
 def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
-            r_pct: float | None = None, c_pct: float | None = None) -> str:
+            r_pct: float | None = None, c_pct: float | None = None, reference=None) -> str:
     """Bill of materials: one row per distinct part, with designators and quantity.
 
     The tolerance is the one the yield was computed for (`r_pct`, `c_pct`), else the one
     customary for the part's series (common practice, ``parts.tolerance``).
     """
     rows: dict[tuple, list[str]] = {}
-    for e in flatten(chain):
+    for e in flatten(chain, reference):
         if e.kind == "opamp":
             key = ("op-amp", e.model.name, "", "", "")
         else:
@@ -142,16 +149,25 @@ def bom_args(req, *, planned: bool) -> dict[str, Any]:
             "c_pct": req.tolerance.capacitor_pct}
 
 
+def _deck(chain: Chain, req, title: str) -> str:
+    """chain.cir: the chain with its reference network and rails on a single supply, and the
+    converter's input load on "out" (not in the BOM)."""
+    reference = chain_reference(chain, req)
+    return spice_deck(flatten(chain, reference) + converter_elements(chain),
+                      source_ohms=chain.source_ohms,
+                      temperature_c=req.environment.temperature_c, title=title,
+                      dc_v=req.input.dc_v,
+                      supply_v=reference.supply_v if reference.single else None)
+
+
 def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
            planned: bool) -> dict[str, bytes]:
     return {
         json_name: (json_text + "\n").encode(),
-        # The converter's input load sits on "out" in the deck too (not in the BOM).
-        "chain.cir": spice_deck(flatten(chain) + converter_elements(chain),
-                                source_ohms=chain.source_ohms,
-                                temperature_c=req.environment.temperature_c, title=title).encode(),
+        "chain.cir": _deck(chain, req, title).encode(),
         "chain.toml": chain_toml(chain, req, title=title).encode(),
-        "bom.csv": bom_csv(chain, **bom_args(req, planned=planned)).encode(),
+        "bom.csv": bom_csv(chain, **bom_args(req, planned=planned),
+                           reference=chain_reference(chain, req)).encode(),
     }
 
 

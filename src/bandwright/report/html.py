@@ -372,13 +372,15 @@ def _levels(s: Subject) -> str:
     rows = []
     for n in s.analyses.nodes:
         load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
-        rows.append([_e(n.net), _e(net_label(s.chain, n.net)), f"{n.signal_vpk:.3g} Vpk",
+        rows.append([_e(n.net), _e(net_label(s.chain, n.net)), f"{n.dc_v:+.4g} V",
+                     f"{n.signal_vpk:.3g} Vpk",
                      f"{n.peak_vpk:.3g} Vpk", f"{n.limit_vpk:.3g} Vpk",
                      f"{n.margin_db:+.1f} dB", _status(status.get(n.net, "pass")),
                      _e(f"{n.slew_needed_v_per_us:.3g} V/µs"), _e(load)])
-    out.append(_table(["net", "where", "in-band signal", "peak (signal + tones)", "limit",
-                       "margin", "verdict", "slew needed", "least load"], rows,
-                      num_cols=(2, 3, 4, 5, 7, 8)))
+    out.append(_table(["net", "where", "bias", "in-band signal", "peak (signal + tones)",
+                       "limit (room around the bias)", "margin", "verdict", "slew needed",
+                       "least load"], rows,
+                      num_cols=(2, 3, 4, 5, 6, 8, 9)))
     out.append('<p class="note">Worst case: the largest in-band input at its worst frequency '
                "plus every tone, amplitudes added. The level plot is in "
                '<a href="#plot-levels">Plots</a>.</p></section>')

@@ -79,7 +79,8 @@ def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
                    "limit_vpk": num(n.limit_vpk), "margin_db": num(n.margin_db),
                    "signal_vpk": num(n.signal_vpk),
                    "slew_needed_v_per_us": num(n.slew_needed_v_per_us),
-                   "load_ohms": num(n.load_ohms)} for n in an.nodes],
+                   "load_ohms": num(n.load_ohms), "dc_v": num(n.dc_v)} for n in an.nodes],
+        **_reference_dict(an),
         "noise": {"freq_hz": _nums(nz.freq_hz), "output_v_per_rthz": _nums(nz.output_v_per_rthz),
                   "integrated_vrms": num(nz.integrated_vrms), "band_hz": list(nz.band_hz),
                   "input_referred_v_per_rthz": _nums(nz.input_referred_v_per_rthz),
@@ -96,7 +97,7 @@ def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
 
 
 def converter_dict(c) -> dict[str, Any]:
-    """design.md's ``converter{…}`` (and the noise budget behind it)."""
+    """docs/design.md's ``converter{…}`` (and the noise budget behind it)."""
     conv = c.converter
     return {"full_scale_vpk": num(c.full_scale_vpk), "peak_vpk": num(c.peak_vpk),
             "margin_db": num(c.margin_db), "snr_db": num(c.snr_db),
@@ -113,6 +114,18 @@ def converter_dict(c) -> dict[str, Any]:
             "noise_folded_to_hz": num(c.folds[-1].top_hz) if c.folds else None,
             "load_time_constant_s": num(c.load_time_constant_s),
             "settle_gbw_hz": num(c.settle_gbw_hz)}
+
+
+def _reference_dict(an) -> dict[str, Any]:
+    """`reference` (single supply only: split rails add nothing): the network, its level."""
+    b = getattr(an, "bias", None)
+    if b is None or not b.reference.single:
+        return {}
+    r = b.reference
+    return {"reference": {"reference_v": num(r.reference_v), "dc_v": num(b.reference_dc_v),
+                          "buffered": r.buffered, "reason": r.reason,
+                          "components": {e.name: num(e.value) for e in r.elements
+                                         if e.kind in ("R", "C")}}}
 
 
 def _checks(checks) -> list[dict[str, Any]]:

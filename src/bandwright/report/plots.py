@@ -280,7 +280,8 @@ def _levels(s: Subject) -> Figure:
     span = max([abs(m) for m in margins] + [1.0])
     bars.set_xlim(min(0.0, min(margins)) - 0.05 * span, max(0.0, max(margins)) + 0.8 * span)
     for yi, m, n in zip(y, margins, an.nodes):
-        bars.annotate(f"{m:+.1f} dB\n{n.peak_vpk:.3g} / {n.limit_vpk:.3g} Vpk",
+        bars.annotate(f"{m:+.1f} dB\n{n.peak_vpk:.3g} / {n.limit_vpk:.3g} Vpk\n"
+                      f"bias {n.dc_v:+.3g} V; room ↑{n.upper_margin_v:.3g} ↓{n.lower_margin_v:.3g} V",
                       (max(m, 0.0), yi), xytext=(4, 0), textcoords="offset points",
                       va="center", fontsize=7.5)
     bars.set_xlabel("headroom margin (dB)")

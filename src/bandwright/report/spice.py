@@ -6,7 +6,7 @@ nodal solver's response and noise, op-amp noise included.
 
 Deck layout (docs/design.md, "Interfaces")
 ------------------------------------
-* ``VIN src 0 AC 1 DC 0`` -- the unit source; ``RSRC src in`` -- the source resistance.
+* ``VIN src 0 DC <dc_v> AC 1`` -- the unit source at the source's DC level; ``RSRC src in`` -- the source resistance.
   ngspice cannot hold a 0 ohm resistor, so ``source_ohms == 0`` is written as
   ``TINY_SOURCE_OHMS`` (1 mohm). Its thermal noise, 4kT x 1 mohm (4 pV/sqrt(Hz)), enters
   exactly where the signal does; against the 4kTR of any input resistor R >= 100 ohm it is
@@ -89,7 +89,7 @@ import re
 from typing import Sequence
 
 from bandwright import __version__
-from bandwright.circuits.elements import GROUND, Element
+from bandwright.circuits.elements import GROUND, SUPPLY_NET, Element
 from bandwright.parts.notation import format_spice
 from bandwright.parts.opamp import OpAmp
 
@@ -242,6 +242,16 @@ def opamp_subckt(model: OpAmp, *, temperature_c: float) -> str:
         lines.append(f"G_NP plus 0 npa npb {_num(gm)}")
         lines += _diode_pair("nm", diode_i)
         lines.append(f"G_NM minus 0 nma nmb {_num(gm)}")
+    vos = getattr(model, "offset_v", 0.0)
+    ib = getattr(model, "bias_current_a", 0.0)
+    if vos:
+        lines.append("* input offset in series with the + input (DC only)")
+        lines.append(f"V_OS po {plus_inner} DC {_num(vos)}")
+        plus_inner = "po"
+    if ib:
+        lines.append("* input bias current into each pin (DC only)")
+        lines.append(f"I_BP plus 0 DC {_num(ib)}")
+        lines.append(f"I_BM minus 0 DC {_num(ib)}")
     inv_a0 = 1.0 / model.a0 if math.isfinite(model.a0) else 1.0 / IDEAL_GAIN
     if math.isfinite(model.gbw_hz):
         lines += [
@@ -324,7 +334,7 @@ def _validate(elements: Sequence[Element]) -> list[str]:
 
 
 def spice_deck(elements: Sequence[Element], *, source_ohms: float, temperature_c: float,
-               title: str) -> str:
+               title: str, dc_v: float = 0.0, supply_v: float | None = None) -> str:
     """Write a whole chain as an ngspice-39 batch deck (the ``chain.cir`` of docs/design.md).
 
     Parameters
@@ -340,6 +350,11 @@ def spice_deck(elements: Sequence[Element], *, source_ohms: float, temperature_c
         Temperature of every part, degrees Celsius (``.temp``).
     title : str
         First line of the deck (line breaks are replaced by spaces).
+    dc_v : float, optional
+        The source's DC level (``VIN src 0 DC <dc_v> AC 1``), V.
+    supply_v : float or None, optional
+        A single supply's upper rail, V: written as ``VCC vcc 0 DC <supply_v>`` so that the
+        reference network in `elements` (from net ``vcc``) sets the operating point.
 
     Returns
     -------
@@ -369,7 +384,7 @@ def spice_deck(elements: Sequence[Element], *, source_ohms: float, temperature_c
     >>> deck = spice_deck((resistor("R1", "in", "out", 1e3), capacitor("C1", "out", "0", 1e-9)),
     ...                   source_ohms=50.0, temperature_c=25.0, title="RC")
     >>> [line for line in deck.splitlines() if not line.startswith("*")]
-    ['RC', 'VIN src 0 AC 1 DC 0', 'RSRC src in 50', 'R1 in out 1k', 'C1 out 0 1n', '.temp 25', '.end']
+    ['RC', 'VIN src 0 DC 0 AC 1', 'RSRC src in 50', 'R1 in out 1k', 'C1 out 0 1n', '.temp 25', '.end']
     """
     if not (math.isfinite(source_ohms) and source_ohms >= 0):
         raise ValueError(f"source_ohms must be finite and >= 0; got {source_ohms!r}")
@@ -394,8 +409,11 @@ def spice_deck(elements: Sequence[Element], *, source_ohms: float, temperature_c
         "* with v(out) as output and vin as the input source.",
         "*",
         "* source",
-        f"VIN {SOURCE_NET} 0 AC 1 DC 0",
+        f"VIN {SOURCE_NET} 0 DC {_num(dc_v)} AC 1",
     ]
+    if supply_v is not None:
+        lines += ["* single supply: the upper rail feeds the reference network",
+                  f"VCC {SUPPLY_NET} 0 DC {_num(supply_v)}"]
     if source_ohms == 0:
         lines.append(f"* ideal source: {_num(TINY_SOURCE_OHMS)} ohm stands in for 0 ohm")
     lines.append(f"RSRC {SOURCE_NET} in {_num(rsrc_ohms)}")

@@ -200,12 +200,16 @@ def _chain(chain, an, console: Console, *, first: str = "asked") -> None:
         for name, why in st.rejected:
             _say(console, f"  not {name}: {why}")
     lv = _table("Node levels, worst case (signal anywhere in band + every tone)", "net", "stage",
-                "peak", "limit", "margin", "slew needed", "least load")
+                "bias", "peak", "limit", "margin", "slew needed", "least load")
     for n in an.nodes:
         load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
-        _row(lv, n.net, str(n.stage), f"{n.peak_vpk:.3g} Vpk", f"{n.limit_vpk:.3g} Vpk",
-                   f"{n.margin_db:+.1f} dB", f"{n.slew_needed_v_per_us:.3g} V/µs", load)
+        _row(lv, n.net, str(n.stage), f"{n.dc_v:+.4g} V", f"{n.peak_vpk:.3g} Vpk",
+             f"{n.limit_vpk:.3g} Vpk", f"{n.margin_db:+.1f} dB",
+             f"{n.slew_needed_v_per_us:.3g} V/µs", load)
     _say(console, lv)
+    if an.bias is not None and an.bias.reference.single:
+        _say(console, f"Reference: {an.bias.reference.reason}; it sits at "
+                      f"{an.bias.reference_dc_v:.4g} V")
     nz = an.noise
     centre = int(np.argmin(np.abs(np.log(nz.freq_hz / math.sqrt(nz.band_hz[0] * nz.band_hz[1])))))
     _say(console, 

@@ -1,0 +1,102 @@
+"""When a single-supply chain cannot fit its rails: why, with the figures, and the nearest
+fixes — a rail-to-rail op-amp class, a higher supply — each planned to show that it works.
+
+The lower-gain fix is ``advice.with_gain_advice`` (shared with split rails); this module adds
+what only a single supply offers, to the worst clipping net's headroom check.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+from typing import Any, Callable
+
+from bandwright.analysis.levels import swing_limit_vpk
+from bandwright.inputs.requirement import AmplifierChoice, Requirement, Supply
+from bandwright.parts.catalogue import ARCHETYPES
+
+__all__ = ["with_supply_advice", "RAIL_TO_RAIL", "COMMON_SUPPLIES_V"]
+
+#: The rail-to-rail class tried as a fix.
+RAIL_TO_RAIL = "rail-to-rail"
+#: Single supplies boards commonly have, V (common practice).
+COMMON_SUPPLIES_V = (1.8, 2.5, 3.3, 5.0, 9.0, 12.0, 15.0, 24.0, 36.0)
+
+
+def _fits(design) -> tuple[bool, float]:
+    an = design.analyses
+    if an is None:
+        return False, -math.inf
+    bad = [c for c in design.checks if c.id in ("headroom", "input_range") and c.status == "fail"]
+    return not bad, an.worst_margin_db
+
+
+def with_supply_advice(design, req: Requirement,
+                       rebuild: Callable[[Requirement], Any]) -> Any:
+    """`design` with the worst clipping net's headroom message explaining the single supply.
+
+    Parameters
+    ----------
+    design : planner.Design
+        The chosen design; returned unchanged on split rails or when nothing clips.
+    req : Requirement
+    rebuild : callable(Requirement) -> planner.Design
+        Plans the same candidate for a requirement with another op-amp or supply.
+
+    Returns
+    -------
+    planner.Design
+
+    Notes
+    -----
+    The swing around the reference is min(V+ - V_ref, V_ref - V-) - swing_to_rail
+    (docs/methods.md, "Headroom / slew"). A mid-rail reference on the smallest common supply
+    V+ >= 2 (peak + |bias - V_ref| + swing_to_rail) leaves every net its peak; each fix is
+    planned and named only if its plan passes headroom.
+    """
+    sup = req.supply
+    if not sup.single or design.analyses is None:
+        return design
+    nodes = design.analyses.nodes
+    clipping = [n for n in nodes if math.isfinite(n.margin_db) and n.margin_db < 0]
+    if not clipping:
+        return design
+    worst = min(clipping, key=lambda n: n.margin_db)
+    model = design.chain.stage_of(worst.net).model
+    around = swing_limit_vpk(sup, model.swing_to_rail_v)
+    why = (f"; gain {req.passband.gain_db:g} dB puts {worst.peak_vpk:.3g} Vpk on {worst.net}"
+           f" (bias {worst.dc_v:.3g} V), the swing around the {sup.reference_v:.3g} V "
+           f"reference is {around:.3g} Vpk on {sup.rails_v[0]:g}/{sup.rails_v[1]:g} V")
+    fixes: list[str] = []
+    rr = ARCHETYPES[RAIL_TO_RAIL]
+    if model.swing_to_rail_v > rr.swing_to_rail_v:
+        trial = rebuild(replace(req, amplifier=AmplifierChoice(archetype=RAIL_TO_RAIL)))
+        ok, margin = _fits(trial)
+        if ok:
+            fixes.append(f"a rail-to-rail class ('{RAIL_TO_RAIL}', {rr.swing_to_rail_v:g} V "
+                         f"from each rail) fits: planned, worst margin {margin:+.1f} dB")
+    need = max(n.peak_vpk + abs(n.dc_v - sup.reference_v) for n in nodes)
+    v_need = 2 * (need + model.swing_to_rail_v)
+    higher = [v for v in COMMON_SUPPLIES_V if v > sup.rails_v[1] and v >= v_need]
+    if higher:
+        top = higher[0]
+        mid = (sup.rails_v[0] + top) / 2
+        # A source biased at the old reference follows the new one (its bias network is
+        # fed from the same supply); any other DC level stays as given.
+        dc = mid if math.isclose(req.input.dc_v, sup.reference_v) else req.input.dc_v
+        trial = rebuild(replace(req, supply=Supply(rails_v=(sup.rails_v[0], top),
+                                                   reference_v=mid),
+                                input=replace(req.input, dc_v=dc)))
+        ok, margin = _fits(trial)
+        if ok:
+            fixes.append(f"a {top:g} V supply (reference {mid:g} V) fits: planned, worst "
+                         f"margin {margin:+.1f} dB")
+    why += ("; fixes: " + "; ".join(fixes)) if fixes else "; no rail-to-rail class or " \
+        "common supply up to 36 V was found to fit: lower the gain or input.max_vpk"
+    out, done = [], False
+    for c in design.checks:
+        if not done and c.id == "headroom" and c.status == "fail" and c.net == worst.net:
+            c = replace(c, message=c.message + why)
+            done = True
+        out.append(c)
+    return replace(design, checks=tuple(out))
