@@ -11,10 +11,12 @@ from bandwright.analysis.grid import noise_band, noise_grid, passband_grid, resp
 from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
 from bandwright.analysis.response import MaskReading, Response, read_mask
+from bandwright.analysis.timedomain import TimeFigures, time_figures
 from bandwright.chain.graph import CHAIN_OUTPUT, Chain
 from bandwright.inputs.requirement import Requirement
 
-__all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis"]
+__all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis",
+           "TimeFigures"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -41,6 +43,9 @@ class Analyses:
     dynamic_range_db : float
         Largest undistorted in-band output (rms, the input scaled by `clip_scale`) over
         the integrated output noise.
+    time : TimeFigures or None
+        Group delay, bursts, step and onset peaks (``analysis.timedomain``); None when
+        the chain's output transfer is unstable.
     """
 
     response: Response
@@ -52,6 +57,7 @@ class Analyses:
     clip_scale: float
     snr_db: float
     dynamic_range_db: float
+    time: TimeFigures | None = None
 
     @property
     def worst_margin_db(self) -> float:
@@ -84,6 +90,12 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
     sig_rms = out_node.signal_vpk / math.sqrt(2)
     snr = _db(sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
     dr = _db(scale * sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
+    pb = requirement.passband
+    times = time_figures(chain, passband_hz=passband_grid(requirement), low_hz=pb.low_hz,
+                         high_hz=pb.high_hz, center_hz=pb.center_hz,
+                         burst_s=requirement.time.burst_s, signal_vpk=requirement.input.max_vpk,
+                         tones=requirement.input.tones, dc_step_v=requirement.input.dc_step_v,
+                         limits_vpk={n.net: n.limit_vpk for n in nodes})
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
-                    dynamic_range_db=dr)
+                    dynamic_range_db=dr, time=times)

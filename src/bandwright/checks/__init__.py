@@ -8,6 +8,7 @@ from bandwright.checks.base import Check, worst_status
 from bandwright.checks.chain_checks import (drive_checks, gbw_checks, headroom_checks,
                                             noise_checks, parts_checks, slew_checks)
 from bandwright.checks.mask import mask_checks
+from bandwright.checks.time_checks import onset_checks, time_checks
 from bandwright.parts.windows import PartWindows
 from bandwright.inputs.requirement import Requirement
 
@@ -16,7 +17,8 @@ __all__ = ["Check", "worst_status", "all_checks"]
 
 def all_checks(chain: Chain, an: Analyses, requirement: Requirement, *,
                windows: PartWindows = PartWindows()) -> list[Check]:
-    """Every check, in report order: mask, headroom, slew, drive, gbw, noise, parts."""
+    """Every check, in report order: mask, headroom, slew, drive, gbw, noise, parts, onset,
+    time."""
     out: list[Check] = []
     if an.mask is not None:
         out += mask_checks(an.mask, requirement)
@@ -26,4 +28,6 @@ def all_checks(chain: Chain, an: Analyses, requirement: Requirement, *,
     out += gbw_checks(chain)
     out += noise_checks(an, requirement)
     out += parts_checks(chain, windows)
+    out += onset_checks(an)
+    out += time_checks(an, requirement)
     return out

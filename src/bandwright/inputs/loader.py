@@ -10,7 +10,7 @@ from bandwright.errors import SpecError
 from bandwright.inputs.reader import TableReader, read_toml
 from bandwright.inputs.requirement import (
     AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
-    Requirement, StopbandPoint, Supply, Tolerance, Tone,
+    Requirement, StopbandPoint, Supply, TimeLimits, Tolerance, Tone,
 )
 from bandwright.vocabulary import FAMILIES
 
@@ -18,16 +18,21 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "read_stop", "FREQ_RANGE_HZ", "MIN_FRACTIONAL_BANDWIDTH", "MAX_VOLTS",
            "AMPLIFIER_RANGES",
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
-           "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES"]
+           "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES",
+           "TIME_KEYS", "read_time"]
 
 SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
                   "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
-              "noise", "tolerance")
+              "noise", "tolerance", "time")
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
                   "seed", "min_yield")
 DISTRIBUTIONS = ("uniform", "gaussian")
+TIME_KEYS = ("burst_s", "max_rise_s", "max_delay_spread_s", "max_ringing_s",
+             "max_overshoot_pct", "max_settling_s")
+# A day: a longer burst or settling limit is a typing error for any active filter.
+_MAX_TIME_S = 86400.0
 _MAX_TOLERANCE_PCT = 50.0
 # Monte Carlo time grows linearly with samples × stages; 100,000 samples of a two-stage
 # chain take about half a minute here, with a progress bar (docs/user-guide.md).
@@ -96,16 +101,18 @@ def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requi
     noise = common["noise"]
     tolerance = read_tolerance(TableReader(path, "tolerance", doc.get("tolerance", {}),
                                            TOLERANCE_KEYS))
+    time_limits = read_time(TableReader(path, "time", doc.get("time", {}), TIME_KEYS), passband)
     return Requirement(path=path, passband=passband, stopband=stopband, design=design,
                        input=common["input"], supply=common["supply"],
                        amplifier=common["amplifier"], environment=common["environment"],
-                       noise=noise, tolerance=tolerance)
+                       noise=noise, tolerance=tolerance, time=time_limits)
 
 
 def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
     """The tables a requirement and an audit file share: input, supply, amplifier,
     environment, noise."""
-    inp = TableReader(path, "input", doc.get("input", {}), ("max_vpk", "source_ohms", "tone"))
+    inp = TableReader(path, "input", doc.get("input", {}), ("max_vpk", "source_ohms", "tone",
+                                                               "dc_step_v"))
     tones = []
     if len(inp.tables("tone")) > MAX_TONES:
         raise SpecError(path, "input.tone", f"{len(inp.tables('tone'))} tones; at most "
@@ -120,7 +127,9 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
                                                   high=MAX_VOLTS),
                                source_ohms=inp.number("source_ohms", 0.0, nonnegative=True,
                                                       high=_MAX_OHMS),
-                               tones=tuple(tones))
+                               tones=tuple(tones),
+                               dc_step_v=inp.number("dc_step_v", None, positive=True,
+                                                    high=MAX_VOLTS))
     sup = TableReader(path, "supply", doc.get("supply", {}), ("rails_v",))
     rails = sup.pair("rails_v", low=-MAX_VOLTS, high=MAX_VOLTS) or (-5.0, 5.0)
     if not rails[0] < rails[1]:
@@ -248,6 +257,21 @@ def read_tolerance(t: TableReader) -> Tolerance:
         seed=t.integer("seed", base.seed, low=0, high=2**32 - 1),
         min_yield=min_yield,
     )
+
+
+def read_time(t: TableReader, passband: Passband) -> TimeLimits:
+    """`[time]`: burst length and limits on the time-domain figures, each > 0 when given.
+
+    A burst shorter than one period of the passband's low edge holds no whole cycle of
+    every tone it is read at, so it has no envelope to speak of.
+    """
+    values = {k: t.number(k, None, positive=True, high=_MAX_TIME_S if k.endswith("_s")
+                          else 1e6) for k in TIME_KEYS}
+    burst = values["burst_s"]
+    if burst is not None and burst < 1.0 / passband.low_hz:
+        raise t.error("burst_s", f"shorter than one period of the passband's low edge "
+                      f"({1.0 / passband.low_hz:.4g} s)")
+    return TimeLimits(**values)
 
 
 def _read_design(d: TableReader) -> DesignChoice:
