@@ -65,7 +65,7 @@ class Zpk:
 
     zeros: np.ndarray
     poles: np.ndarray
-    k: complex
+    k: float
 
     @property
     def stable(self) -> bool:
@@ -93,7 +93,8 @@ def _stage_factors(stage, nets_local, rs):
         zeros = np.roots(num_s[::-1]) * w_c if num_s.size > 1 else np.zeros(0, complex)
         h_ref = npoly.polyval(s_ref / w_c, num_s) / npoly.polyval(s_ref / w_c, den_s)
         shape = np.prod(s_ref - zeros) / np.prod(s_ref - poles)
-        out.append((zeros, complex(h_ref / shape)))
+        # A real network has a real gain: what imaginary part is left is rounding.
+        out.append((zeros, float(np.real(h_ref / shape))))
     return out, poles
 
 
