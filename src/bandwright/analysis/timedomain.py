@@ -472,12 +472,13 @@ class TimeFigures:
 
 
 def default_burst_s(bandwidth_hz: float, center_hz: float) -> float:
-    """A burst long enough for the envelope to settle: 40 / bandwidth, at least 10 periods.
+    """A burst long enough for the envelope to settle: 10 / bandwidth, at least 10 periods.
 
-    A bandpass of bandwidth B has an envelope like a lowpass of cutoff B/2, whose 1 % settling
-    takes some 1/B to 10/B with order and ripple (common practice); 40/B leaves margin.
+    A bandpass of bandwidth B has an envelope like a lowpass of cutoff B/2, whose 10-90 % rise
+    is about 0.7/B and whose 1 % settling takes a few 1/B with order and ripple (common
+    practice); 10/B shows the rise, the plateau and the fall on one plot.
     """
-    return max(40.0 / bandwidth_hz, 10.0 / center_hz)
+    return max(10.0 / bandwidth_hz, 10.0 / center_hz)
 
 
 def time_figures(chain: Chain, *, passband_hz: np.ndarray, low_hz: float, high_hz: float,
