@@ -79,9 +79,9 @@ def time_checks(an: Analyses, requirement: Requirement) -> list[Check]:
         if limit is None:
             continue
         ok = math.isfinite(value) and value <= limit
-        shown = (f"{value * 1e3:.3g} ms" if unit == "s" else f"{value:.3g} %") \
+        shown = (f"{value * 1e3:.4g} ms" if unit == "s" else f"{value:.4g} %") \
             if math.isfinite(value) else "not reached"
-        bound = f"{limit * 1e3:.3g} ms" if unit == "s" else f"{limit:.3g} %"
+        bound = f"{limit * 1e3:.4g} ms" if unit == "s" else f"{limit:.4g} %"
         out.append(Check(id="time", status="pass" if ok else "fail", value=value, limit=limit,
                          unit=unit, message=f"{what}: {shown} against {bound}"))
     return out
