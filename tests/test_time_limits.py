@@ -85,3 +85,24 @@ def test_a_named_dc_step_that_clips_fails_the_onset_check():
     assert fails and all("DC step" in c.message for c in fails)
     (o,) = [o for o in p.chosen.analyses.time.onset if o.net == "out"]
     assert o.event == "dc_step" and o.recovery_s > o.at_s
+
+
+def test_json_time_domain_carries_the_figures_and_the_guide_names_every_key():
+    """plan_to_dict's `time_domain` holds the analysis's figures (value check: the output's
+    centre group delay equals its group_delay list at the centre frequency's neighbours'
+    range), and docs/user-guide.md documents every key it writes."""
+    from bandwright.report.json_out import plan_to_dict
+    p = _scenario("lockin_mains")
+    td = plan_to_dict(p)["time_domain"]
+    gd = td["group_delay"]
+    assert gd["min_s"] == pytest.approx(min(gd["delay_s"]))
+    assert gd["spread_s"] == pytest.approx(max(gd["delay_s"]) - min(gd["delay_s"]))
+    assert [b["freq_hz"] for b in td["bursts"]] == pytest.approx(
+        [p.requirement.passband.center_hz, p.requirement.passband.low_hz,
+         p.requirement.passband.high_hz])
+    assert {o["net"] for o in td["onset"]} == set(p.chosen.chain.output_nets)
+    guide = (SCENARIOS.parent / "docs" / "user-guide.md").read_text()
+    keys = set(td) | set(gd) | set(td["bursts"][0]) | set(td["step"]) | set(td["onset"][0])
+    missing = [k for k in keys if f"`{k}" not in guide and f", {k}" not in guide
+               and f"`{k}`" not in guide and k not in guide]
+    assert not missing, missing
