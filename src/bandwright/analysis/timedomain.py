@@ -228,7 +228,7 @@ def _last_above(t: np.ndarray, y: np.ndarray, level: float) -> float:
     """Last time y falls through `level` for good (interpolated); inf if it ends above."""
     above = np.nonzero(y > level)[0]
     if not above.size:
-        return float(t[0])
+        return float(t[0]) if t.size else 0.0
     i = above[-1]
     if i == y.size - 1:
         return math.inf
@@ -329,7 +329,8 @@ class OnsetReading:
 
 
 def _onset_grid(zpk: Zpk, f_top_hz: float) -> np.ndarray:
-    span = 12.0 / max(zpk.slowest_rad_s, 1e-30)
+    # No poles (ideal op-amps, no capacitor): nothing rings; a few periods show that.
+    span = 12.0 / zpk.slowest_rad_s if zpk.poles.size else 10.0 / f_top_hz
     dt = 1.0 / (_ONSET_PER_PERIOD * f_top_hz)
     n = int(min(_ONSET_MAX_POINTS, max(256, math.ceil(span / dt))))
     return np.linspace(0.0, span, n)
@@ -508,7 +509,7 @@ def time_figures(chain: Chain, *, passband_hz: np.ndarray, low_hz: float, high_h
     pb = np.asarray(passband_hz, dtype=float)
     gd = group_delay_s(out, pb)
     tb = burst_s if burst_s is not None else default_burst_s(high_hz - low_hz, center_hz)
-    tail = 12.0 / out.slowest_rad_s
+    tail = 12.0 / out.slowest_rad_s if out.poles.size else 10.0 / center_hz
     bursts = tuple(read_burst(out, f, burst_s=tb, tail_s=tail)
                    for f in (center_hz, low_hz, high_hz))
     ts = np.linspace(0.0, tail + 2 * tb, _BURST_POINTS)
