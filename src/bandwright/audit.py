@@ -11,7 +11,8 @@ import numpy as np
 
 from bandwright.amplifier import check_tones, resolve_amplifier
 from bandwright.analysis import Analyses, analyse
-from bandwright.analysis.montecarlo import YieldResult, plan_yield
+from bandwright.advice.tolerance import plan_yield
+from bandwright.analysis.montecarlo import YieldResult
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check

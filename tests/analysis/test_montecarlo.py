@@ -19,7 +19,8 @@ from scipy import stats
 from bandwright.analysis import montecarlo as mc
 from bandwright.analysis.grid import passband_grid
 from bandwright.analysis.levels import swing_limit_vpk
-from bandwright.analysis.montecarlo import (Spreads, monte_carlo, plan_yield, resolve_spreads,
+from bandwright.advice.tolerance import plan_yield
+from bandwright.analysis.montecarlo import (Spreads, monte_carlo, resolve_spreads,
                                             sample_columns, sample_values, wilson_interval)
 from bandwright.analysis.sensitivity import first_order_spread, stage_sensitivity
 from bandwright.chain.graph import flatten
@@ -27,7 +28,7 @@ from bandwright.circuits.figures import section_figures_batch
 from bandwright.report.spice import spice_deck
 
 from mc_support import mfb_chain, mixed_chain, requirement_around
-from ngspice_runner import ngspice_available, read_wrdata, run_ngspice
+from ngspice_runner import read_wrdata, run_ngspice
 from spice_tools import with_control
 
 TIGHT = {"resistor_pct": 0.5, "capacitor_pct": 1.0, "gbw_spread_pct": 20.0}
@@ -58,7 +59,7 @@ def test_chunking_does_not_change_the_draws_or_the_verdicts(mixed, monkeypatch):
     chain, req = mixed
     whole = monte_carlo(chain, req, samples=250, seed=5, with_sensitivities=False)
     values = sample_values(chain, resolve_spreads(req), samples=250, seed=5)
-    monkeypatch.setattr(mc, "CHUNK_SAMPLES", 64)
+    monkeypatch.setattr(mc.sampling, "CHUNK_SAMPLES", 64)
     chunked = monte_carlo(chain, req, samples=250, seed=5, with_sensitivities=False)
     np.testing.assert_array_equal(whole.passed, chunked.passed)
     np.testing.assert_allclose(sample_values(chain, resolve_spreads(req), samples=250, seed=5),
@@ -244,7 +245,7 @@ def _ngspice_verdicts(chain, req, values, tmp_path) -> np.ndarray:
     return np.array(verdicts)
 
 
-@pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+@pytest.mark.ngspice
 def test_every_sample_gets_the_same_verdict_from_ngspice(mixed, tmp_path):
     """40 boards (the same part values and GBWs, written with ngspice `alter`): ngspice-39's
     AC responses, read with the mask and headroom rules, pass and fail exactly the samples
@@ -253,7 +254,9 @@ def test_every_sample_gets_the_same_verdict_from_ngspice(mixed, tmp_path):
     n = 40
     r = monte_carlo(chain, req, samples=n, seed=21, with_sensitivities=False)
     assert 0 < r.yield_fraction < 1          # both verdicts occur
-    assert all(v > 0 for v in r.fail_counts.values())  # and every way of failing
+    # and every way of failing a stable board can (these boards are all stable)
+    assert r.fail_counts["unstable"] == 0
+    assert all(v > 0 for k, v in r.fail_counts.items() if k != "unstable")
     values = sample_values(chain, r.spreads, samples=n, seed=21)
     got = _ngspice_verdicts(chain, req, values, tmp_path)
     np.testing.assert_array_equal(got, r.passed)

@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from bandwright.analysis.montecarlo import monte_carlo, plan_yield
+from bandwright.advice.tolerance import plan_yield
+from bandwright.analysis.montecarlo import monte_carlo
 from bandwright.checks.yield_check import yield_checks
 from bandwright.planner import Design, with_yield
 

@@ -74,7 +74,7 @@ def test_make_opamp_defaults_to_general():
 def test_make_opamp_applies_every_override_key():
     overrides = {"gbw_hz": 12e6, "dc_gain_db": 96.0, "slew_v_per_us": 9.0, "swing_to_rail_v": 0.2,
                  "noise_v_per_rthz": 7e-9, "noise_a_per_rthz": 0.3e-12, "noise_corner_hz": 0.0,
-                 "min_load_ohms": 1e3}
+                 "min_load_ohms": 1e3, "current_noise_corner_hz": 40.0}
     assert set(overrides) == set(OVERRIDE_KEYS)
     amp = make_opamp(archetype="wideband", overrides=overrides)
     assert amp.name == "custom"

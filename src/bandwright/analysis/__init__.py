@@ -11,8 +11,9 @@ from bandwright.analysis.grid import noise_band, noise_grid, passband_grid, resp
 from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
 from bandwright.analysis.response import MaskReading, Response, read_mask
+from bandwright.analysis.stability import StagePoles, stage_poles
 from bandwright.analysis.timedomain import TimeFigures, time_figures
-from bandwright.chain.graph import CHAIN_OUTPUT, Chain
+from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
 from bandwright.inputs.requirement import Requirement
 
 __all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis",
@@ -43,6 +44,9 @@ class Analyses:
     dynamic_range_db : float
         Largest undistorted in-band output (rms, the input scaled by `clip_scale`) over
         the integrated output noise.
+    stability : tuple of StagePoles
+        Every stage's poles as built and whether they all lie in the left half-plane
+        (``analysis.stability``); the steady-state figures above mean nothing otherwise.
     time : TimeFigures or None
         Group delay, bursts, step and onset peaks (``analysis.timedomain``); None when
         the chain's output transfer is unstable.
@@ -57,7 +61,13 @@ class Analyses:
     clip_scale: float
     snr_db: float
     dynamic_range_db: float
+    stability: tuple[StagePoles, ...] = ()
     time: TimeFigures | None = None
+
+    @property
+    def stable(self) -> bool:
+        """Every stage's poles in the open left half-plane."""
+        return all(p.stable for p in self.stability)
 
     @property
     def worst_margin_db(self) -> float:
@@ -90,6 +100,10 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
     sig_rms = out_node.signal_vpk / math.sqrt(2)
     snr = _db(sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
     dr = _db(scale * sig_rms / noise.integrated_vrms) if noise.integrated_vrms > 0 else math.inf
+    poles = tuple(stage_poles(st.elements, position=st.position,
+                              source_ohms=chain.source_ohms
+                              if chain.input_of(st) == CHAIN_INPUT else 0.0)
+                  for st in chain.stages)
     pb = requirement.passband
     times = time_figures(chain, passband_hz=passband_grid(requirement), low_hz=pb.low_hz,
                          high_hz=pb.high_hz, center_hz=pb.center_hz,
@@ -98,4 +112,4 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
                          limits_vpk={n.net: n.limit_vpk for n in nodes})
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
-                    dynamic_range_db=dr, time=times)
+                    dynamic_range_db=dr, stability=poles, time=times)

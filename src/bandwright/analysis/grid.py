@@ -1,4 +1,4 @@
-"""Frequency grids of the reports (design.md, JSON `response` and `noise`)."""
+"""Frequency grids of the reports (docs/design.md, JSON `response` and `noise`)."""
 
 from __future__ import annotations
 
@@ -22,7 +22,7 @@ def passband_grid(requirement: Requirement, points: int = PASSBAND_POINTS) -> np
 
 def response_grid(requirement: Requirement) -> np.ndarray:
     """f0/10 (or half the lowest stopband point) to 10 f0 (or twice the highest), at least
-    100 points a decade and at least 50 inside the passband (design.md)."""
+    100 points a decade and at least 50 inside the passband (docs/design.md)."""
     f0 = requirement.passband.center_hz
     stops = [p.freq_hz for p in requirement.stopband]
     lo = min([f0 / 10] + [f / 2 for f in stops])

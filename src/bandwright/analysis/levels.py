@@ -1,4 +1,4 @@
-"""Transfers to every net of the chain, node levels, slew and load (design.md, "Headroom /
+"""Transfers to every net of the chain, node levels, slew and load (docs/design.md, "Headroom /
 slew")."""
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ __all__ = ["net_transfers", "NodeLevel", "node_levels", "swing_limit_vpk", "outp
 
 
 def swing_limit_vpk(supply: Supply, swing_to_rail_v: float) -> float:
-    """V_lim = min(V+, |V-|) - swing_to_rail (references.md, "Headroom / slew")."""
+    """V_lim = min(V+, |V-|) - swing_to_rail (docs/methods.md, "Headroom / slew")."""
     return min(supply.rails_v[1], -supply.rails_v[0]) - swing_to_rail_v
 
 
@@ -70,7 +70,7 @@ def node_levels(chain: Chain, *, passband_hz: np.ndarray, signal: InputSignal,
     -----
     Peak = V_in,max · max over the passband |T| + Σ_tones V_t |T(f_t)|; slew needed
     2π (f* V_in,max |T(f*)| + Σ f_t V_t |T(f_t)|) with f* the passband frequency where
-    f |T| is largest; amplitudes add, the worst case of every phase (references.md,
+    f |T| is largest; amplitudes add, the worst case of every phase (docs/methods.md,
     "Headroom / slew"; Franco 2015, §6.5 [mem]).
     """
     pb = np.asarray(passband_hz, dtype=float)

@@ -1,4 +1,4 @@
-"""Output noise of the chain with every source's share (design.md, "Noise")."""
+"""Output noise of the chain with every source's share (docs/design.md, "Noise")."""
 
 from __future__ import annotations
 
@@ -49,7 +49,7 @@ def chain_noise(chain: Chain, freq_hz: np.ndarray, *, band_hz: tuple[float, floa
     Notes
     -----
     Every resistor's 4kTR (source resistance included), every op-amp's e_n (white + 1/f) and
-    i_n into each input; output PSD S = Σ |G_i|² S_i (references.md, "Noise"; Motchenbacher &
+    i_n into each input; output PSD S = Σ |G_i|² S_i (docs/methods.md, "Noise"; Motchenbacher &
     Connelly 1993, ch. 2 [mem]); integrated by the trapezoid rule over `band_hz`.
     """
     res = nodal_noise(flatten(chain), freq_hz, out_net=CHAIN_OUTPUT,

@@ -1,4 +1,4 @@
-"""The chain as a graph: nets are nodes, stages are edges (design.md, "The chain is a graph").
+"""The chain as a graph: nets are nodes, stages are edges (docs/design.md, "The chain is a graph").
 
 Global net names: the chain input is "in", the chain output (last stage's "out") is "out",
 and every other op-amp output of stage k is "s{k}_{local}" (e.g. "s2_out", "s3_lowpass").

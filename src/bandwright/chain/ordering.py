@@ -33,7 +33,7 @@ from bandwright.sections.section import Section, section_response
 
 __all__ = ["OrderingProblem", "Ordering", "make_problem", "order_cost", "best_order_dp",
            "best_order_brute", "best_order", "stage_gains", "choose_order", "long_chain_order",
-           "EXHAUSTIVE_MAX"]
+           "EXHAUSTIVE_MAX", "BuiltTables", "built_tables", "built_figures", "best_built_order"]
 
 EXHAUSTIVE_MAX = 8
 MAX_SECTIONS = 12
@@ -195,6 +195,15 @@ class Ordering:
         Model output noise of the order as generated and of increasing-Q order.
     method : str
         "exhaustive" or "dynamic programming".
+    built_noise_vrms : float
+        Output noise of the built stages in the chain's order, from their own transfers and
+        noise (``built_figures``; the source resistance left out); NaN until the chain is
+        built.
+    built_gain_over_generated_db, built_gain_over_increasing_q_db : float
+        Dynamic range of the built chain over the same built stages (parts and gains as
+        built) in the order as generated and in increasing-Q order, any gain stage last.
+    placement : str
+        How the built stages were placed (empty before).
     """
 
     order: tuple[int, ...]
@@ -203,6 +212,10 @@ class Ordering:
     generated_vrms: float
     increasing_q_vrms: float
     method: str
+    built_noise_vrms: float = math.nan
+    built_gain_over_generated_db: float = math.nan
+    built_gain_over_increasing_q_db: float = math.nan
+    placement: str = ""
 
     @property
     def gain_over_generated_db(self) -> float:
@@ -231,7 +244,7 @@ def long_chain_order(sections: Sequence[Section], noise_psd: np.ndarray,
     """Increasing-Q order with equal-maxima gains, for more sections than the exact search
     takes (it tabulates all 2^n subsets).
 
-    Increasing Q keeps the early nodes' peaks low (Moschytz 1975 [mem]; references.md,
+    Increasing Q keeps the early nodes' peaks low (Moschytz 1975 [mem]; docs/methods.md,
     "Dynamic range"). The gains and the output noise follow the same model as
     ``make_problem``, evaluated along the one order instead of over every subset.
     """
@@ -261,3 +274,171 @@ def long_chain_order(sections: Sequence[Section], noise_psd: np.ndarray,
                     increasing_q_vrms=math.sqrt(cost),
                     method=f"increasing Q (more than {MAX_SECTIONS} sections: the exact "
                            f"search would tabulate 2^{n} subsets)")
+
+
+# --- the built stages: fixed gains, their own transfers and noise ---------------------------
+
+@dataclass(frozen=True)
+class BuiltTables:
+    """Subset tables of built stages, whose gains are fixed (a gain stage among them).
+
+    Attributes
+    ----------
+    n : int
+    peak : ndarray, shape (2^n,)
+        Worst-case peak at the output of the last stage of S when the stages of S come
+        first: V_in · max_passband Π_S |H| + Σ_tones V_t Π_S |H(f_t)|, with the stages' own
+        gains, V.
+    after_noise : ndarray, shape (n, 2^n)
+        ∫ n_i² Π_{j∉S} |H_j|² df: stage i's own output noise carried to the chain output
+        through the stages after it, V².
+    """
+
+    n: int
+    peak: np.ndarray
+    after_noise: np.ndarray
+
+
+def built_tables(h_signal: np.ndarray, h_noise: np.ndarray, noise_psd: np.ndarray,
+                 noise_freq_hz: np.ndarray, *, n_passband: int, max_vpk: float,
+                 tone_vpk: Sequence[float] = ()) -> BuiltTables:
+    """Tables for stages as built (``make_problem``'s model with the stages' own figures).
+
+    Parameters
+    ----------
+    h_signal : ndarray, shape (n, P + T)
+        Each stage's complex transfer on the passband grid (first `n_passband` columns)
+        and at each tone.
+    h_noise : ndarray, shape (n, F)
+        Each stage's transfer on `noise_freq_hz`.
+    noise_psd : ndarray, shape (n, F)
+        Each stage's own output noise PSD (its input driven by a zero-impedance source),
+        V²/Hz.
+    noise_freq_hz : ndarray, shape (F,)
+    n_passband : int
+    max_vpk : float
+        In-band input amplitude, V.
+    tone_vpk : sequence of float
+        Amplitude of each tone, V.
+
+    Notes
+    -----
+    The op-amp model has zero output impedance, so a stage's transfer does not depend on
+    the stage before it and the chain's transfer to any stage output is the product of the
+    stages' own (``chain.graph.net_transfers``); the output noise is the sum of each
+    stage's own noise times |transfer|² of the stages after it (Motchenbacher & Connelly
+    1993, ch. 2 [mem]). Both are then functions of the subset S only, as in ``make_problem``.
+    """
+    n = h_signal.shape[0]
+    if n > MAX_SECTIONS + 2:
+        raise ValueError(f"at most {MAX_SECTIONS + 2} stages can be placed, got {n}")
+    tv = np.asarray(tone_vpk, dtype=float)
+    with np.errstate(divide="ignore"):
+        lm = np.log(np.abs(np.asarray(h_signal)))
+        ln = 2 * np.log(np.abs(np.asarray(h_noise)))
+    mag = np.exp(_subset_products(lm))
+    peak = max_vpk * mag[:, :n_passband].max(axis=1) + (mag[:, n_passband:] * tv).sum(axis=1)
+    full = (1 << n) - 1
+    after = np.exp(_subset_products(ln)[full ^ np.arange(1 << n)])
+    after_noise = np.array([np.trapezoid(noise_psd[i] * after, noise_freq_hz, axis=-1)
+                            for i in range(n)])
+    return BuiltTables(n=n, peak=peak, after_noise=after_noise)
+
+
+def built_figures(tables: BuiltTables, order: Sequence[int]) -> tuple[float, float]:
+    """(output noise, V rms; highest stage-output peak, V) of the built stages in `order`.
+
+    The dynamic range of an order is the output signal over the noise at the input level
+    that makes the highest node clip, so between orders it goes as 1/(noise · highest
+    peak) (every stage's output swings to the same rails).
+    """
+    subset, total, top = 0, 0.0, 0.0
+    for i in order:
+        subset |= 1 << i
+        total += float(tables.after_noise[i, subset])
+        top = max(top, float(tables.peak[subset]))
+    return math.sqrt(total), top
+
+
+def _dp_under(tables: BuiltTables, allowed: np.ndarray, first: int | None
+              ) -> tuple[tuple[int, ...] | None, float]:
+    """Least-noise order through subsets whose peak is `allowed` (DP over subsets)."""
+    n = tables.n
+    size = 1 << n
+    best = np.full(size, math.inf)
+    last = np.full(size, -1, dtype=int)
+    best[0] = 0.0
+    for subset in range(1, size):
+        if not allowed[subset]:
+            continue
+        members = [i for i in range(n) if subset >> i & 1]
+        if first is not None and not subset >> first & 1:
+            continue
+        if first is not None and subset != 1 << first:
+            members = [i for i in members if i != first]
+        prev = np.array([subset ^ (1 << i) for i in members])
+        costs = best[prev] + tables.after_noise[members, subset]
+        k = int(np.argmin(costs))
+        best[subset], last[subset] = costs[k], members[k]
+    full = size - 1
+    if not math.isfinite(best[full]):
+        return None, math.inf
+    order, subset = [], full
+    while subset:
+        i = int(last[subset])
+        order.append(i)
+        subset ^= 1 << i
+    return tuple(reversed(order)), float(best[full])
+
+
+_PEAK_LEVELS = 16
+
+
+def best_built_order(tables: BuiltTables, *, first: int | None = None,
+                     limit_vpk: float = math.inf) -> tuple[tuple[int, ...], str]:
+    """The order of built stages with the most dynamic range (least noise × highest peak)
+    among those whose highest stage-output peak stays within `limit_vpk` (the swing); the
+    lowest peak when none does.
+
+    Every permutation for up to ``EXHAUSTIVE_MAX`` stages. Beyond, dynamic programming over
+    subsets for each of up to 16 ceilings on the node peak (the least-noise order whose
+    nodes stay under the ceiling, Held & Karp 1962 as in ``best_order_dp``), the best
+    product kept: exact when the optimum's highest peak is one of the ceilings tried.
+    `first` pins one stage at the front.
+
+    Returns
+    -------
+    order : tuple of int
+    method : str
+    """
+    n = tables.n
+
+    def score(order) -> tuple[bool, float]:
+        noise, top = built_figures(tables, order)
+        clips = top > limit_vpk
+        return clips, top if clips else noise * top
+
+    if n <= EXHAUSTIVE_MAX:
+        best, best_cost = None, (True, math.inf)
+        rest = [i for i in range(n) if i != first]
+        for perm in itertools.permutations(rest):
+            order = perm if first is None else (first,) + perm
+            cost = score(order)
+            if cost < best_cost:
+                best, best_cost = order, cost
+        return tuple(best), "exhaustive"
+    levels = np.unique(tables.peak[1:])
+    if levels.size > _PEAK_LEVELS:
+        levels = np.quantile(levels, np.linspace(0, 1, _PEAK_LEVELS))
+    levels = np.maximum(levels, tables.peak[-1])
+    best, best_cost = None, (True, math.inf)
+    for ceiling in np.unique(levels):
+        allowed = tables.peak <= ceiling * (1 + 1e-12)
+        allowed[0] = allowed[-1] = True
+        order, _ = _dp_under(tables, allowed, first)
+        if order is None:
+            continue
+        cost = score(order)
+        if cost < best_cost:
+            best, best_cost = order, cost
+    return tuple(best), f"dynamic programming over subsets under {levels.size} peak ceilings"

@@ -9,6 +9,7 @@ from bandwright.checks.chain_checks import (drive_checks, gbw_checks, headroom_c
                                             noise_checks, parts_checks, slew_checks)
 from bandwright.checks.mask import mask_checks
 from bandwright.checks.time_checks import onset_checks, time_checks
+from bandwright.checks.stability import stability_checks, void_if_unstable
 from bandwright.parts.windows import PartWindows
 from bandwright.inputs.requirement import Requirement
 
@@ -17,17 +18,18 @@ __all__ = ["Check", "worst_status", "all_checks"]
 
 def all_checks(chain: Chain, an: Analyses, requirement: Requirement, *,
                windows: PartWindows = PartWindows()) -> list[Check]:
-    """Every check, in report order: mask, headroom, slew, drive, gbw, noise, parts, onset,
-    time."""
-    out: list[Check] = []
+    """Every check, in report order: stability, mask, headroom, slew, drive, gbw, noise,
+    parts, onset, time. When the chain is unstable the steady-state checks are failed as not
+    meaningful (``checks.stability.void_if_unstable``)."""
+    out: list[Check] = stability_checks(an)
     if an.mask is not None:
         out += mask_checks(an.mask, requirement)
     out += headroom_checks(an)
     out += slew_checks(an)
     out += drive_checks(an)
-    out += gbw_checks(chain)
+    out += gbw_checks(chain, stability=an.stability)
     out += noise_checks(an, requirement)
     out += parts_checks(chain, windows)
     out += onset_checks(an)
     out += time_checks(an, requirement)
-    return out
+    return void_if_unstable(out, an)

@@ -16,8 +16,8 @@ class Check:
     Attributes
     ----------
     id : str
-        One of design.md's check ids (mask, headroom, slew, drive, gbw, noise, parts, yield)
-        or "topology".
+        One of docs/design.md's check ids (mask, headroom, slew, drive, gbw, noise, parts, yield),
+        "stability", "topology" or "order".
     status : {"pass", "warn", "fail"}
     value, limit : float or None
         The figure and what it is held against, in `unit`.

@@ -1,4 +1,4 @@
-"""Checks of a built chain: headroom, slew, drive, gbw, noise, parts (design.md check ids)."""
+"""Checks of a built chain: headroom, slew, drive, gbw, noise, parts (docs/design.md check ids)."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ from bandwright.analysis import Analyses
 from bandwright.chain.graph import Chain
 from bandwright.checks.base import Check
 from bandwright.circuits import topology
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
 from bandwright.inputs.requirement import Requirement
@@ -65,13 +65,37 @@ def drive_checks(an: Analyses) -> list[Check]:
     return out
 
 
-def gbw_checks(chain: Chain) -> list[Check]:
+def stage_gbw_needed_hz(stage) -> float:
+    """The GBW a built stage's topology needs at the f0, Q and gain it was built for, Hz.
+
+    Raises
+    ------
+    ValueError
+        When the built pole pair is not a stable one (Q <= 0 or not finite).
+    """
+    b = stage.built
+    sec = Section(kind=stage.kind, f0_hz=b.f0_hz, q=b.q, gain=abs(b.gain)) \
+        if stage.kind != "gain" else Section(kind="gain", f0_hz=0.0, q=0.0, gain=abs(b.gain))
+    return topology(stage.topology).limits(sec, stage.model).gbw_needed_hz
+
+
+def gbw_checks(chain: Chain, stability=()) -> list[Check]:
     """Per stage: the GBW its topology needs at the f0, Q and gain it was built for, against
-    the op-amp's. The built figures are used, so a plan and the audit of its parts agree."""
+    the op-amp's. The built figures are used, so a plan and the audit of its parts agree.
+    A stage whose poles `stability` (``analysis.stability.StagePoles`` per stage) puts in
+    the right half-plane is said to be unstable: no GBW figure describes it."""
+    from bandwright.checks.stability import unstable_message
     out = []
+    unstable = {sp.position: sp for sp in stability if not sp.stable}
     for st in chain.stages:
         b = st.built
         have = st.model.gbw_hz
+        if st.position in unstable:
+            out.append(Check(
+                id="gbw", status="fail", value=None, limit=have, unit="Hz", stage=st.position,
+                message=f"{st.topology} is unstable with these parts and this op-amp: "
+                        f"{unstable_message(unstable[st.position])}"))
+            continue
         if st.kind != "gain" and not (math.isfinite(b.q) and b.q > 0
                                       and math.isfinite(b.f0_hz) and b.f0_hz > 0):
             # Audited parts can make a stage that oscillates with this op-amp: a figure of
@@ -82,16 +106,14 @@ def gbw_checks(chain: Chain) -> list[Check]:
                         f"(f0 {b.f0_hz:.4g} Hz, Q {b.q:.4g}) lies on or right of the "
                         f"imaginary axis"))
             continue
-        sec = Section(kind=st.kind, f0_hz=b.f0_hz, q=b.q, gain=abs(b.gain)) \
-            if st.kind != "gain" else Section(kind="gain", f0_hz=0.0, q=0.0, gain=abs(b.gain))
-        need = topology(st.topology).limits(sec, st.model).gbw_needed_hz
+        need = stage_gbw_needed_hz(st)
         ok = have >= need
-        needs = (f"needs {format_value(need, 'Hz')} GBW here" if math.isfinite(need) else
+        needs = (f"needs {format_hz(need)} GBW here" if math.isfinite(need) else
                  f"cannot reach Q {b.q:.3g} at gain {abs(b.gain):.3g} with any GBW")
         out.append(Check(
             id="gbw", status="pass" if ok else "fail", value=need, limit=have, unit="Hz",
             stage=st.position,
-            message=f"{st.topology} {needs}, the op-amp has {format_value(have, 'Hz')}"))
+            message=f"{st.topology} {needs}, the op-amp has {format_hz(have)}"))
     return out
 
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 from bandwright.analysis.montecarlo import YieldResult
 from bandwright.checks.base import Check
 
@@ -18,7 +20,7 @@ def yield_checks(result: YieldResult) -> list[Check]:
     Parameters
     ----------
     result : YieldResult
-        From ``analysis.montecarlo.plan_yield`` (its `offer` is quoted when the yield
+        From ``advice.tolerance.plan_yield`` (its `offer` is quoted when the yield
         falls short).
 
     Returns
@@ -31,14 +33,17 @@ def yield_checks(result: YieldResult) -> list[Check]:
     ok = result.meets_target
     parts = (f"R ±{sp.resistor_pct:g} % ({sp.resistor_source}), C ±{sp.capacitor_pct:g} % "
              f"({sp.capacitor_source}), GBW ±{sp.gbw_spread_pct:g} %, {sp.distribution}")
-    msg = (f"{_pct(result.yield_fraction)} of {result.samples} boards meet the mask and "
-           f"headroom (95 % interval {_pct(lo)}–{_pct(hi)}; target {_pct(result.min_yield)}); "
+    msg = (f"{_pct(result.yield_fraction)} of {result.samples} boards are stable and "
+           f"meet the mask and headroom (95 % interval {_pct(lo)}–{_pct(hi)}; target {_pct(result.min_yield)}); "
            f"{parts}; seed {result.seed}")
     if ok and lo < result.min_yield:
         msg += "; the interval reaches below the target: more samples would settle it"
     if not ok:
         fails = ", ".join(f"{k} {v}" for k, v in result.fail_counts.items() if v)
-        msg += f"; failing: {fails or 'none'}; nominal margin {result.nominal_margin_db:.3g} dB"
+        margin = result.nominal_margin_db
+        msg += f"; failing: {fails or 'none'}; " + (
+            f"nominal margin {margin:.3g} dB" if math.isfinite(margin)
+            else "the nominal board is unstable")
         if result.drivers:
             msg += "; decided most by " + ", ".join(
                 f"{d.part} of stage {d.stage} ({100 * d.index:.0f} %)" for d in result.drivers[:3])

@@ -12,6 +12,7 @@ from bandwright.inputs.requirement import (
     AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
     Requirement, StopbandPoint, Supply, TimeLimits, Tolerance, Tone,
 )
+from bandwright.parts.eseries import SERIES_NAMES
 from bandwright.vocabulary import FAMILIES
 
 __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "read_passband",
@@ -21,9 +22,9 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES",
            "TIME_KEYS", "read_time"]
 
-SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
-                  "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
+                  "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms",
+                  "current_noise_corner_hz")
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
               "noise", "tolerance", "time")
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
@@ -59,7 +60,8 @@ _MAX_OHMS = 1e12
 AMPLIFIER_RANGES = {"gbw_hz": (1.0, 1e11), "dc_gain_db": (20.0, 200.0),
                     "slew_v_per_us": (1e-6, 1e6), "swing_to_rail_v": (0.0, 100.0),
                     "noise_v_per_rthz": (0.0, 1e-3), "noise_a_per_rthz": (0.0, 1e-6),
-                    "noise_corner_hz": (0.0, 1e9), "min_load_ohms": (1e-3, 1e12)}
+                    "noise_corner_hz": (0.0, 1e9), "min_load_ohms": (1e-3, 1e12),
+                    "current_noise_corner_hz": (0.0, 1e9)}
 _F_LO, _F_HI = FREQ_RANGE_HZ
 
 
@@ -84,7 +86,7 @@ def load_spec(path: str | Path) -> Requirement:
 
 
 def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requirement:
-    """Validate a parsed requirement document (see design.md for the keys)."""
+    """Validate a parsed requirement document (see docs/design.md for the keys)."""
     top = TableReader(path, "", doc, TOP_TABLES)
     if not top.has("passband"):
         raise SpecError(path, "passband", "missing table [passband]")

@@ -1,4 +1,4 @@
-"""The requirement as frozen values, units in names (keys of design.md)."""
+"""The requirement as frozen values, units in names (keys of docs/design.md)."""
 
 from __future__ import annotations
 

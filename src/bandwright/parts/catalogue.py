@@ -3,18 +3,21 @@
 The archetypes are classes of op-amp, not products: each carries round, typical figures
 of its class (common practice), to be overridden key by key by the requirement.
 
-=============  ========  ======  =======  =======  ========  =========  ======  =======
-name           GBW       A0      slew     swing    e_n       i_n        corner  load
-=============  ========  ======  =======  =======  ========  =========  ======  =======
-micropower     200 kHz   100 dB  0.1      0.05 V   50 nV     1 fA       200 Hz  20 kΩ
-precision      1 MHz     130 dB  0.4      1.0 V    8 nV      100 fA     3 Hz    2 kΩ
-general        3 MHz     100 dB  5        1.0 V    15 nV     10 fA      50 Hz   2 kΩ
-low-noise      10 MHz    110 dB  7        1.5 V    3 nV      500 fA     10 Hz   600 Ω
-wideband       50 MHz    100 dB  30       1.0 V    6 nV      1 pA       200 Hz  500 Ω
-fast           200 MHz   85 dB   300      1.2 V    4 nV      2 pA       1 kHz   150 Ω
-=============  ========  ======  =======  =======  ========  =========  ======  =======
+=============  ========  ======  =======  =======  ========  =========  ======  =======  =======
+name           GBW       A0      slew     swing    e_n       i_n        corner  i corner load
+=============  ========  ======  =======  =======  ========  =========  ======  =======  =======
+micropower     200 kHz   100 dB  0.1      0.05 V   50 nV     1 fA       200 Hz  200 Hz   20 kΩ
+precision      1 MHz     130 dB  0.4      1.0 V    8 nV      100 fA     3 Hz    100 Hz   2 kΩ
+general        3 MHz     100 dB  5        1.0 V    15 nV     10 fA      50 Hz   50 Hz    2 kΩ
+low-noise      10 MHz    110 dB  7        1.5 V    3 nV      500 fA     10 Hz   10 Hz    600 Ω
+wideband       50 MHz    100 dB  30       1.0 V    6 nV      1 pA       200 Hz  200 Hz   500 Ω
+fast           200 MHz   85 dB   300      1.2 V    4 nV      2 pA       1 kHz   1 kHz    150 Ω
+=============  ========  ======  =======  =======  ========  =========  ======  =======  =======
 
-Slew in V/µs, noise densities per √Hz, "load" the smallest load for full swing.
+Slew in V/µs, noise densities per √Hz, "corner" the voltage noise's 1/f corner, "i corner"
+the current noise's, "load" the smallest load for full swing. The precision class has a
+bipolar input: its current noise turns up (1/f) far above its voltage-noise corner (common
+practice); the others keep one corner for both.
 """
 
 from __future__ import annotations
@@ -39,7 +42,8 @@ ARCHETYPES: dict[str, OpAmp] = {
                         noise_corner_hz=200.0, min_load_ohms=20e3),
     "precision": OpAmp(name="precision", gbw_hz=1e6, dc_gain_db=130.0, slew_v_per_us=0.4,
                        swing_to_rail_v=1.0, noise_v_per_rthz=8e-9, noise_a_per_rthz=100e-15,
-                       noise_corner_hz=3.0, min_load_ohms=2e3),
+                       noise_corner_hz=3.0, min_load_ohms=2e3,
+                       current_noise_corner_hz=100.0),
     "general": OpAmp(name="general", gbw_hz=3e6, dc_gain_db=100.0, slew_v_per_us=5.0,
                      swing_to_rail_v=1.0, noise_v_per_rthz=15e-9, noise_a_per_rthz=10e-15,
                      noise_corner_hz=50.0, min_load_ohms=2e3),
@@ -64,6 +68,7 @@ _OVERRIDE_RULES: dict[str, tuple[float, bool]] = {
     "noise_a_per_rthz": (0.0, True),
     "noise_corner_hz": (0.0, True),
     "min_load_ohms": (0.0, False),
+    "current_noise_corner_hz": (0.0, True),
 }
 OVERRIDE_KEYS: tuple[str, ...] = tuple(_OVERRIDE_RULES)
 
@@ -125,6 +130,8 @@ def make_opamp(*, archetype: str | None = None,
     overrides : Mapping[str, float], optional
         Requirement keys replacing the base figures: gbw_hz, dc_gain_db, slew_v_per_us,
         swing_to_rail_v, noise_v_per_rthz, noise_a_per_rthz, noise_corner_hz,
+        current_noise_corner_hz (default: the base's; the new noise_corner_hz when only
+        that is given and the base has one corner for both),
         min_load_ohms.
 
     Returns
@@ -148,6 +155,11 @@ def make_opamp(*, archetype: str | None = None,
     """
     base = _find_archetype(archetype if archetype is not None else DEFAULT_ARCHETYPE)
     changes = {key: _checked(key, value) for key, value in overrides.items()}
+    if ("noise_corner_hz" in changes and "current_noise_corner_hz" not in changes
+            and base.current_noise_corner_hz == base.noise_corner_hz):
+        # A base with one corner for both noises keeps one corner when only the voltage
+        # corner is given (the documented default: the same as noise_corner_hz).
+        changes["current_noise_corner_hz"] = changes["noise_corner_hz"]
     if all(getattr(base, key) == value for key, value in changes.items()):
         return base
     return replace(base, name="custom", **changes)

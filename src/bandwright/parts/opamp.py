@@ -34,9 +34,14 @@ class OpAmp:
     noise_a_per_rthz : float
         White input current noise density (each input), A/√Hz.
     noise_corner_hz : float
-        1/f corner of both noise densities, Hz (0: white only).
+        1/f corner of the voltage noise, Hz (0: white only); also of the current noise
+        unless `current_noise_corner_hz` is set.
     min_load_ohms : float
         Smallest load the output may drive with full swing, ohms.
+    current_noise_corner_hz : float
+        1/f corner of the current noise, Hz; None at construction means the same as
+        `noise_corner_hz`. A bipolar input's current-noise corner often lies far above its
+        voltage-noise corner (common practice).
     """
 
     name: str
@@ -48,6 +53,12 @@ class OpAmp:
     noise_a_per_rthz: float
     noise_corner_hz: float
     min_load_ohms: float = 2000.0
+    current_noise_corner_hz: float | None = None   # a float once constructed
+
+    def __post_init__(self) -> None:
+        if self.current_noise_corner_hz is None:
+            # Frozen: the one place the default is resolved.
+            object.__setattr__(self, "current_noise_corner_hz", self.noise_corner_hz)
 
     @property
     def a0(self) -> float:
@@ -76,6 +87,7 @@ class OpAmp:
         return self.noise_v_per_rthz**2 * (1 + self.noise_corner_hz / f)
 
     def current_noise_psd(self, freq_hz: np.ndarray) -> np.ndarray:
-        """i_n^2(f) = i_w^2 (1 + fc/f), A^2/Hz, same corner as the voltage noise."""
+        """i_n^2(f) = i_w^2 (1 + fci/f), A^2/Hz, fci the current-noise corner
+        (`current_noise_corner_hz`; Motchenbacher & Connelly 1993, ch. 4 [mem])."""
         f = np.asarray(freq_hz, dtype=float)
-        return self.noise_a_per_rthz**2 * (1 + self.noise_corner_hz / f)
+        return self.noise_a_per_rthz**2 * (1 + self.current_noise_corner_hz / f)

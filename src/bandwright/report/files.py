@@ -10,7 +10,7 @@ from typing import Any
 from bandwright.analysis.montecarlo import resolve_spreads
 from bandwright.chain.graph import Chain, flatten
 from bandwright.parts.catalogue import ARCHETYPES
-from bandwright.parts.eseries import is_member
+from bandwright.parts.eseries import SERIES_NAMES, is_member
 from bandwright.parts.notation import format_value
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
 from bandwright.report.spice import spice_deck
@@ -18,7 +18,7 @@ from bandwright.report.spice import spice_deck
 __all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
-             "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms")
+             "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz")
 
 
 def _toml_value(v: Any) -> str:
@@ -38,7 +38,7 @@ def _amplifier_lines(model, header: str) -> list[str]:
 
 
 def chain_toml(chain: Chain, req, *, title: str) -> str:
-    """The chain in the audit format (design.md), so that `bandwright audit` reproduces it."""
+    """The chain in the audit format (docs/design.md), so that `bandwright audit` reproduces it."""
     out = [f"# {title}", "# Audit file written by bandwright: `bandwright audit chain.toml`.", ""]
     pb = req.passband
     if pb is not None:
@@ -100,8 +100,8 @@ def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
         else:
             series = r_series if e.kind == "R" else c_series
             if series is None or not is_member(e.value, series):
-                series = next((s for s in ("E6", "E12", "E24", "E48", "E96", "E192")
-                               if is_member(e.value, s)), "")
+                # E3's values are E6 values: name the coarsest series parts are sold in.
+                series = next((s for s in SERIES_NAMES[1:] if is_member(e.value, s)), "")
             pct = r_pct if e.kind == "R" else c_pct
             if pct is None and series:
                 pct = default_tolerance_pct(series)

@@ -20,7 +20,7 @@ from bandwright import __version__
 from bandwright.checks.base import worst_status
 from bandwright.parts.notation import format_value
 from bandwright.report.subject import Subject, net_label, stage_label, subject_of
-from bandwright.report.terminal import fmt_hz
+from bandwright.report.terminal import fmt_hz, ordering_built_text
 
 __all__ = ["html_report", "SECTION_IDS", "svg_inline", "verdict_text"]
 
@@ -200,12 +200,12 @@ def _summary(s: Subject) -> str:
     if s.chain is not None:
         models = sorted({st.model.name for st in s.chain.stages})
         m = s.chain.stages[0].model
-        rows.append(("op-amp", f"'{', '.join(models)}': {m.gbw_hz / 1e6:.3g} MHz GBW, "
+        rows.append(("op-amp", f"'{', '.join(models)}': {fmt_hz(m.gbw_hz, significant=3)} GBW, "
                                f"{m.slew_v_per_us:g} V/µs, {m.noise_v_per_rthz * 1e9:.3g} "
                                "nV/√Hz"))
     elif s.kind == "plan":
         m = s.source.model
-        rows.append(("op-amp", f"'{m.name}': {m.gbw_hz / 1e6:.3g} MHz GBW"))
+        rows.append(("op-amp", f"'{m.name}': {fmt_hz(m.gbw_hz, significant=3)} GBW"))
     band = req.noise.band_hz
     rows.append(("noise band", f"{fmt_hz(band[0])} to {fmt_hz(band[1])}" if band
                  else "the passband"))
@@ -314,6 +314,8 @@ def _chain(s: Subject, schematics: dict) -> str:
                    f"{o.gain_over_generated_db:+.1f} dB of dynamic range over the order as "
                    f"generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
                    "(planning model, equal-maxima gains).</p>")
+        if math.isfinite(o.built_noise_vrms):
+            out.append(f'<p class="note">{_e(ordering_built_text(o))}</p>')
     out.append("</section>")
     return "".join(out)
 

@@ -1,4 +1,4 @@
-"""The JSON object of design.md, built from a Plan or an Audit (a renderer: no maths here)."""
+"""The JSON object of docs/design.md, built from a Plan or an Audit (a renderer: no maths here)."""
 
 from __future__ import annotations
 
@@ -111,7 +111,7 @@ def _candidate_dict(d) -> dict[str, Any]:
 
 
 def plan_to_dict(p) -> dict[str, Any]:
-    """The plan as design.md's JSON object (plus a few keys of our own)."""
+    """The plan as docs/design.md's JSON object (plus a few keys of our own)."""
     d = p.chosen
     c = d.candidate
     out: dict[str, Any] = {
@@ -137,7 +137,13 @@ def plan_to_dict(p) -> dict[str, Any]:
     o = d.ordering
     out["ordering"] = {"method": o.method, "order_as_generated": [i + 1 for i in o.order],
                        "gain_over_generated_db": num(o.gain_over_generated_db),
-                       "gain_over_increasing_q_db": num(o.gain_over_increasing_q_db)}
+                       "gain_over_increasing_q_db": num(o.gain_over_increasing_q_db),
+                       "model_noise_vrms": num(o.noise_vrms),
+                       "built": {"noise_vrms": num(o.built_noise_vrms),
+                                 "gain_over_generated_db": num(o.built_gain_over_generated_db),
+                                 "gain_over_increasing_q_db":
+                                     num(o.built_gain_over_increasing_q_db),
+                                 "placement": o.placement}}
     y = getattr(d, "yield_result", None)
     out["yield"] = yield_dict(y) if y is not None else None
     out["sensitivities"] = sensitivities_dict(y.sensitivities) if y is not None else None

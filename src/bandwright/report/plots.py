@@ -428,10 +428,15 @@ def _poles_of(f0_hz: float, q: float) -> np.ndarray:
 
 
 def _poles(s: Subject) -> Figure | None:
-    stages = [st for st in s.chain.stages if st.kind != "gain" and st.built.q > 0]
-    if not stages:
+    # An unstable stage's pair figures mirror its poles: it is drawn from its own roots.
+    unstable = {sp.position: sp for sp in s.analyses.stability if not sp.stable}
+    stages = [st for st in s.chain.stages if st.kind != "gain" and st.built.q > 0
+              and st.position not in unstable]
+    if not stages and not unstable:
         return None
-    fmax = max(max(st.built.f0_hz, st.target.f0_hz) for st in stages)
+    rhp = [sp.poles_rad_s / (2 * math.pi) for sp in unstable.values()]
+    fmax = max([max(st.built.f0_hz, st.target.f0_hz) for st in stages]
+               + [float(np.max(np.abs(p))) for p in rhp if p.size])
     scale, unit = (1e3, "kHz") if fmax >= 2e3 else (1.0, "Hz")
     fig, (ax, fq) = _figure(2, width_ratios=(1.0, 1.2))
     for st in stages:
@@ -448,21 +453,27 @@ def _poles(s: Subject) -> Figure | None:
                 color=c)
         fq.annotate(f"{st.position}", (st.built.f0_hz, st.built.q), xytext=(6, 4),
                     textcoords="offset points", fontsize=8, color=c)
+    for sp, p in zip(unstable.values(), rhp):
+        ax.plot(p.real / scale, p.imag / scale, linestyle="", marker="x", markersize=9,
+                color="#c0392b", label=f"stage {sp.position}: unstable, "
+                f"{sp.unstable_poles.size} pole(s) in the right half-plane")
     ax.axvline(0.0, color="#555555", linewidth=0.8)
     ax.axhline(0.0, color="#555555", linewidth=0.8)
     ax.plot([], [], linestyle="", marker="o", markerfacecolor="none", markeredgecolor="#555555",
             label="target (○), built (×)")
     lim = 1.15 * fmax / scale
     ax.set_ylim(-lim, lim)
-    left = min(min(_poles_of(st.built.f0_hz, st.built.q).real.min() for st in stages) / scale,
-               -0.05 * lim)
-    ax.set_xlim(1.15 * left, 0.15 * lim)
+    reals = [_poles_of(st.built.f0_hz, st.built.q).real.min() for st in stages]
+    reals += [float(p.real.min()) for p in rhp if p.size]
+    left = min(min(reals) / scale, -0.05 * lim)
+    right = max([0.15 * lim] + [1.15 * float(p.real.max()) / scale for p in rhp if p.size])
+    ax.set_xlim(1.15 * left, right)
     ax.set_xlabel(f"real part σ/2π ({unit})")
     ax.set_ylabel(f"imaginary part ω/2π ({unit})")
     ax.set_title("Section poles (s-plane)", loc="left", fontsize=11)
     ax.grid(True, color="#e6e6e6")
-    f_all = [st.built.f0_hz for st in stages] + [st.target.f0_hz for st in stages]
-    q_all = [st.built.q for st in stages] + [st.target.q for st in stages]
+    f_all = [st.built.f0_hz for st in stages] + [st.target.f0_hz for st in stages] or [fmax]
+    q_all = [st.built.q for st in stages] + [st.target.q for st in stages] or [0.5]
     _log_freq_axis(fq, min(f_all) / 1.6, max(f_all) * 1.6)
     fq.set_xlabel("pole frequency f0 (log scale)")
     _plain_log_y(fq, min(q_all) / 1.6, max(q_all) * 1.6)

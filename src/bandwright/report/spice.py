@@ -1,10 +1,10 @@
 """The SPICE deck writer: a chain's element list as an ngspice-39 batch deck (``chain.cir``).
 
-The deck is the same element list the nodal solver analyses (design.md, "one element list
+The deck is the same element list the nodal solver analyses (docs/design.md, "one element list
 per stage is the truth"), written so that ngspice's ``.ac`` and ``.noise`` reproduce the
 nodal solver's response and noise, op-amp noise included.
 
-Deck layout (design.md, "Interfaces")
+Deck layout (docs/design.md, "Interfaces")
 ------------------------------------
 * ``VIN src 0 AC 1 DC 0`` -- the unit source; ``RSRC src in`` -- the source resistance.
   ngspice cannot hold a 0 ohm resistor, so ``source_ohms == 0`` is written as
@@ -37,7 +37,9 @@ the finite stand-in ``IDEAL_GAIN`` = 1e12 in place of the missing A0 or pole, wh
 
 **Noise.** The model (Motchenbacher & Connelly 1993, ch. 4 [mem]) has a voltage noise
 e_n^2(f) = e_w^2 (1 + fc/f) in series with the + input and an independent current noise
-i_n^2(f) = i_w^2 (1 + fc/f) into each input. ngspice's ``.noise`` only evaluates device
+i_n^2(f) = i_w^2 (1 + fci/f) into each input, fci the current noise's own corner (the
+voltage corner unless the model sets it apart; the current-noise diodes then get a diode
+model of their own). ngspice's ``.noise`` only evaluates device
 noise, so each of these three generators is made of diodes:
 
 * A diode fed by an ideal DC current I carries shot noise 2qI (A^2/Hz, Schottky 1918) and
@@ -206,7 +208,8 @@ def opamp_subckt(model: OpAmp, *, temperature_c: float) -> str:
     -----
     See the module docstring: gain A0/(1 + s A0/wt) (Franco 2015, §6.1 [mem]) from
     noiseless controlled sources; e_n in series with the + input and i_n into each input,
-    each with PSD white x (1 + fc/f) (Motchenbacher & Connelly 1993, ch. 4 [mem]), made
+    each with PSD white x (1 + corner/f), each noise with its own corner
+    (Motchenbacher & Connelly 1993, ch. 4 [mem]), made
     of current-biased diode pairs (shot plus flicker noise, KF = 2 q fc, AF = 1).
     """
     name = subckt_name(model)
@@ -214,10 +217,14 @@ def opamp_subckt(model: OpAmp, *, temperature_c: float) -> str:
     e_w = model.noise_v_per_rthz
     i_w = model.noise_a_per_rthz
     fc_hz = model.noise_corner_hz
+    fci_hz = model.current_noise_corner_hz
+    # The current-noise diodes get a model of their own when their corner differs.
+    diode_i = diode if fci_hz == fc_hz else f"di_{name}"
     lines = [
         f"* op-amp model {model.name!r}: GBW {_show(model.gbw_hz)} Hz, A0 "
         f"{_show(model.dc_gain_db)} dB, e_w {_show(e_w)} V/rtHz, i_w {_show(i_w)} A/rtHz, "
-        f"1/f corner {_show(fc_hz)} Hz",
+        f"1/f corner {_show(fc_hz)} Hz"
+        + ("" if fci_hz == fc_hz else f" (current noise {_show(fci_hz)} Hz)"),
         f".subckt {name} plus minus out",
     ]
     if e_w > 0:
@@ -231,9 +238,9 @@ def opamp_subckt(model: OpAmp, *, temperature_c: float) -> str:
     if i_w > 0:
         gm = noise_sense_gain(i_w, temperature_c=temperature_c)
         lines.append("* current noise into each input, independent")
-        lines += _diode_pair("np", diode)
+        lines += _diode_pair("np", diode_i)
         lines.append(f"G_NP plus 0 npa npb {_num(gm)}")
-        lines += _diode_pair("nm", diode)
+        lines += _diode_pair("nm", diode_i)
         lines.append(f"G_NM minus 0 nma nmb {_num(gm)}")
     inv_a0 = 1.0 / model.a0 if math.isfinite(model.a0) else 1.0 / IDEAL_GAIN
     if math.isfinite(model.gbw_hz):
@@ -249,9 +256,11 @@ def opamp_subckt(model: OpAmp, *, temperature_c: float) -> str:
             f"* ideal op-amp: gain {_num(IDEAL_GAIN)} stands in for the nullor",
             f"E_O out 0 {plus_inner} minus {_num(IDEAL_GAIN)}",
         ]
-    if e_w > 0 or i_w > 0:
-        flicker = f" KF={_num(2 * CHARGE_C * fc_hz)} AF=1" if fc_hz > 0 else ""
-        lines.append(f".model {diode} D(IS=1e-14 N=1{flicker})")
+    for model_name, corner_hz, used in ((diode, fc_hz, e_w > 0 or (i_w > 0 and diode_i == diode)),
+                                        (diode_i, fci_hz, i_w > 0 and diode_i != diode)):
+        if used:
+            flicker = f" KF={_num(2 * CHARGE_C * corner_hz)} AF=1" if corner_hz > 0 else ""
+            lines.append(f".model {model_name} D(IS=1e-14 N=1{flicker})")
     lines.append(f".ends {name}")
     return "\n".join(lines) + "\n"
 
@@ -316,7 +325,7 @@ def _validate(elements: Sequence[Element]) -> list[str]:
 
 def spice_deck(elements: Sequence[Element], *, source_ohms: float, temperature_c: float,
                title: str) -> str:
-    """Write a whole chain as an ngspice-39 batch deck (the ``chain.cir`` of design.md).
+    """Write a whole chain as an ngspice-39 batch deck (the ``chain.cir`` of docs/design.md).
 
     Parameters
     ----------

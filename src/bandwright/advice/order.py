@@ -1,21 +1,10 @@
-"""What would work instead: the figures behind an infeasible requirement and the nearest
-requirement the tool can meet, attached to the failing checks of a plan.
-
-Two cases live here (the third, a section no topology builds with the op-amp given, is
-answered in ``planner._nearest_fix`` with a faster op-amp class):
-
-* a stopband that needs an order above ``candidates.MAX_ORDER``: which order the mask
-  needs, the most the tool builds, and what that order reaches at the deciding stopband
-  point (or where that point would have to move);
-* a chain that clips: node peaks scale with the chain's gain, so the largest gain that fits
-  is about the asked gain plus the worst headroom margin — planned again to make sure.
-"""
+"""Advice for a stopband that needs an order above ``candidates.MAX_ORDER``: which order the
+mask needs, the most the tool builds, and what that order reaches at the deciding stopband
+point (or where that point would have to move)."""
 
 from __future__ import annotations
 
 import math
-from dataclasses import replace
-from typing import Any, Callable
 
 import numpy as np
 
@@ -25,15 +14,11 @@ from bandwright.prototype import bandpass_omega, order_for_point
 from bandwright.inputs.requirement import Requirement
 
 __all__ = ["MAX_BUILT_ORDER", "prototype_loss_db", "omega_for_loss", "frequency_of_omega",
-           "order_beyond_reach", "with_gain_advice"]
+           "order_beyond_reach"]
 
 # The bandpass path has one section per prototype order: the section limit of the ordering
 # search caps it below MAX_ORDER.
 MAX_BUILT_ORDER = MAX_ORDER
-# The gain advice plans at most this many times; below the least gain a requirement may
-# ask (passband.gain_db >= -60 dB) it stops.
-_GAIN_TRIES = 3
-_MIN_GAIN_DB = -60.0
 
 
 def _eps2(ripple_db: float) -> float:
@@ -61,7 +46,7 @@ def prototype_loss_db(family: str, order: int, ripple_db: float, omega: float) -
     -----
     Butterworth: A = 10 log10(1 + ε² Ω^(2N)); Chebyshev I: A = 10 log10(1 + ε² cosh²(N acosh Ω)),
     ε² = 10^(Amax/10) − 1 (Williams & Taylor 2006, §2 [mem]; the inverse of the order formulas
-    in references.md, "Mask → order"). Computed in logs so that high orders do not overflow.
+    in docs/methods.md, "Mask → order"). Computed in logs so that high orders do not overflow.
     """
     e2 = _eps2(ripple_db)
     if family == "butterworth":
@@ -90,7 +75,7 @@ def frequency_of_omega(omega: float, center_hz: float, bandwidth_hz: float, *,
     Notes
     -----
     Solves Ω = (f² − f0²)/(f·BW) for f > f0: f = (Ω·BW + √((Ω·BW)² + 4 f0²)) / 2; the lower
-    side is f0²/f (references.md, "Mask → order").
+    side is f0²/f (docs/methods.md, "Mask → order").
     """
     x = omega * bandwidth_hz
     f_up = (x + math.sqrt(x * x + 4 * center_hz * center_hz)) / 2
@@ -142,72 +127,3 @@ def order_beyond_reach(cand: Candidate, req: Requirement) -> Check:
            f"out to {f_ok:.6g} Hz")
     return Check(id="order", status="fail", value=float(order), limit=float(MAX_BUILT_ORDER),
                  unit="order", message=msg)
-
-
-def with_gain_advice(design, req: Requirement, rebuild: Callable[[Requirement], Any]):
-    """`design` with the largest gain that fits added to its worst failing headroom check,
-    found by planning again at that gain.
-
-    Parameters
-    ----------
-    design : planner.Design
-        A built design; returned unchanged when nothing clips.
-    req : Requirement
-    rebuild : callable(Requirement) -> planner.Design
-        Builds the same candidate (family, path) for a requirement that differs only in
-        ``passband.gain_db``.
-
-    Returns
-    -------
-    planner.Design
-
-    Notes
-    -----
-    Every node peak (in-band signal and tones alike) is proportional to the chain's gain
-    while the sections and their order stay as they are (equal-maxima scaling, Schaumann &
-    Van Valkenburg 2001, ch. 6 [mem]), so gain_db + the worst margin is the first guess. A
-    lower gain may change the topologies the planner picks, so the guess is planned and
-    lowered by the new worst margin until a plan fits (at most `_GAIN_TRIES` plans): the
-    gain the message names is one the planner has built without clipping.
-    """
-    if design.analyses is None:
-        return design
-    nodes = design.analyses.nodes
-    clipping = [n for n in nodes if math.isfinite(n.margin_db) and n.margin_db < 0]
-    if not clipping:
-        return design
-    worst = min(clipping, key=lambda n: n.margin_db)
-    pb, inp = req.passband, req.input
-    tones = " and the tones" if inp.tones else ""
-    gain_db = math.floor((pb.gain_db + worst.margin_db) * 10) / 10
-    found = None
-    for _ in range(_GAIN_TRIES):
-        if gain_db < _MIN_GAIN_DB:
-            break
-        trial = rebuild(replace(req, passband=replace(pb, gain_db=gain_db)))
-        if trial.analyses is None:
-            break
-        margin = trial.analyses.worst_margin_db
-        if margin >= 0:
-            found = (gain_db, margin)
-            break
-        gain_db = math.floor((gain_db + margin) * 10) / 10 - 0.1
-    if found is None:
-        advice = (f"; no gain down to {max(gain_db, _MIN_GAIN_DB):.1f} dB was found to fit "
-                  f"(asked: {pb.gain_db:g} dB): lower input.max_vpk{tones}, or widen the rails")
-    else:
-        advice = (f"; at most about {found[0]:.1f} dB of gain fits the ±{worst.limit_vpk:.3g} V "
-                  f"swing on {req.supply.rails_v[0]:g}/{req.supply.rails_v[1]:+g} V rails with "
-                  f"{_volts(inp.max_vpk)} in{tones} (asked: {pb.gain_db:g} dB; planned at "
-                  f"{found[0]:.1f} dB, the worst margin is {found[1]:+.1f} dB)")
-    out, done = [], False
-    for c in design.checks:
-        if not done and c.id == "headroom" and c.status == "fail" and c.net == worst.net:
-            c = replace(c, message=c.message + advice)
-            done = True
-        out.append(c)
-    return replace(design, checks=tuple(out))
-
-
-def _volts(v: float) -> str:
-    return f"{v * 1e3:.3g} mV" if v < 1 else f"{v:.3g} V"
