@@ -268,7 +268,12 @@ def _why(designs: list[Design]) -> str:
     if best.buildable != nxt.buildable:
         return f"the {name} candidate cannot be built with this op-amp"
     if best.failures != nxt.failures:
-        return f"fewer failing checks ({best.failures} against {nxt.failures} for {name})"
+        why = f"fewer failing checks ({best.failures} against {nxt.failures} for {name})"
+        lost = [c for c in nxt.checks if c.status == "fail" and c.id == "time"]
+        if lost and not any(c.status == "fail" and c.id == "time" for c in best.checks):
+            # A [time] limit decides: name the figure the other candidate misses.
+            why += f"; it misses the [time] limit: {lost[0].message}"
+        return why
     if (_shortfall(best) != _shortfall(nxt) and best.yield_result is not None
             and nxt.yield_result is not None):
         return (f"more boards meet the requirement ({100 * best.yield_result.yield_fraction:.1f} % "

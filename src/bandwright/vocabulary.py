@@ -9,7 +9,8 @@ __all__ = ["StageKind", "Family", "CheckStatus", "CheckId", "FAMILIES", "STAGE_K
 StageKind = Literal["bandpass", "lowpass", "highpass", "gain"]
 Family = Literal["butterworth", "chebyshev"]
 CheckStatus = Literal["pass", "warn", "fail"]
-CheckId = Literal["mask", "headroom", "slew", "drive", "gbw", "noise", "parts", "yield", "topology"]
+CheckId = Literal["mask", "headroom", "slew", "drive", "gbw", "noise", "parts", "yield", "topology",
+                  "onset", "time"]
 
 FAMILIES: tuple[str, ...] = ("butterworth", "chebyshev")
 STAGE_KINDS: tuple[str, ...] = ("bandpass", "lowpass", "highpass", "gain")

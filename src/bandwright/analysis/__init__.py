@@ -15,11 +15,12 @@ from bandwright.analysis.noise import NoiseAnalysis, chain_noise
 from bandwright.analysis.response import MaskReading, Response, read_mask
 from bandwright.analysis.stability import StagePoles, stage_poles
 from bandwright.analysis.converter import ConverterAnalysis, converter_analysis
+from bandwright.analysis.timedomain import TimeFigures, time_figures
 from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain, attach_converter
 from bandwright.inputs.requirement import Requirement
 
 __all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis",
-           "ConverterAnalysis"]
+           "ConverterAnalysis", "TimeFigures"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -56,6 +57,9 @@ class Analyses:
     inputs : tuple of InputLevel
         Common-mode level at every op-amp's + input (single supply only,
         ``analysis.input_range``).
+    time : TimeFigures or None
+        Group delay, bursts, step and onset peaks (``analysis.timedomain``); None when
+        the chain's output transfer is unstable.
     """
 
     response: Response
@@ -71,6 +75,7 @@ class Analyses:
     converter: ConverterAnalysis | None = None
     bias: BiasAnalysis | None = None
     inputs: tuple[InputLevel, ...] = ()
+    time: TimeFigures | None = None
 
     @property
     def stable(self) -> bool:
@@ -128,8 +133,15 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
     conv_an = None if conv is None else converter_analysis(
         chain, requirement, nodes=nodes, noise=noise, clip_scale=scale,
         signal_out_vpk=out_node.signal_vpk)
+    pb = requirement.passband
+    times = time_figures(chain, passband_hz=passband_grid(requirement), low_hz=pb.low_hz,
+                         high_hz=pb.high_hz, center_hz=pb.center_hz,
+                         burst_s=requirement.time.burst_s, signal_vpk=requirement.input.max_vpk,
+                         tones=requirement.input.tones, dc_step_v=requirement.input.dc_step_v,
+                         limits_vpk={n.net: n.limit_vpk for n in nodes})
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
                     dynamic_range_db=dr, stability=poles, converter=conv_an, bias=bias,
                     inputs=input_levels(chain, requirement, bias,
-                                        passband_hz=passband_grid(requirement)))
+                                        passband_hz=passband_grid(requirement)),
+                    time=times)

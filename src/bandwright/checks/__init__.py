@@ -10,6 +10,7 @@ from bandwright.checks.bias_checks import dc_return_checks, input_range_checks
 from bandwright.checks.chain_checks import (drive_checks, gbw_checks, headroom_checks,
                                             noise_checks, parts_checks, slew_checks)
 from bandwright.checks.mask import mask_checks
+from bandwright.checks.time_checks import onset_checks, time_checks
 from bandwright.checks.stability import stability_checks, void_if_unstable
 from bandwright.parts.windows import PartWindows
 from bandwright.inputs.requirement import Requirement
@@ -20,8 +21,8 @@ __all__ = ["Check", "worst_status", "all_checks"]
 def all_checks(chain: Chain, an: Analyses, requirement: Requirement, *,
                windows: PartWindows = PartWindows()) -> list[Check]:
     """Every check, in report order: stability, mask, headroom, slew, drive, gbw, noise,
-    parts. When the chain is unstable the steady-state checks are failed as not meaningful
-    (``checks.stability.void_if_unstable``)."""
+    parts, onset, time. When the chain is unstable the steady-state checks are failed as not
+    meaningful (``checks.stability.void_if_unstable``)."""
     out: list[Check] = stability_checks(an)
     if an.mask is not None:
         out += mask_checks(an.mask, requirement)
@@ -35,4 +36,6 @@ def all_checks(chain: Chain, an: Analyses, requirement: Requirement, *,
     out += noise_checks(an, requirement)
     out += alias_checks(an)
     out += parts_checks(chain, windows)
+    out += onset_checks(an)
+    out += time_checks(an, requirement)
     return void_if_unstable(out, an)

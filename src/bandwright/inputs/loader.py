@@ -11,7 +11,7 @@ from bandwright.errors import SpecError
 from bandwright.inputs.reader import TableReader, read_toml
 from bandwright.inputs.requirement import (
     AmplifierChoice, Converter, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
-    Requirement, StopbandPoint, Supply, Tolerance, Tone,
+    Requirement, StopbandPoint, Supply, TimeLimits, Tolerance, Tone,
 )
 from bandwright.parts.eseries import SERIES_NAMES
 from bandwright.vocabulary import FAMILIES
@@ -23,7 +23,7 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES",
            "CONVERTER_KEYS", "read_converter",
            "SUPPLY_KEYS", "INPUT_LEVEL_KEYS", "read_supply", "read_dc_level",
-           "AMPLIFIER_DC_KEYS", "read_amplifier_dc"]
+           "AMPLIFIER_DC_KEYS", "read_amplifier_dc", "TIME_KEYS", "read_time"]
 
 #: The op-amp's DC errors (signed) and input common-mode range, read by ``read_amplifier_dc``.
 AMPLIFIER_DC_KEYS = ("offset_v", "bias_current_a", "input_cm_to_rail_v")
@@ -31,7 +31,7 @@ AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "n
                   "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms",
                   "current_noise_corner_hz") + AMPLIFIER_DC_KEYS
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
-              "noise", "tolerance", "converter")
+              "noise", "tolerance", "converter", "time")
 CONVERTER_KEYS = ("sample_rate_hz", "bits", "full_scale_vpp", "enob", "input_ohms",
                   "input_farads", "max_alias_dbfs", "headroom_db")
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
@@ -39,6 +39,10 @@ TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_p
 DISTRIBUTIONS = ("uniform", "gaussian")
 SUPPLY_KEYS = ("rails_v", "reference_v")
 INPUT_LEVEL_KEYS = ("dc_v",)
+TIME_KEYS = ("burst_s", "max_rise_s", "max_delay_spread_s", "max_ringing_s",
+             "max_overshoot_pct", "max_settling_s")
+# A day: a longer burst or settling limit is a typing error for any active filter.
+_MAX_TIME_S = 86400.0
 _MAX_TOLERANCE_PCT = 50.0
 # Monte Carlo time grows linearly with samples × stages; 100,000 samples of a two-stage
 # chain take about half a minute here, with a progress bar (docs/user-guide.md).
@@ -112,17 +116,18 @@ def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requi
                                            TOLERANCE_KEYS))
     converter = read_converter(path, doc.get("converter"), passband=passband,
                                supply=common["supply"])
+    time_limits = read_time(TableReader(path, "time", doc.get("time", {}), TIME_KEYS), passband)
     return Requirement(path=path, passband=passband, stopband=stopband, design=design,
                        input=common["input"], supply=common["supply"],
                        amplifier=common["amplifier"], environment=common["environment"],
-                       noise=noise, tolerance=tolerance, converter=converter)
+                       noise=noise, tolerance=tolerance, converter=converter, time=time_limits)
 
 
 def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
     """The tables a requirement and an audit file share: input, supply, amplifier,
     environment, noise."""
     inp = TableReader(path, "input", doc.get("input", {}),
-                      ("max_vpk", "source_ohms", "tone") + INPUT_LEVEL_KEYS)
+                      ("max_vpk", "source_ohms", "tone", "dc_step_v") + INPUT_LEVEL_KEYS)
     tones = []
     if len(inp.tables("tone")) > MAX_TONES:
         raise SpecError(path, "input.tone", f"{len(inp.tables('tone'))} tones; at most "
@@ -137,7 +142,9 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
                                                   high=MAX_VOLTS),
                                source_ohms=inp.number("source_ohms", 0.0, nonnegative=True,
                                                       high=_MAX_OHMS),
-                               tones=tuple(tones))
+                               tones=tuple(tones),
+                               dc_step_v=inp.number("dc_step_v", None, positive=True,
+                                                    high=MAX_VOLTS))
     supply = read_supply(TableReader(path, "supply", doc.get("supply", {}), SUPPLY_KEYS))
     input_signal = replace(input_signal, dc_v=read_dc_level(inp, supply))
     env = TableReader(path, "environment", doc.get("environment", {}), ("temperature_c",))
@@ -312,6 +319,21 @@ def read_tolerance(t: TableReader) -> Tolerance:
         seed=t.integer("seed", base.seed, low=0, high=2**32 - 1),
         min_yield=min_yield,
     )
+
+
+def read_time(t: TableReader, passband: Passband) -> TimeLimits:
+    """`[time]`: burst length and limits on the time-domain figures, each > 0 when given.
+
+    A burst shorter than one period of the passband's low edge holds no whole cycle of
+    every tone it is read at, so it has no envelope to speak of.
+    """
+    values = {k: t.number(k, None, positive=True, high=_MAX_TIME_S if k.endswith("_s")
+                          else 1e6) for k in TIME_KEYS}
+    burst = values["burst_s"]
+    if burst is not None and burst < 1.0 / passband.low_hz:
+        raise t.error("burst_s", f"shorter than one period of the passband's low edge "
+                      f"({1.0 / passband.low_hz:.4g} s)")
+    return TimeLimits(**values)
 
 
 def _read_design(d: TableReader) -> DesignChoice:

@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 __all__ = [
     "Passband", "StopbandPoint", "DesignChoice", "Tone", "InputSignal", "Supply",
     "AmplifierChoice", "Environment", "NoiseBudget", "Tolerance", "Converter", "Requirement",
+    "TimeLimits",
 ]
 
 
@@ -72,6 +73,7 @@ class InputSignal:
     tones: tuple[Tone, ...] = ()
     #: `[input] dc_v`: the source's DC level (open-circuit voltage at DC), V.
     dc_v: float = 0.0
+    dc_step_v: float | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -205,6 +207,41 @@ class Converter:
 
 
 @dataclass(frozen=True, slots=True)
+class TimeLimits:
+    """`[time]`: optional limits on the chain's time-domain figures (None: not held).
+
+    Attributes
+    ----------
+    burst_s : float or None
+        Length of the test burst; None: derived from the band.
+    max_rise_s : float or None
+        Largest 10-90 % envelope rise time of a burst at the centre or an edge.
+    max_delay_spread_s : float or None
+        Largest group-delay spread (max - min) across the passband.
+    max_ringing_s : float or None
+        Largest time for a burst's envelope to fall below 1 % after it ends.
+    max_overshoot_pct : float or None
+        Largest envelope overshoot of a burst, percent.
+    max_settling_s : float or None
+        Largest step-response settling time (to 1 %).
+    """
+
+    burst_s: float | None = None
+    max_rise_s: float | None = None
+    max_delay_spread_s: float | None = None
+    max_ringing_s: float | None = None
+    max_overshoot_pct: float | None = None
+    max_settling_s: float | None = None
+
+    @property
+    def any(self) -> bool:
+        """True when at least one limit is given."""
+        return any(v is not None for v in (self.max_rise_s, self.max_delay_spread_s,
+                                           self.max_ringing_s, self.max_overshoot_pct,
+                                           self.max_settling_s))
+
+
+@dataclass(frozen=True, slots=True)
 class Requirement:
     """A whole bandpass requirement, as read from `path`."""
 
@@ -219,3 +256,4 @@ class Requirement:
     noise: NoiseBudget = field(default_factory=NoiseBudget)
     tolerance: Tolerance = field(default_factory=Tolerance)
     converter: Converter | None = None
+    time: TimeLimits = field(default_factory=TimeLimits)

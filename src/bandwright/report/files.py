@@ -68,6 +68,8 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
     out += ["[input]", f"max_vpk = {inp.max_vpk!r}", f"source_ohms = {inp.source_ohms!r}"]
     if inp.dc_v:
         out.append(f"dc_v = {inp.dc_v!r}")
+    if getattr(inp, "dc_step_v", None) is not None:
+        out.append(f"dc_step_v = {inp.dc_step_v!r}")
     for t in inp.tones:
         out += ["[[input.tone]]", f"freq_hz = {t.freq_hz!r}", f"vpk = {t.vpk!r}"]
     out += ["", "[supply]", f"rails_v = {_toml_value(list(req.supply.rails_v))}"]

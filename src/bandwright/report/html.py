@@ -26,7 +26,7 @@ from bandwright.report.terminal import fmt_hz, ordering_built_text
 __all__ = ["html_report", "SECTION_IDS", "svg_inline", "verdict_text"]
 
 SECTION_IDS = ("summary", "candidates", "chain", "stages", "levels", "checks", "yield",
-               "plots", "noise", "bom")
+               "plots", "noise", "bom", "time")
 _STATUS_WORD = {"pass": "pass", "warn": "WARN", "fail": "FAIL"}
 
 _CSS = """
@@ -513,6 +513,13 @@ def _diagnosis_section(s, plots) -> str:
     return diagnosis_html(s.source, plots)
 
 
+def _time_section(s, plots) -> str:
+    from bandwright.report.time_view import time_html
+    svg = plots.get("timing.svg")
+    return time_html(getattr(s.analyses, "time", None),
+                     svg_inline(svg, "plot-timing") if svg is not None else None)
+
+
 def html_report(obj, *, plots: dict | None = None, schematics: dict | None = None,
                 bom_text: str | None = None) -> str:
     """The whole report as one HTML document.
@@ -553,7 +560,8 @@ def html_report(obj, *, plots: dict | None = None, schematics: dict | None = Non
         _levels(s) if s.analyses is not None else
         '<section id="levels"><h2>Node levels</h2><p class="note">No chain was built.</p>'
         "</section>",
-        _checks(s), _yield(s), _plots(plots), _noise(s), _converter(s, plots), _bom(bom_text),
+        _checks(s), _yield(s), _plots(plots), _noise(s), _converter(s, plots),
+        _time_section(s, plots), _bom(bom_text),
         f"<footer>Written by bandwright {_e(__version__)}. Every figure is for the chain as "
         "built: parts rounded to their series, finite op-amp GBW, source resistance."
         "</footer>",

@@ -13,6 +13,7 @@ import scipy
 
 from bandwright import __version__
 from bandwright.chain.graph import Chain, global_net
+from bandwright.report.time_view import time_dict
 
 __all__ = ["plan_to_dict", "audit_to_dict", "dumps", "chain_dict", "num", "yield_dict", "converter_dict",
            "sensitivities_dict"]
@@ -87,6 +88,7 @@ def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
                   "contributions": [{"source": s, "vrms": num(v)}
                                     for s, v in nz.contributions_vrms],
                   "snr_db": num(an.snr_db), "dynamic_range_db": num(an.dynamic_range_db)},
+        "time_domain": time_dict(getattr(an, "time", None)),
     }
     if nz.wide_band_hz is not None:
         out["noise"].update({"wide_band_hz": list(nz.wide_band_hz),

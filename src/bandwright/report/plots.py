@@ -15,6 +15,8 @@ Plots
 ``yield``     Monte Carlo response envelope against the mask (only when yield ran).
 ``poles``     section poles in the s-plane, built and target; f0 against Q.
 ``folds``     the folded spectrum at the converter (only with a ``[converter]``).
+``timing``    group delay across the passband; the centre burst's envelope, input and output,
+              with its 10/90 % marks (``report.time_view``).
 ``diagnosis`` a measured sweep over the chain as designed and as fitted, and the residual
               (only for ``audit --measured``).
 """
@@ -572,6 +574,12 @@ def plot_figures(obj) -> dict[str, Figure]:
         fig = build(s)
         if fig is not None:
             out[name] = fig
+    if getattr(s.analyses, "time", None) is not None:
+        from bandwright.report.time_view import time_figure
+        pb = s.requirement.passband
+        out["timing"] = time_figure(s.analyses.time, low_hz=pb.low_hz, high_hz=pb.high_hz,
+                                    size_in=(SIZE_PX[0] / DPI, SIZE_PX[1] / DPI), dpi=DPI,
+                                    colour=BUILT, grey=IDEAL)
     if getattr(s.source, "diagnosis", None) is not None:
         out["diagnosis"] = diagnosis_figure(s.source.diagnosis)
     return out

@@ -107,6 +107,9 @@ def render_plan(p, console: Console) -> None:
             _say(console, ordering_built_text(o))
     if getattr(d, "yield_result", None) is not None:
         _yield(d.yield_result, console)
+    if d.analyses is not None:
+        from bandwright.report.time_view import render_time
+        render_time(d.analyses, console)
     _checks(d.checks, console)
 
 
@@ -117,6 +120,8 @@ def render_audit(a, console: Console) -> None:
     _chain(a.chain, a.analyses, console, first="ideal")
     _say(console, "ideal: the parts as given with an ideal op-amp; built: with this op-amp "
                   "(finite GBW), the first stage as the source drives it")
+    from bandwright.report.time_view import render_time
+    render_time(a.analyses, console)
     _checks(a.checks, console)
     from bandwright.report.diagnosis_view import render_diagnosis
     render_diagnosis(a, console)
