@@ -10,7 +10,7 @@ from bandwright.errors import SpecError
 from bandwright.inputs.reader import TableReader, read_toml
 from bandwright.inputs.requirement import (
     AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
-    Requirement, StopbandPoint, Supply, Tolerance, Tone,
+    Requirement, StopbandPoint, Supply, Tolerance, Tone, Tuning,
 )
 from bandwright.vocabulary import FAMILIES
 
@@ -18,6 +18,7 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "read_stop", "FREQ_RANGE_HZ", "MIN_FRACTIONAL_BANDWIDTH", "MAX_VOLTS",
            "AMPLIFIER_RANGES",
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
+           "read_tuning", "TUNING_KEYS",
            "DISTRIBUTIONS"]
 
 SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
@@ -25,7 +26,8 @@ AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "n
                   "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms",
                   "current_noise_corner_hz")
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
-              "noise", "tolerance")
+              "noise", "tolerance", "tuning")
+TUNING_KEYS = ("enabled",)
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
                   "seed", "min_yield")
 DISTRIBUTIONS = ("uniform", "gaussian")
@@ -86,10 +88,11 @@ def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requi
     noise = common["noise"]
     tolerance = read_tolerance(TableReader(path, "tolerance", doc.get("tolerance", {}),
                                            TOLERANCE_KEYS))
+    tuning = read_tuning(TableReader(path, "tuning", doc.get("tuning", {}), TUNING_KEYS))
     return Requirement(path=path, passband=passband, stopband=stopband, design=design,
                        input=common["input"], supply=common["supply"],
                        amplifier=common["amplifier"], environment=common["environment"],
-                       noise=noise, tolerance=tolerance)
+                       noise=noise, tolerance=tolerance, tuning=tuning)
 
 
 def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
@@ -233,6 +236,16 @@ def read_tolerance(t: TableReader) -> Tolerance:
         seed=t.integer("seed", base.seed, low=0, high=2**32 - 1),
         min_yield=min_yield,
     )
+
+
+def read_tuning(t: TableReader) -> Tuning:
+    """`[tuning]`: `enabled` (true, false; left out: trim only when the yield needs it)."""
+    if not t.has("enabled"):
+        return Tuning()
+    v = t.table["enabled"]
+    if not isinstance(v, bool):
+        raise t.error("enabled", "must be true or false (a TOML boolean)")
+    return Tuning(enabled=v)
 
 
 def _read_design(d: TableReader) -> DesignChoice:

@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 
 __all__ = [
     "Passband", "StopbandPoint", "DesignChoice", "Tone", "InputSignal", "Supply",
-    "AmplifierChoice", "Environment", "NoiseBudget", "Tolerance", "Requirement",
+    "AmplifierChoice", "Environment", "NoiseBudget", "Tolerance", "Tuning", "Requirement",
 ]
 
 
@@ -124,6 +124,20 @@ class Tolerance:
 
 
 @dataclass(frozen=True, slots=True)
+class Tuning:
+    """`[tuning]`: whether the chain gets trimmers.
+
+    Attributes
+    ----------
+    enabled : bool or None
+        True: always plan trims; False: never; None (left out): only when the untrimmed
+        yield misses `tolerance.min_yield`.
+    """
+
+    enabled: bool | None = None
+
+
+@dataclass(frozen=True, slots=True)
 class Requirement:
     """A whole bandpass requirement, as read from `path`."""
 
@@ -137,3 +151,4 @@ class Requirement:
     environment: Environment = field(default_factory=Environment)
     noise: NoiseBudget = field(default_factory=NoiseBudget)
     tolerance: Tolerance = field(default_factory=Tolerance)
+    tuning: Tuning = field(default_factory=Tuning)
