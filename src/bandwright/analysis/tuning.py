@@ -188,7 +188,7 @@ def _choose(sens: StageSensitivity, figure: str, done: list[str], used: set[str]
 def _reading(adjusts: str, net_in: str, net_out: str, target: float, inverting: bool) -> str:
     if adjusts == "f0":
         phase = "180°" if inverting else "0°"
-        return (f"peak of {net_out}/{net_in} at {target:.6g} Hz "
+        return (f"peak of {net_out}/{net_in} at {target:.7g} Hz "
                 f"(the phase of {net_out} against {net_in} passes {phase} there)")
     if adjusts == "q":
         return f"−3 dB width {target:.4g} Hz"

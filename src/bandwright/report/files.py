@@ -85,14 +85,17 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
 
 
 def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
-            r_pct: float | None = None, c_pct: float | None = None) -> str:
+            r_pct: float | None = None, c_pct: float | None = None,
+            elements=None, extra_rows=()) -> str:
     """Bill of materials: one row per distinct part, with designators and quantity.
 
     The tolerance is the one the yield was computed for (`r_pct`, `c_pct`), else the one
-    customary for the part's series (common practice, ``parts.tolerance``).
+    customary for the part's series (common practice, ``parts.tolerance``). `elements`
+    replaces the chain's flat element list (a tuned chain's fixed parts); `extra_rows` are
+    appended as given (its trimmers).
     """
     rows: dict[tuple, list[str]] = {}
-    for e in flatten(chain):
+    for e in (flatten(chain) if elements is None else elements):
         if e.kind == "opamp":
             key = ("op-amp", e.model.name, "", "", "")
         else:
@@ -113,6 +116,8 @@ def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
     w.writerow(["designators", "part", "value", "series", "tolerance", "dielectric", "quantity"])
     for key, refs in rows.items():
         w.writerow([" ".join(refs), key[0], key[1], key[2], key[3], key[4], len(refs)])
+    for row in extra_rows:
+        w.writerow(row)
     return buf.getvalue()
 
 
@@ -128,13 +133,27 @@ def bom_args(req, *, planned: bool) -> dict[str, Any]:
 
 
 def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
-           planned: bool) -> dict[str, bytes]:
+           planned: bool, tuning=None) -> dict[str, bytes]:
+    from bandwright.report import tuning as trims
+    plan = None if tuning is None else tuning.plan
+    elements = flatten(chain) if plan is None else trims.trimmed_elements(flatten(chain), plan)
+    deck = spice_deck(elements, source_ohms=chain.source_ohms,
+                      temperature_c=req.environment.temperature_c, title=title)
+    toml = chain_toml(chain, req, title=title)
+    if plan is None:
+        bom = bom_csv(chain, **bom_args(req, planned=planned))
+    else:
+        trimmers = {f"{s.part}_s{s.stage}" for s in plan.steps}
+        bom = bom_csv(chain, **bom_args(req, planned=planned),
+                      elements=[e for e in elements if e.name not in trimmers],
+                      extra_rows=trims.bom_trimmer_rows(plan))
+        deck = trims.trimmer_comments(deck, plan)
+        toml = trims.toml_with_trims(toml, plan)
     return {
         json_name: (json_text + "\n").encode(),
-        "chain.cir": spice_deck(flatten(chain), source_ohms=chain.source_ohms,
-                                temperature_c=req.environment.temperature_c, title=title).encode(),
-        "chain.toml": chain_toml(chain, req, title=title).encode(),
-        "bom.csv": bom_csv(chain, **bom_args(req, planned=planned)).encode(),
+        "chain.cir": deck.encode(),
+        "chain.toml": toml.encode(),
+        "bom.csv": bom.encode(),
     }
 
 
@@ -144,14 +163,16 @@ def plan_files(p, json_text: str) -> dict[str, bytes]:
     if d.chain is None:
         return {"plan.json": (json_text + "\n").encode(), **_graphic_files(p, None)}
     title = f"bandwright plan of {p.requirement.path}"
-    out = _files(d.chain, p.requirement, json_text, "plan.json", title, planned=True)
+    out = _files(d.chain, p.requirement, json_text, "plan.json", title, planned=True,
+                 tuning=getattr(d, "tuning", None))
     return {**out, **_graphic_files(p, out["bom.csv"])}
 
 
 def audit_files(a, json_text: str) -> dict[str, bytes]:
     """Every file of an audit's --out folder."""
     out = _files(a.chain, a.requirement, json_text, "audit.json",
-                 f"bandwright audit of {a.path}", planned=False)
+                 f"bandwright audit of {a.path}", planned=False,
+                 tuning=getattr(a, "tuning", None))
     return {**out, **_graphic_files(a, out["bom.csv"])}
 
 

@@ -486,6 +486,11 @@ def _bom(bom_text: str | None) -> str:
     return "".join(out)
 
 
+def _tuning_section(obj) -> str:
+    from bandwright.report.tuning import tuning_html, tuning_of
+    return tuning_html(tuning_of(obj))
+
+
 def html_report(obj, *, plots: dict | None = None, schematics: dict | None = None,
                 bom_text: str | None = None) -> str:
     """The whole report as one HTML document.
@@ -526,7 +531,7 @@ def html_report(obj, *, plots: dict | None = None, schematics: dict | None = Non
         _levels(s) if s.analyses is not None else
         '<section id="levels"><h2>Node levels</h2><p class="note">No chain was built.</p>'
         "</section>",
-        _checks(s), _yield(s), _plots(plots), _noise(s), _bom(bom_text),
+        _checks(s), _yield(s), _tuning_section(obj), _plots(plots), _noise(s), _bom(bom_text),
         f"<footer>Written by bandwright {_e(__version__)}. Every figure is for the chain as "
         "built: parts rounded to their series, finite op-amp GBW, source resistance."
         "</footer>",

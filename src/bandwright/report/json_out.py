@@ -13,6 +13,7 @@ import scipy
 
 from bandwright import __version__
 from bandwright.chain.graph import Chain, global_net
+from bandwright.report.tuning import tuning_dict
 
 __all__ = ["plan_to_dict", "audit_to_dict", "dumps", "chain_dict", "num", "yield_dict",
            "sensitivities_dict"]
@@ -139,6 +140,7 @@ def plan_to_dict(p) -> dict[str, Any]:
     y = getattr(d, "yield_result", None)
     out["yield"] = yield_dict(y) if y is not None else None
     out["sensitivities"] = sensitivities_dict(y.sensitivities) if y is not None else None
+    out["tuning"] = tuning_dict(getattr(d, "tuning", None))
     return out
 
 
@@ -192,6 +194,7 @@ def audit_to_dict(a) -> dict[str, Any]:
     out.update(chain_dict(a.chain, a.analyses, a.checks))
     y = getattr(a, "yield_result", None)
     out["yield"] = yield_dict(y) if y is not None else None
+    out["tuning"] = tuning_dict(getattr(a, "tuning", None))
     return out
 
 
