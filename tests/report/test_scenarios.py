@@ -15,8 +15,11 @@ EXPECTED = {
     "lockin_mains": (0, None, None),
     "machine_vibration": (0, None, None),
     "ultrasonic_ranging": (0, None, None),
-    # Staggered sections of Q 80 to 160: built and inside the mask, but not in production.
-    "tone_detector": (1, "yield", "boards"),
+    # Staggered sections of Q 90 to 185: not made in production untrimmed; trimmed, they are.
+    "tone_detector": (0, None, None),
+    # The same chain with ordinary parts and a 0.25 dB gain window: no section can trim its
+    # gain without undoing f0 or Q, so even after tuning about half the boards fail.
+    "tone_detector_tight_gain": (1, "yield", "after tuning"),
 }
 
 

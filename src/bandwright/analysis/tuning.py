@@ -54,6 +54,9 @@ _UNDO = 0.05
 # A Q or gain trim is added only when that figure's worst-case spread exceeds this share
 # (a trim for a figure the parts already hold is a part to buy and a step to take).
 _MIN_SPREAD = 5e-3
+# Largest relative half-travel: the trimmer (2 d R) stays no larger than its fixed part
+# (R (1 - d)).
+_MAX_TRAVEL = 1 / 3
 
 
 @dataclass(frozen=True, slots=True)
@@ -121,10 +124,14 @@ class TuningPlan:
     steps : tuple of TrimStep
     reason : str
         Why the chain is trimmed (or why not).
+    untrimmable : tuple of str
+        Figures of a stage no part can set without undoing one already set, in words
+        ("stage 2 (dual_amp_bandpass): gain"): their spread stays after tuning.
     """
 
     steps: tuple[TrimStep, ...]
     reason: str = ""
+    untrimmable: tuple[str, ...] = ()
 
     def of_stage(self, position: int) -> tuple[TrimStep, ...]:
         return tuple(s for s in self.steps if s.stage == position)
@@ -224,6 +231,7 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
     value at or below R (1 - d), stepped up a trimmer size if the top of travel falls short.
     """
     steps: list[TrimStep] = []
+    untrimmable: list[str] = []
     for st in chain.stages:
         if st.kind != "bandpass":
             continue
@@ -242,28 +250,38 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
         travel: dict[str, float] = {}   # trimmed part -> relative half-travel
         for figure in FIGURES:
             part = _choose(sens, figure, done, used, resistors)
-            if part is None:
-                continue
-            k = sens.parts.index(part)
-            s = rows[figure][k]
             spread = sum(abs(v) * tol[p] for p, v in zip(sens.parts, rows[figure])
                          if p not in used and p != part and math.isfinite(v))
             spread += sum(abs(rows[figure][sens.parts.index(p)]) * d for p, d in travel.items())
+            if part is None:
+                if spread >= _MIN_SPREAD:
+                    untrimmable.append(f"stage {st.position} ({st.topology}): {figure} "
+                                       f"(±{100 * spread:.2g} % worst case)")
+                continue
+            k = sens.parts.index(part)
+            s = rows[figure][k]
             if figure != "f0" and spread < _MIN_SPREAD:
                 continue
-            d = TRIM_MARGIN * spread / abs(s) + tol[part]
+            need = TRIM_MARGIN * spread / abs(s) + tol[part]
+            # A trimmer no larger than the fixed part it is in series with (2 d <= 1 - d):
+            # beyond that the trim is a different circuit, and its range falls short.
+            d = min(need, _MAX_TRAVEL)
             r = values[part]
             trimmer = trimmer_values(2 * d * r)
             fixed = bracket(r * (1 - d), resistor_series)[0]
             while fixed + trimmer < r * (1 + d):
                 trimmer = trimmer_values(trimmer * 1.01)
-            lo_d, hi_d = 1 - fixed / r, (fixed + trimmer) / r - 1
-            travel[part] = max(lo_d, hi_d)
+            # What the trim moves on the worst board: the range it needs, not the rounded
+            # travel of the part bought.
+            travel[part] = d
             why = (f"moves {figure} by {s:+.2f} % per % of {part}"
                    + (f", {' and '.join(done)} by less than {100 * _UNDO:g} % of that"
                       if done else "")
                    + f"; covers ±{100 * spread * TRIM_MARGIN:.2g} % of {figure} "
                      f"(worst case ±{100 * spread:.2g} %, ×{TRIM_MARGIN:g})")
+            if need > d:
+                why += (f"; the range needed (±{100 * need:.3g} % of {part}) would take a "
+                        f"trimmer larger than the fixed part: it covers ±{100 * d:.3g} % only")
             steps.append(TrimStep(
                 stage=st.position, part=trimmer_name(part), trims=part, net_in=net_in,
                 net_out=net_out, adjusts=figure, fixed_ohms=float(fixed),
@@ -274,7 +292,7 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
                 sensitivity=float(s), design_ohms=float(r), why=why))
             done.append(figure)
             used.add(part)
-    return TuningPlan(steps=tuple(steps))
+    return TuningPlan(steps=tuple(steps), untrimmable=tuple(untrimmable))
 
 
 def span_check(steps: tuple[TrimStep, ...]) -> np.ndarray:

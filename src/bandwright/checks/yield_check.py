@@ -78,5 +78,8 @@ def _tuned_check(result: YieldResult, tuning) -> Check:
         fails = ", ".join(f"{k} {v}" for k, v in t.fail_counts.items() if v)
         msg += (f"; {t.unrescued} boards fail after tuning ({fails or 'none'}); "
                 f"{t.beyond_range} ran out of trimmer travel" + (f" ({short})" if short else ""))
+        if tuning.plan.untrimmable:
+            msg += ("; no part sets " + "; ".join(tuning.plan.untrimmable)
+                    + " without undoing a figure already set: that spread stays")
     return Check(id="yield", status="pass" if ok else "fail", value=t.yield_fraction,
                  limit=result.min_yield, unit="share", message=msg)

@@ -14,7 +14,7 @@ from bandwright.parts.notation import format_value
 
 __all__ = ["tuning_dict", "procedure_lines", "tuning_terminal", "tuning_html",
            "trimmed_elements", "trimmer_comments", "bom_trimmer_rows", "tuning_of",
-           "toml_with_trims"]
+           "toml_with_trims", "set_trimmers", "design_settings"]
 
 
 def _num(x: float) -> float | None:
@@ -76,6 +76,9 @@ def _summary(t) -> str:
     if ty.unrescued:
         text += (f"; {ty.unrescued} boards fail after tuning, {ty.beyond_range} of them with a "
                  f"trimmer at the end of its travel")
+    if t.plan.untrimmable:
+        text += ("; not trimmable (no part leaves the figures already set alone): "
+                 + "; ".join(t.plan.untrimmable))
     return text + "."
 
 
@@ -167,3 +170,22 @@ def toml_with_trims(text: str, plan) -> str:
         elif line.startswith("parts = ") and stage in by_stage:
             out.append("trim = { " + ", ".join(by_stage[stage]) + " }")
     return "\n".join(out) + ("\n" if text.endswith("\n") else "")
+
+
+def set_trimmers(deck: str, ohms: dict[str, float]) -> str:
+    """The deck with each named trimmer (``R2T_s3``) set to `ohms` (its part of the travel;
+    > 0). For running the written procedure on the deck: a bench in ngspice."""
+    want = {k.lower(): v for k, v in ohms.items()}
+    out = []
+    for line in deck.splitlines():
+        f = line.split()
+        if f and f[0].lower() in want and len(f) == 4:
+            line = f"{f[0]} {f[1]} {f[2]} {max(float(want[f[0].lower()]), 1e-6)!r}"
+        out.append(line)
+    return "\n".join(out) + "\n"
+
+
+def design_settings(plan) -> dict[str, float]:
+    """Each trimmer at the setting that gives its part's designed value (the circuit the
+    analyses describe)."""
+    return {f"{s.part}_s{s.stage}": s.design_ohms - s.fixed_ohms for s in plan.steps}
