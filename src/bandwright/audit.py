@@ -12,6 +12,8 @@ import numpy as np
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.advice.tolerance import plan_yield
+from bandwright.analysis.montecarlo.tuned import TuningResult, tuning_for
+from bandwright.analysis.tuning import plan_from_trims
 from bandwright.analysis.montecarlo import YieldResult
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.checks import all_checks
@@ -43,6 +45,10 @@ class Audit:
     yield_result : YieldResult or None
         Monte Carlo yield at the file's `[tolerance]` (customary E96/E12 tolerances when it
         has none); only when the file states a mask.
+    tuning : TuningResult or None
+        The trims the file names (``trim`` tables), or a tuning plan of the tool's own when
+        the untrimmed yield misses the target or `[tuning] enabled = true`; its tuned yield
+        is what the yield check judges.
     """
 
     path: str
@@ -52,6 +58,7 @@ class Audit:
     analyses: Analyses
     checks: tuple[Check, ...]
     yield_result: YieldResult | None = None
+    tuning: TuningResult | None = None
 
 
 def _near_hz(elements) -> float:
@@ -134,8 +141,11 @@ def audit(path: str | Path) -> Audit:
     an = analyse(chain, req, with_mask=has_mask)
     checks = tuple(all_checks(chain, an, req))
     result = None
+    tuning = None
     if has_mask:  # the yield is the share of boards meeting the mask: it needs one
         result = plan_yield(chain, req)
-        checks += tuple(yield_checks(result))
+        given = plan_from_trims(chain, common.get("trims", {}))
+        tuning = tuning_for(chain, req, result, given=given)
+        checks += tuple(yield_checks(result, tuning=tuning))
     return Audit(path=p, requirement=req, has_mask=has_mask, chain=chain, analyses=an,
-                 checks=checks, yield_result=result)
+                 checks=checks, yield_result=result, tuning=tuning)

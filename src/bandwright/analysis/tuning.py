@@ -36,7 +36,7 @@ from bandwright.chain.stage import Stage
 from bandwright.circuits import topology
 from bandwright.parts.eseries import bracket
 
-__all__ = ["TrimStep", "TuningPlan", "plan_tuning", "trimmer_values", "trimmer_name",
+__all__ = ["TrimStep", "TuningPlan", "plan_tuning", "plan_from_trims", "trimmer_values", "trimmer_name",
            "TRIM_MARGIN", "TRIMMER_RESOLUTION", "FIGURES", "stage_nets"]
 
 #: The figures a trim adjusts, in the order they are set within a stage.
@@ -298,3 +298,59 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
 def span_check(steps: tuple[TrimStep, ...]) -> np.ndarray:
     """Relative travel of each step (low, high) as an (n, 2) array, for tests and reports."""
     return np.array([s.span_rel for s in steps])
+
+
+def plan_from_trims(chain: Chain, trims: dict[int, dict[str, tuple[float, float]]]
+                    ) -> TuningPlan:
+    """The procedure for trims someone else chose (an audit's ``trim`` tables).
+
+    Parameters
+    ----------
+    chain : Chain
+    trims : dict of int to dict of str to (fixed_ohms, trimmer_ohms)
+        Per stage position, each trimmed part's fixed resistor and trimmer.
+
+    Returns
+    -------
+    TuningPlan
+        Per stage, the trims ordered f0, Q, gain: each figure goes to the given trim that
+        moves it most relative to the figures already set (``plan_tuning``'s rule without
+        its thresholds: the parts are given), the target being the stage's figures with its
+        parts as written.
+    """
+    steps: list[TrimStep] = []
+    for st in chain.stages:
+        mine = dict(trims.get(st.position, {}))
+        if not mine or st.kind != "bandpass":
+            continue
+        inverting = bool(getattr(topology(st.topology), "INVERTING", False))
+        sens = stage_sensitivity(st)
+        rows = {"f0": sens.f0, "q": sens.q, "gain": sens.gain}
+        built = {"f0": st.built.f0_hz, "q": st.built.q, "gain": abs(st.built.gain)}
+        values = {e.name: e.value for e in st.elements}
+        net_in, net_out = stage_nets(chain, st)
+        done: list[str] = []
+        for figure in FIGURES:
+            if not mine:
+                break
+
+            def score(part: str) -> float:
+                k = sens.parts.index(part)
+                undo = sum(abs(rows[f][k]) for f in done)
+                return abs(rows[figure][k]) / (1e-9 + undo)
+            part = max(mine, key=score)
+            if abs(rows[figure][sens.parts.index(part)]) < _MIN_S and figure != "f0":
+                continue
+            fixed, trimmer = mine.pop(part)
+            s = rows[figure][sens.parts.index(part)]
+            steps.append(TrimStep(
+                stage=st.position, part=trimmer_name(part), trims=part, net_in=net_in,
+                net_out=net_out, adjusts=figure, fixed_ohms=float(fixed),
+                trimmer_ohms=float(trimmer), target=float(built[figure]),
+                reading=_reading(figure, net_in, net_out,
+                                 built["f0"] / built["q"] if figure == "q" else built[figure],
+                                 inverting),
+                sensitivity=float(s), design_ohms=float(values[part]),
+                why=f"given in the chain file; moves {figure} by {s:+.2f} % per % of {part}"))
+            done.append(figure)
+    return TuningPlan(steps=tuple(steps))

@@ -256,8 +256,8 @@ class TuningResult:
 
 
 def tuning_for(chain: Chain, requirement: Requirement, untrimmed, *,
-               targets: dict[int, tuple[float, float, float]] | None = None
-               ) -> TuningResult | None:
+               targets: dict[int, tuple[float, float, float]] | None = None,
+               given: TuningPlan | None = None) -> TuningResult | None:
     """The tuning plan of `chain` and its tuned yield, when the chain is to be trimmed.
 
     Parameters
@@ -270,6 +270,9 @@ def tuning_for(chain: Chain, requirement: Requirement, untrimmed, *,
         The untrimmed Monte Carlo.
     targets : dict, optional
         Per stage position (f0_hz, q, |gain|) to tune to (``analysis.tuning.plan_tuning``).
+    given : TuningPlan, optional
+        Trims someone else chose (an audit's chain file): used whenever it has steps,
+        unless `[tuning] enabled = false`.
 
     Returns
     -------
@@ -279,15 +282,19 @@ def tuning_for(chain: Chain, requirement: Requirement, untrimmed, *,
     enabled = requirement.tuning.enabled
     if enabled is False:
         return None
-    if enabled is None and untrimmed.meets_target:
-        return None
-    plan = plan_tuning(chain, untrimmed.spreads,
-                       resistor_series=requirement.design.resistor_series, targets=targets)
+    if given is not None and given.steps:
+        plan = given
+        reason = "the chain file names its trimmers"
+    else:
+        if enabled is None and untrimmed.meets_target:
+            return None
+        plan = plan_tuning(chain, untrimmed.spreads,
+                           resistor_series=requirement.design.resistor_series, targets=targets)
+        reason = ("[tuning] enabled = true" if enabled else
+                  f"the untrimmed yield {100 * untrimmed.yield_fraction:.1f} % misses the "
+                  f"target {100 * untrimmed.min_yield:.1f} %")
     if not plan.steps:
         return None
-    reason = ("[tuning] enabled = true" if enabled else
-              f"the untrimmed yield {100 * untrimmed.yield_fraction:.1f} % misses the target "
-              f"{100 * untrimmed.min_yield:.1f} %")
     tuned = tuned_monte_carlo(chain, requirement, plan, spreads=untrimmed.spreads,
                               samples=untrimmed.samples, seed=untrimmed.seed)
     return TuningResult(plan=plan, tuned=tuned, yield_untrimmed=untrimmed.yield_fraction,
