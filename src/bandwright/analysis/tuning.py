@@ -154,6 +154,16 @@ def trimmer_values(limit_ohms: float) -> float:
     return 10 * decade
 
 
+def _largest_125(limit_ohms: float) -> float:
+    """The largest 1-2-5 trimmer value at or below `limit_ohms`."""
+    v = trimmer_values(limit_ohms)
+    if v <= limit_ohms * (1 + 1e-12):
+        return v
+    decade = 10.0 ** math.floor(math.log10(v) - 1e-12)
+    steps = [m * decade for m in (0.5, 1.0, 2.0, 5.0)]
+    return max(x for x in steps if x <= limit_ohms * (1 + 1e-12))
+
+
 def stage_nets(chain: Chain, stage: Stage) -> tuple[str, str]:
     """The deck's nets a stage's reading is taken between: the op-amp output before it (or
     the source ahead of the source resistance, for the first stage), and its output."""
@@ -271,6 +281,12 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
             fixed = bracket(r * (1 - d), resistor_series)[0]
             while fixed + trimmer < r * (1 + d):
                 trimmer = trimmer_values(trimmer * 1.01)
+            if trimmer > fixed:
+                # The range needed does not fit a trimmer no larger than its fixed part: the
+                # largest that does, its travel centred on the designed value.
+                trimmer = _largest_125(0.98 * 2 * r / 3)
+                fixed = bracket(r - trimmer / 2, resistor_series)[0]
+                d = min(1 - fixed / r, (fixed + trimmer) / r - 1)
             # What the trim moves on the worst board: the range it needs, not the rounded
             # travel of the part bought.
             travel[part] = d
