@@ -27,8 +27,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-import numpy as np
-
 from bandwright.analysis.montecarlo.sampling import Spreads
 from bandwright.analysis.sensitivity import GBW, StageSensitivity, stage_sensitivity
 from bandwright.chain.graph import CHAIN_INPUT, Chain
@@ -309,11 +307,6 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
             done.append(figure)
             used.add(part)
     return TuningPlan(steps=tuple(steps), untrimmable=tuple(untrimmable))
-
-
-def span_check(steps: tuple[TrimStep, ...]) -> np.ndarray:
-    """Relative travel of each step (low, high) as an (n, 2) array, for tests and reports."""
-    return np.array([s.span_rel for s in steps])
 
 
 def plan_from_trims(chain: Chain, trims: dict[int, dict[str, tuple[float, float]]]

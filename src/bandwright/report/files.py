@@ -15,7 +15,7 @@ from bandwright.parts.notation import format_value
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
 from bandwright.report.spice import spice_deck
 
-__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args"]
+__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "bom_for"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
              "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz")
@@ -132,6 +132,20 @@ def bom_args(req, *, planned: bool) -> dict[str, Any]:
             "c_pct": req.tolerance.capacitor_pct}
 
 
+def bom_for(chain: Chain, req, *, planned: bool, tuning=None) -> str:
+    """bom.csv of a chain: with a tuning plan, each trimmed part at its fixed value and a row
+    per trimmer value (``report.tuning.bom_trimmer_rows``)."""
+    if tuning is None:
+        return bom_csv(chain, **bom_args(req, planned=planned))
+    from bandwright.report import tuning as trims
+    plan = tuning.plan
+    trimmers = {f"{s.part}_s{s.stage}" for s in plan.steps}
+    elements = trims.trimmed_elements(flatten(chain), plan)
+    return bom_csv(chain, **bom_args(req, planned=planned),
+                   elements=[e for e in elements if e.name not in trimmers],
+                   extra_rows=trims.bom_trimmer_rows(plan))
+
+
 def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
            planned: bool, tuning=None) -> dict[str, bytes]:
     from bandwright.report import tuning as trims
@@ -140,13 +154,8 @@ def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
     deck = spice_deck(elements, source_ohms=chain.source_ohms,
                       temperature_c=req.environment.temperature_c, title=title)
     toml = chain_toml(chain, req, title=title)
-    if plan is None:
-        bom = bom_csv(chain, **bom_args(req, planned=planned))
-    else:
-        trimmers = {f"{s.part}_s{s.stage}" for s in plan.steps}
-        bom = bom_csv(chain, **bom_args(req, planned=planned),
-                      elements=[e for e in elements if e.name not in trimmers],
-                      extra_rows=trims.bom_trimmer_rows(plan))
+    bom = bom_for(chain, req, planned=planned, tuning=tuning)
+    if plan is not None:
         deck = trims.trimmer_comments(deck, plan)
         toml = trims.toml_with_trims(toml, plan)
     return {
@@ -184,7 +193,10 @@ def _graphic_files(obj, bom: bytes | None) -> dict[str, bytes]:
     from bandwright.report.schematic import schematic_files
     from bandwright.report.subject import subject_of
     plots = plot_files(obj)
-    schematics = schematic_files(subject_of(obj).chain)
+    from bandwright.report.tuning import tuning_of
+    tuning = tuning_of(obj)
+    schematics = schematic_files(subject_of(obj).chain,
+                                 tuning_plan=None if tuning is None else tuning.plan)
     page = html_report(obj, plots=plots, schematics=schematics,
                        bom_text=None if bom is None else bom.decode())
     return {**plots, **schematics, "report.html": page.encode()}

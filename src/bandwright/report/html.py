@@ -517,10 +517,15 @@ def html_report(obj, *, plots: dict | None = None, schematics: dict | None = Non
         plots = plot_files(s)
     if schematics is None:
         from bandwright.report.schematic import schematic_files
-        schematics = schematic_files(s.chain)
+        from bandwright.report.tuning import tuning_of
+        tuning = tuning_of(obj)
+        schematics = schematic_files(s.chain,
+                                     tuning_plan=None if tuning is None else tuning.plan)
     if bom_text is None and s.chain is not None:
-        from bandwright.report.files import bom_args, bom_csv
-        bom_text = bom_csv(s.chain, **bom_args(s.requirement, planned=s.kind == "plan"))
+        from bandwright.report.files import bom_for
+        from bandwright.report.tuning import tuning_of
+        bom_text = bom_for(s.chain, s.requirement, planned=s.kind == "plan",
+                           tuning=tuning_of(obj))
     title = f"bandwright {s.kind} — {s.path}"
     nav = "".join(f'<a href="#{i}">{i}</a>' for i in SECTION_IDS)
     body = [

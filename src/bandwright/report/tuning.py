@@ -103,7 +103,7 @@ def tuning_html(t) -> str:
     items = "".join(f"<li>{html.escape(line.split('. ', 1)[1])}</li>"
                     for line in procedure_lines(t))
     return (f'<section id="tuning"><h2>Tuning procedure</h2>'
-            f"<p>{html.escape(t.reason)}.</p><ol>{items}</ol>"
+            f"<p>Trimmed because {html.escape(t.reason)}.</p><ol>{items}</ol>"
             f"<p>{html.escape(_ORDER_NOTE)}</p><p>{html.escape(_summary(t))}</p></section>")
 
 
