@@ -410,8 +410,8 @@ def elements_svg(elements, *, net_names: dict | None = None, title: str = "",
     title : str, optional
         A line of text above the drawing.
     trims : dict of str to str, optional
-        Trimmed parts (name → value text, "1.21kΩ + 200Ω trimmer"): drawn as variable
-        resistors with that text as their value.
+        Trimmed parts (name → value text, "1.27kΩ = 1.21kΩ + 200Ω trim": the value set,
+        the fixed part and the trimmer): drawn as variable resistors with that text.
 
     Returns
     -------
@@ -571,14 +571,15 @@ def schematic_files(chain: Chain | None, *, tuning_plan=None) -> dict[str, bytes
     ----------
     chain : Chain or None
     tuning_plan : TuningPlan, optional
-        Its trimmed parts are drawn as variable resistors, "fixed + trimmer".
+        Its trimmed parts are drawn as variable resistors, "set = fixed + trimmer".
     """
     if chain is None:
         return {}
     trims: dict[int, dict[str, str]] = {}
     for s in (tuning_plan.steps if tuning_plan is not None else ()):
         trims.setdefault(s.stage, {})[s.trims] = (
-            f"{format_value(s.fixed_ohms, 'Ω')} + {format_value(s.trimmer_ohms, 'Ω')} trim")
+            f"{format_value(s.design_ohms, 'Ω')} = {format_value(s.fixed_ohms, 'Ω')} + "
+            f"{format_value(s.trimmer_ohms, 'Ω')} trim")
     out = {f"schematic_stage{st.position}.svg": stage_svg(chain, st,
                                                           trims=trims.get(st.position))
            for st in chain.stages}
