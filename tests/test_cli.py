@@ -84,9 +84,10 @@ def test_out_refuses_non_empty_folder_without_force(tmp_path):
     r = run_cli("plan", SCENARIO, "--out", out)
     assert r.returncode == 2 and "--force" in r.stderr
     assert (out / "keep.txt").read_text() == "mine"
+    # Not bandwright's folder (no manifest): --force does not make it so.
     r = run_cli("plan", SCENARIO, "--out", out, "--force")
-    assert r.returncode in (0, 1)
-    assert (out / "plan.json").exists() and not (out / "keep.txt").exists()
+    assert r.returncode == 2 and "manifest" in r.stderr
+    assert [p.name for p in out.iterdir()] == ["keep.txt"]
 
 
 def test_out_into_existing_empty_folder(tmp_path):
@@ -96,3 +97,45 @@ def test_out_into_existing_empty_folder(tmp_path):
     assert r.returncode in (0, 1)
     json.loads((out / "plan.json").read_text())
     assert [p.name for p in tmp_path.iterdir()] == ["empty"]  # no temporary left behind
+
+
+def test_stdout_on_a_full_disk_is_one_line_and_exit_2(tmp_path):
+    """`> /dev/full`: every write fails with ENOSPC (Linux's full device)."""
+    import subprocess
+    import sys
+    for extra in ([], ["--json"]):
+        with open("/dev/full", "w") as full:
+            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(SCENARIO),
+                                *extra], stdout=full, stderr=subprocess.PIPE, text=True)
+        assert r.returncode == 2, r.stderr
+        assert r.stderr.strip().splitlines() == [
+            "bandwright: cannot write to standard output: No space left on device"]
+
+
+def test_closed_stdout_pipe_exits_quietly_with_141(tmp_path):
+    """A reader that has gone (`| head -1` once head exits): no message, status 128 + SIGPIPE
+    as a program killed by that signal reports."""
+    import os
+    import subprocess
+    import sys
+    for extra in ([], ["--json"]):
+        read, write = os.pipe()
+        os.close(read)
+        try:
+            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(SCENARIO),
+                                *extra], stdout=write, stderr=subprocess.PIPE, text=True)
+        finally:
+            os.close(write)
+        assert r.returncode == 141, r.stderr
+        assert r.stderr == ""
+
+
+def test_closed_stdout_is_one_line_and_exit_2():
+    """Started with stdout closed (`>&-`): Python has no sys.stdout at all."""
+    import subprocess
+    import sys
+    r = subprocess.run(f'"{sys.executable}" -m bandwright plan "{SCENARIO}" --json >&-',
+                       shell=True, stderr=subprocess.PIPE, text=True)
+    assert r.returncode == 2, r.stderr
+    assert r.stderr.strip().splitlines() == [
+        "bandwright: cannot write to standard output: it is closed"]

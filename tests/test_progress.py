@@ -49,3 +49,16 @@ def test_fast_stage_after_a_slow_one_is_timed_from_its_own_start():
     bar("yield", 2000, 4000)                    # 0.1 s per half: fast
     assert bar.progress is None
     bar.close()
+
+
+def test_audit_reports_its_monte_carlo_progress(tmp_path):
+    """An audit with a mask runs the yield: its progress reaches the callback, ending at
+    the sample count the file asks for."""
+    from bandwright.audit import audit
+    p = tmp_path / "c.toml"
+    p.write_text('[passband]\nlow_hz = 900\nhigh_hz = 1100\n[tolerance]\nsamples = 500\n'
+                 '[[stage]]\ntopology = "mfb_bandpass"\n'
+                 'parts = { R1a = "23.7k", R2 = "374k", C1 = "6.8n", C2 = "5.6n" }\n')
+    calls = []
+    audit(p, progress=lambda done, total: calls.append((done, total)))
+    assert calls and calls[-1][0] == calls[-1][1] and calls[0][1] == 500

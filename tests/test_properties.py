@@ -29,7 +29,9 @@ from bandwright.errors import SpecError
 from bandwright.planner import plan
 from bandwright.report.json_out import dumps, plan_to_dict
 from bandwright.inputs import spec_from_dict
-from bandwright.inputs.loader import AMPLIFIER_KEYS, TOLERANCE_KEYS
+from bandwright.inputs.loader import (AMPLIFIER_KEYS, AMPLIFIER_RANGES, FREQ_RANGE_HZ,
+                                      MAX_SAMPLES, MAX_VOLTS, MIN_VPK, TEMPERATURE_RANGE_C,
+                                      TOLERANCE_KEYS)
 
 from trust_support import missing_figures, non_finite_paths, recompute_mask
 
@@ -50,8 +52,16 @@ KEYS = ["passband", "stopband", "design", "input", "supply", "amplifier", "envir
         "vpk", "rails_v", "archetype", "temperature_c", "band_hz", "max_output_vrms",
         "topology", "parts", *AMPLIFIER_KEYS, *TOLERANCE_KEYS]
 
+# Every documented range end, and a step beyond each (docs/user-guide.md, inputs/loader.py).
+_ENDS = sorted({v for lo_hi in AMPLIFIER_RANGES.values() for v in lo_hi}
+               | {*FREQ_RANGE_HZ, MAX_VOLTS, -MAX_VOLTS, MIN_VPK, *TEMPERATURE_RANGE_C, 1e12,
+                  0.0, 10, 20, 40, 50, 100, 300, MAX_SAMPLES, 2**32 - 1})
+LIMIT_VALUES = sorted({v for e in _ENDS for v in (e, e * (1 + 1e-6), e * (1 - 1e-6), e - 1,
+                                                  e + 1)} | {5e-324, -273.15})
+
 scalars = st.one_of(
     st.none(), st.booleans(), st.integers(min_value=-10**30, max_value=10**30),
+    st.sampled_from(LIMIT_VALUES),
     st.floats(allow_nan=True, allow_infinity=True),
     st.text(max_size=12),
     st.sampled_from(["10kHz", "1k", "4k7", "-5k", "0", "1e30", "butterworth", "chebyshev",
@@ -252,3 +262,54 @@ def test_plan_whose_mask_passes_meets_it_when_recomputed(doc):
                                passband_hz=np.geomspace(pb.low_hz, pb.high_hz, 2001))
         assert dense.worst_loss_db <= pb.max_loss_db + 0.01
         assert abs(dense.peak_error_db) <= pb.gain_tolerance_db + 0.01
+
+
+def _in_range(lo: float, hi: float, *, log: bool = False):
+    """Values of a documented range, its two ends drawn often."""
+    inner = (st.floats(math.log10(lo), math.log10(hi)).map(lambda x: 10 ** x) if log
+             else st.floats(lo, hi))
+    return st.one_of(st.sampled_from([lo, hi]), inner)
+
+
+@st.composite
+def requirements_at_limits(draw):
+    """A plannable band (1 kHz, order 1 or 2) with the input, supply, op-amp and environment
+    figures drawn from their whole documented ranges, ends included."""
+    doc = {"passband": {"center_hz": 1000.0, "bandwidth_hz": 200.0},
+           "design": {"family": "butterworth", "order": draw(st.integers(1, 2))},
+           "input": {"max_vpk": draw(_in_range(MIN_VPK, MAX_VOLTS, log=True)),
+                     "source_ohms": draw(st.one_of(st.just(0.0), _in_range(1.0, 1e12, log=True)))},
+           "supply": {"rails_v": [-draw(_in_range(1.0, MAX_VOLTS, log=True)),
+                                  draw(_in_range(1.0, MAX_VOLTS, log=True))]},
+           "environment": {"temperature_c": draw(_in_range(*TEMPERATURE_RANGE_C))},
+           "tolerance": {"samples": 10}}
+    amp = {}
+    for key in draw(st.lists(st.sampled_from(sorted(AMPLIFIER_RANGES)), max_size=3,
+                             unique=True)):
+        lo, hi = AMPLIFIER_RANGES[key]
+        amp[key] = draw(st.one_of(st.sampled_from([lo, hi]), st.floats(lo, hi)))
+    if amp:
+        doc["amplifier"] = amp
+    tones = draw(st.lists(st.tuples(_in_range(*FREQ_RANGE_HZ, log=True),
+                                    _in_range(0.0, MAX_VOLTS)), max_size=2))
+    if tones:
+        doc["input"]["tone"] = [{"freq_hz": f, "vpk": v} for f, v in tones
+                                if not 900 <= f <= 1100]
+    return doc
+
+
+@_settings(15)
+@given(requirements_at_limits())
+def test_plan_at_documented_limits_ends_in_a_result_or_a_spec_error(doc):
+    """Anywhere inside the documented ranges, ends included, a plan runs to a result with
+    finite figures (failing checks allowed) or refuses in one SpecError naming a key —
+    never another exception (the issue's ZeroDivisionError, TypeError, ValueError)."""
+    try:
+        req = spec_from_dict(doc, path="limits.toml")
+        p = plan(req)
+    except SpecError as exc:
+        assert exc.path == "limits.toml" and exc.key, exc
+        return
+    d = plan_to_dict(p)
+    dumps(d)
+    assert list(non_finite_paths(d)) == []

@@ -85,9 +85,8 @@ def _snapshot(folder: Path) -> dict[str, bytes]:
 @pytest.mark.parametrize("existing", [False, True], ids=["new", "replace"])
 def test_failure_while_writing_leaves_the_folder_as_it_was(tmp_path, exc, existing):
     out = tmp_path / "out"
-    if existing:
-        out.mkdir()
-        (out / "keep.txt").write_text("the previous run")
+    if existing:  # an earlier run's folder (its manifest lists keep.txt)
+        write_out_dir(out, {"keep.txt": b"the previous run"}, force=False)
     before = _snapshot(out) if existing else None
     with pytest.raises(type(exc)):
         write_out_dir(out, _FailingFiles(3, exc), force=True)
@@ -101,8 +100,8 @@ def test_disk_full_during_cli_write_is_one_line_and_leaves_the_folder(tmp_path, 
     """A write that fails part-way (ENOSPC on the third file) under `plan --out --force`:
     exit 2, one line naming the folder, the old contents intact, no temporary left."""
     out = tmp_path / "out"
-    out.mkdir()
-    (out / "keep.txt").write_text("the previous run")
+    write_out_dir(out, {"keep.txt": b"the previous run"}, force=False)
+    before = _snapshot(out)
     real = Path.write_bytes
     calls = []
 
@@ -122,4 +121,4 @@ def test_disk_full_during_cli_write_is_one_line_and_leaves_the_folder(tmp_path, 
     assert len(err) == 1 and str(out) in err[0] and "cannot write" in err[0], err
     assert len(calls) == 3
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out", "spec.toml"]
-    assert _snapshot(out) == {"keep.txt": b"the previous run"}
+    assert _snapshot(out) == before and (out / "keep.txt").read_text() == "the previous run"

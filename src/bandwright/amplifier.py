@@ -3,20 +3,22 @@
 from __future__ import annotations
 
 import difflib
+from typing import Sequence
 
 from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.errors import SpecError
 from bandwright.parts.catalogue import ARCHETYPES, make_opamp
+from bandwright.parts.notation import format_value
 from bandwright.parts.opamp import OpAmp
-from bandwright.inputs.requirement import AmplifierChoice, Supply
+from bandwright.inputs.requirement import AmplifierChoice, Supply, Tone
 
-__all__ = ["resolve_amplifier"]
+__all__ = ["resolve_amplifier", "check_tones"]
 
 
 def resolve_amplifier(choice: AmplifierChoice, *, path: str, key: str = "amplifier",
-                      supply: Supply | None = None) -> OpAmp:
-    """`[amplifier]` → OpAmp; an unknown archetype or rails inside the op-amp's own swing
-    loss are SpecErrors naming `path` and the key."""
+                      supply: Supply | None = None, tones: Sequence[Tone] = ()) -> OpAmp:
+    """`[amplifier]` → OpAmp; an unknown archetype, rails inside the op-amp's own swing
+    loss, or a tone above the op-amp's GBW are SpecErrors naming `path` and the key."""
     try:
         model = make_opamp(archetype=choice.archetype, overrides=dict(choice.overrides))
     except KeyError:
@@ -30,4 +32,20 @@ def resolve_amplifier(choice: AmplifierChoice, *, path: str, key: str = "amplifi
         raise SpecError(path, "supply.rails_v",
                         f"rails leave no output swing: the op-amp needs "
                         f"{model.swing_to_rail_v:g} V from each rail", value=list(supply.rails_v))
+    check_tones(model, tones, path=path, key=key)
     return model
+
+
+def check_tones(model: OpAmp, tones: Sequence[Tone], *, path: str, key: str) -> None:
+    """Above its GBW an op-amp has no loop gain left (single-pole model, A(f) < 1): no active
+    section acts on such a tone, and sizing the networks for it asks loads no op-amp drives.
+    That is a front end's job (a passive lowpass ahead of the chain), so it is said here,
+    about the tone, rather than as a section no circuit can build."""
+    for i, tone in enumerate(tones):
+        if tone.vpk > 0 and tone.freq_hz > model.gbw_hz:
+            raise SpecError(path, f"input.tone[{i}].freq_hz",
+                            f"a {tone.vpk:g} Vpk tone above the op-amp's GBW "
+                            f"({format_value(model.gbw_hz, 'Hz')}, {key}), where no active "
+                            "section acts on "
+                            "it: give the level left after a passive lowpass ahead of the "
+                            "chain, or an op-amp with a higher GBW", value=tone.freq_hz)

@@ -9,7 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
-from bandwright.amplifier import resolve_amplifier
+from bandwright.amplifier import check_tones, resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.advice.tolerance import plan_yield
 from bandwright.analysis.montecarlo.tuned import TuningResult, tuning_for
@@ -49,6 +49,8 @@ class Audit:
         The trims the file names (``trim`` tables), or a tuning plan of the tool's own when
         the untrimmed yield misses the target or `[tuning] enabled = true`; its tuned yield
         is what the yield check judges.
+    diagnosis : Diagnosis or None
+        What a measured sweep (`--measured`) says about the chain (``bandwright.diagnosis``).
     """
 
     path: str
@@ -59,6 +61,7 @@ class Audit:
     checks: tuple[Check, ...]
     yield_result: YieldResult | None = None
     tuning: TuningResult | None = None
+    diagnosis: object = None
 
 
 def _near_hz(elements) -> float:
@@ -112,14 +115,24 @@ def _passband_from_response(chain: Chain, req_common: dict) -> Passband:
                     gain_db=float(20 * math.log10(mag[k])))
 
 
-def audit(path: str | Path) -> Audit:
+def audit(path: str | Path, *, measured: str | Path | None = None,
+          progress=None) -> Audit:
     """Read an audit file and run every analysis and check on the chain it describes.
+
+    Parameters
+    ----------
+    path : str or Path
+        The audit file (chain.toml).
+    measured : str or Path, optional
+        A measured sweep (SWEEP.csv) to diagnose the chain against.
+    progress : callable(done, total), optional
+        Hears how far the Monte Carlo yield has come.
 
     Raises
     ------
     SpecError
         Bad file: syntax, unknown topology, missing or extra part, bad value (naming the
-        stage and the part).
+        stage and the part); a bad sweep (naming its file, line and column).
     """
     p = str(path)
     req, common, specs = load_chain(path)
@@ -128,6 +141,8 @@ def audit(path: str | Path) -> Audit:
     for position, topo, parts, amp, key in specs:
         model = default if amp is None else resolve_amplifier(amp, path=p, key=f"{key}.amplifier",
                                                               supply=common["supply"])
+        check_tones(model, common["input"].tones, path=p,
+                    key="amplifier" if amp is None else f"{key}.amplifier")
         # The first stage's figures are those the source sees, as in a plan.
         rs = common["input"].source_ohms if position == 1 else 0.0
         stages.append(_build_stage(p, position, topo, parts, model, key, rs))
@@ -137,15 +152,20 @@ def audit(path: str | Path) -> Audit:
         req = Requirement(path=p, passband=_passband_from_response(chain, common),
                           input=common["input"], supply=common["supply"],
                           amplifier=common["amplifier"], environment=common["environment"],
-                          noise=common["noise"])
+                          noise=common["noise"], tolerance=common["tolerance"])
     an = analyse(chain, req, with_mask=has_mask)
     checks = tuple(all_checks(chain, an, req))
     result = None
     tuning = None
     if has_mask:  # the yield is the share of boards meeting the mask: it needs one
-        result = plan_yield(chain, req)
+        result = plan_yield(chain, req, progress=progress)
         given = plan_from_trims(chain, common.get("trims", {}))
         tuning = tuning_for(chain, req, result, given=given)
         checks += tuple(yield_checks(result, tuning=tuning))
-    return Audit(path=p, requirement=req, has_mask=has_mask, chain=chain, analyses=an,
-                 checks=checks, yield_result=result, tuning=tuning)
+    out = Audit(path=p, requirement=req, has_mask=has_mask, chain=chain, analyses=an,
+                checks=checks, yield_result=result, tuning=tuning)
+    if measured is not None:
+        from bandwright.diagnosis import diagnose
+        from bandwright.inputs.sweep_file import load_sweep
+        out = replace(out, diagnosis=diagnose(out, load_sweep(measured)))
+    return out

@@ -1,14 +1,18 @@
 """Command line: `bandwright plan` and `bandwright audit`.
 
 Exit 0: every check passes (warnings allowed); 1: it ran and some check failed;
-2: bad input or usage (one line on stderr, nothing written).
+2: bad input or usage, or a failed write of --out or stdout (one line on stderr, nothing
+written); 130 / 143: stopped by SIGINT / SIGTERM (one line); 141: stdout closed early (quiet).
 """
 
 from __future__ import annotations
 
 import argparse
+import errno
 import os
+import signal
 import sys
+import warnings
 from pathlib import Path
 
 from rich.console import Console
@@ -40,6 +44,9 @@ def build_parser() -> argparse.ArgumentParser:
     _common(pl)
     au = sub.add_parser("audit", help="analyse and check a chain someone designed")
     au.add_argument("chain", metavar="CHAIN.toml")
+    au.add_argument("--measured", metavar="SWEEP.csv", type=Path,
+                    help="a measured sweep (CSV: freq_hz, gain_db, phase_deg): find the part "
+                    "that is off")
     _common(au)
     return p
 
@@ -47,17 +54,47 @@ def build_parser() -> argparse.ArgumentParser:
 def _common(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", action="store_true", help="print one JSON object instead of the report")
     p.add_argument("--out", metavar="DIR", type=Path, help="write plan.json and the other files here")
-    p.add_argument("--force", action="store_true", help="replace a non-empty --out folder")
+    p.add_argument("--force", action="store_true",
+                   help="replace the files an earlier run wrote in --out (its manifest lists them)")
+
+
+class _Stopped(BaseException):
+    """SIGTERM, raised where the program is (SIGINT raises KeyboardInterrupt)."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+class _StdoutFailed(Exception):
+    """Writing the report or the JSON to stdout failed (a full disk, a closed pipe)."""
+
+
+#: Exit status after a closed stdout pipe (`| head -1`): 128 + SIGPIPE, as a program
+#: killed by the signal gives.
+EXIT_BROKEN_PIPE = 128 + 13
+
+
+def _on_term(signum, frame) -> None:
+    raise _Stopped(signum)
 
 
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     err = Console(stderr=True, highlight=False, soft_wrap=True)
+    previous = _install_term_handler()
+    # stderr carries our own lines only: library warnings (numpy on a degenerate design,
+    # matplotlib on a crowded figure) are not the user's to read. `python -W ...` still
+    # shows them.
+    quiet = warnings.catch_warnings()
+    quiet.__enter__()
+    if not sys.warnoptions:
+        warnings.simplefilter("ignore")
     try:
         if args.command == "plan" and args.order is not None and not 1 <= args.order <= 20:
             raise SpecError("--order", "", f"order {args.order} outside 1 to 20")
         if args.out is not None:
-            check_out_dir(args.out, force=args.force)
+            check_out_dir(args.out, force=args.force, inputs=_inputs(args))
         return _run_plan(args) if args.command == "plan" else _run_audit(args)
     except SpecError as exc:
         err.print(f"bandwright: {with_line(exc)}", markup=False)
@@ -65,6 +102,68 @@ def main(argv: list[str] | None = None) -> int:
     except OutDirRefused as exc:
         err.print(f"bandwright: {exc}", markup=False)
         return 2
+    except (KeyboardInterrupt, _Stopped) as exc:
+        signum = exc.signum if isinstance(exc, _Stopped) else signal.SIGINT
+        _quiet_stdout()
+        if args.out is None:
+            where = ""
+        elif getattr(args, "written", False):
+            where = f" after writing {args.out}/ in full"
+        else:
+            where = f"; {args.out} left as it was"
+        err.print(f"bandwright: stopped by {signal.Signals(signum).name}{where}", markup=False)
+        return 128 + signum
+    except _StdoutFailed as exc:
+        _quiet_stdout()
+        cause = exc.__cause__
+        if isinstance(cause, BrokenPipeError) or getattr(cause, "errno", None) == errno.EPIPE:
+            return EXIT_BROKEN_PIPE  # the reader stopped reading: nothing to say
+        err.print(f"bandwright: cannot write to standard output: "
+                  f"{getattr(cause, 'strerror', None) or cause}", markup=False)
+        return 2
+    finally:
+        quiet.__exit__(None, None, None)
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
+
+
+def _install_term_handler():
+    """SIGTERM (timeout, kill) stops the run as SIGINT does; the old handler is returned."""
+    try:
+        return signal.signal(signal.SIGTERM, _on_term)
+    except ValueError:  # not the main thread: leave signals alone
+        return None
+
+
+def _inputs(args: argparse.Namespace) -> tuple[str, ...]:
+    return (args.spec,) if args.command == "plan" else (args.chain,)
+
+
+def _quiet_stdout() -> None:
+    """Point stdout at /dev/null, so that the flush at exit cannot fail a second time."""
+    if sys.stdout is None:
+        return
+    try:
+        sys.stdout.flush()
+    except (OSError, ValueError):
+        pass
+    try:
+        fd = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(fd, sys.stdout.fileno())
+        os.close(fd)
+    except (OSError, ValueError, AttributeError):
+        pass
+
+
+def _emit(show) -> None:
+    """Run `show()`, which writes to stdout, and flush; a write error becomes _StdoutFailed."""
+    try:
+        if sys.stdout is None:  # started with stdout closed (`>&-`)
+            raise OSError(errno.EBADF, "it is closed")
+        show()
+        sys.stdout.flush()
+    except OSError as exc:
+        raise _StdoutFailed() from exc
 
 
 def _run_plan(args: argparse.Namespace) -> int:
@@ -84,29 +183,41 @@ def _run_plan(args: argparse.Namespace) -> int:
     text = dumps(plan_to_dict(result))
     if args.out is not None:
         _write(args, plan_files(result, text))
+    _emit(lambda: _show(args, text, render_plan, result))
+    return 1 if worst_status(result.checks) == "fail" else 0
+
+
+def _show(args: argparse.Namespace, text: str, render, result) -> None:
     if args.json:
         sys.stdout.write(text + "\n")
     else:
         console = _console()
-        render_plan(result, console)
+        render(result, console)
         if args.out is not None:
             console.print(f"Wrote {args.out}/")
-    return 1 if worst_status(result.checks) == "fail" else 0
 
 
 def _write(args: argparse.Namespace, files) -> None:
     """Write the --out folder; a full disk or a missing permission is one line, exit 2
     (write_out_dir leaves the folder as it was)."""
     try:
-        write_out_dir(args.out, files, force=args.force)
+        write_out_dir(args.out, files, force=args.force, inputs=_inputs(args),
+                      on_done=lambda: setattr(args, "written", True))
     except OSError as exc:
         raise OutDirRefused(f"{args.out}: cannot write: {exc.strerror or exc}") from None
 
 
+class _ReportConsole(Console):
+    def on_broken_pipe(self) -> None:
+        # rich would exit with status 1, which here means "a check failed".
+        self.quiet = True
+        raise BrokenPipeError(errno.EPIPE, "Broken pipe")
+
+
 def _console() -> Console:
     # markup=False: requirement text and check messages may hold brackets ("[tolerance]").
-    return Console(width=max(100, Console().width), no_color="NO_COLOR" in os.environ,
-                   highlight=False, markup=False)
+    return _ReportConsole(width=max(100, Console().width), no_color="NO_COLOR" in os.environ,
+                          highlight=False, markup=False)
 
 
 def _run_audit(args: argparse.Namespace) -> int:
@@ -115,17 +226,18 @@ def _run_audit(args: argparse.Namespace) -> int:
     from bandwright.report.json_out import audit_to_dict, dumps
     from bandwright.report.terminal import render_audit
 
-    result = audit(args.chain)
+    from bandwright.report.progress import stderr_progress
+
+    with stderr_progress() as bar:
+        result = audit(args.chain, measured=args.measured,
+                       progress=None if bar is None else
+                       (lambda done, total: bar("yield", done, total)))
     text = dumps(audit_to_dict(result))
     if args.out is not None:
         _write(args, audit_files(result, text))
-    if args.json:
-        sys.stdout.write(text + "\n")
-    else:
-        console = _console()
-        render_audit(result, console)
-        if args.out is not None:
-            console.print(f"Wrote {args.out}/")
+    _emit(lambda: _show(args, text, render_audit, result))
+    if result.diagnosis is not None and result.diagnosis.mask_pass is not None:
+        return 0 if result.diagnosis.mask_pass else 1  # the measured chain decides
     return 1 if worst_status(result.checks) == "fail" else 0
 
 

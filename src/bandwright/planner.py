@@ -158,7 +158,7 @@ def plan(requirement: Requirement, *, family: str | None = None,
         When the amplifier the requirement names does not exist or cannot swing on its rails.
     """
     model = resolve_amplifier(requirement.amplifier, path=requirement.path,
-                              supply=requirement.supply)
+                              supply=requirement.supply, tones=requirement.input.tones)
     candidates = make_candidates(requirement, family=family, order=order)
     designs = []
     for c in candidates:

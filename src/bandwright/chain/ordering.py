@@ -130,6 +130,8 @@ def best_order_brute(problem: OrderingProblem) -> tuple[tuple[int, ...], float]:
         c = order_cost(problem, perm)
         if c < best_cost:
             best, best_cost = perm, c
+    if best is None:  # no order has a finite cost (NaN or inf levels): keep the given one
+        return tuple(range(problem.n)), math.inf
     return tuple(best), best_cost
 
 

@@ -364,7 +364,8 @@ def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: fl
         w0 = math.sqrt(abs(pair[0].real * pair[1].real))
         q = w0 / abs(pair[0].real + pair[1].real)
     if kind == "bandpass":
-        h = npoly.polyval(1j * w0, num) / npoly.polyval(1j * w0, den)
+        with np.errstate(divide="ignore", invalid="ignore"):  # a pole on the jω axis
+            h = npoly.polyval(1j * w0, num) / npoly.polyval(1j * w0, den)
         gain = math.copysign(abs(h), h.real)
     elif kind == "lowpass":
         gain = float(num[0] / den[0])

@@ -182,6 +182,10 @@ def predistort(topo: ModuleType, target: Section, model: OpAmp, *, c_farads: flo
         if max(abs(df), abs(dq), abs(dg) if abs(dg) > _GAIN_DEADBAND else 0.0) < 1e-7 \
                 or fig.q <= 0:
             break
+        # A built figure of zero (an open-loop gain near 1, a source of 1 TΩ) or worse has
+        # no ratio to scale by: keep the last design and let the checks report it.
+        if not all(math.isfinite(d) and d > -1 for d in (df, dq, dg)):
+            break
         # A gain error under 0.1 % is left alone: chasing the 1/A0 error of a follower
         # would ask for a 1e-5 gain resistor ratio.
         new = Section(kind=target.kind, f0_hz=asked.f0_hz / (1 + df) if target.f0_hz else 0.0,

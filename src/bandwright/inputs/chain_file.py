@@ -16,7 +16,11 @@ from bandwright.inputs.reader import TableReader, read_toml
 from bandwright.inputs.requirement import Requirement
 from bandwright.parts.notation import parse_value
 
-__all__ = ["AUDIT_TABLES", "load_chain"]
+__all__ = ["AUDIT_TABLES", "load_chain", "MAX_STAGES"]
+
+#: The most stages an audit takes: memory grows with the square of the stages (a chain of
+#: 40 needs about 0.4 GB, one of 100 over 2 GB).
+MAX_STAGES = 40
 
 AUDIT_TABLES = ("passband", "stopband", "stage", "input", "supply", "amplifier", "environment",
                 "tolerance",
@@ -131,6 +135,9 @@ def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]
     stage_tables = top.tables("stage")
     if not stage_tables:
         raise SpecError(p, "stage", "no [[stage]] tables: an audit needs the chain's stages")
+    if len(stage_tables) > MAX_STAGES:
+        raise SpecError(p, "stage", f"{len(stage_tables)} stages; an audit takes at most "
+                        f"{MAX_STAGES} (twice the sections a plan builds)")
     specs = []
     trims: dict[int, dict[str, tuple[float, float]]] = {}
     for i, t in enumerate(stage_tables):

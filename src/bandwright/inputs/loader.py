@@ -19,7 +19,7 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "AMPLIFIER_RANGES",
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
            "read_tuning", "TUNING_KEYS",
-           "DISTRIBUTIONS"]
+           "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES"]
 
 SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
@@ -32,7 +32,19 @@ TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_p
                   "seed", "min_yield")
 DISTRIBUTIONS = ("uniform", "gaussian")
 _MAX_TOLERANCE_PCT = 50.0
-_MAX_SAMPLES = 1_000_000
+# Monte Carlo time grows linearly with samples × stages; 100,000 samples of a two-stage
+# chain take about half a minute here, with a progress bar (docs/user-guide.md).
+MAX_SAMPLES = 100_000
+_MAX_SAMPLES = MAX_SAMPLES
+# Every tone is carried through each analysis and drawn on the level plot: 100 keep a plan
+# with --out within seconds, and are more tones than any front end meets.
+MAX_TONES = 100
+# From liquid helium (about 4 K) to 300 °C: the range where "resistor noise 4kTR" means
+# something for a circuit; absolute zero has no thermal noise to compute.
+TEMPERATURE_RANGE_C = (-269.0, 300.0)
+# A nanovolt: below it the levels are under every resistor's own noise (and a denormal
+# amplitude would make every headroom ratio overflow).
+MIN_VPK = 1e-9
 HALF_POWER_DB = 10 * math.log10(2)
 # Plausibility ranges: a value beyond them is a typing error, not a design (an active RC
 # filter outside 1 mHz … 10 GHz, or a band narrower than a millionth of its centre, is no
@@ -100,13 +112,16 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
     environment, noise."""
     inp = TableReader(path, "input", doc.get("input", {}), ("max_vpk", "source_ohms", "tone"))
     tones = []
+    if len(inp.tables("tone")) > MAX_TONES:
+        raise SpecError(path, "input.tone", f"{len(inp.tables('tone'))} tones; at most "
+                        f"{MAX_TONES} (the strongest few decide the headroom)")
     for i, t in enumerate(inp.tables("tone")):
         tr = TableReader(path, f"input.tone[{i}]", t, ("freq_hz", "vpk"))
         tones.append(Tone(freq_hz=_freq(tr, "freq_hz", required=True),
                           vpk=tr.number("vpk", required=True, nonnegative=True,
                                         high=MAX_VOLTS)))
     # A zero input leaves nothing to scale the chain for (every margin would be infinite).
-    input_signal = InputSignal(max_vpk=inp.number("max_vpk", 1.0, positive=True,
+    input_signal = InputSignal(max_vpk=inp.number("max_vpk", 1.0, positive=True, low=MIN_VPK,
                                                   high=MAX_VOLTS),
                                source_ohms=inp.number("source_ohms", 0.0, nonnegative=True,
                                                       high=_MAX_OHMS),
@@ -129,7 +144,8 @@ def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
         "supply": Supply(rails_v=rails),
         "amplifier": read_amplifier(path, "amplifier", doc.get("amplifier", {})),
         "environment": Environment(
-            temperature_c=env.number("temperature_c", 25.0, low=-273.15, high=300.0)),
+            temperature_c=env.number("temperature_c", 25.0, low=TEMPERATURE_RANGE_C[0],
+                                     high=TEMPERATURE_RANGE_C[1])),
         "noise": NoiseBudget(band_hz=band,
                              max_output_vrms=noi.number("max_output_vrms", None, positive=True,
                                                         high=MAX_VOLTS)),
@@ -172,7 +188,8 @@ def read_passband(pb: TableReader) -> Passband:
     else:
         raise SpecError(pb.path, "passband", "missing band: give center_hz + bandwidth_hz, or "
                         "low_hz + high_hz")
-    if (high - low) / math.sqrt(low * high) < MIN_FRACTIONAL_BANDWIDTH:
+    # The 1e-9 allows for rounding: a band given as exactly 1e-6 of its centre is accepted.
+    if (high - low) / math.sqrt(low * high) < MIN_FRACTIONAL_BANDWIDTH * (1 - 1e-9):
         name = "high_hz" if by_edges else "bandwidth_hz"
         raise pb.error(name, f"the band is narrower than {MIN_FRACTIONAL_BANDWIDTH:g} of its "
                        f"centre (Q above {1 / MIN_FRACTIONAL_BANDWIDTH:g}): no active filter "

@@ -7,14 +7,22 @@ from __future__ import annotations
 
 import difflib
 import math
+import os
 import re
+import stat
 import tomllib
 from pathlib import Path
 from typing import Any, Iterable
 
-from bandwright.errors import SpecError
+from bandwright.errors import SpecError, shown
 
-__all__ = ["read_toml", "TableReader", "number_hint", "key_lines", "with_line"]
+__all__ = ["read_toml", "read_input_bytes", "TableReader", "number_hint", "key_lines",
+           "with_line", "MAX_INPUT_BYTES"]
+
+#: The largest input file read (1 MiB): a requirement or a chain of the largest size the
+#: tool accepts is a few tens of kilobytes.
+MAX_INPUT_BYTES = 1 << 20
+_BOM = "\ufeff"
 
 _LINE = re.compile(r"\(at line (\d+), column \d+\)")
 _PREFIX = {"p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "m": 1e-3, "": 1.0, "k": 1e3, "K": 1e3,
@@ -23,15 +31,55 @@ _WITH_UNIT = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([pn
                         r"(hz|v|vpk|vrms|ohms?|Ω|db|a|s|%)?\s*$", re.IGNORECASE)
 
 
-def read_toml(path: str | Path) -> dict[str, Any]:
-    """Parse a TOML file; syntax errors become a SpecError with the line."""
-    p = Path(path)
+def _kind_of_file(mode: int) -> str:
+    if stat.S_ISDIR(mode):
+        return "a folder"
+    if stat.S_ISFIFO(mode):
+        return "a named pipe"
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "a device"
+    if stat.S_ISSOCK(mode):
+        return "a socket"
+    return "a special file"
+
+
+def read_input_bytes(path: str | Path) -> bytes:
+    """The bytes of an input file: a regular file of at most MAX_INPUT_BYTES.
+
+    A device (``/dev/zero``), a named pipe or a folder is refused before it is opened, so
+    that nothing blocks or reads without end.
+    """
     try:
-        raw = p.read_bytes()
+        st = os.stat(path)
+        if not stat.S_ISREG(st.st_mode):
+            raise SpecError(str(path), "", f"is {_kind_of_file(st.st_mode)}, not a regular "
+                            "file")
+        if st.st_size > MAX_INPUT_BYTES:
+            raise SpecError(str(path), "", f"is {st.st_size:,} bytes; an input file may hold "
+                            f"at most {MAX_INPUT_BYTES:,} bytes (1 MiB)")
+        with open(path, "rb") as f:
+            raw = f.read(MAX_INPUT_BYTES + 1)
     except OSError as exc:
         raise SpecError(str(path), "", f"cannot read file: {exc.strerror or exc}") from None
+    if len(raw) > MAX_INPUT_BYTES:  # it grew since stat
+        raise SpecError(str(path), "", f"holds more than {MAX_INPUT_BYTES:,} bytes (1 MiB), "
+                        "the most an input file may hold")
+    return raw
+
+
+def read_toml(path: str | Path) -> dict[str, Any]:
+    """Parse a TOML file; syntax errors become a SpecError with the line.
+
+    A UTF-8 byte-order mark at the start is accepted (and skipped); a document nested too
+    deeply for the parser is refused.
+    """
+    raw = read_input_bytes(path)
     try:
-        return tomllib.loads(raw.decode("utf-8"))
+        text = raw.decode("utf-8")
+        return tomllib.loads(text[1:] if text.startswith(_BOM) else text)
+    except RecursionError:
+        raise SpecError(str(path), "", "arrays or tables nested too deeply for a TOML "
+                        "parser (keep nesting to a few levels)") from None
     except UnicodeDecodeError as exc:
         line = raw[:exc.start].count(b"\n") + 1
         raise SpecError(str(path), "", f"not a UTF-8 text file (byte {raw[exc.start]:#04x})",
@@ -119,7 +167,7 @@ def with_line(exc: SpecError) -> SpecError:
     if exc.line is not None or not exc.key:
         return exc
     try:
-        found = key_lines(Path(exc.path).read_text(encoding="utf-8"))
+        found = key_lines(read_input_bytes(exc.path).decode("utf-8-sig"))
     except (OSError, UnicodeDecodeError, ValueError):
         return exc
     key = exc.key
@@ -246,7 +294,7 @@ def _kind(v: Any) -> str:
     if isinstance(v, bool):
         return "a boolean"
     if isinstance(v, str):
-        return f"the string {v!r}"
+        return f"the string {shown(repr(v), 60)}"
     if isinstance(v, dict):
         return "a table"
     if isinstance(v, list):

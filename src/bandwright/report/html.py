@@ -491,6 +491,11 @@ def _tuning_section(obj) -> str:
     return tuning_html(tuning_of(obj))
 
 
+def _diagnosis_section(s, plots) -> str:
+    from bandwright.report.diagnosis_view import diagnosis_html
+    return diagnosis_html(s.source, plots)
+
+
 def html_report(obj, *, plots: dict | None = None, schematics: dict | None = None,
                 bom_text: str | None = None) -> str:
     """The whole report as one HTML document.
@@ -532,7 +537,7 @@ def html_report(obj, *, plots: dict | None = None, schematics: dict | None = Non
         '<header class="top">', f"<h1>bandwright {_e(s.kind)}</h1>",
         f"<p>{_e(s.path)} · bandwright {_e(__version__)}</p></header>",
         f"<nav>{nav}</nav>",
-        _summary(s), _candidates(s), _chain(s, schematics), _stages(s, schematics),
+        _summary(s), _diagnosis_section(s, plots), _candidates(s), _chain(s, schematics), _stages(s, schematics),
         _levels(s) if s.analyses is not None else
         '<section id="levels"><h2>Node levels</h2><p class="note">No chain was built.</p>'
         "</section>",

@@ -195,6 +195,9 @@ def audit_to_dict(a) -> dict[str, Any]:
     y = getattr(a, "yield_result", None)
     out["yield"] = yield_dict(y) if y is not None else None
     out["tuning"] = tuning_dict(getattr(a, "tuning", None))
+    if getattr(a, "diagnosis", None) is not None:
+        from bandwright.report.diagnosis_view import diagnosis_dict
+        out["diagnosis"] = diagnosis_dict(a.diagnosis)
     return out
 
 

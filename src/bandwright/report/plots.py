@@ -14,6 +14,8 @@ Plots
 ``noise``     output noise density, the largest contributors and the rest, band marked.
 ``yield``     Monte Carlo response envelope against the mask (only when yield ran).
 ``poles``     section poles in the s-plane, built and target; f0 against Q.
+``diagnosis`` a measured sweep over the chain as designed and as fitted, and the residual
+              (only for ``audit --measured``).
 """
 
 from __future__ import annotations
@@ -21,7 +23,11 @@ from __future__ import annotations
 import io
 import math
 
-import matplotlib
+from bandwright.report._mpl import quiet_matplotlib
+
+quiet_matplotlib()  # before matplotlib is imported: its config and cache folder
+
+import matplotlib  # noqa: E402
 import numpy as np
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
@@ -33,7 +39,8 @@ from bandwright.report.subject import Subject, net_label, stage_label, subject_o
 from bandwright.report.terminal import fmt_hz
 from bandwright.sections.split import cascade_response
 
-__all__ = ["plot_files", "plot_figures", "PLOT_NAMES", "DPI", "SIZE_PX", "source_label"]
+__all__ = ["plot_files", "plot_figures", "PLOT_NAMES", "DPI", "SIZE_PX", "source_label",
+           "diagnosis_figure"]
 
 #: Resolution and pixel size of every PNG.
 DPI = 110
@@ -502,7 +509,57 @@ def plot_figures(obj) -> dict[str, Figure]:
         fig = build(s)
         if fig is not None:
             out[name] = fig
+    if getattr(s.source, "diagnosis", None) is not None:
+        out["diagnosis"] = diagnosis_figure(s.source.diagnosis)
     return out
+
+
+MEASURED = "#c0392b"
+
+
+def diagnosis_figure(d) -> Figure:
+    """The measured sweep over the chain as designed and as fitted, and the residual.
+
+    Parameters
+    ----------
+    d : bandwright.diagnosis.Diagnosis
+
+    Returns
+    -------
+    Figure
+        Top: gain (dB) against frequency, measured points over the designed and fitted
+        curves; bottom: measured minus fitted, with the ±noise band.
+    """
+    f = d.sweep.freq_hz
+    fig = Figure(figsize=(SIZE_PX[0] / DPI, SIZE_PX[1] / DPI), dpi=DPI, layout="constrained")
+    ax, res = fig.subplots(2, 1, sharex=True, height_ratios=(2.6, 1.0))
+    ax.plot(f, d.sweep.gain_db, color=MEASURED, marker=".", markersize=3, linestyle="",
+            label="measured")
+    ax.plot(f, d.planned_db, color=IDEAL, linestyle="--", linewidth=1.3,
+            label="as designed (the chain file)")
+    ax.plot(f, d.fitted_db, color=BUILT, linewidth=1.1, label="as fitted")
+    top = float(max(d.sweep.gain_db.max(), d.planned_db.max()))
+    ax.set_ylim(max(float(min(d.sweep.gain_db.min(), d.planned_db.min())), top - 80) - 3,
+                top + 5)
+    ax.set_ylabel("gain (dB)")
+    lead = d.suspects[0] if d.suspects and not d.unexplained else None
+    title = "Measured sweep: " + (f"stage {lead.stage} {lead.part} {lead.change_pct:+.1f} %"
+                                  if lead else "unexplained" if d.unexplained
+                                  else "as designed")
+    ax.set_title(title, loc="left", fontsize=11)
+    ax.legend(loc="lower center", fontsize=8, framealpha=0.9)
+    r = d.sweep.gain_db - d.fitted_db
+    res.axhspan(-d.noise_db, d.noise_db, color=IDEAL, alpha=0.25, linewidth=0,
+                label=f"± noise ({d.noise_db:.3f} dB)")
+    res.plot(f, r, color=MEASURED, marker=".", markersize=2.5, linestyle="",
+             label=f"measured − fitted ({d.residual_db:.3f} dB rms)")
+    lim = max(5 * d.noise_db, float(np.max(np.abs(r))) * 1.1)
+    res.set_ylim(-lim, lim)
+    res.set_ylabel("residual (dB)")
+    res.legend(loc="upper right", fontsize=8, framealpha=0.9, ncols=2)
+    _log_freq_axis(res, float(f[0]), float(f[-1]))
+    ax.grid(True, which="major", color="#d0d0d0", linewidth=0.6)
+    return fig
 
 
 def plot_files(obj) -> dict[str, bytes]:

@@ -26,7 +26,11 @@ import math
 from dataclasses import dataclass
 from functools import lru_cache
 
-import schemdraw
+from bandwright.report._mpl import quiet_matplotlib
+
+quiet_matplotlib()  # schemdraw imports matplotlib: set its config folder first
+
+import schemdraw  # noqa: E402
 import schemdraw.elements as elm
 from schemdraw import flow
 

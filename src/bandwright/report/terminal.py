@@ -118,6 +118,8 @@ def render_audit(a, console: Console) -> None:
                   "(finite GBW), the first stage as the source drives it")
     _tuning(a, console)
     _checks(a.checks, console)
+    from bandwright.report.diagnosis_view import render_diagnosis
+    render_diagnosis(a, console)
 
 
 def _tuning(obj, console: Console) -> None:
