@@ -277,7 +277,8 @@ def tuning_for(chain: Chain, requirement: Requirement, untrimmed, *,
     Returns
     -------
     TuningResult or None
-        None when the chain is not trimmed or no stage has a part to trim.
+        None when the chain is not trimmed, no stage has a part to trim, or a plan of the
+        tool's own would not raise the yield.
     """
     enabled = requirement.tuning.enabled
     if enabled is False:
@@ -297,5 +298,10 @@ def tuning_for(chain: Chain, requirement: Requirement, untrimmed, *,
         return None
     tuned = tuned_monte_carlo(chain, requirement, plan, spreads=untrimmed.spreads,
                               samples=untrimmed.samples, seed=untrimmed.seed)
+    if plan is not given and tuned.yield_fraction <= untrimmed.yield_fraction:
+        # A plan of the tool's own that does not raise the yield is no plan: trimming a
+        # section near its stability limit (a positive-feedback Sallen-Key at high Q) can
+        # push boards over it, and the untrimmed verdict then says more.
+        return None
     return TuningResult(plan=plan, tuned=tuned, yield_untrimmed=untrimmed.yield_fraction,
                         interval_untrimmed=untrimmed.interval, reason=reason)
