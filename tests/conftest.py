@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import shutil
 import subprocess
 import sys
 import textwrap
@@ -20,6 +21,33 @@ settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci" if os.environ.ge
 ROOT = Path(__file__).resolve().parent.parent
 SCENARIOS = ROOT / "scenarios"
 
+# External programs some tests run, by marker: (executable, how to install it).
+EXTERNAL_TOOLS = {
+    "ngspice": ("ngspice", "apt-get install ngspice"),
+    "chromium": ("chromium", "apt-get install chromium"),
+}
+#: Set (to anything but "" or "0") by .ci/run: a missing tool then fails its tests.
+REQUIRE_TOOLS_VARIABLE = "BANDWRIGHT_REQUIRE_TOOLS"
+
+
+def tools_required() -> bool:
+    """True when the environment asks that ngspice and Chromium be present."""
+    return os.environ.get(REQUIRE_TOOLS_VARIABLE, "") not in ("", "0")
+
+
+def pytest_runtest_setup(item):
+    """A test marked ``ngspice`` or ``chromium`` needs that program: skipped with the reason
+    when it is missing, or failed when ``BANDWRIGHT_REQUIRE_TOOLS`` is set (as .ci/run
+    does), so that a machine without it cannot pass the suite by skipping it."""
+    for marker, (exe, install) in EXTERNAL_TOOLS.items():
+        if item.get_closest_marker(marker) is None or shutil.which(exe) is not None:
+            continue
+        why = f"{exe} is not on PATH ({install})"
+        if tools_required():
+            pytest.fail(f"{why}; {REQUIRE_TOOLS_VARIABLE} is set, so this test must run",
+                        pytrace=False)
+        pytest.skip(why)
+
 
 @pytest.fixture
 def write_spec(tmp_path):
@@ -29,6 +57,11 @@ def write_spec(tmp_path):
         p.write_text(textwrap.dedent(text))
         return p
     return _write
+
+
+def exit_code_of(doc: dict) -> int:
+    """The exit status docs/design.md gives a plan or audit JSON: 1 when a check fails, else 0."""
+    return 1 if any(c["status"] == "fail" for c in doc["checks"]) else 0
 
 
 def run_cli(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess:

@@ -2,7 +2,7 @@
 
 Generic helper for any test that cross-checks against ngspice (Debian package, version 39).
 A deck's ``.control`` block must end in ``quit 0``: in batch mode ngspice otherwise exits 1
-with "no simulations run" (references.md). Errors are read from ngspice's output rather
+with "no simulations run" (docs/methods.md). Errors are read from ngspice's output rather
 than from its exit status.
 
 Typical use::

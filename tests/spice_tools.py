@@ -1,8 +1,8 @@
 """Run analyses on a written deck (``report.spice.spice_deck``) with ngspice and read them back.
 
-A deck as written holds no analysis (design.md: no ``.control`` block). These helpers copy
+A deck as written holds no analysis (docs/design.md: no ``.control`` block). These helpers copy
 it, insert a ``.control`` block before the final ``.end`` -- ending in ``quit 0``, without
-which ``ngspice -b`` exits 1 (references.md) -- run it with ``ngspice_runner.run_ngspice``
+which ``ngspice -b`` exits 1 (docs/methods.md) -- run it with ``ngspice_runner.run_ngspice``
 (which reads errors from ngspice's output) and parse what it wrote.
 """
 

@@ -1,6 +1,6 @@
 """`bandwright audit CHAIN.toml --measured SWEEP.csv` as a user runs it, on sweeps from the
 ngspice bench (``diagnosis_bench``): exit 0 when the measured chain meets the mask, 1 when
-it does not; one JSON object with the ``diagnosis`` keys of design.md; the terminal and the
+it does not; one JSON object with the ``diagnosis`` keys of docs/design.md; the terminal and the
 HTML report name the suspect.
 
 The measured chain's mask verdict is read from the measured points themselves: here it is
@@ -21,9 +21,8 @@ import pytest
 from bandwright import cli
 
 import diagnosis_bench as bench
-from ngspice_runner import ngspice_available
 
-pytestmark = pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+pytestmark = pytest.mark.ngspice
 
 CHAIN = Path(__file__).resolve().parent / "reference" / "diagnosis" / \
     "three_stage_mfb_tow_thomas.toml"

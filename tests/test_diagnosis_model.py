@@ -1,5 +1,5 @@
 """The diagnosis model (ln H of the chain and its derivatives in log-part space) against a
-closed form differentiated by sympy, and held to the nodal solver (design.md: the fast path
+closed form differentiated by sympy, and held to the nodal solver (docs/design.md: the fast path
 is tested against the reference evaluation)."""
 
 from __future__ import annotations

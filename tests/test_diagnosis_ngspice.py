@@ -22,9 +22,8 @@ from bandwright.diagnosis.fit import roughness
 from bandwright.inputs.sweep_file import load_sweep
 
 import diagnosis_bench as bench
-from ngspice_runner import ngspice_available
 
-pytestmark = pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+pytestmark = pytest.mark.ngspice
 
 REF = Path(__file__).resolve().parent / "reference" / "diagnosis"
 MFB_TT = "three_stage_mfb_tow_thomas"            # mfb, Tow-Thomas, mfb (Q 3 to 7)
@@ -141,7 +140,7 @@ def test_two_parts_off_together_are_not_blamed_on_one(tmp_path):
 
 def test_fitted_stage_figures_match_the_changed_circuit(tmp_path):
     """The fitted f0 of a stage whose C1 is +8 %: f0 of a Tow-Thomas section goes as
-    1/sqrt(C1 C2) (Tow 1968 [mem]; references.md), so it falls by 1/sqrt(1.08)."""
+    1/sqrt(C1 C2) (Tow 1968 [mem]; docs/methods.md), so it falls by 1/sqrt(1.08)."""
     a, d = _bench(MFB_TT, lambda t: bench.scale_part(t, 2, "C1", 1.08), tmp_path, seed=9)
     st = d.stages[1]
     assert st.fitted.f0_hz / st.planned.f0_hz == pytest.approx(1 / np.sqrt(1.08), rel=2e-3)

@@ -1,5 +1,5 @@
 """The `[tolerance]` table: defaults, values read, and every bad value a SpecError that
-names the file and the key (design.md, "Unknown keys are errors")."""
+names the file and the key (docs/design.md, "Unknown keys are errors")."""
 
 from __future__ import annotations
 

@@ -21,7 +21,6 @@ from bandwright.parts.catalogue import archetype
 from bandwright.parts.opamp import OpAmp
 from bandwright.report.spice import opamp_subckt, spice_deck
 
-from ngspice_runner import ngspice_available
 from spice_tools import run_ngspice_noise
 
 K_B = 1.380649e-23          # J/K, exact (SI 2019)
@@ -74,7 +73,7 @@ def test_nodal_noise_follows_both_corners():
     assert got[np.searchsorted(f, 10.0)] > 10 * same[np.searchsorted(f, 10.0)]
 
 
-@pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+@pytest.mark.ngspice
 def test_ngspice_noise_of_the_deck_follows_both_corners(tmp_path):
     """ngspice-39 `.noise` of the written deck against the closed form: within 0.05 dB at
     every point from 1 Hz to 10 kHz (the diode generators agree with the model to about

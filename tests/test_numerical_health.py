@@ -3,11 +3,11 @@
 the imaginary axis (Q 500 built, Q 5000 ideal), op-amp poles seven decades from the section.
 
 The reference throughout is **mpmath at 50 significant digits**, computed independently of
-the package: prototype poles from their closed forms (references.md, "Prototype scaling"),
+the package: prototype poles from their closed forms (docs/methods.md, "Prototype scaling"),
 the bandpass substitution solved as a quadratic, the bandpass magnitude from the closed-form
-prototype magnitude through Ω(f) = (f² − f0²)/(f·BW) (references.md, "Mask → order";
+prototype magnitude through Ω(f) = (f² − f0²)/(f·BW) (docs/methods.md, "Mask → order";
 Williams & Taylor 2006, §2 and §5.1 [mem]), and a small modified-nodal-analysis solver of our
-element lists written here (standard MNA stamps; the op-amp row is design.md's single-pole
+element lists written here (standard MNA stamps; the op-amp row is docs/design.md's single-pole
 model V_out = A0/(1 + s·A0/ωt) · (V+ − V−)). scipy.signal.lp2bp_zpk, in float64, is also held
 to the mpmath poles, to show the float64 split is as good as scipy's.
 """
@@ -21,6 +21,7 @@ import numpy as np
 import pytest
 from scipy import signal
 
+from bandwright.candidates import LOSS_SHARE
 from bandwright.circuits.nodal import ac_solve
 from bandwright.planner import plan
 from bandwright.prototype import prototype
@@ -42,7 +43,7 @@ def _precision():
 
 
 def _mp_prototype_poles(family: str, order: int, ripple_db: float) -> list:
-    """Closed forms of references.md "Prototype scaling", in mpmath."""
+    """Closed forms of docs/methods.md "Prototype scaling", in mpmath."""
     eps = mp.sqrt(mp.power(10, mp.mpf(ripple_db) / 10) - 1)
     a = mp.asinh(1 / eps) / order
     poles = []
@@ -200,7 +201,9 @@ def _spec(f0_hz, fbw, order, archetype, max_loss_db=1.0):
             "tolerance": {"samples": 10}}
 
 
-_EPS = math.sqrt(10 ** (0.9 * 3.0103 / 10) - 1)  # order 1, the planner's 0.9 loss share
+# Order 1: the one real prototype pole is -1/eps, eps at the share of max_loss_db the planner
+# designs the prototype for, so Q = Qbp * eps (docs/methods.md, "Prototype → sections").
+_EPS = math.sqrt(10 ** (LOSS_SHARE * 3.0103 / 10) - 1)
 BUILT = {
     # A section of Q 500 asked (three op-amps): poles 1e-3 of |p| from the axis.
     "Q500 at 1 kHz": _spec(1e3, _EPS / 500, 1, "fast", max_loss_db=3.0103),
@@ -234,6 +237,9 @@ def test_built_stages_match_an_mpmath_nodal_solution(name):
         assert abs(mp.mpf(f0) - ref_f0) <= 1e-8 * ref_f0, st.topology
         assert abs(mp.mpf(q) - ref_q) <= 1e-7 * ref_q, st.topology
     if name.startswith("Q500"):
+        # The section asked really is the Q 500 the case is named for (its only section).
+        (asked,) = [st.target.q for st in p.chosen.chain.stages if st.kind != "gain"]
+        assert asked == pytest.approx(500, rel=1e-9)
         # The planner may trim the section's parts against the passband (a mask with no
         # stopband point lets Q fall a little): the pole pair stays within 1/600 of |p| of
         # the axis.

@@ -1,7 +1,7 @@
 """The --out folder: a user's files are never touched, a write is whole or absent, and an
 interrupted run (SIGINT, SIGTERM) leaves the folder as it was or complete.
 
-The contract is design.md's ("--force replaces only files the tool wrote (a manifest in the
+The contract is docs/design.md's ("--force replaces only files the tool wrote (a manifest in the
 folder); never the input's folder, the cwd, a home folder or the root") and the exit
 statuses of a process stopped by a signal, 128 + the signal's number (POSIX shells'
 convention: SIGINT 130, SIGTERM 143).

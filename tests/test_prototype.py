@@ -45,7 +45,7 @@ def test_chebyshev_0p1db_n3_matches_winder_table():
 
 def test_chebyshev_0p5db_n3_matches_handbook_value():
     """0.5 dB, N = 3: -0.313228 ± j1.021927, -0.626456 (Zverev 1967 / Williams & Taylor
-    tables [mem]; the same numbers as scipy.cheb1ap, references.md [calc])."""
+    tables [mem]; the same numbers as scipy.cheb1ap, docs/methods.md [calc])."""
     p = _sorted(chebyshev_poles(3, 0.5))
     np.testing.assert_allclose(p, [-0.313228 - 1.021927j, -0.626456, -0.313228 + 1.021927j],
                                atol=1e-6)
@@ -66,7 +66,7 @@ def test_edge_loss_is_exactly_max_loss(family, loss, n):
 
 
 def test_band_edges_from_centre_and_width():
-    """references.md check value [calc]: f0 40 kHz, BW 4 kHz → 38 049.969, 42 049.969 Hz."""
+    """docs/methods.md check value [calc]: f0 40 kHz, BW 4 kHz → 38 049.969, 42 049.969 Hz."""
     from bandwright.inputs import spec_from_dict
     req = spec_from_dict({"passband": {"center_hz": 40000, "bandwidth_hz": 4000},
                           "design": {"order": 2}})
@@ -76,7 +76,7 @@ def test_band_edges_from_centre_and_width():
 
 
 def test_order_check_values_of_references():
-    """references.md [calc]: f0 40 kHz, BW 4 kHz, 40 dB at 30 kHz: Ωs = 5.8333;
+    """docs/methods.md [calc]: f0 40 kHz, BW 4 kHz, 40 dB at 30 kHz: Ωs = 5.8333;
     Butterworth 3.0103 dB → N 3; Amax 0.5 dB → Butterworth 4, Chebyshev 3."""
     low = (math.sqrt(4000**2 + 4 * 40000**2) - 4000) / 2
     f0 = math.sqrt(low * (low + 4000))
@@ -104,7 +104,7 @@ def test_order_matches_scipy_buttord_cheb1ord(low, high, stops, amax, family):
 
     scipy needs a stopband edge on each side and keeps the more demanding one, so each
     point is paired with its geometric mirror f0^2/f (same Ω) and the larger order taken;
-    that is the map our order uses (references.md, "Mask → order")."""
+    that is the map our order uses (docs/methods.md, "Mask → order")."""
     f0 = math.sqrt(low * high)
     ours = minimum_order(family, bandpass_omega([f for f, _ in stops], f0, high - low), amax,
                          [a for _, a in stops])

@@ -16,7 +16,7 @@ from bandwright.sections.split import cascade_response, wideband_sections
 
 
 def _sections_from_scipy(poles, f0_hz, bw_hz):
-    """Pair lp2bp_zpk's poles: f = |p|/2π, Q = |p|/(2|Re p|) (references.md)."""
+    """Pair lp2bp_zpk's poles: f = |p|/2π, Q = |p|/(2|Re p|) (docs/methods.md)."""
     _, p, _ = signal.lp2bp_zpk([], poles, 1.0, wo=2 * math.pi * f0_hz, bw=2 * math.pi * bw_hz)
     up = p[p.imag > 0]
     real = np.sort(p[p.imag == 0].real)
@@ -44,7 +44,7 @@ def test_sections_match_scipy_lp2bp_zpk(family, n, loss, f0, bw):
 def test_butterworth_n4_9_to_11_rad_s_matches_winder_worked_example():
     """Winder 2002, pp. 184–185 [pub]: Butterworth N = 4 to a 9–11 rad/s bandpass gives
     sections 9.57306 & 10.34178 (Q 5.38885) and 9.068286 & 10.917444 rad/s (Q 13.0556778);
-    the book rounds ω0 to 9.95, so compare at 1e-4 (references.md; exact values [calc]
+    the book rounds ω0 to 9.95, so compare at 1e-4 (docs/methods.md; exact values [calc]
     9.57295, 10.34164, 9.06818, 10.91730, Q 13.0561)."""
     f0_hz = math.sqrt(99.0) / (2 * math.pi)
     secs = sections_from_poles(prototype("butterworth", 4, 10 * math.log10(2)).poles,
@@ -58,7 +58,7 @@ def test_butterworth_n4_9_to_11_rad_s_matches_winder_worked_example():
 
 
 def test_butterworth_n3_qbp10_check_values():
-    """references.md [calc]: Butterworth N = 3, Qbp = 10: f/f0 = 0.957623, 1, 1.044252;
+    """docs/methods.md [calc]: Butterworth N = 3, Qbp = 10: f/f0 = 0.957623, 1, 1.044252;
     Q = 20.0188, 10, 20.0188."""
     secs = sections_from_poles(prototype("butterworth", 3, 10 * math.log10(2)).poles, 1.0, 0.1)
     np.testing.assert_allclose([s.f0_hz for s in secs], [0.957623, 1.0, 1.044252], rtol=1e-6)

@@ -26,10 +26,9 @@ from bandwright.report.spice import (TINY_SOURCE_OHMS, noise_sense_gain,
                                      opamp_subckt, spice_deck, subckt_name)
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from ngspice_runner import ngspice_available  # noqa: E402
 from spice_tools import run_ngspice_ac, run_ngspice_noise, run_ngspice_op  # noqa: E402
 
-needs_ngspice = pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+needs_ngspice = pytest.mark.ngspice
 
 
 # --- circuits ------------------------------------------------------------------------------
@@ -61,7 +60,7 @@ def mfb_bandpass(stage: int, net_in: str, net_out: str, *, f0_hz: float, q: floa
                  h0: float, c_farads: float, model: OpAmp):
     """Equal-C multiple-feedback bandpass with input divider R1a/R1b.
 
-    R2 = Q/(pi f0 C), R1a = R2/(2|H0|), R1b = R2/(4Q^2 - 2|H0|) (references.md "Topology
+    R2 = Q/(pi f0 C), R1a = R2/(2|H0|), R1b = R2/(4Q^2 - 2|H0|) (docs/methods.md "Topology
     facts"; Williams & Taylor 2006 §5.2 [mem]).
     """
     r2 = q / (math.pi * f0_hz * c_farads)
@@ -85,17 +84,17 @@ def mfb_cascade(model_1: OpAmp, model_2: OpAmp):
 
 def test_hand_built_mfb_section_meets_its_design_equations():
     """The hand-built section is what the tests think it is: with an ideal op-amp its
-    centre gain is -H0 at f0 (references.md MFB equations, Williams & Taylor §5.2 [mem])."""
+    centre gain is -H0 at f0 (docs/methods.md MFB equations, Williams & Taylor §5.2 [mem])."""
     els = mfb_bandpass(1, "in", "out", f0_hz=10e3, q=5.0, h0=2.0, c_farads=10e-9,
                        model=generic_opamp(gbw_hz=math.inf))
     h = transfer(els, np.array([10e3]))
     np.testing.assert_allclose(h, [-2.0], rtol=1e-9)
 
 
-# --- the deck's text (design.md, "Interfaces": chain.cir) --------------------------------
+# --- the deck's text (docs/design.md, "Interfaces": chain.cir) --------------------------------
 
 def test_deck_text_follows_the_chain_cir_interface():
-    """design.md: VIN src 0 AC 1, RSRC src in (source_ohms), .temp, no .control, .end last."""
+    """docs/design.md: VIN src 0 AC 1, RSRC src in (source_ohms), .temp, no .control, .end last."""
     deck = spice_deck(inverting_amp(generic_opamp(**NOISY)), source_ohms=600.0,
                       temperature_c=40.0, title="inverting amplifier")
     lines = deck.splitlines()

@@ -16,6 +16,7 @@ from bandwright.analysis.montecarlo.tuned import TuningResult, tuning_for
 from bandwright.analysis.tuning import plan_from_trims
 from bandwright.analysis.montecarlo import YieldResult
 from bandwright.chain import Chain, Stage, build_chain
+from bandwright.chain.graph import attach_converter
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
 from bandwright.checks.yield_check import yield_checks
@@ -152,7 +153,9 @@ def audit(path: str | Path, *, measured: str | Path | None = None,
         req = Requirement(path=p, passband=_passband_from_response(chain, common),
                           input=common["input"], supply=common["supply"],
                           amplifier=common["amplifier"], environment=common["environment"],
-                          noise=common["noise"], tolerance=common["tolerance"])
+                          noise=common["noise"], tolerance=common["tolerance"],
+                          converter=common.get("converter"))
+    chain = attach_converter(chain, req.converter)
     an = analyse(chain, req, with_mask=has_mask)
     checks = tuple(all_checks(chain, an, req))
     result = None

@@ -12,29 +12,35 @@ import numpy as np
 from bandwright.advice import order_beyond_reach, with_gain_advice
 from bandwright.amplifier import resolve_amplifier
 from bandwright.analysis import Analyses, analyse
+from bandwright.analysis.aliasing import anti_alias_points
+from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.analysis.grid import noise_grid, passband_grid
 from bandwright.advice.tolerance import tighter_offer
-from bandwright.analysis.montecarlo import YieldResult, monte_carlo
+from bandwright.analysis.levels import swing_limit_vpk
+from bandwright.analysis.montecarlo import YieldResult, monte_carlo, resolve_spreads
 from bandwright.analysis.montecarlo.tuned import TuningResult, tuning_for
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
+from bandwright.chain.graph import attach_converter
 from bandwright.chain.stage import with_parts
 from bandwright.analysis.mask import trim_judge
 from bandwright.chain.graph import net_transfers
 from bandwright.chain import trim
 from bandwright.chain.trim import trim_stage
-from bandwright.chain.ordering import (MAX_SECTIONS, Ordering, choose_order, long_chain_order,
-                                      make_problem)
+from bandwright.chain.ordering import (MAX_SECTIONS, Ordering, best_built_order,
+                                      built_figures, built_tables, choose_order,
+                                      long_chain_order, make_problem)
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
+from bandwright.checks.chain_checks import stage_gbw_needed_hz
 from bandwright.checks.yield_check import yield_checks
 from bandwright.circuits.assign import Assignment, assign
-from bandwright.circuits.nodal import (input_impedance_max, input_impedance_min,
+from bandwright.circuits.nodal import (ac_solve, input_impedance_max, input_impedance_min,
                                        noise as nodal_noise)
 from bandwright.circuits import topologies_of_kind
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.catalogue import archetype, suggest_faster
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
@@ -51,7 +57,19 @@ SOURCE_LOADING_LIMIT = 0.05
 FLAT_INPUT_RATIO = 1.1
 SOURCE_ABSORB_LIMIT = 1e-3
 _TRIM_PASSES = 2
+#: Below this share of its yield target a candidate needs tighter parts or a trim whatever
+#: is chosen; the yield then no longer ranks it (``_shortfall``).
+FAR_SHORT = 0.5
 _TRIM_WHEN_ABOVE = 0.8
+# The built stages are placed again only for a clear gain in dynamic range: below it the
+# planning model's order stands.
+_PLACE_MIN_DB = 0.5
+_AS_MODELLED = math.log(10 ** (1 / 20))  # 1 dB
+# Choosing again for a missed noise budget: at most this many stages, this many
+# alternatives each, and a lower impedance level a third of the one built.
+_RECHOICE_ROUNDS = 2
+_RECHOICE_ALTERNATIVES = 3
+_NOISE_LEVEL_STEP = 3.0
 
 
 @dataclass(frozen=True)
@@ -159,6 +177,9 @@ def plan(requirement: Requirement, *, family: str | None = None,
     """
     model = resolve_amplifier(requirement.amplifier, path=requirement.path,
                               supply=requirement.supply, tones=requirement.input.tones)
+    # A converter may need stopband points the mask does not hold (each says why).
+    requirement = replace(requirement,
+                          stopband=requirement.stopband + anti_alias_points(requirement))
     candidates = make_candidates(requirement, family=family, order=order)
     designs = []
     for c in candidates:
@@ -219,12 +240,20 @@ def with_yield(design: Design, requirement: Requirement, *,
                    checks=checks + tuple(yield_checks(result, tuning=tuning)))
 
 
+def _shortfall(d: Design) -> float:
+    """The yield's rank key: 0 for a candidate that meets its yield target; between those
+    that miss it the one more boards pass is nearer. A yield below `FAR_SHORT` of its target
+    needs tighter parts or a trim whichever candidate is chosen, so among such candidates
+    the yield does not decide: their cost (op-amps, sections, Q) does."""
+    y = d.yield_result
+    if y is None or y.yield_fraction >= y.min_yield:
+        return 0.0
+    return -max(y.yield_fraction, FAR_SHORT * y.min_yield)
+
+
 def _rank(d: Design) -> tuple:
     dr = d.analyses.dynamic_range_db if d.analyses is not None else -math.inf
-    y = d.yield_result
-    # Between candidates that both miss the yield, the one more boards pass is nearer.
-    short = -y.yield_fraction if y is not None and y.yield_fraction < y.min_yield else 0.0
-    return (not d.buildable, d.failures, short, d.opamps, len(d.candidate.sections),
+    return (not d.buildable, d.failures, _shortfall(d), d.opamps, len(d.candidate.sections),
             d.candidate.highest_q, -dr)
 
 
@@ -238,6 +267,10 @@ def _why(designs: list[Design]) -> str:
         return f"the {name} candidate cannot be built with this op-amp"
     if best.failures != nxt.failures:
         return f"fewer failing checks ({best.failures} against {nxt.failures} for {name})"
+    if (_shortfall(best) != _shortfall(nxt) and best.yield_result is not None
+            and nxt.yield_result is not None):
+        return (f"more boards meet the requirement ({100 * best.yield_result.yield_fraction:.1f} % "
+                f"against {100 * nxt.yield_result.yield_fraction:.1f} % for {name})")
     if best.opamps != nxt.opamps:
         return f"fewer op-amps ({best.opamps} against {nxt.opamps} for {name})"
     if len(best.candidate.sections) != len(nxt.candidate.sections):
@@ -248,14 +281,19 @@ def _why(designs: list[Design]) -> str:
 
 
 def _assign(section: Section, model: OpAmp, req: Requirement, windows: PartWindows,
-            source_ohms: float = 0.0, rounded: bool = True) -> Assignment:
+            source_ohms: float = 0.0, rounded: bool = True,
+            accept_gain_shortfall: bool = False) -> Assignment:
     # Every stage is driven by an op-amp (or the source, behind a follower when needed):
     # its input must not load that op-amp below its minimum load, in band or at a tone.
     freqs = np.concatenate([passband_grid(req), [t.freq_hz for t in req.input.tones]])
+    # The topologies' tolerance rules are judged at the tolerances the yield is run at.
+    spreads = resolve_spreads(req)
     return assign(section, model, r_series=req.design.resistor_series,
                   c_series=req.design.capacitor_series, windows=windows,
                   input_floor=(freqs, model.min_load_ohms), source_ohms=source_ohms,
-                  rounded=rounded)
+                  rounded=rounded, accept_gain_shortfall=accept_gain_shortfall,
+                  r_tolerance=spreads.resistor_pct / 100,
+                  c_tolerance=spreads.capacitor_pct / 100)
 
 
 def _with_gain(section: Section, gain: float) -> Section:
@@ -266,8 +304,10 @@ def _assign_with_backoff(section: Section, gain: float, model: OpAmp, req: Requi
                          windows: PartWindows, rounded: bool = True
                          ) -> tuple[Assignment, float]:
     """Assign at `gain`; when no topology reaches it, fall back to unity gain (a lowpass or
-    highpass, which usually runs at unity) or to halved gains, and return the factor left
-    over for the stages after it."""
+    highpass, which usually runs at unity) or to halved gains; when none of those builds
+    either, take a topology that reaches the Q at its natural gain (a bandpass: the
+    dual-amplifier section's 2 V/V). Return the factor left over for the stages after it or
+    a make-up gain stage."""
     first = _assign(_with_gain(section, gain), model, req, windows, rounded=rounded)
     if first.realization is not None:
         return first, 1.0
@@ -282,6 +322,10 @@ def _assign_with_backoff(section: Section, gain: float, model: OpAmp, req: Requi
         a = _assign(_with_gain(section, g), model, req, windows, rounded=rounded)
         if a.realization is not None:
             return a, gain / g
+    short = _assign(_with_gain(section, gain), model, req, windows, rounded=rounded,
+                    accept_gain_shortfall=True)
+    if short.realization is not None:
+        return short, short.gain_shortfall
     return first, 1.0
 
 
@@ -310,7 +354,8 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
     # even-order Chebyshev peaks above its centre), so their product is the chain's gain.
     total = float(np.prod([abs(s.gain) for s in secs]))
     inputs = dict(total_gain=total, passband_hz=passband_grid(req), max_vpk=req.input.max_vpk,
-                  tones=[(t.freq_hz, t.vpk) for t in req.input.tones])
+                  tones=[(t.freq_hz, t.vpk) for t in req.input.tones],
+                  last_ratio=_last_node_ratio(req, model))
     if len(secs) > MAX_SECTIONS:
         ordering = long_chain_order(secs, psd, nf, **inputs)
     else:
@@ -331,12 +376,26 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
             if a.realization is not None:
                 assignments[k], leftover = a, 1.0
                 break
+    origin: list[int | None] = list(ordering.order)
     if not math.isclose(leftover, 1.0, rel_tol=1e-9):
         gain_sec = Section(kind="gain", f0_hz=0.0, q=0.0, gain=leftover)
         a = _assign(gain_sec, model, req, windows)
         if a.realization is None:
             return _unbuildable(cand, ordering, tuple(assignments) + (a,), model)
         assignments.append(a)
+        origin.append(None)
+    # Where every section was built at the gain the model gave it, the model's order
+    # stands; a gain stage, or a section that could not take its share, is placed again
+    # on the built stages' own figures.
+    as_modelled = len(assignments) == len(ordering.gains) and all(
+        abs(math.log(abs(a.section.gain) / g)) < _AS_MODELLED
+        for a, g in zip(assignments, ordering.gains))
+    if as_modelled:
+        placement = "built stages in the model's order (every section at its modelled gain)"
+    else:
+        assignments, origin, placement = _place(assignments, origin, req)
+    ordering = replace(ordering, order=tuple(i for i in origin if i is not None),
+                       placement=placement)
     rs = req.input.source_ohms
     if rs > 0:
         band = passband_grid(req)
@@ -354,11 +413,238 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
                           f"{format_value(z_in, 'Ω')} in band, too low for the "
                           f"{format_value(rs, 'Ω')} source")
             assignments.insert(0, buf)
-    chain = _build_and_trim(assignments, req, model, windows)
+    chain = attach_converter(_build_and_trim(assignments, req, model, windows), req.converter)
     an = analyse(chain, req)
     checks = tuple(all_checks(chain, an, req, windows=windows))
-    return Design(candidate=cand, ordering=ordering, assignments=tuple(assignments),
-                  chain=chain, analyses=an, checks=checks)
+    ordering = _built_claims(ordering, chain, origin, secs, req)
+    design = Design(candidate=cand, ordering=ordering, assignments=tuple(assignments),
+                    chain=chain, analyses=an, checks=checks)
+    return _for_noise_budget(design, req, model, windows,
+                             claims=lambda ch: _built_claims(ordering, ch, origin, secs, req))
+
+
+def _noise_failed(checks) -> bool:
+    return any(c.id == "noise" and c.status == "fail" for c in checks)
+
+
+def _stage_shares(an: Analyses, n: int) -> list[float]:
+    """Noise power at the output from each stage's own sources (by the ``_s<k>`` suffix of
+    the source names), in chain order."""
+    shares = [0.0] * n
+    for name, vrms in an.noise.contributions_vrms:
+        tail = name.rsplit("_s", 1)
+        if len(tail) == 2:
+            pos = tail[1].split()[0]
+            if pos.isdigit() and 1 <= int(pos) <= n:
+                shares[int(pos) - 1] += vrms ** 2
+    return shares
+
+
+def _alternatives(a: Assignment, model: OpAmp, req: Requirement, windows: PartWindows
+                  ) -> list[tuple[str, Assignment]]:
+    """Other ways to build the stage of `a`: each other topology of its kind that builds it,
+    and the same topology at a third of its impedance level (less resistor and current
+    noise, as far as the load rules allow)."""
+    out = []
+    rs = a.realization.source_ohms
+    names = [t.NAME for t in topologies_of_kind(a.section.kind)]
+    for name in names:
+        if name == a.realization.topology:
+            continue
+        alt = _assign_only(a, name, model, req, windows, rs, a.level)
+        if alt.realization is not None:
+            out.append((f"{name} instead of {a.realization.topology}", alt))
+    lower = _assign_only(a, a.realization.topology, model, req, windows, rs,
+                         a.level / _NOISE_LEVEL_STEP)
+    if lower.realization is not None and lower.level < a.level:
+        out.append((f"{a.realization.topology} at a lower impedance level "
+                    f"(×{lower.level:.3g} of the first)", lower))
+    return out[:_RECHOICE_ALTERNATIVES]
+
+
+def _assign_only(a: Assignment, name: str, model: OpAmp, req: Requirement,
+                 windows: PartWindows, source_ohms: float, level: float) -> Assignment:
+    freqs = np.concatenate([passband_grid(req), [t.freq_hz for t in req.input.tones]])
+    spreads = resolve_spreads(req)
+    return assign(a.section, model, r_series=req.design.resistor_series,
+                  c_series=req.design.capacitor_series, windows=windows,
+                  input_floor=(freqs, model.min_load_ohms), source_ohms=source_ohms,
+                  only=frozenset({name}), level=level,
+                  r_tolerance=spreads.resistor_pct / 100,
+                  c_tolerance=spreads.capacitor_pct / 100)
+
+
+def _for_noise_budget(design: Design, req: Requirement, model: OpAmp, windows: PartWindows,
+                      *, claims: Callable[[Chain], Ordering]) -> Design:
+    """When the built chain misses the noise budget, choose again among the feasible
+    alternatives of the stages that add the most noise (another topology, a lower impedance
+    level) before settling.
+
+    The stages are taken in order of their own noise share; each alternative is built into
+    the whole chain, analysed and checked, and the one with the least output noise that
+    fails no more other checks is kept. At most ``_RECHOICE_ROUNDS`` stages are re-chosen
+    and ``_RECHOICE_ALTERNATIVES`` alternatives tried for each: the planner's time stays
+    within a few chain analyses. The reason of a re-chosen stage names the change and the
+    noise before and after; when no alternative meets the budget, the noise check names the
+    best one found.
+    """
+    if design.chain is None or not _noise_failed(design.checks):
+        return design
+    assignments = list(design.assignments)
+    best = design
+    first_noise = design.analyses.noise.integrated_vrms
+    tried: set[int] = set()
+    changes: list[str] = []
+    for _ in range(_RECHOICE_ROUNDS):
+        shares = _stage_shares(best.analyses, len(assignments))
+        order = [k for k in np.argsort(shares)[::-1] if k not in tried and shares[k] > 0]
+        if not order:
+            break
+        k = int(order[0])
+        tried.add(k)
+        others = best.failures - 1
+        found = None
+        for what, alt in _alternatives(assignments[k], model, req, windows):
+            trial = list(assignments)
+            trial[k] = alt
+            chain = _build_and_trim(trial, req, model, windows)
+            an = analyse(chain, req)
+            checks = tuple(all_checks(chain, an, req, windows=windows))
+            fails = sum(c.status == "fail" for c in checks) - _noise_failed(checks)
+            if fails > others:
+                continue
+            if found is None or an.noise.integrated_vrms < found[2].noise.integrated_vrms:
+                found = (what, trial, an, checks, chain)
+        if found is None or \
+                found[2].noise.integrated_vrms >= best.analyses.noise.integrated_vrms:
+            continue
+        what, trial, an, checks, chain = found
+        before = best.analyses.noise.integrated_vrms
+        a, old = trial[k], assignments[k]
+        limit = req.noise.max_output_vrms
+        gone = (old.realization.topology,
+                f"chosen first: the chain's output noise was {before * 1e6:.3g} µV rms "
+                f"against the {limit * 1e6:.3g} µV budget")
+        trial[k] = replace(a, reason=(f"re-chosen for the noise budget ({what}): the chain's "
+                                      f"output noise {before * 1e6:.3g} → "
+                                      f"{an.noise.integrated_vrms * 1e6:.3g} µV rms; "
+                                      + a.reason),
+                           rejected=(gone,) + tuple(r for r in old.rejected
+                                                    if r[0] != a.realization.topology))
+        stages = list(chain.stages)
+        stages[k] = replace(stages[k], reason=trial[k].reason, rejected=trial[k].rejected)
+        chain = build_chain(stages, source_ohms=chain.source_ohms)
+        assignments = trial
+        changes.append(f"stage {k + 1}: {what} ({before * 1e6:.3g} → "
+                       f"{an.noise.integrated_vrms * 1e6:.3g} µV)")
+        best = replace(best, assignments=tuple(trial), chain=chain, analyses=an,
+                       checks=checks, ordering=claims(chain))
+        if not _noise_failed(checks):
+            break
+    if best is design:
+        advice = ("; no other topology or impedance level of the noisiest stages lowers it "
+                  "without failing another check: a quieter op-amp class, or more gain early")
+    elif _noise_failed(best.checks):
+        advice = (f"; chosen again for it: {'; '.join(changes)}, still above the budget "
+                  f"(first built: {first_noise * 1e6:.3g} µV): a quieter op-amp class, or "
+                  f"more gain early")
+    else:
+        return best
+    return replace(best, checks=tuple(replace(c, message=c.message + advice)
+                                      if c.id == "noise" else c for c in best.checks))
+
+
+def _tables_of(element_lists, req: Requirement, source_ohms: float = 0.0):
+    """``built_tables`` of stages given by their element lists (the first one driven by
+    `source_ohms`, the others by an op-amp)."""
+    pb = passband_grid(req)
+    f_sig = np.concatenate([pb, [t.freq_hz for t in req.input.tones]])
+    nf = noise_grid(req)
+    h_sig, h_noise, psd = [], [], []
+    for k, elements in enumerate(element_lists):
+        rs = source_ohms if k == 0 else 0.0
+        h_sig.append(ac_solve(elements, f_sig, source_ohms=rs).at("out"))
+        h_noise.append(ac_solve(elements, nf, source_ohms=rs).at("out"))
+        psd.append(nodal_noise(elements, nf, source_ohms=rs,
+                               temperature_c=req.environment.temperature_c).total_psd)
+    return built_tables(np.array(h_sig), np.array(h_noise), np.array(psd), nf,
+                        n_passband=pb.size, max_vpk=req.input.max_vpk,
+                        tone_vpk=[t.vpk for t in req.input.tones])
+
+
+def _place(assignments: list[Assignment], origin: list[int | None], req: Requirement
+           ) -> tuple[list[Assignment], list[int | None], str]:
+    """The built stages (a make-up gain stage among them) in the order with the most
+    dynamic range, judged on their own transfers and noise (``best_built_order``).
+
+    The planning model fixes each section's gain for its order; a gain stage, or a section
+    that could not take its share, changes what the best order is, and only the built
+    stages show it. The new order is taken for a gain of at least ``_PLACE_MIN_DB``.
+    """
+    if len(assignments) < 2 or len(assignments) > MAX_SECTIONS + 2:
+        return assignments, origin, ""
+    tables = _tables_of([a.realization.elements for a in assignments], req)
+    limit = min(swing_limit_vpk(req.supply, e.model.swing_to_rail_v)
+                for a in assignments for e in a.realization.elements if e.kind == "opamp")
+    order, method = best_built_order(tables, limit_vpk=limit)
+    here = tuple(range(len(assignments)))
+    n_new, p_new = built_figures(tables, order)
+    n_old, p_old = built_figures(tables, here)
+    gain_db = 20 * math.log10((n_old * p_old) / (n_new * p_new))
+    if p_new > limit and p_old > limit:
+        # Nothing fits the swing: the lowest peak, however noisy.
+        gain_db = math.inf if p_new < p_old else -math.inf
+    elif p_old > limit >= p_new:
+        gain_db = math.inf
+    elif p_new > limit >= p_old:
+        gain_db = -math.inf
+    if order == here or not gain_db >= _PLACE_MIN_DB:
+        return assignments, origin, f"built stages kept in the model's order ({method})"
+    note = (f"built stages placed again ({method}): " +
+            (f"{gain_db:+.1f} dB of dynamic range over the model's order"
+             if math.isfinite(gain_db) else "the model's order clips on the swing"))
+    return [assignments[i] for i in order], [origin[i] for i in order], note
+
+
+def _built_claims(ordering: Ordering, chain: Chain, origin: list[int | None],
+                  secs: tuple[Section, ...] | list[Section], req: Requirement) -> Ordering:
+    """`ordering` with the figures of the chain as built: its noise from the stages' own
+    transfers and noise, and its dynamic range over the same built stages in the order as
+    generated and in increasing-Q order (a follower stays first, a gain stage goes last)."""
+    stages = list(chain.stages)
+    n = len(stages)
+    if n > MAX_SECTIONS + 2:
+        return ordering
+    head = n - len(origin)  # a follower ahead of the placed stages
+    tags: list[int | None] = [None] * head + list(origin)
+    tables = _tables_of([st.elements for st in stages], req, source_ohms=chain.source_ohms)
+    here = tuple(range(n))
+    noise, top = built_figures(tables, here)
+
+    def arranged(key) -> tuple[int, ...]:
+        placed = sorted((k for k in range(head, n) if tags[k] is not None),
+                        key=lambda k: key(tags[k]))
+        rest = [k for k in range(head, n) if tags[k] is None]
+        return tuple(range(head)) + tuple(placed) + tuple(rest)
+
+    def over(order: tuple[int, ...]) -> float:
+        other_noise, other_top = built_figures(tables, order)
+        return 20 * math.log10((other_noise * other_top) / (noise * top))
+
+    return replace(ordering, built_noise_vrms=noise,
+                   built_gain_over_generated_db=over(arranged(lambda i: i)),
+                   built_gain_over_increasing_q_db=over(arranged(lambda i: secs[i].q)))
+
+
+def _last_node_ratio(req: Requirement, model: OpAmp) -> float:
+    """The op-amps' swing over the last node's limit, the converter's full scale where that
+    is lower (1 without a converter; ``chain.ordering``): when the peak sits at full scale
+    less ``headroom_db``, every op-amp net sits the same margin inside its swing."""
+    conv = req.converter
+    if conv is None:
+        return 1.0
+    swing = swing_limit_vpk(req.supply, model.swing_to_rail_v)
+    return swing / min(swing, conv.full_scale_vpk)
 
 
 def _chain_of(assignments: list[Assignment], req: Requirement, model: OpAmp) -> Chain:
@@ -405,11 +691,24 @@ def _build_and_trim(assignments: list[Assignment], req: Requirement, model: OpAm
                         f"more than the {100 * trim.REDESIGN_SHARE:g} % a rounding trim moves it — "
                         f"a redesign of this section, not rounding")
             stages[k] = with_parts(st, new.components, source_ohms=rs, note=note)
+            if _trim_breaks_gbw_rule(st, stages[k]):
+                continue
             chain = build_chain(stages, source_ohms=chain.source_ohms)
             changed = True
         if not changed:
             break
     return chain
+
+
+def _trim_breaks_gbw_rule(before: Stage, after: Stage) -> bool:
+    """Whether a trim moved a stage's figures to where its op-amp no longer meets the GBW
+    rule it met before (a trim rounds the chain's passband; it must not buy that with a
+    failing ``gbw`` check)."""
+    try:
+        need_after = stage_gbw_needed_hz(after)
+    except ValueError:
+        return True
+    return need_after > after.model.gbw_hz >= stage_gbw_needed_hz(before)
 
 
 def _stage(position: int, a: Assignment, model: OpAmp) -> Stage:
@@ -433,10 +732,10 @@ def _nearest_fix(section: Section, model: OpAmp) -> str:
         return ""
     name = suggest_faster(need)
     if name is None:
-        return (f"; no op-amp class reaches the {format_value(need, 'Hz')} GBW it needs: "
+        return (f"; no op-amp class reaches the {format_hz(need)} GBW it needs: "
                 f"widen the band (lower Q) or lower the order")
-    return (f"; it needs {format_value(need, 'Hz')} GBW at the least: an op-amp of the "
-            f"'{name}' class ({format_value(archetype(name).gbw_hz, 'Hz')}) would do")
+    return (f"; it needs {format_hz(need)} GBW at the least: an op-amp of the "
+            f"'{name}' class ({format_hz(archetype(name).gbw_hz)}) would do")
 
 
 def _unbuildable(cand: Candidate, ordering: Ordering | None,

@@ -36,7 +36,7 @@ def _req(low_hz: float, high_hz: float, max_vpk: float, tones=()):
 
 
 def test_slew_needed_matches_full_power_bandwidth_check_value():
-    """references.md [calc] from SR = 2π f V (Franco 2015 [mem]): 1 Vpk at 40 kHz needs
+    """docs/methods.md [calc] from SR = 2π f V (Franco 2015 [mem]): 1 Vpk at 40 kHz needs
     0.2513 V/µs. A follower passing a band whose top is 40 kHz, with 1 Vpk in; a tone adds
     its own 2π f V."""
     chain = build_chain([_stage(1, "noninverting_gain", {}, 1.0)])

@@ -28,7 +28,7 @@ from bandwright.circuits.figures import section_figures_batch
 from bandwright.report.spice import spice_deck
 
 from mc_support import mfb_chain, mixed_chain, requirement_around
-from ngspice_runner import ngspice_available, read_wrdata, run_ngspice
+from ngspice_runner import read_wrdata, run_ngspice
 from spice_tools import with_control
 
 TIGHT = {"resistor_pct": 0.5, "capacitor_pct": 1.0, "gbw_spread_pct": 20.0}
@@ -245,7 +245,7 @@ def _ngspice_verdicts(chain, req, values, tmp_path) -> np.ndarray:
     return np.array(verdicts)
 
 
-@pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+@pytest.mark.ngspice
 def test_every_sample_gets_the_same_verdict_from_ngspice(mixed, tmp_path):
     """40 boards (the same part values and GBWs, written with ngspice `alter`): ngspice-39's
     AC responses, read with the mask and headroom rules, pass and fail exactly the samples

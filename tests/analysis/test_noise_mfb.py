@@ -5,7 +5,7 @@ The closed form: every resistor's Johnson noise 4kTR (Johnson; Nyquist, Phys. Re
 resistor, written here by hand from Kirchhoff's current law at the two internal nodes
 (ideal op-amp: the inverting input is a virtual ground) and solved with sympy — an
 analysis independent of the nodal solver. The op-amp's voltage noise sees the noise gain,
-1 + 2Q² at f0 whatever the centre gain (references.md; common practice).
+1 + 2Q² at f0 whatever the centre gain (docs/methods.md; common practice).
 """
 
 from __future__ import annotations

@@ -3,13 +3,13 @@
 Sources named beside each check:
 * multiple-feedback bandpass, equal C: Q = (1/2) sqrt(R2/Rp), w0 = 1/(C sqrt(R2 Rp)),
   Rp = R1a ∥ R1b, |H0| = R2/(2 R1a) (Schaumann & Van Valkenburg, *Design of Analog
-  Filters*, 2001, ch. 3 [mem]; Williams & Taylor 2006 §5.2 [mem]; references.md), so
+  Filters*, 2001, ch. 3 [mem]; Williams & Taylor 2006 §5.2 [mem]; docs/methods.md), so
   S_R2^Q = 1/2, S_Rp^Q = -1/2, every S^{f0} = -1/2 (R2, Rp, C1, C2);
 * Sallen-Key bandpass, R1 = R2 = R, R3 = 2R, C1 = C2: Q = 1/(3 - K), hence
-  S_K^Q = K Q = 3Q - 1 (references.md, "Topology facts"; Sallen & Key 1955 [mem]);
+  S_K^Q = K Q = 3Q - 1 (docs/methods.md, "Topology facts"; Sallen & Key 1955 [mem]);
 * Q sensitivity grows with Q in a positive-feedback section (common practice);
 * finite GBW, multiple-feedback: df0/f0 = -Q e, dQ/Q = +Q e with e = f0/GBW
-  (references.md [calc]), so S_GBW^{f0} = +Q e, S_GBW^Q = -Q e to first order.
+  (docs/methods.md [calc]), so S_GBW^{f0} = +Q e, S_GBW^Q = -Q e to first order.
 """
 
 from __future__ import annotations
@@ -128,7 +128,7 @@ def test_q_sensitivity_grows_with_q_in_the_sallen_key_bandpass():
 
 @pytest.mark.parametrize("q", [2.0, 5.0, 10.0])
 def test_mfb_gbw_sensitivity_is_q_times_f0_over_gbw(q):
-    """references.md [calc]: df0/f0 = -Q e, dQ/Q = +Q e per unit e = f0/GBW, so
+    """docs/methods.md [calc]: df0/f0 = -Q e, dQ/Q = +Q e per unit e = f0/GBW, so
     S_GBW^{f0} = Q e and S_GBW^Q = -Q e to first order (e = 1e-3 here)."""
     s = stage_sensitivity(mfb_stage(q, 2.0, REAL, f0_hz=10e3))
     e = 10e3 / REAL.gbw_hz

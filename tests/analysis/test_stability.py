@@ -24,7 +24,7 @@ from bandwright.circuits.figures import transfer_polynomials
 from bandwright.parts.notation import format_value
 from bandwright.report.spice import spice_deck
 
-from ngspice_runner import ngspice_available, read_wrdata_columns, run_ngspice
+from ngspice_runner import read_wrdata_columns, run_ngspice
 from spice_tools import with_control
 
 CASES = Path(__file__).resolve().parent.parent / "cases"
@@ -94,7 +94,7 @@ def test_case_a_yield_counts_only_stable_boards(case_a):
     assert y.status == "fail" and "unstable 140" in y.message
 
 
-@pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+@pytest.mark.ngspice
 def test_case_a_boards_grow_in_ngspice_as_their_poles_say(case_a, tmp_path):
     """ngspice-39 transient from a 1 mV, 10 µs kick on three boards of case A (the parts and
     GBW written with `alter`): the most and the least unstable board and a stable one

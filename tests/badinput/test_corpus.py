@@ -4,7 +4,7 @@ Each file's first line says what is wrong and what the answer must contain::
 
     # bad: <what is wrong> | key: <dotted key, or - for a file-level error> [| says: <text>] [| line: <n>]
 
-The contract (design.md, "Commands"): exit 2, exactly one line on stderr naming the file,
+The contract (docs/design.md, "Commands"): exit 2, exactly one line on stderr naming the file,
 the key and — where the file sets the key or TOML reports a syntax error — the line; nothing
 on stdout, no traceback, and no --out folder.
 """

@@ -2,7 +2,7 @@
 files, files too large, a byte-order mark, keys and values too long or full of terminal
 escapes — and a run that must leave stderr and the home folder clean.
 
-The contract (design.md, "Commands"): exit 2 with exactly one line on stderr, no traceback,
+The contract (docs/design.md, "Commands"): exit 2 with exactly one line on stderr, no traceback,
 nothing written; a run that exits 0 writes nothing outside --out and prints nothing on
 stderr.
 """

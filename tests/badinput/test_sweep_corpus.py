@@ -4,7 +4,7 @@ Each file's first line says what is wrong and what the answer must contain::
 
     # bad: <what is wrong> | column: <column> [| says: <text>] [| line: <n>]
 
-The contract (design.md, "Commands"; the issue's "Bad input"): exit 2, exactly one line on
+The contract (docs/design.md, "Commands"; the issue's "Bad input"): exit 2, exactly one line on
 stderr naming the file, the line and the column; nothing on stdout, no --out folder.
 """
 

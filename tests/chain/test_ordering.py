@@ -25,7 +25,7 @@ def _problem(sections, psd=None, tones=(), gain=1.0):
 
 
 def test_intermediate_peaks_match_references_check_values():
-    """references.md [calc]: Butterworth N = 3, Qbp = 10 — the peak after two sections is
+    """docs/methods.md [calc]: Butterworth N = 3, Qbp = 10 — the peak after two sections is
     1.155 × the final peak when the two Q ≈ 20 sections come first, 3.12 × otherwise."""
     secs = bandpass_sections(prototype("butterworth", 3, 10 * math.log10(2)), center_hz=1.0,
                              bandwidth_hz=0.1, gain=1.0)

@@ -14,7 +14,7 @@ import numpy as np
 import sympy as sp
 
 from bandwright.circuits import TOPOLOGY_NAMES, topology
-from bandwright.circuits import _lphp_common as common
+from bandwright.circuits import _filter_and_gain as common
 from bandwright.circuits.figures import section_figures
 from bandwright.circuits.nodal import transfer
 from bandwright.parts.opamp import OpAmp
@@ -124,7 +124,7 @@ def noise_gain_coefficients(mod: ModuleType, parts: dict) -> tuple[sp.Expr, list
 
 
 def first_order_shift(mod: ModuleType, parts: dict) -> tuple[float, float]:
-    """(k_f, k_q) of the module's figures by ``_lphp_common.finite_gbw_shift``."""
+    """(k_f, k_q) of the module's figures by ``_filter_and_gain.finite_gbw_shift``."""
     fig = mod.ideal_figures(parts)
     return common.finite_gbw_shift(fig.f0_hz, fig.q, mod.noise_gain_numerator(parts))
 

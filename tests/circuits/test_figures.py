@@ -9,14 +9,13 @@ import math
 
 import numpy as np
 import pytest
+import sympy as sp
 from numpy.polynomial import polynomial as npoly
 
 from bandwright.circuits.elements import capacitor, opamp, resistor
 from bandwright.circuits.figures import polynomial_degree, section_figures, transfer_polynomials
 from bandwright.circuits.nodal import passive_names, transfer
 from bandwright.parts.opamp import OpAmp
-
-sp = pytest.importorskip("sympy")
 
 
 def generic_opamp(gbw_hz: float = math.inf, dc_gain_db: float = math.inf) -> OpAmp:
@@ -27,7 +26,7 @@ def generic_opamp(gbw_hz: float = math.inf, dc_gain_db: float = math.inf) -> OpA
 
 
 def mfb_bandpass(f0_hz: float, q: float, h0: float, c_farads: float, model: OpAmp):
-    """Equal-C multiple-feedback bandpass with input divider, designed by the references.md
+    """Equal-C multiple-feedback bandpass with input divider, designed by the docs/methods.md
     equations (Williams & Taylor 2006, §5.2 [mem]; calc): R2 = Q/(pi f0 C),
     R1a = R2/(2|H0|), R1b = R2/(4Q^2 - 2|H0|)."""
     r2 = q / (math.pi * f0_hz * c_farads)
@@ -129,7 +128,7 @@ def test_polynomials_reproduce_nodal_transfer_over_a_batch():
                                           (250e3, 25.0, 30.0)])
 def test_mfb_bandpass_ideal_figures_match_design_equations(f0_hz, q, h0):
     """With an ideal op-amp the built section has exactly the design f0, Q and gain -H0
-    (references.md MFB equations [calc]; the MFB is inverting: centre gain -R2/(2 R1a))."""
+    (docs/methods.md MFB equations [calc]; the MFB is inverting: centre gain -R2/(2 R1a))."""
     fig = section_figures(mfb_bandpass(f0_hz, q, h0, 1e-9, generic_opamp()), kind="bandpass",
                           near_hz=f0_hz)
     assert fig.f0_hz == pytest.approx(f0_hz, rel=1e-6)
@@ -139,7 +138,7 @@ def test_mfb_bandpass_ideal_figures_match_design_equations(f0_hz, q, h0):
 
 @pytest.mark.parametrize("e", [1e-5, 1e-4])
 def test_mfb_finite_gbw_shifts_follow_first_order_rule(e):
-    """Finite GBW, e = f0/GBW: df0/f0 ~ -Q e and dQ/Q ~ +Q e (references.md, [mem]).
+    """Finite GBW, e = f0/GBW: df0/f0 ~ -Q e and dQ/Q ~ +Q e (docs/methods.md, [mem]).
     First order only: at Q = 10 the computed shifts are 0.9985 and 0.9975 of the rule at
     e = 1e-4, so a 1 % band around the rule is what the rule promises, not more."""
     f0_hz, q = 40e3, 10.0
@@ -179,7 +178,7 @@ def sallen_key_highpass(r1_ohms, r2_ohms, c_farads, model):
 
 def test_sallen_key_lowpass_figures():
     """Equal-R unity-gain Sallen-Key lowpass: w0 = 1/(R sqrt(C1 C2)), Q = sqrt(C1/C2)/2,
-    i.e. C1/C2 = 4Q^2 (references.md, Sallen & Key 1955 [mem]); DC gain 1."""
+    i.e. C1/C2 = 4Q^2 (docs/methods.md, Sallen & Key 1955 [mem]); DC gain 1."""
     q, f0_hz, r_ohms = 3.0, 5e3, 10e3
     c2 = 1 / (2 * math.pi * f0_hz * r_ohms * 2 * q)
     c1 = 4 * q * q * c2
@@ -190,7 +189,7 @@ def test_sallen_key_lowpass_figures():
 
 def test_sallen_key_highpass_figures():
     """Equal-C unity-gain Sallen-Key highpass: w0 = 1/(C sqrt(R1 R2)), R2/R1 = 4Q^2
-    (references.md, Sallen & Key 1955 [mem]); high-frequency gain 1. With finite GBW the
+    (docs/methods.md, Sallen & Key 1955 [mem]); high-frequency gain 1. With finite GBW the
     section's own gain (op-amp pole divided out at its DC value) stays 1 to within the
     buffer's DC error 1/A0 and first-order terms in e = f0/GBW (1e-4 here)."""
     q, f0_hz, c_farads = 0.9, 2e3, 10e-9
@@ -219,7 +218,7 @@ def test_passive_rc_ladder_has_a_real_pole_pair():
 
 def sallen_key_bandpass(r_ohms, c_farads, k_gain, model):
     """Sallen-Key bandpass R1 = R2 = R, R3 = 2R, C1 = C2, amplifier gain K
-    (Sallen & Key 1955 [mem]; references.md)."""
+    (Sallen & Key 1955 [mem]; docs/methods.md)."""
     return (resistor("R1", "in", "a", r_ohms), capacitor("C1", "a", "0", c_farads),
             capacitor("C2", "a", "b", c_farads), resistor("R3", "b", "0", 2 * r_ohms),
             resistor("R2", "a", "out", r_ohms),
@@ -229,7 +228,7 @@ def sallen_key_bandpass(r_ohms, c_farads, k_gain, model):
 
 @pytest.mark.parametrize("k_gain", [2.0, 2.8, 3.5])
 def test_sallen_key_bandpass_q_and_instability(k_gain):
-    """Q = 1/(3 - K), H0 = K Q, w0 = 1/RC (references.md; re-derived with sympy for this
+    """Q = 1/(3 - K), H0 = K Q, w0 = 1/RC (docs/methods.md; re-derived with sympy for this
     wiring: H = K sRC / ((sRC)^2 + (3 - K) sRC + 1)). K > 3 puts the pair in the right
     half plane, which section_figures reports as Q < 0."""
     r_ohms, c_farads = 10e3, 10e-9

@@ -76,7 +76,7 @@ def test_ideal_opamps_stay_ideal_and_unit_scale_changes_nothing():
 
 
 def test_section_figures_batch_accepts_a_gbw_scale():
-    """A bandpass biquad's f0 falls as the GBW falls (finite-GBW shift, references.md)."""
+    """A bandpass biquad's f0 falls as the GBW falls (finite-GBW shift, docs/methods.md)."""
     mfb = (resistor("R1a", "in", "a", 4e3), capacitor("C1", "a", "out", 1e-9),
            capacitor("C2", "a", "inv", 1e-9), resistor("R2", "inv", "out", 80e3),
            opamp("U1", "0", "inv", "out", dataclasses.replace(MODEL, gbw_hz=20e6)))

@@ -139,7 +139,8 @@ def test_finite_gbw_in_the_project_model():
     assert rel(fig.f0_hz / f0_hz - 1, k_f * 1e-3) < 0.02
     assert rel(fig.q / q - 1, k_q * 1e-3) < 0.02
     lim = mlp.limits(Section("lowpass", f0_hz, q, -1.0), IDEAL)
-    assert rel(lim.gbw_needed_hz, f0_hz * max(abs(k_f), abs(k_q)) / 0.1) < 1e-12
+    # circuits.rules: pole movement max(Q |k_f|, |k_q|, 1) e within 10 % of the bandwidth.
+    assert rel(lim.gbw_needed_hz, f0_hz * max(q * abs(k_f), abs(k_q), 1.0) / 0.1) < 1e-12
 
 
 @pytest.mark.parametrize("f0_hz,q,gain", CASES)
@@ -186,7 +187,7 @@ def test_limits_reject_slow_opamp_and_large_spread():
 
 
 def test_gain_sign_is_ignored_and_the_circuit_inverts():
-    """The chain's gains are magnitudes (design.md): +3 designs as -3, built gain -3 [nodal]."""
+    """The chain's gains are magnitudes (docs/design.md): +3 designs as -3, built gain -3 [nodal]."""
     pos = mlp.design(Section("lowpass", 1e3, 1.5, 3.0), c_farads=1e-9)
     assert pos == mlp.design(Section("lowpass", 1e3, 1.5, -3.0), c_farads=1e-9)
     assert rel(numeric_figures(mlp, pos, IDEAL, 1e3).gain, -3.0) < 1e-9

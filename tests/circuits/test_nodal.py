@@ -18,9 +18,9 @@ from bandwright.circuits.nodal import (BOLTZMANN_J_PER_K, ac_solve, mna_system, 
 from bandwright.parts.opamp import OpAmp
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-from ngspice_runner import WRDATA_SETUP, ngspice_available, read_wrdata, run_ngspice  # noqa: E402
+from ngspice_runner import WRDATA_SETUP, read_wrdata, run_ngspice  # noqa: E402
 
-K_B = 1.380649e-23  # exact, SI 2019 (references.md)
+K_B = 1.380649e-23  # exact, SI 2019 (docs/methods.md)
 T_25C = 298.15
 
 
@@ -104,7 +104,7 @@ def test_huge_a0_and_gbw_stay_well_conditioned():
 # --- batching ----------------------------------------------------------------------------------
 
 def _mfb_bandpass(model: OpAmp):
-    """Equal-C multiple-feedback bandpass, f0 40 kHz, Q 10, H0 10 (references.md values)."""
+    """Equal-C multiple-feedback bandpass, f0 40 kHz, Q 10, H0 10 (docs/methods.md values)."""
     return (resistor("R1a", "in", "a", 3978.87), resistor("R1b", "a", "0", 209.41),
             capacitor("C1", "a", "out", 1e-9), capacitor("C2", "a", "n", 1e-9),
             resistor("R2", "n", "out", 79577.5), opamp("U1", "0", "n", "out", model))
@@ -167,7 +167,7 @@ def test_mna_row_for_a_finite_gbw_opamp_is_scaled_by_a0():
 
 def test_resistor_to_ground_through_source_resistance_is_4ktr_parallel():
     """Johnson/Nyquist 1928: S = 4kT (R || Rs); 2 kOhm || 2 kOhm = 1 kOhm gives
-    4.0578 nV/sqrt(Hz) at 25 C (references.md check table, calc from 4kTR)."""
+    4.0578 nV/sqrt(Hz) at 25 C (docs/methods.md check table, calc from 4kTR)."""
     els = (resistor("R1", "in", "0", 2e3),)  # the source resistance is the other 2k
     result = noise(els, FREQ_HZ, out_net="in", source_ohms=2e3, temperature_c=25.0)
     np.testing.assert_allclose(result.density(), 4.0578e-9, rtol=1e-4)  # 5 printed digits
@@ -179,7 +179,7 @@ def test_resistor_to_ground_through_source_resistance_is_4ktr_parallel():
 
 
 def test_johnson_noise_at_27c():
-    """4.0714 nV/sqrt(Hz) for 1 kOhm at 27 C (references.md, calc from 4kTR)."""
+    """4.0714 nV/sqrt(Hz) for 1 kOhm at 27 C (docs/methods.md, calc from 4kTR)."""
     result = noise((resistor("R1", "in", "0", 1e3),), np.array([1e3]), out_net="in",
                    source_ohms=1e15, temperature_c=27.0)
     assert result.density()[0] == pytest.approx(4.0714e-9, rel=1e-4)
@@ -252,7 +252,7 @@ def test_noninverting_amp_voltage_noise_with_finite_gbw():
 
 # --- ngspice cross-checks -------------------------------------------------------------------
 
-needs_ngspice = pytest.mark.skipif(not ngspice_available(), reason="ngspice not installed")
+needs_ngspice = pytest.mark.ngspice
 
 # Behavioural op-amp for ngspice: VCVS of gain A0, then a pole made of a VCCS wired as a
 # 1 S conductance (noiseless, unlike a resistor) charging Cp = A0/wt, then a unity buffer:

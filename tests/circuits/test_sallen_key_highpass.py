@@ -4,7 +4,7 @@ References named beside each check:
 - [sympy] nodal analysis of the module's own element list (tests/circuits/symbolic_lp.py);
 - [biquad] the standard second-order highpass K s^2/(s^2 + (w0/Q) s + w0^2), Schaumann &
   Van Valkenburg, *Design of Analog Filters*, 2001, ch. 4 [mem] (sections.section_response);
-- [refs] docs/references.md, "Lowpass/highpass": unity-gain equal-C R2/R1 = 4Q^2;
+- [refs] docs/methods.md, "Lowpass/highpass": unity-gain equal-C R2/R1 = 4Q^2;
 - [SK55] Sallen & Key, IRE Trans. CT-2, 1955 [mem]: equal components give Q = 1/(3 - K)
   (the highpass is the RC dual of the lowpass);
 - [nodal] the project's nodal solver / polynomial reduction (circuits.nodal, circuits.figures).
@@ -130,7 +130,8 @@ def test_finite_gbw_in_the_project_model(q):
     """[nodal] single-pole op-amp (A0 200 dB), e = 1e-3/Q: shifts within 2 % of first order.
 
     At unity gain with equal C, as for the lowpass: df0/f0 = -Q e, dQ/Q = +Q e (derived
-    in circuits._lphp_common), hence gbw_needed_hz = 10 Q f0.
+    in circuits._filter_and_gain), hence gbw_needed_hz = 10 max(Q², 1) f0 (the pole-movement
+    rule of circuits.rules).
     """
     f0_hz = 2e3
     gbw_hz = f0_hz * q * 1e3
@@ -140,7 +141,7 @@ def test_finite_gbw_in_the_project_model(q):
     assert rel(fig.f0_hz / f0_hz - 1, -q * e) < 0.02
     assert rel(fig.q / q - 1, q * e) < 0.02
     lim = skh.limits(Section("highpass", f0_hz, q, 1.0), IDEAL)
-    assert rel(lim.gbw_needed_hz, 10 * q * f0_hz) < 1e-9
+    assert rel(lim.gbw_needed_hz, 10 * max(q * q, 1.0) * f0_hz) < 1e-9
 
 
 @pytest.mark.parametrize("f0_hz,q,gain", CASES[:6])
@@ -179,7 +180,7 @@ def test_limits_reject_what_the_topology_cannot_build(section, words):
 
 
 def test_gain_sign_is_ignored_and_the_circuit_does_not_invert():
-    """The chain's gains are magnitudes (design.md): -2 designs as +2, built gain +2 [nodal]."""
+    """The chain's gains are magnitudes (docs/design.md): -2 designs as +2, built gain +2 [nodal]."""
     neg = skh.design(Section("highpass", 1e3, 1.5, -2.0), c_farads=1e-9)
     assert neg == skh.design(Section("highpass", 1e3, 1.5, 2.0), c_farads=1e-9)
     assert rel(numeric_figures(skh, neg, IDEAL, 1e3).gain, 2.0) < 1e-9

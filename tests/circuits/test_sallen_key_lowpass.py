@@ -4,7 +4,7 @@ References named beside each check:
 - [sympy] nodal analysis of the module's own element list (tests/circuits/symbolic_lp.py);
 - [biquad] the standard second-order lowpass K w0^2/(s^2 + (w0/Q) s + w0^2), Schaumann &
   Van Valkenburg, *Design of Analog Filters*, 2001, ch. 4 [mem] (sections.section_response);
-- [refs] docs/references.md, "Lowpass/highpass": unity-gain equal-R C1/C2 = 4Q^2;
+- [refs] docs/methods.md, "Lowpass/highpass": unity-gain equal-R C1/C2 = 4Q^2;
 - [SK55] Sallen & Key, IRE Trans. CT-2, 1955 [mem]: equal components give Q = 1/(3 - K);
 - [nodal] the project's nodal solver / polynomial reduction (circuits.nodal, circuits.figures).
 """
@@ -134,7 +134,7 @@ def test_finite_gbw_in_the_project_model(q):
     S_K^Q / A0 = 2 Q^2 / A0, 2 % of this shift at Q = 3).
 
     At unity gain with equal R the first-order shifts are df0/f0 = -Q e, dQ/Q = +Q e
-    (derived in circuits._lphp_common).
+    (derived in circuits._filter_and_gain).
     """
     f0_hz = 2e3
     gbw_hz = f0_hz * q * 1e3
@@ -146,11 +146,12 @@ def test_finite_gbw_in_the_project_model(q):
 
 
 @pytest.mark.parametrize("q", [0.5412, 1.3065, 4.0])
-def test_gbw_needed_at_unity_gain_is_ten_q_f0(q):
-    """[derived] 10 % first-order shift at Q e = 0.1; a tenth of the common-practice
-    100 x gain x Q x f0 that assumes no predistortion."""
+def test_gbw_needed_at_unity_gain_is_ten_max_q2_1_f0(q):
+    """[derived] |df0/f0| = |dQ/Q| = Q e at unity gain, so the pole movement of circuits.rules,
+    max(Q·Q e, Q e, e), reaches 10 % at GBW = 10 max(Q², 1) f0 (against the
+    common-practice 100 x gain x Q x f0, which assumes no predistortion)."""
     lim = skl.limits(Section("lowpass", 5e3, q, 1.0), IDEAL)
-    assert rel(lim.gbw_needed_hz, 10 * q * 5e3) < 1e-9
+    assert rel(lim.gbw_needed_hz, 10 * max(q * q, 1.0) * 5e3) < 1e-9
 
 
 @pytest.mark.parametrize("f0_hz,q,gain", CASES[:6])
@@ -169,7 +170,7 @@ def test_unity_gain_sensitivity_is_one_half():
 
 @pytest.mark.parametrize("q", [1.0, 2.0, 5.0])
 def test_equal_component_gain_sensitivity_is_3q_minus_1(q):
-    """[SK55; references.md Sallen-Key: S_K^Q = 3Q - 1] via sympy on the derived Q(K)."""
+    """[SK55; docs/methods.md Sallen-Key: S_K^Q = 3Q - 1] via sympy on the derived Q(K)."""
     kk = sp.Symbol("K", positive=True)
     parts = skl.design(Section("lowpass", 1e3, q, 3 - 1 / q), c_farads=1e-9)
     els = skl.elements(parts, IDEAL)
@@ -189,7 +190,7 @@ def test_limits_feasible_section_reports_figures():
     assert lim.opamps == 1
     assert rel(lim.spread, 16.0) < 1e-12
     assert any("C1/C2 = 16" in r for r in lim.reasons)
-    assert any("2e+04 Hz needed" in r for r in lim.reasons)
+    assert any("needs 40 kHz GBW" in r for r in lim.reasons)  # 10 Q² f0
 
 
 @pytest.mark.parametrize("section,words", [
@@ -207,7 +208,7 @@ def test_limits_reject_what_the_topology_cannot_build(section, words):
 
 
 def test_gain_sign_is_ignored_and_the_circuit_does_not_invert():
-    """The chain's gains are magnitudes (design.md): -2 designs as +2, built gain +2 [nodal]."""
+    """The chain's gains are magnitudes (docs/design.md): -2 designs as +2, built gain +2 [nodal]."""
     neg = skl.design(Section("lowpass", 1e3, 1.5, -2.0), c_farads=1e-9)
     assert neg == skl.design(Section("lowpass", 1e3, 1.5, 2.0), c_farads=1e-9)
     assert rel(numeric_figures(skl, neg, IDEAL, 1e3).gain, 2.0) < 1e-9

@@ -3,7 +3,7 @@
 Reference: IEC 60063:2015 (3rd ed.), Table 1 (E3 … E24, two digits) and Table 2 (E48 …
 E192, three digits). The standard builds each series from 10**(i/N) rounded, then keeps
 historical values in Table 1 and one in Table 2; the places where the tables differ from
-the rounded formula are listed in references.md ("IEC 60063" row, typed from public copies
+the rounded formula are listed in docs/methods.md ("IEC 60063" row, typed from public copies
 of the standard [mem]).
 """
 
@@ -32,7 +32,7 @@ def test_series_names_and_lengths_match_iec_60063():
 
 
 def test_e24_differs_from_rounded_formula_exactly_at_the_documented_values():
-    """IEC 60063 Table 1 vs round(10·10^(i/24))/10: differs at 2.7 … 8.2 only (references.md)."""
+    """IEC 60063 Table 1 vs round(10·10^(i/24))/10: differs at 2.7 … 8.2 only (docs/methods.md)."""
     table = np.array(series_mantissas("E24"))
     formula = rounded_formula(24, 2)
     differs = ~np.isclose(table, formula, rtol=0, atol=1e-12)
@@ -43,13 +43,13 @@ def test_e24_differs_from_rounded_formula_exactly_at_the_documented_values():
 
 @pytest.mark.parametrize("name", ["E48", "E96"])
 def test_e48_e96_equal_the_rounded_formula(name):
-    """IEC 60063 Table 2: E48 and E96 are the rounded formula throughout (references.md)."""
+    """IEC 60063 Table 2: E48 and E96 are the rounded formula throughout (docs/methods.md)."""
     np.testing.assert_allclose(series_mantissas(name), rounded_formula(LENGTHS[name], 3),
                                rtol=0, atol=1e-12)
 
 
 def test_e192_differs_from_rounded_formula_only_at_9_20():
-    """IEC 60063 Table 2: E192 keeps 9.20 where the formula gives 9.19 (references.md)."""
+    """IEC 60063 Table 2: E192 keeps 9.20 where the formula gives 9.19 (docs/methods.md)."""
     table = np.array(series_mantissas("E192"))
     formula = rounded_formula(192, 3)
     differs = ~np.isclose(table, formula, rtol=0, atol=1e-12)

@@ -6,14 +6,13 @@ read by ngspice-39 (the installed Debian package, run below: "M" is milli, "Meg"
 """
 
 import re
-import shutil
 import subprocess
 
 import numpy as np
 import pytest
 
 from bandwright.parts.eseries import series_mantissas
-from bandwright.parts.notation import format_spice, format_value, parse_value
+from bandwright.parts.notation import format_hz, format_spice, format_value, parse_value
 
 # (text, value): SI prefixes per BIPM SI Brochure Table 7; RKM per IEC 60062 §4 [mem].
 EXAMPLES = [
@@ -119,7 +118,7 @@ def _ngspice_dc_levels(values: list[str]) -> np.ndarray:
     return np.array([float(found[str(i)]) for i in range(1, len(values) + 1)])
 
 
-@pytest.mark.skipif(shutil.which("ngspice") is None, reason="ngspice not installed")
+@pytest.mark.ngspice
 def test_ngspice_reads_format_spice_as_meant():
     """ngspice-39 reads every format_spice text back to the value (7 printed digits)."""
     values = np.array([1.23456e-15, 4.7e-12, 9.87654e-9, 2.2e-6, 3.3e-3, 0.5, 1.0, 220.0,
@@ -128,9 +127,24 @@ def test_ngspice_reads_format_spice_as_meant():
     np.testing.assert_allclose(got, values, rtol=1e-6)
 
 
-@pytest.mark.skipif(shutil.which("ngspice") is None, reason="ngspice not installed")
+@pytest.mark.ngspice
 def test_ngspice_reads_bare_M_as_milli():
     """Why format_spice exists: ngspice-39 reads "1M" and "1m" as 1e-3 and "1Meg" as 1e6."""
     got = _ngspice_dc_levels(["1M", "1m", "1Meg", "1MEG"])
     np.testing.assert_allclose(got, [1e-3, 1e-3, 1e6, 1e6], rtol=1e-9)
     assert parse_value("1M") == 1e6  # the part-marking convention differs on purpose
+
+
+@pytest.mark.parametrize("value_hz,text", [(20.2e6, "20.2 MHz"), (2.69e6, "2.69 MHz"),
+                                           (40e3, "40 kHz"), (3.16227766, "3.162 Hz"),
+                                           (0.5, "500 mHz"), (2.1e9, "2.1 GHz"),
+                                           (999.96, "1 kHz"), (float("inf"), "inf Hz")])
+def test_format_hz_puts_a_space_before_the_prefixed_unit(value_hz, text):
+    """SI style (a space between number and unit, the prefix on the unit; BIPM SI Brochure,
+    9th ed., §5.4.3 [mem]), four significant digits, and the value read back by parse_value
+    to those digits."""
+    assert format_hz(value_hz) == text
+    if value_hz != float("inf"):
+        number, unit = text.split(" ")
+        back = parse_value(number + unit[:-2])
+        assert back == pytest.approx(value_hz, rel=5e-4)

@@ -1,6 +1,6 @@
 """Customary tolerances and capacitor dielectrics.
 
-References: customary tolerance by series, references.md "Tolerance" [mem, common
+References: customary tolerance by series, docs/methods.md "Tolerance" [mem, common
 practice]: E6 20 %, E12 10 %, E24 5 %, E48 2 %, E96 1 %, E192 0.5 %; step sizes of
 IEC 60063:2015 Tables 1-2; the dielectric rule (C0G/NP0 up to about 10 nF, film above)
 is common practice.

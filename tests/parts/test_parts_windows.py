@@ -2,7 +2,7 @@
 
 References: impedance scaling (R·k, C/k keeps every RC product) per Schaumann & Van
 Valkenburg, *Design of Analog Filters*, 2001, §6 [mem]; the multiple-feedback bandpass
-check values of references.md (f0 40 kHz, Q 10, H0 10, C 1 nF → R2 79.577 kΩ,
+check values of docs/methods.md (f0 40 kHz, Q 10, H0 10, C 1 nF → R2 79.577 kΩ,
 R1a 3.9789 kΩ, R1b 209.41 Ω [calc]); scipy.signal.freqs and scipy.optimize as independent
 references for the response and the optimum.
 """
@@ -57,7 +57,7 @@ def test_scaling_keeps_the_mfb_response():
     """scipy.signal.freqs of the equal-C MFB bandpass before and after scaling by k.
 
     H(s) = -(s/(R1a C)) / (s² + 2s/(R2 C) + (1/R1a + 1/R1b)/(R2 C²)) (nodal analysis of the
-    circuit in references.md [calc]).
+    circuit in docs/methods.md [calc]).
     """
     def response(p):
         c = p["C1"]

@@ -20,7 +20,7 @@ from bandwright.report.json_out import audit_to_dict, dumps, plan_to_dict
 from bandwright.report.terminal import fmt_hz, render_audit
 from bandwright.inputs.loader import spec_from_dict
 
-from report_cases import SCENARIO_NAMES, case, chromium, chromium_render, terminal_text
+from report_cases import SCENARIO_NAMES, case, chromium_render, terminal_text
 
 
 class _Page(HTMLParser):
@@ -176,9 +176,7 @@ def test_unbuildable_plan_still_writes_a_report():
 
 # --------------------------------------------------------------------------- Chromium
 
-needs_chromium = pytest.mark.skipif(
-    chromium() is None, reason="Debian's `chromium` is not installed (.ci/run installs it; "
-                               "`apt-get install chromium`)")
+needs_chromium = pytest.mark.chromium
 
 
 def _check_render(html_path: Path, work: Path) -> None:

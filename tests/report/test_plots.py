@@ -162,7 +162,7 @@ def test_noise_curves_add_up_in_power_to_the_total(lockin):
 
 
 def test_tone_markers_add_up_to_the_worst_case_peak(lockin):
-    """Worst case = in-band signal + every tone, amplitudes added (references.md,
+    """Worst case = in-band signal + every tone, amplitudes added (docs/methods.md,
     "Headroom / slew"): the plotted tone levels at each net plus NodeLevel.signal_vpk give
     NodeLevel.peak_vpk."""
     p, figs = lockin

@@ -70,8 +70,10 @@ def with_gain_advice(design, req: Requirement, rebuild: Callable[[Requirement], 
         advice = (f"; no gain down to {max(gain_db, _MIN_GAIN_DB):.1f} dB was found to fit "
                   f"(asked: {pb.gain_db:g} dB): lower input.max_vpk{tones}, or widen the rails")
     else:
+        where = ("converter's full scale" if worst.net == "adc" else
+                 f"swing on {req.supply.rails_v[0]:g}/{req.supply.rails_v[1]:+g} V rails")
         advice = (f"; at most about {found[0]:.1f} dB of gain fits the ±{worst.limit_vpk:.3g} V "
-                  f"swing on {req.supply.rails_v[0]:g}/{req.supply.rails_v[1]:+g} V rails with "
+                  f"{where} with "
                   f"{_volts(inp.max_vpk)} in{tones} (asked: {pb.gain_db:g} dB; planned at "
                   f"{found[0]:.1f} dB, the worst margin is {found[1]:+.1f} dB)")
     out, done = [], False

@@ -46,7 +46,7 @@ def prototype_loss_db(family: str, order: int, ripple_db: float, omega: float) -
     -----
     Butterworth: A = 10 log10(1 + ε² Ω^(2N)); Chebyshev I: A = 10 log10(1 + ε² cosh²(N acosh Ω)),
     ε² = 10^(Amax/10) − 1 (Williams & Taylor 2006, §2 [mem]; the inverse of the order formulas
-    in references.md, "Mask → order"). Computed in logs so that high orders do not overflow.
+    in docs/methods.md, "Mask → order"). Computed in logs so that high orders do not overflow.
     """
     e2 = _eps2(ripple_db)
     if family == "butterworth":
@@ -75,7 +75,7 @@ def frequency_of_omega(omega: float, center_hz: float, bandwidth_hz: float, *,
     Notes
     -----
     Solves Ω = (f² − f0²)/(f·BW) for f > f0: f = (Ω·BW + √((Ω·BW)² + 4 f0²)) / 2; the lower
-    side is f0²/f (references.md, "Mask → order").
+    side is f0²/f (docs/methods.md, "Mask → order").
     """
     x = omega * bandwidth_hz
     f_up = (x + math.sqrt(x * x + 4 * center_hz * center_hz)) / 2

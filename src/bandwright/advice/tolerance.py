@@ -9,6 +9,7 @@ from typing import Callable
 from bandwright.analysis.montecarlo import Offer, YieldResult, monte_carlo
 from bandwright.chain.graph import Chain
 from bandwright.inputs.requirement import Requirement
+from bandwright.parts.tolerance import DEFAULT_TOLERANCE_PCT
 
 __all__ = ["tighter_offer", "plan_yield", "RESISTOR_STEPS_PCT", "CAPACITOR_STEPS_PCT"]
 
@@ -16,7 +17,8 @@ __all__ = ["tighter_offer", "plan_yield", "RESISTOR_STEPS_PCT", "CAPACITOR_STEPS
 #: (common practice; ``parts.tolerance``).
 RESISTOR_STEPS_PCT = (20.0, 10.0, 5.0, 2.0, 1.0, 0.5, 0.25, 0.1)
 CAPACITOR_STEPS_PCT = (20.0, 10.0, 5.0, 2.0, 1.0)
-_GRADE = {20.0: "E6", 10.0: "E12", 5.0: "E24", 2.0: "E48", 1.0: "E96", 0.5: "E192"}
+# Tolerance -> the series customarily sold at it (E6 rather than E3 at 20 %: later wins).
+_GRADE = {pct: name for name, pct in DEFAULT_TOLERANCE_PCT.items()}
 
 Progress = Callable[[int, int], None]
 

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -12,10 +12,12 @@ from bandwright.analysis.levels import NodeLevel, net_transfers, node_levels
 from bandwright.analysis.noise import NoiseAnalysis, chain_noise
 from bandwright.analysis.response import MaskReading, Response, read_mask
 from bandwright.analysis.stability import StagePoles, stage_poles
-from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
+from bandwright.analysis.converter import ConverterAnalysis, converter_analysis
+from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain, attach_converter
 from bandwright.inputs.requirement import Requirement
 
-__all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis"]
+__all__ = ["Analyses", "analyse", "Response", "MaskReading", "NodeLevel", "NoiseAnalysis",
+           "ConverterAnalysis"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -45,6 +47,8 @@ class Analyses:
     stability : tuple of StagePoles
         Every stage's poles as built and whether they all lie in the left half-plane
         (``analysis.stability``); the steady-state figures above mean nothing otherwise.
+    converter : ConverterAnalysis or None
+        The converter's view (full scale, folds, noise to the bits); None without one.
     """
 
     response: Response
@@ -57,6 +61,7 @@ class Analyses:
     snr_db: float
     dynamic_range_db: float
     stability: tuple[StagePoles, ...] = ()
+    converter: ConverterAnalysis | None = None
 
     @property
     def stable(self) -> bool:
@@ -75,6 +80,9 @@ def _db(ratio: float) -> float:
 
 def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -> Analyses:
     """Run every analysis on `chain` for `requirement`'s input, supply and noise band."""
+    conv = getattr(requirement, "converter", None)
+    if conv is not None and chain.converter != conv:
+        chain = attach_converter(chain, conv)   # the requirement's converter decides
     grid = response_grid(requirement)
     nets = net_transfers(chain, grid)
     response = Response(freq_hz=grid, h=nets[CHAIN_OUTPUT])
@@ -89,6 +97,13 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
     nf = noise_grid(requirement)
     noise = chain_noise(chain, nf, band_hz=band, temperature_c=requirement.environment.temperature_c,
                         transfer_out=respond(nf))
+    if conv is None and requirement.noise.band_hz is None:
+        # Beside the band integrated, the whole report grid: how much lies outside it.
+        wide = (float(grid[0]), float(grid[-1]))
+        wf = np.geomspace(wide[0], wide[1], 401)
+        w = chain_noise(chain, wf, band_hz=wide, temperature_c=requirement.environment.temperature_c,
+                        transfer_out=respond(wf))
+        noise = replace(noise, wide_band_hz=wide, wide_vrms=w.integrated_vrms)
     out_node = next(n for n in nodes if n.net == CHAIN_OUTPUT)
     scale = min((n.limit_vpk / n.peak_vpk for n in nodes if n.peak_vpk > 0), default=math.inf)
     sig_rms = out_node.signal_vpk / math.sqrt(2)
@@ -98,6 +113,9 @@ def analyse(chain: Chain, requirement: Requirement, *, with_mask: bool = True) -
                               source_ohms=chain.source_ohms
                               if chain.input_of(st) == CHAIN_INPUT else 0.0)
                   for st in chain.stages)
+    conv_an = None if conv is None else converter_analysis(
+        chain, requirement, nodes=nodes, noise=noise, clip_scale=scale,
+        signal_out_vpk=out_node.signal_vpk)
     return Analyses(response=response, net_responses=nets, mask=mask, nodes=nodes, noise=noise,
                     signal_out_vpk=out_node.signal_vpk, clip_scale=scale, snr_db=snr,
-                    dynamic_range_db=dr, stability=poles)
+                    dynamic_range_db=dr, stability=poles, converter=conv_an)

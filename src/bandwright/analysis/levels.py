@@ -1,4 +1,4 @@
-"""Transfers to every net of the chain, node levels, slew and load (design.md, "Headroom /
+"""Transfers to every net of the chain, node levels, slew and load (docs/design.md, "Headroom /
 slew")."""
 
 from __future__ import annotations
@@ -8,7 +8,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from bandwright.chain.graph import Chain, flatten, net_transfers
+from bandwright.chain.graph import (CHAIN_OUTPUT, CONVERTER_NET, Chain, converter_elements,
+                                    flatten, net_transfers)
 from bandwright.circuits.nodal import ac_solve, drawn_impedance
 from bandwright.inputs.requirement import InputSignal, Supply
 
@@ -16,7 +17,7 @@ __all__ = ["net_transfers", "NodeLevel", "node_levels", "swing_limit_vpk", "outp
 
 
 def swing_limit_vpk(supply: Supply, swing_to_rail_v: float) -> float:
-    """V_lim = min(V+, |V-|) - swing_to_rail (references.md, "Headroom / slew")."""
+    """V_lim = min(V+, |V-|) - swing_to_rail (docs/methods.md, "Headroom / slew")."""
     return min(supply.rails_v[1], -supply.rails_v[0]) - swing_to_rail_v
 
 
@@ -70,7 +71,7 @@ def node_levels(chain: Chain, *, passband_hz: np.ndarray, signal: InputSignal,
     -----
     Peak = V_in,max · max over the passband |T| + Σ_tones V_t |T(f_t)|; slew needed
     2π (f* V_in,max |T(f*)| + Σ f_t V_t |T(f_t)|) with f* the passband frequency where
-    f |T| is largest; amplitudes add, the worst case of every phase (references.md,
+    f |T| is largest; amplitudes add, the worst case of every phase (docs/methods.md,
     "Headroom / slew"; Franco 2015, §6.5 [mem]).
     """
     pb = np.asarray(passband_hz, dtype=float)
@@ -92,13 +93,23 @@ def node_levels(chain: Chain, *, passband_hz: np.ndarray, signal: InputSignal,
             limit_vpk=swing_limit_vpk(supply, st.model.swing_to_rail_v), signal_vpk=sig,
             slew_needed_v_per_us=slew, slew_v_per_us=st.model.slew_v_per_us,
             load_ohms=loads[net], min_load_ohms=st.model.min_load_ohms))
+    if chain.converter is not None:
+        # The converter's input is the output wire: the same worst case, against its own
+        # full scale (its slew and load belong to the op-amp at "out", checked there).
+        last = next(n for n in out if n.net == CHAIN_OUTPUT)
+        out.append(NodeLevel(
+            net=CONVERTER_NET, stage=last.stage, peak_vpk=last.peak_vpk,
+            limit_vpk=chain.converter.full_scale_vpk, signal_vpk=last.signal_vpk,
+            slew_needed_v_per_us=last.slew_needed_v_per_us, slew_v_per_us=last.slew_v_per_us,
+            load_ohms=math.inf, min_load_ohms=0.0))
     return tuple(out)
 
 
 def output_loads(chain: Chain, freq_hz: np.ndarray) -> dict[str, float]:
     """Smallest |V/I| each op-amp output sees over `freq_hz`: its feedback network and the
-    next stage's input, from a solve of the whole chain as one element list."""
-    flat = flatten(chain)
+    next stage's input (the converter's input load at the output), from a solve of the whole
+    chain as one element list."""
+    flat = flatten(chain) + converter_elements(chain)
     sol = ac_solve(flat, np.asarray(freq_hz, dtype=float), source_ohms=chain.source_ohms)
     out = {}
     for net in chain.output_nets:

@@ -98,7 +98,7 @@ def mask_margins(passband_gain_db: np.ndarray, stop_gain_db: np.ndarray,
     Notes
     -----
     Every loss is relative to `passband.gain_db`, the passband's reference gain
-    (design.md, "Meanings"): the passband may lose at most `max_loss_db` anywhere on its
+    (docs/design.md, "Meanings"): the passband may lose at most `max_loss_db` anywhere on its
     grid, its maximum stays within `gain_tolerance_db` of `gain_db`, and each stopband point
     loses at least its `min_loss_db`.
     """

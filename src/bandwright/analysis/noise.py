@@ -1,4 +1,4 @@
-"""Output noise of the chain with every source's share (design.md, "Noise")."""
+"""Output noise of the chain with every source's share (docs/design.md, "Noise")."""
 
 from __future__ import annotations
 
@@ -31,6 +31,10 @@ class NoiseAnalysis:
     band_hz : (float, float)
     input_referred_v_per_rthz : ndarray
         Output density over |T(f)| to the output (source open-circuit voltage).
+    wide_band_hz : (float, float) or None
+        Without a converter: the whole report grid's span, beside the band integrated.
+    wide_vrms : float or None
+        The output noise integrated over `wide_band_hz`.
     """
 
     freq_hz: np.ndarray
@@ -40,6 +44,8 @@ class NoiseAnalysis:
     integrated_vrms: float
     band_hz: tuple[float, float]
     input_referred_v_per_rthz: np.ndarray
+    wide_band_hz: tuple[float, float] | None = None
+    wide_vrms: float | None = None
 
 
 def chain_noise(chain: Chain, freq_hz: np.ndarray, *, band_hz: tuple[float, float],
@@ -49,7 +55,7 @@ def chain_noise(chain: Chain, freq_hz: np.ndarray, *, band_hz: tuple[float, floa
     Notes
     -----
     Every resistor's 4kTR (source resistance included), every op-amp's e_n (white + 1/f) and
-    i_n into each input; output PSD S = Σ |G_i|² S_i (references.md, "Noise"; Motchenbacher &
+    i_n into each input; output PSD S = Σ |G_i|² S_i (docs/methods.md, "Noise"; Motchenbacher &
     Connelly 1993, ch. 2 [mem]); integrated by the trapezoid rule over `band_hz`.
     """
     res = nodal_noise(flatten(chain), freq_hz, out_net=CHAIN_OUTPUT,

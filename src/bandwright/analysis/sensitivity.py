@@ -30,6 +30,7 @@ from bandwright.chain.graph import Chain
 from bandwright.chain.stage import Stage
 from bandwright.circuits.figures import section_figures_batch
 from bandwright.circuits.nodal import passive_names
+from bandwright.circuits.rules import edge_residuals
 
 __all__ = ["GBW", "StageSensitivity", "stage_sensitivity", "chain_sensitivities",
            "first_order_spread"]
@@ -61,8 +62,8 @@ class StageSensitivity:
         S_x^{f0}, S_x^{Q}, S_x^{|gain|} for each entry of `parts` (f0 and Q: NaN for a gain
         stage, which has neither).
     weight : tuple of float
-        sqrt((Q S^{f0})^2 + (S^Q / 2)^2 + (S^gain)^2): the response error at the band edge,
-        in nepers (dB / 8.686), per unit relative error of the part (see Notes).
+        sqrt((max(Q, 2) S^{f0})^2 + (S^Q / 2)^2 + (S^gain)^2): the response error at the
+        band edge, in nepers (dB / 8.686), per unit relative error of the part (see Notes).
     worst_part : str
         The passive part with the largest `weight`: the one whose tolerance this stage
         feels most.
@@ -71,8 +72,9 @@ class StageSensitivity:
     -----
     A relative f0 error d moves a section's band-edge response by about 8.686 Q d dB, a
     relative Q error e by about 8.686 e / 2 dB and a gain error g by 8.686 g dB
-    (references.md, "Tolerance"; Schaumann & Van Valkenburg 2001, ch. 3 [mem]); `weight`
-    combines them as ``circuits.realize.figure_error`` does.
+    (docs/methods.md, "Tolerance"; Schaumann & Van Valkenburg 2001, ch. 3 [mem]); `weight`
+    is the norm of ``circuits.rules.edge_residuals``, the vector whose squared norm the
+    realiser minimises (``circuits.realize.figure_error``), Q floored at 2 in both.
     """
 
     position: int
@@ -163,8 +165,7 @@ def stage_sensitivity(stage: Stage, *, log_step: float = _LOG_STEP) -> StageSens
         weight = np.abs(s_g)
     else:
         q_built = float(stage.built.q)
-        q_w = max(abs(q_built), 0.5)
-        weight = np.sqrt((q_w * s_f0) ** 2 + (s_q / 2) ** 2 + s_g ** 2)
+        weight = np.linalg.norm(edge_residuals(s_f0, s_q, s_g, q_built), axis=-1)
     worst = names[int(np.argmax(weight[:n_p]))] if n_p else GBW
     return StageSensitivity(
         position=stage.position, topology=stage.topology, kind=stage.kind, built_q=q_built,

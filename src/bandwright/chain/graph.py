@@ -1,7 +1,10 @@
-"""The chain as a graph: nets are nodes, stages are edges (design.md, "The chain is a graph").
+"""The chain as a graph: nets are nodes, stages are edges (docs/design.md, "The chain is a graph").
 
 Global net names: the chain input is "in", the chain output (last stage's "out") is "out",
 and every other op-amp output of stage k is "s{k}_{local}" (e.g. "s2_out", "s3_lowpass").
+A chain that drives a converter has one node more, "adc", after "out": the converter's
+input, the same wire as "out" (an ideal op-amp output is not loaded down), with its own
+limit, the converter's full scale.
 """
 
 from __future__ import annotations
@@ -15,12 +18,14 @@ import numpy as np
 from bandwright.chain.stage import Stage, stage_output_nets
 from bandwright.circuits.elements import GROUND, Element
 from bandwright.circuits.nodal import ac_solve
+from bandwright.inputs.requirement import Converter
 
 __all__ = ["Chain", "build_chain", "global_net", "flatten", "net_transfers", "CHAIN_INPUT",
-           "CHAIN_OUTPUT"]
+           "CHAIN_OUTPUT", "CONVERTER_NET", "attach_converter", "converter_elements"]
 
 CHAIN_INPUT = "in"
 CHAIN_OUTPUT = "out"
+CONVERTER_NET = "adc"
 
 
 def global_net(stage: Stage, local: str, *, last: bool, input_net: str) -> str:
@@ -46,16 +51,20 @@ class Chain:
         ``stage`` (the Stage) and ``local`` (the net's local name inside the stage).
     source_ohms : float
         Source resistance ahead of the chain input.
+    converter : Converter or None
+        The converter the chain drives (node `CONVERTER_NET` after the output).
     """
 
     stages: tuple[Stage, ...]
     graph: nx.DiGraph
     source_ohms: float
+    converter: Converter | None = None
 
     @property
     def output_nets(self) -> tuple[str, ...]:
         """Every op-amp output net, in chain order (the JSON `nodes[]`)."""
-        return tuple(n for n in nx.topological_sort(self.graph) if n != CHAIN_INPUT)
+        return tuple(n for n in nx.topological_sort(self.graph)
+                     if n not in (CHAIN_INPUT, CONVERTER_NET))
 
     def input_of(self, stage: Stage) -> str:
         """Global net that feeds `stage`."""
@@ -92,6 +101,33 @@ def build_chain(stages: Sequence[Stage], *, source_ohms: float = 0.0) -> Chain:
     return Chain(stages=tuple(stages), graph=g, source_ohms=float(source_ohms))
 
 
+def attach_converter(chain: Chain, converter: Converter | None) -> Chain:
+    """`chain` with the converter as its last node: an edge "out" → "adc" that carries the
+    converter instead of a stage (``stage`` None, ``local`` "adc"); unchanged for None."""
+    if converter is None:
+        return chain
+    g = chain.graph.copy()
+    g.add_edge(CHAIN_OUTPUT, CONVERTER_NET, stage=None, local=CONVERTER_NET, converter=converter)
+    return Chain(stages=chain.stages, graph=g, source_ohms=chain.source_ohms,
+                 converter=converter)
+
+
+def converter_elements(chain: Chain) -> tuple[Element, ...]:
+    """The converter's input load on the chain output, `input_ohms` ∥ `input_farads` to
+    ground (none without a converter); the drive check and the deck add these."""
+    conv = chain.converter
+    if conv is None:
+        return ()
+    out = []
+    if conv.input_ohms is not None:
+        out.append(Element(name="RADC", kind="R", nets=(CHAIN_OUTPUT, GROUND),
+                           value=conv.input_ohms))
+    if conv.input_farads > 0:
+        out.append(Element(name="CADC", kind="C", nets=(CHAIN_OUTPUT, GROUND),
+                           value=conv.input_farads))
+    return tuple(out)
+
+
 def flatten(chain: Chain) -> tuple[Element, ...]:
     """The whole chain as one element list (global nets; names suffixed "_s{k}")."""
     out: list[Element] = []
@@ -122,4 +158,6 @@ def net_transfers(chain: Chain, freq_hz: np.ndarray) -> dict[str, np.ndarray]:
             if d["stage"] is st:
                 out[net] = out[inp] * sol.at(d["local"])
     del out[CHAIN_INPUT]
+    if chain.converter is not None:
+        out[CONVERTER_NET] = out[CHAIN_OUTPUT]   # the same wire
     return out

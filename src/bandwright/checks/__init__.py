@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from bandwright.analysis import Analyses
 from bandwright.chain.graph import Chain
+from bandwright.checks.alias import alias_checks, settling_checks
 from bandwright.checks.base import Check, worst_status
 from bandwright.checks.chain_checks import (drive_checks, gbw_checks, headroom_checks,
                                             noise_checks, parts_checks, slew_checks)
@@ -26,7 +27,9 @@ def all_checks(chain: Chain, an: Analyses, requirement: Requirement, *,
     out += headroom_checks(an)
     out += slew_checks(an)
     out += drive_checks(an)
+    out += settling_checks(an)
     out += gbw_checks(chain, stability=an.stability)
     out += noise_checks(an, requirement)
+    out += alias_checks(an)
     out += parts_checks(chain, windows)
     return void_if_unstable(out, an)

@@ -16,7 +16,7 @@ class Check:
     Attributes
     ----------
     id : str
-        One of design.md's check ids (mask, headroom, slew, drive, gbw, noise, parts, yield),
+        One of docs/design.md's check ids (mask, headroom, slew, drive, gbw, noise, parts, yield),
         "stability", "topology" or "order".
     status : {"pass", "warn", "fail"}
     value, limit : float or None

@@ -1,14 +1,14 @@
-"""Checks of a built chain: headroom, slew, drive, gbw, noise, parts (design.md check ids)."""
+"""Checks of a built chain: headroom, slew, drive, gbw, noise, parts (docs/design.md check ids)."""
 
 from __future__ import annotations
 
 import math
 
 from bandwright.analysis import Analyses
-from bandwright.chain.graph import Chain
+from bandwright.chain.graph import CONVERTER_NET, Chain
 from bandwright.checks.base import Check
 from bandwright.circuits import topology
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
 from bandwright.inputs.requirement import Requirement
@@ -25,13 +25,19 @@ def headroom_checks(an: Analyses) -> list[Check]:
     out = []
     for n in an.nodes:
         m = n.margin_db
-        status = "fail" if m < 0 else ("warn" if m < WARN_MARGIN_DB else "pass")
-        what = "clips" if m < 0 else "peaks"
+        conv = n.net == CONVERTER_NET
+        # At the converter the margin asked for is its own headroom_db.
+        warn_db = an.converter.headroom_db if conv and an.converter is not None \
+            else WARN_MARGIN_DB
+        status = "fail" if m < 0 else ("warn" if m < warn_db else "pass")
+        what = ("overranges the converter" if conv else "clips") if m < 0 else "peaks"
+        tail = f" of the converter's ±{n.limit_vpk:.4g} V full scale (aim: {warn_db:g} dB " \
+               f"below it)" if conv else ""
         out.append(Check(
             id="headroom", status=status, value=n.peak_vpk, limit=n.limit_vpk, unit="Vpk",
             stage=n.stage, net=n.net,
             message=f"{what} at {n.peak_vpk:.3g} Vpk (in-band {n.signal_vpk:.3g} + tones "
-                    f"{n.peak_vpk - n.signal_vpk:.3g}); margin {m:+.1f} dB"))
+                    f"{n.peak_vpk - n.signal_vpk:.3g}); margin {m:+.1f} dB{tail}"))
     return out
 
 
@@ -39,6 +45,8 @@ def slew_checks(an: Analyses) -> list[Check]:
     """Slew rate the worst-case output needs, 2π Σ f·V, against the op-amp's."""
     out = []
     for n in an.nodes:
+        if n.net == CONVERTER_NET:
+            continue  # the op-amp at "out" drives it: checked there
         need, have = n.slew_needed_v_per_us, n.slew_v_per_us
         ratio = have / need if need > 0 else math.inf
         status = "fail" if ratio < 1 else ("warn" if ratio < 2 else "pass")
@@ -54,15 +62,33 @@ def drive_checks(an: Analyses) -> list[Check]:
     """The smallest load each op-amp output drives against its minimum load."""
     out = []
     for n in an.nodes:
+        if n.net == CONVERTER_NET:
+            continue  # its load is the op-amp's at "out"; its settling: checks.alias
         ok = n.load_ohms >= n.min_load_ohms
         load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "no load"
         out.append(Check(
             id="drive", status="pass" if ok else "fail",
             value=n.load_ohms if math.isfinite(n.load_ohms) else None,
             limit=n.min_load_ohms, unit="ohm", stage=n.stage, net=n.net,
-            message=f"least load {load} (feedback network and next input), op-amp minimum "
+            message=f"least load {load} (feedback network and next input"
+                    f"{', converter input' if n.net == 'out' and an.converter else ''}), "
+                    f"op-amp minimum "
                     f"{format_value(n.min_load_ohms, 'Ω')}"))
     return out
+
+
+def stage_gbw_needed_hz(stage) -> float:
+    """The GBW a built stage's topology needs at the f0, Q and gain it was built for, Hz.
+
+    Raises
+    ------
+    ValueError
+        When the built pole pair is not a stable one (Q <= 0 or not finite).
+    """
+    b = stage.built
+    sec = Section(kind=stage.kind, f0_hz=b.f0_hz, q=b.q, gain=abs(b.gain)) \
+        if stage.kind != "gain" else Section(kind="gain", f0_hz=0.0, q=0.0, gain=abs(b.gain))
+    return topology(stage.topology).limits(sec, stage.model).gbw_needed_hz
 
 
 def gbw_checks(chain: Chain, stability=()) -> list[Check]:
@@ -92,16 +118,14 @@ def gbw_checks(chain: Chain, stability=()) -> list[Check]:
                         f"(f0 {b.f0_hz:.4g} Hz, Q {b.q:.4g}) lies on or right of the "
                         f"imaginary axis"))
             continue
-        sec = Section(kind=st.kind, f0_hz=b.f0_hz, q=b.q, gain=abs(b.gain)) \
-            if st.kind != "gain" else Section(kind="gain", f0_hz=0.0, q=0.0, gain=abs(b.gain))
-        need = topology(st.topology).limits(sec, st.model).gbw_needed_hz
+        need = stage_gbw_needed_hz(st)
         ok = have >= need
-        needs = (f"needs {format_value(need, 'Hz')} GBW here" if math.isfinite(need) else
+        needs = (f"needs {format_hz(need)} GBW here" if math.isfinite(need) else
                  f"cannot reach Q {b.q:.3g} at gain {abs(b.gain):.3g} with any GBW")
         out.append(Check(
             id="gbw", status="pass" if ok else "fail", value=need, limit=have, unit="Hz",
             stage=st.position,
-            message=f"{st.topology} {needs}, the op-amp has {format_value(have, 'Hz')}"))
+            message=f"{st.topology} {needs}, the op-amp has {format_hz(have)}"))
     return out
 
 

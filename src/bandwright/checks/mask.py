@@ -13,7 +13,7 @@ __all__ = ["mask_checks"]
 def mask_checks(reading: MaskReading, requirement: Requirement) -> list[Check]:
     """One check for the passband floor, one for the passband ceiling, one per stopband point.
 
-    All losses are relative to `passband.gain_db` (design.md, "Meanings"); the verdicts are
+    All losses are relative to `passband.gain_db` (docs/design.md, "Meanings"); the verdicts are
     those of ``analysis.mask.mask_margins``, the reader the Monte Carlo uses too.
     """
     pb = requirement.passband

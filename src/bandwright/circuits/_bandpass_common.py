@@ -1,25 +1,18 @@
-"""Shared rules of the five bandpass topologies.
+"""Helpers of the five bandpass topologies.
 
 Private helpers for ``mfb_bandpass``, ``sallen_key_bandpass``, ``dual_amp_bandpass``,
 ``tow_thomas`` and ``state_variable``: argument checks, the input divider that lowers a
 section's natural centre gain (its values and its two resistors in the element list), the
 GBW need from a topology's first-order shifts, and the assembly of a ``Limits`` record from
-the figures each topology computes in closed form.
+the figures each topology computes in closed form. The rules every topology shares -- the
+finite-GBW criterion, spread, nominal scale, capacitor check -- are in ``circuits.rules``.
 
-The criteria
-------------
+The bandpass criteria
+---------------------
 *Finite GBW.* Each topology states the first-order relative shifts of f0 and Q caused by
 single-pole op-amps, per unit e = f0/GBW (derived with sympy on its element list, see its
-``gbw_shift``: df0/f0 ~= k_f e, dQ/Q ~= k_q e). What matters in a bandpass is how far the
-pole moves against the section's own bandwidth f0/Q: the centre moves by Q |k_f| e
-bandwidths and the bandwidth changes by |k_q| e. The planner predistorts for both at the
-nominal GBW, but GBW spreads from unit to unit and the first-order model drifts as the
-shifts grow, so the shifts themselves are kept small: ``GBW_SHIFT_LIMIT`` (10 %) bounds
-max(Q |k_f|, |k_q|) e, and the GBW that meets it, f0 max(Q |k_f|, |k_q|) / 0.1, is the
-topology's ``gbw_needed_hz`` (for Tow-Thomas this is the rule 4 Q e <= 0.1 of the
-references). The multiple-feedback section keeps the loop-gain rule of thumb of the
-references instead (open-loop gain 20 dB above the noise gain 1 + 2Q^2), which under this
-measure is Q |k_f| e = Q^2/(10 (1 + 2Q^2)) ~= 0.05.
+``gbw_shift``: df0/f0 ~= k_f e, dQ/Q ~= k_q e); ``gbw_needed_from_shift`` applies the one
+criterion of ``circuits.rules`` to them.
 
 *Tolerance.* With every part off by the tolerance t in its worst direction, Q moves by
 about ``sum_x |S_x^Q| t`` (first order; Schaumann & Van Valkenburg, *Design of Analog
@@ -28,9 +21,7 @@ or below ``TOLERANCE_Q_SHIFT_LIMIT`` (50 %): beyond it the damping of a positive
 section can approach zero and the section ring or oscillate (common practice; the exact
 bound is our choice and is stated in every reason).
 
-*Spread.* Largest over smallest resistor at most ``MAX_SPREAD`` (1000:1, three decades):
-beyond that one resistor ends up comparable with stray and load impedances, or very large
-(common practice).
+*Spread.* Largest over smallest resistor at most ``rules.MAX_SPREAD``.
 """
 
 from __future__ import annotations
@@ -38,33 +29,27 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Mapping
 
-from bandwright.circuits._lphp_common import infeasible_limits
+from bandwright.circuits import rules
 from bandwright.circuits.base import Limits
 from bandwright.circuits.elements import Element, resistor
+from bandwright.circuits.rules import (MAX_SPREAD, NOMINAL_C_FARADS, check_capacitor,
+                                       gbw_reason, infeasible_limits)
 from bandwright.errors import InfeasibleDesign
-from bandwright.parts.notation import format_value
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
-__all__ = ["GBW_SHIFT_LIMIT", "TOLERANCE_Q_SHIFT_LIMIT", "MAX_SPREAD", "DEFAULT_TOLERANCE",
-           "GAIN_RTOL", "tolerance_shift", "check_section", "check_capacitor", "divider",
-           "design_gain", "is_fitted", "resistor_spread", "hz", "assemble_limits",
-           "POLE_MOVEMENT_RULE", "NOMINAL_C_FARADS", "check_design", "fitted",
+__all__ = ["TOLERANCE_Q_SHIFT_LIMIT", "MAX_SPREAD", "DEFAULT_TOLERANCE",
+           "GAIN_RTOL", "tolerance_shift", "check_section", "divider",
+           "design_gain", "is_fitted", "resistor_spread", "assemble_limits",
+           "check_design", "fitted",
            "divider_ratio", "input_divider", "gbw_needed_from_shift", "topology_limits"]
 
-#: Largest first-order relative shift of f0 or Q from finite GBW accepted (criterion above).
-GBW_SHIFT_LIMIT = 0.1
 #: Largest worst-case first-order relative Q shift from part tolerances accepted.
 TOLERANCE_Q_SHIFT_LIMIT = 0.5
-#: Largest resistor spread accepted (common practice).
-MAX_SPREAD = 1000.0
-#: Part tolerance assumed by ``limits`` when the caller gives none (E96, 1 %; common practice).
+#: Part tolerance assumed by ``limits`` when the caller gives none (E96, 1 %; common
+#: practice). The planner passes the requirement's own (``[tolerance]``, or the tolerance
+#: customary for its series).
 DEFAULT_TOLERANCE = 0.01
-#: The GBW criterion of ``gbw_needed_from_shift``, as quoted in a reason.
-POLE_MOVEMENT_RULE = "first-order pole movement within 10 % of the bandwidth"
-#: The impedance scale at which ``topology_limits`` designs a section for its spread
-#: (a ratio, so any scale gives the same figure).
-NOMINAL_C_FARADS = 1e-9
 
 
 def tolerance_shift(sensitivities: Mapping[str, float], r_tolerance: float,
@@ -106,12 +91,6 @@ def check_section(section: Section) -> None:
         raise ValueError(f"Q = {section.q!r}: must be finite and > 0")
     if not (math.isfinite(section.gain) and section.gain != 0):
         raise ValueError(f"gain = {section.gain!r} V/V: must be finite and non-zero")
-
-
-def check_capacitor(c_farads: float) -> None:
-    """Raise ValueError unless `c_farads` is finite and > 0."""
-    if not (math.isfinite(c_farads) and c_farads > 0):
-        raise ValueError(f"c_farads = {c_farads!r}: must be finite and > 0")
 
 
 def design_gain(section: Section, natural_gain: float) -> float:
@@ -186,16 +165,6 @@ def resistor_spread(components: Mapping[str, float]) -> float:
     return max(values) / min(values) if values else 1.0
 
 
-def hz(value: float) -> str:
-    """A frequency for a reason text: "2.1 GHz", "400 Hz", "inf Hz"."""
-    if not math.isfinite(value):
-        return f"{value} Hz"
-    text = format_value(value)
-    if text[-1].isalpha():
-        return f"{text[:-1]} {text[-1]}Hz"
-    return f"{text} Hz"
-
-
 def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
                     gbw_needed_hz: float, gbw_rule: str, spread: float,
                     sensitivities: Mapping[str, float], noise_gain: float,
@@ -245,12 +214,8 @@ def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
     """
     failures: list[str] = list(problems)
     notes: list[str] = []
-    if not math.isfinite(gbw_needed_hz) or model_gbw_hz < gbw_needed_hz:
-        failures.append(f"needs {hz(gbw_needed_hz)} GBW ({gbw_rule}), the op-amp has "
-                        f"{hz(model_gbw_hz)}")
-    else:
-        notes.append(f"needs {hz(gbw_needed_hz)} GBW ({gbw_rule}), the op-amp has "
-                     f"{hz(model_gbw_hz)}")
+    gbw_ok, gbw_text = gbw_reason(gbw_needed_hz, model_gbw_hz, gbw_rule)
+    (notes if gbw_ok else failures).append(gbw_text)
     g = abs(section.gain)
     if g > natural_gain * (1 + GAIN_RTOL):
         text = (f"gain {g:.4g} V/V exceeds the {natural_gain:.4g} V/V this section reaches at "
@@ -360,7 +325,7 @@ def input_divider(components: Mapping[str, float], net: str) -> list[Element]:
 
 
 def gbw_needed_from_shift(section: Section, shift: tuple[float, float]) -> float:
-    """GBW keeping the first-order pole movement within ``GBW_SHIFT_LIMIT`` of the bandwidth.
+    """GBW keeping the first-order pole movement within ``rules.POLE_MOVEMENT_SHARE``.
 
     Parameters
     ----------
@@ -372,10 +337,9 @@ def gbw_needed_from_shift(section: Section, shift: tuple[float, float]) -> float
     Returns
     -------
     float
-        f0 max(Q |k_f|, |k_q|) / 0.1, Hz (module docstring, "Finite GBW").
+        f0 max(Q |k_f|, |k_q|) / 0.1, Hz (``rules.gbw_needed_hz``).
     """
-    k_f, k_q = shift
-    return section.f0_hz * max(section.q * abs(k_f), abs(k_q)) / GBW_SHIFT_LIMIT
+    return rules.gbw_needed_hz(section.f0_hz, section.q, shift)
 
 
 def topology_limits(section: Section, model: OpAmp, *, opamps: int,
@@ -386,7 +350,7 @@ def topology_limits(section: Section, model: OpAmp, *, opamps: int,
                     natural_gain: Callable[[float], float],
                     accept_gain_shortfall: bool, r_tolerance: float,
                     c_tolerance: float | None, max_spread: float,
-                    gbw_rule: str = POLE_MOVEMENT_RULE,
+                    gbw_rule: str = rules.GBW_RULE,
                     problems: Callable[[Section], tuple[str, ...]] | None = None,
                     tolerance_q_max: Callable[[float, float | None], float] | None = None
                     ) -> Limits:

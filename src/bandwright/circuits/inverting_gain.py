@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 
-from bandwright.circuits import _lphp_common as common
+from bandwright.circuits import _filter_and_gain as common
 from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, opamp, resistor
 from bandwright.parts.opamp import OpAmp

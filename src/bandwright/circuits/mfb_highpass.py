@@ -31,7 +31,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 
-from bandwright.circuits import _lphp_common as common
+from bandwright.circuits import _filter_and_gain as common
 from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, capacitor, opamp, resistor
 from bandwright.parts.opamp import OpAmp
@@ -180,7 +180,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Limits
         Infeasible for a spread (R2/R1 = Q^2 (2K+1)^2 / K) above
         ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
-        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
+        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._filter_and_gain``).
         The noise gain rises to 1 + K above f0, so a wideband op-amp noise floor passes.
     """
     return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,

@@ -36,7 +36,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 
-from bandwright.circuits import _lphp_common as common
+from bandwright.circuits import _filter_and_gain as common
 from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, capacitor, opamp, resistor
 from bandwright.errors import InfeasibleDesign
@@ -236,7 +236,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Limits
         Infeasible for a spread (C1/C2 = 4 Q^2 (1 + K), or the resistors)
         above ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
-        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
+        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._filter_and_gain``).
     """
     return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
                                 ideal_figures=ideal_figures,

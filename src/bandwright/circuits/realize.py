@@ -18,6 +18,7 @@ from bandwright.circuits.base import Figures
 from bandwright.circuits.elements import Element
 from bandwright.circuits.figures import section_figures, section_figures_batch
 from bandwright.circuits.nodal import BOLTZMANN_J_PER_K, passive_names
+from bandwright.circuits.rules import edge_residuals
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.eseries import nearest, neighbours
 from bandwright.parts.opamp import OpAmp
@@ -32,7 +33,6 @@ _REFERENCE_C_FARADS = 1e-9
 _PREDISTORT_STEPS = 12
 _SEARCH_SWEEPS = 4
 _GAIN_DEADBAND = 1e-3
-_F0_WEIGHT_FLOOR = 2.0
 _SOLVE_STEPS = 20
 _GRID_MAX = 729  # 3^6: every ±1 combination of a six-part section
 _WIDE_GRID_MAX = 625  # 5^4: every ±2 combination of a four-part section
@@ -96,12 +96,9 @@ def figure_error(fig: Figures, target: Section) -> float:
 
     Notes
     -----
-    A relative f0 error δ moves the band-edge response of a section by about 8.686·Q·δ dB
-    (references.md, "Tolerance"; Schaumann & Van Valkenburg 2001, ch. 3 [mem]); a relative
-    Q error ε moves it by about 8.686·ε/2 dB at the -3 dB points, and a gain error γ by
-    8.686·γ dB everywhere. The weights make each term the dB it costs. Q is floored at 2
-    for the f0 weight: a low-Q section inside a steep cascade still moves the cascade's
-    band edge, whose slope is that of the whole chain.
+    The squared norm of ``rules.edge_residuals``: each relative error weighted by the dB
+    it costs at the band edge, the f0 term by max(Q, 2) (``circuits.rules``,
+    "Section-error weighting"; docs/methods.md, "Tolerance").
     """
     return float(_error_batch(np.array([fig.f0_hz]), np.array([fig.q]), np.array([fig.gain]),
                               target)[0])
@@ -137,14 +134,17 @@ def impedance_target_ohms(model: OpAmp | None, windows: PartWindows,
 
 
 def choose_capacitor(topo: ModuleType, section: Section, *, series: str,
-                     windows: PartWindows, model: OpAmp | None = None) -> float:
+                     windows: PartWindows, model: OpAmp | None = None,
+                     level: float = 1.0) -> float:
     """A series capacitor value that sets the stage's impedance level.
 
     Impedance scaling (R·k, C/k) leaves f0, Q and gain unchanged (Schaumann & Van
     Valkenburg 2001, §6 [mem]). With an op-amp model the resistors' geometric mean is put
     at ``impedance_target_ohms`` (where they stop adding much noise), as far as every part
-    stays inside its window; otherwise the resistors are centred in their window. The value
-    is rounded to the capacitor series and kept inside the capacitor window.
+    stays inside its window; otherwise the resistors are centred in their window. `level`
+    multiplies that first impedance level (a stage that loads its op-amp at the first level
+    is tried higher); the value is rounded to the capacitor series and kept inside the
+    capacitor window.
     """
     if not any(p.startswith("C") for p in topo.PARTS):
         return _REFERENCE_C_FARADS
@@ -161,7 +161,8 @@ def choose_capacitor(topo: ModuleType, section: Section, *, series: str,
         k_hi = min(windows.r_max_ohms / r.max(), c.min() / windows.c_min_farads)
         if k_lo <= k_hi:
             k = float(np.clip(target / np.exp(np.mean(np.log(r))), k_lo, k_hi))
-    cap = float(np.clip(_REFERENCE_C_FARADS / k, windows.c_min_farads, windows.c_max_farads))
+    cap = float(np.clip(_REFERENCE_C_FARADS / (k * level), windows.c_min_farads,
+                        windows.c_max_farads))
     return float(nearest(cap, series))
 
 
@@ -219,8 +220,7 @@ def _residuals(f0_hz, q, gain, target: Section) -> np.ndarray:
         g = np.abs(gain) / abs(target.gain) - 1
         if target.kind == "gain":
             return np.stack([np.zeros_like(g), np.zeros_like(g), g], axis=-1)
-        return np.stack([max(target.q, _F0_WEIGHT_FLOOR) * (f0_hz / target.f0_hz - 1),
-                         (q / target.q - 1) / 2, g], axis=-1)
+        return edge_residuals(f0_hz / target.f0_hz - 1, q / target.q - 1, g, target.q)
 
 
 def solve_resistors(elements: tuple[Element, ...], starts: np.ndarray, target: Section,
@@ -368,7 +368,8 @@ def round_to_series(topo: ModuleType, values: Mapping[str, float], target: Secti
 
 def realize(topo: ModuleType, target: Section, model: OpAmp, *, r_series: str = "E96",
             c_series: str = "E12", windows: PartWindows = PartWindows(),
-            source_ohms: float = 0.0, rounded: bool = True) -> Realization:
+            source_ohms: float = 0.0, rounded: bool = True,
+            level: float = 1.0) -> Realization:
     """Build `target` with topology module `topo` and op-amp `model`.
 
     Parameters
@@ -387,9 +388,13 @@ def realize(topo: ModuleType, target: Section, model: OpAmp, *, r_series: str = 
     rounded : bool
         False skips the series search (exact values as built): a quick look, e.g. for the
         noise model of the section ordering.
+    level : float
+        Factor on the impedance level ``choose_capacitor`` picks first (resistors × level,
+        capacitors ÷ level, then rounded to the series).
     """
     target = Section(kind=target.kind, f0_hz=target.f0_hz, q=target.q, gain=abs(target.gain))
-    c = choose_capacitor(topo, target, series=c_series, windows=windows, model=model)
+    c = choose_capacitor(topo, target, series=c_series, windows=windows, model=model,
+                         level=level)
     asked, exact = predistort(topo, target, model, c_farads=c, source_ohms=source_ohms)
     _, ideal = _figures(topo, exact, model, target, source_ohms)
     if rounded:

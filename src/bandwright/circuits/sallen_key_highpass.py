@@ -16,7 +16,7 @@ Design
 Equal capacitors C1 = C2 = C (``c_farads``) and a resistor ratio r = R2/R1 with
 Q = sqrt(r) / (2 + r (1 - K)), solved as sqrt(r) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))):
 
-* K = 1 (the usual case in the wideband path): R2/R1 = 4 Q^2 (references.md,
+* K = 1 (the usual case in the wideband path): R2/R1 = 4 Q^2 (docs/methods.md,
   "Lowpass/highpass");
 * K = 3 - 1/Q gives R1 = R2: the equal-component design (Sallen & Key 1955 [mem]), gain
   tied to Q. Other K >= 1 are allowed; the wideband path normally runs this section at
@@ -32,7 +32,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 
-from bandwright.circuits import _lphp_common as common
+from bandwright.circuits import _filter_and_gain as common
 from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, capacitor, resistor
 from bandwright.parts.opamp import OpAmp
@@ -125,7 +125,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     Notes
     -----
     Equal C; sqrt(R2/R1) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))), i.e. R2/R1 = 4Q^2 at K = 1
-    (references.md; Sallen & Key 1955 [mem]).
+    (docs/methods.md; Sallen & Key 1955 [mem]).
     """
     common.check_capacitor(c_farads)
     _require(section)
@@ -189,7 +189,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Limits
         Infeasible for |gain| < 1, a spread (R2/R1 = 4 Q^2 at unity gain) above
         ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
-        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._lphp_common``).
+        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._filter_and_gain``).
     """
     return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
                                 ideal_figures=ideal_figures,

@@ -16,7 +16,7 @@ Design
 Equal resistors R1 = R2 = R and a capacitor ratio m = C1/C2 that gives Q at gain K:
 Q = sqrt(m) / (2 + m (1 - K)), solved as sqrt(m) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))).
 
-* K = 1 (the usual case in the wideband path): m = 4 Q^2 (references.md, "Lowpass/highpass").
+* K = 1 (the usual case in the wideband path): m = 4 Q^2 (docs/methods.md, "Lowpass/highpass").
 * K = 3 - 1/Q gives m = 1: the equal-component design (Sallen & Key 1955 [mem]), with the
   gain tied to Q. Any other K >= 1 is allowed; its Q sensitivity to Rf/Rg grows with K, so
   the wideband path normally runs this section at unity gain and gives the rest of the
@@ -36,7 +36,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 
-from bandwright.circuits import _lphp_common as common
+from bandwright.circuits import _filter_and_gain as common
 from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, capacitor, resistor
 from bandwright.errors import InfeasibleDesign
@@ -132,7 +132,7 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
     Notes
     -----
     Equal R; sqrt(C1/C2) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))), i.e. C1/C2 = 4Q^2 at K = 1
-    (references.md; Sallen & Key 1955 [mem]); R = 1 / (w0 sqrt(C1 C2)).
+    (docs/methods.md; Sallen & Key 1955 [mem]); R = 1 / (w0 sqrt(C1 C2)).
     """
     common.check_capacitor(c_farads)
     _require(section)
@@ -255,7 +255,7 @@ def limits(section: Section, model: OpAmp) -> Limits:
     Limits
         Infeasible for |gain| < 1, a spread above ``MAX_SPREAD`` or too little
         GBW. ``gbw_needed_hz`` keeps the first-order finite-GBW shifts of f0 and Q within
-        10 % (derived, see ``circuits._lphp_common``; at unity gain it is 10 Q f0, a tenth
+        10 % (derived, see ``circuits._filter_and_gain``; at unity gain it is 10 Q f0, a tenth
         of the common-practice 100 Q f0 that assumes no predistortion). ``spread`` is the
         larger of C1/C2 (the resistors are equal) and Rf/Rg. ``noise_gain`` is |NG(j w0)|,
         1 + 2 Q^2 at unity gain: far above K near f0.

@@ -10,8 +10,8 @@ from pathlib import Path
 from bandwright.circuits import TOPOLOGY_NAMES, topology
 from bandwright.errors import SpecError
 from bandwright.inputs.loader import (TOLERANCE_KEYS, TUNING_KEYS, read_amplifier,
-                                      read_common_tables, read_passband, read_stop,
-                                      read_tolerance, read_tuning)
+                                      read_common_tables, read_converter, read_passband,
+                                      read_stop, read_tolerance, read_tuning)
 from bandwright.inputs.reader import TableReader, read_toml
 from bandwright.inputs.requirement import Requirement
 from bandwright.parts.notation import parse_value
@@ -24,7 +24,7 @@ MAX_STAGES = 40
 
 AUDIT_TABLES = ("passband", "stopband", "stage", "input", "supply", "amplifier", "environment",
                 "tolerance",
-                "noise", "tuning")
+                "noise", "converter", "tuning")
 # Values outside these are typing errors, not parts (1 mΩ … 1 TΩ, 1 fF … 1 F).
 _R_RANGE = (1e-3, 1e12)
 _C_RANGE = (1e-15, 1.0)
@@ -164,10 +164,13 @@ def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]
     common["tuning"] = read_tuning(TableReader(p, "tuning", doc.get("tuning", {}), TUNING_KEYS))
     common["tolerance"] = read_tolerance(TableReader(p, "tolerance", doc.get("tolerance", {}),
                                                      TOLERANCE_KEYS))
+    common["converter"] = read_converter(p, doc.get("converter"), passband=passband,
+                                         supply=common["supply"])
     req = None
     if passband is not None:
         req = Requirement(path=p, passband=passband, stopband=stops, input=common["input"],
                           supply=common["supply"], amplifier=common["amplifier"],
                           environment=common["environment"], noise=common["noise"],
-                          tolerance=common["tolerance"], tuning=common["tuning"])
+                          tolerance=common["tolerance"], converter=common["converter"],
+                          tuning=common["tuning"])
     return req, common, specs

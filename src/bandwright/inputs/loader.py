@@ -9,24 +9,26 @@ from typing import Any
 from bandwright.errors import SpecError
 from bandwright.inputs.reader import TableReader, read_toml
 from bandwright.inputs.requirement import (
-    AmplifierChoice, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
+    AmplifierChoice, Converter, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
     Requirement, StopbandPoint, Supply, Tolerance, Tone, Tuning,
 )
+from bandwright.parts.eseries import SERIES_NAMES
 from bandwright.vocabulary import FAMILIES
 
 __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "read_passband",
            "read_stop", "FREQ_RANGE_HZ", "MIN_FRACTIONAL_BANDWIDTH", "MAX_VOLTS",
            "AMPLIFIER_RANGES",
            "read_amplifier", "read_common_tables", "read_tolerance", "TOLERANCE_KEYS",
-           "read_tuning", "TUNING_KEYS",
-           "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES"]
+           "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES",
+           "CONVERTER_KEYS", "read_converter", "read_tuning", "TUNING_KEYS"]
 
-SERIES_NAMES = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
 AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
                   "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms",
                   "current_noise_corner_hz")
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
-              "noise", "tolerance", "tuning")
+              "noise", "tolerance", "converter", "tuning")
+CONVERTER_KEYS = ("sample_rate_hz", "bits", "full_scale_vpp", "enob", "input_ohms",
+                  "input_farads", "max_alias_dbfs", "headroom_db")
 TUNING_KEYS = ("enabled",)
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
                   "seed", "min_yield")
@@ -83,7 +85,7 @@ def load_spec(path: str | Path) -> Requirement:
 
 
 def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requirement:
-    """Validate a parsed requirement document (see design.md for the keys)."""
+    """Validate a parsed requirement document (see docs/design.md for the keys)."""
     top = TableReader(path, "", doc, TOP_TABLES)
     if not top.has("passband"):
         raise SpecError(path, "passband", "missing table [passband]")
@@ -100,11 +102,13 @@ def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requi
     noise = common["noise"]
     tolerance = read_tolerance(TableReader(path, "tolerance", doc.get("tolerance", {}),
                                            TOLERANCE_KEYS))
+    converter = read_converter(path, doc.get("converter"), passband=passband,
+                               supply=common["supply"])
     tuning = read_tuning(TableReader(path, "tuning", doc.get("tuning", {}), TUNING_KEYS))
     return Requirement(path=path, passband=passband, stopband=stopband, design=design,
                        input=common["input"], supply=common["supply"],
                        amplifier=common["amplifier"], environment=common["environment"],
-                       noise=noise, tolerance=tolerance, tuning=tuning)
+                       noise=noise, tolerance=tolerance, converter=converter, tuning=tuning)
 
 
 def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
@@ -272,3 +276,48 @@ def _read_design(d: TableReader) -> DesignChoice:
         resistor_series=d.string("resistor_series", "E96", choices=SERIES_NAMES),
         capacitor_series=d.string("capacitor_series", "E12", choices=SERIES_NAMES),
     )
+
+
+def _signal_swing_v(supply: Supply) -> float:
+    """The largest peak the rails allow around the signal reference (mid-supply, or the
+    supply's `reference_v` where it has one)."""
+    lo, hi = supply.rails_v
+    ref = getattr(supply, "reference_v", None)
+    if ref is None:
+        ref = 0.0 if lo < 0 < hi else (lo + hi) / 2
+    return min(hi - ref, ref - lo)
+
+
+def read_converter(path: str, table: Any, *, passband: Passband | None,
+                   supply: Supply) -> Converter | None:
+    """`[converter]`: the ADC the chain drives (None when the table is absent).
+
+    The sample rate must be at least twice the upper passband edge (else the band itself
+    folds: Nyquist's criterion); the full scale must fit inside the rails.
+    """
+    if table is None:
+        return None
+    t = TableReader(path, "converter", table, CONVERTER_KEYS)
+    fs = _freq(t, "sample_rate_hz", required=True)
+    if passband is not None and fs < 2 * passband.high_hz:
+        raise t.error("sample_rate_hz", f"below twice the upper passband edge "
+                      f"({2 * passband.high_hz:g} Hz): the band itself would fold")
+    if not t.has("bits"):
+        raise SpecError(path, "converter.bits", "missing (a whole number of bits, 4 to 32)")
+    bits = t.integer("bits", low=4, high=32)
+    fs_vpp = t.number("full_scale_vpp", required=True, positive=True, high=2 * MAX_VOLTS)
+    swing = _signal_swing_v(supply)
+    if fs_vpp / 2 > swing:
+        raise t.error("full_scale_vpp", f"{fs_vpp / 2:g} Vpk is beyond the rails "
+                      f"{supply.rails_v[0]:g}/{supply.rails_v[1]:+g} V (at most {2 * swing:g} Vpp)")
+    enob = t.number("enob", None, positive=True)
+    if enob is not None and enob > bits:
+        raise t.error("enob", f"more effective bits than converter.bits = {bits}")
+    if enob is not None and enob < 1:
+        raise t.error("enob", "must be >= 1")
+    return Converter(
+        sample_rate_hz=fs, bits=bits, full_scale_vpp=fs_vpp, enob=enob,
+        input_ohms=t.number("input_ohms", None, positive=True, high=_MAX_OHMS),
+        input_farads=t.number("input_farads", 0.0, nonnegative=True, high=1e-3),
+        max_alias_dbfs=t.number("max_alias_dbfs", None, low=-300.0, high=0.0),
+        headroom_db=t.number("headroom_db", 1.0, nonnegative=True, high=40.0))

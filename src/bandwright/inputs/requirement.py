@@ -1,4 +1,4 @@
-"""The requirement as frozen values, units in names (keys of design.md)."""
+"""The requirement as frozen values, units in names (keys of docs/design.md)."""
 
 from __future__ import annotations
 
@@ -7,7 +7,8 @@ from dataclasses import dataclass, field
 
 __all__ = [
     "Passband", "StopbandPoint", "DesignChoice", "Tone", "InputSignal", "Supply",
-    "AmplifierChoice", "Environment", "NoiseBudget", "Tolerance", "Tuning", "Requirement",
+    "AmplifierChoice", "Environment", "NoiseBudget", "Tolerance", "Tuning", "Converter",
+    "Requirement",
 ]
 
 
@@ -37,8 +38,11 @@ class Passband:
 
 @dataclass(frozen=True, slots=True)
 class StopbandPoint:
+    """A mask point. `added` says why the planner added it (empty: the requirement's own)."""
+
     freq_hz: float
     min_loss_db: float
+    added: str = ""
 
 
 @dataclass(frozen=True, slots=True)
@@ -138,6 +142,69 @@ class Tuning:
 
 
 @dataclass(frozen=True, slots=True)
+class Converter:
+    """`[converter]`: the ADC at the end of the chain.
+
+    Attributes
+    ----------
+    sample_rate_hz : float
+    bits : int
+    full_scale_vpp : float
+        Peak-to-peak full scale at the converter input, V.
+    enob : float or None
+        Effective bits (None: `bits`).
+    input_ohms : float or None
+        Resistive part of the converter's input load (None: none).
+    input_farads : float
+        Capacitive part of the input load, in parallel with `input_ohms`.
+    max_alias_dbfs : float or None
+        The most any fold may reach, dBFS (None: a sine of 1 LSB amplitude, `lsb_dbfs`).
+    headroom_db : float
+        Margin below full scale the gain distribution aims the peak at.
+    """
+
+    sample_rate_hz: float
+    bits: int
+    full_scale_vpp: float
+    enob: float | None = None
+    input_ohms: float | None = None
+    input_farads: float = 0.0
+    max_alias_dbfs: float | None = None
+    headroom_db: float = 1.0
+
+    @property
+    def full_scale_vpk(self) -> float:
+        return self.full_scale_vpp / 2
+
+    @property
+    def nyquist_hz(self) -> float:
+        return self.sample_rate_hz / 2
+
+    @property
+    def effective_bits(self) -> float:
+        return float(self.bits if self.enob is None else self.enob)
+
+    @property
+    def lsb_v(self) -> float:
+        """One code step, full_scale_vpp / 2^bits, V."""
+        return self.full_scale_vpp / 2.0 ** self.bits
+
+    @property
+    def lsb_dbfs(self) -> float:
+        """A sine of 1 LSB amplitude against the full-scale sine: 20 log10(2^(1-bits))."""
+        return 20 * math.log10(self.lsb_v / self.full_scale_vpk)
+
+    @property
+    def alias_limit_dbfs(self) -> float:
+        return self.lsb_dbfs if self.max_alias_dbfs is None else self.max_alias_dbfs
+
+    @property
+    def aim_vpk(self) -> float:
+        """Full scale less `headroom_db`: where the gain distribution puts the peak, Vpk."""
+        return self.full_scale_vpk * 10.0 ** (-self.headroom_db / 20)
+
+
+@dataclass(frozen=True, slots=True)
 class Requirement:
     """A whole bandpass requirement, as read from `path`."""
 
@@ -151,4 +218,5 @@ class Requirement:
     environment: Environment = field(default_factory=Environment)
     noise: NoiseBudget = field(default_factory=NoiseBudget)
     tolerance: Tolerance = field(default_factory=Tolerance)
+    converter: Converter | None = None
     tuning: Tuning = field(default_factory=Tuning)

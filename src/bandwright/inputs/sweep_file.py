@@ -2,7 +2,7 @@
 the columns, then one row per frequency; every problem is a SpecError naming the file, the
 line and the column.
 
-Format (design.md, "Audit"): comma-separated; a header naming ``freq_hz`` and ``gain_db``
+Format (docs/design.md, "Audit"): comma-separated; a header naming ``freq_hz`` and ``gain_db``
 and optionally ``phase_deg``, in any order (other columns are ignored); lines starting
 with ``#`` (after white space) and blank lines are skipped anywhere. Gain is the output
 over the source's open-circuit voltage, in dB, as everywhere in the tool.

@@ -29,8 +29,6 @@ __all__ = [
     "is_member",
 ]
 
-SERIES_NAMES: tuple[str, ...] = ("E3", "E6", "E12", "E24", "E48", "E96", "E192")
-
 # IEC 60063:2015 Table 1, two significant digits (mantissa x 10).
 _E24_CODES = (10, 11, 12, 13, 15, 16, 18, 20, 22, 24, 27, 30,
               33, 36, 39, 43, 47, 51, 56, 62, 68, 75, 82, 91)
@@ -66,6 +64,9 @@ _CODES: dict[str, tuple[np.ndarray, int]] = {
     "E96": (np.array(_E192_CODES[::2]), 2),
     "E192": (np.array(_E192_CODES), 2),
 }
+#: The series names, coarsest first: the one list the loader, the BOM and the tolerance table
+#: read.
+SERIES_NAMES: tuple[str, ...] = tuple(_CODES)
 
 
 def _lookup(series: str) -> tuple[np.ndarray, int]:

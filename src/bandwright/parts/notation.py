@@ -34,7 +34,7 @@ import re
 from decimal import Decimal, InvalidOperation
 from numbers import Real
 
-__all__ = ["parse_value", "format_value", "format_spice"]
+__all__ = ["parse_value", "format_value", "format_spice", "format_hz"]
 
 _PREFIX_EXPONENT: dict[str, int] = {
     "f": -15,
@@ -204,6 +204,40 @@ def format_value(value: float, unit: str = "", *, significant: int = 3) -> str:
     ('16.2k', '4.7nF', '1M', '220')
     """
     return _engineering(float(value), significant, _PRINT_PREFIXES) + unit
+
+
+def format_hz(value_hz: float, *, significant: int = 4) -> str:
+    """Print a frequency for people: the value, a space, the prefixed unit.
+
+    The one Hz formatter of the package: reports, reasons and check messages all print
+    frequencies with it.
+
+    Parameters
+    ----------
+    value_hz : float
+        Frequency, Hz.
+    significant : int, optional
+        Significant digits kept (4 by default).
+
+    Returns
+    -------
+    str
+        "20.2 MHz", "40 kHz", "3.162 Hz", "500 mHz"; a value that is not finite prints as
+        itself ("inf Hz"), so that a reason can say a GBW cannot be reached.
+
+    Examples
+    --------
+    >>> format_hz(20.2e6), format_hz(40e3), format_hz(0.5), format_hz(float("inf"))
+    ('20.2 MHz', '40 kHz', '500 mHz', 'inf Hz')
+    """
+    value_hz = float(value_hz)
+    if not math.isfinite(value_hz):
+        return f"{value_hz} Hz"
+    text = _engineering(value_hz, significant, {**_PRINT_PREFIXES, -6: "µ"})
+    if "e" in text:
+        return f"{text} Hz"
+    number = text.rstrip("fpnµmkMGT")
+    return f"{number} {text[len(number):]}Hz"
 
 
 def format_spice(value: float, *, significant: int = 6) -> str:

@@ -9,19 +9,15 @@ from __future__ import annotations
 
 import math
 
+from bandwright.parts.eseries import SERIES_NAMES
+
 __all__ = ["DEFAULT_TOLERANCE_PCT", "C0G_MAX_FARADS", "default_tolerance_pct", "dielectric"]
 
 # Customary tolerance by series, common practice [mem]. IEC 60063 itself lists no
 # tolerance for E3; it sits with E6 here, the loosest customary figure.
-DEFAULT_TOLERANCE_PCT: dict[str, float] = {
-    "E3": 20.0,
-    "E6": 20.0,
-    "E12": 10.0,
-    "E24": 5.0,
-    "E48": 2.0,
-    "E96": 1.0,
-    "E192": 0.5,
-}
+DEFAULT_TOLERANCE_PCT: dict[str, float] = dict(zip(SERIES_NAMES,
+                                                  (20.0, 20.0, 10.0, 5.0, 2.0, 1.0, 0.5),
+                                                  strict=True))
 
 # Largest capacitance for which a C0G/NP0 ceramic is the usual filter choice (common practice).
 C0G_MAX_FARADS = 10e-9

@@ -20,7 +20,7 @@ def bandpass_omega(freq_hz, center_hz: float, bandwidth_hz: float):
     Notes
     -----
     Omega = |f^2 - f0^2| / (f BW); Omega = 1 at both edges, and f and f0^2/f map to the
-    same Omega (references.md "Mask -> order"; Williams & Taylor 2006, §5.1 [mem]).
+    same Omega (docs/methods.md "Mask -> order"; Williams & Taylor 2006, §5.1 [mem]).
     """
     f = np.asarray(freq_hz, dtype=float)
     return np.abs(f * f - center_hz**2) / (f * bandwidth_hz)
@@ -33,7 +33,7 @@ def order_for_point(family: Family, omega_s: float, max_loss_db: float, min_loss
     -----
     Butterworth: N >= log10[(10^(Amin/10) - 1)/(10^(Amax/10) - 1)] / (2 log10 Omega_s).
     Chebyshev I: N >= acosh(sqrt(same ratio)) / acosh(Omega_s)
-    (references.md; Williams & Taylor 2006, §2 [mem]).
+    (docs/methods.md; Williams & Taylor 2006, §2 [mem]).
     """
     if omega_s <= 1:
         raise ValueError(f"stopband omega must be > 1, got {omega_s}")

@@ -60,7 +60,7 @@ def butterworth_poles(order: int, max_loss_db: float = 10 * np.log10(2)) -> np.n
     -----
     |H|^2 = 1 / (1 + eps^2 Omega^(2N)); the classical poles
     p_k = -sin(theta_k) + j cos(theta_k), theta_k = (2k - 1) pi / (2N), scaled by
-    eps^(-1/N) (references.md, "Prototype scaling"; Williams & Taylor 2006, §2.1 [mem]).
+    eps^(-1/N) (docs/methods.md, "Prototype scaling"; Williams & Taylor 2006, §2.1 [mem]).
     """
     if order < 1:
         raise ValueError(f"order must be >= 1, got {order}")
@@ -80,7 +80,7 @@ def chebyshev_poles(order: int, ripple_db: float) -> np.ndarray:
     Notes
     -----
     a = asinh(1/eps)/N, p_k = -sinh(a) sin(theta_k) + j cosh(a) cos(theta_k),
-    theta_k = (2k - 1) pi / (2N) (references.md; Williams & Taylor 2006, §2.3 [mem]).
+    theta_k = (2k - 1) pi / (2N) (docs/methods.md; Williams & Taylor 2006, §2.3 [mem]).
     """
     if order < 1:
         raise ValueError(f"order must be >= 1, got {order}")

@@ -26,7 +26,7 @@ def _figures(f) -> dict[str, float | None]:
 
 
 def diagnosis_dict(d) -> dict[str, Any]:
-    """The JSON ``diagnosis`` object (design.md, "Audit"):
+    """The JSON ``diagnosis`` object (docs/design.md, "Audit"):
     ``{suspects[]{stage, part, change_pct, confidence, equivalent[]}, stages[], residual_db,
     unexplained}`` and the fields beside them."""
     checks = [{"id": k.id, "stage": k.stage, "net": k.net, "status": k.status,

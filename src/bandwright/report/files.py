@@ -8,14 +8,15 @@ import io
 from typing import Any
 
 from bandwright.analysis.montecarlo import resolve_spreads
-from bandwright.chain.graph import Chain, flatten
+from bandwright.chain.graph import Chain, converter_elements, flatten
 from bandwright.parts.catalogue import ARCHETYPES
-from bandwright.parts.eseries import is_member
+from bandwright.parts.eseries import SERIES_NAMES, is_member
 from bandwright.parts.notation import format_value
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
 from bandwright.report.spice import spice_deck
 
-__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "bom_for"]
+__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "converter_lines",
+           "bom_for"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
              "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz")
@@ -37,8 +38,21 @@ def _amplifier_lines(model, header: str) -> list[str]:
     return lines
 
 
+def converter_lines(conv) -> list[str]:
+    """`[converter]` as the requirement gave it (optional keys only when given)."""
+    if conv is None:
+        return []
+    out = ["[converter]", f"sample_rate_hz = {conv.sample_rate_hz!r}", f"bits = {conv.bits}",
+           f"full_scale_vpp = {conv.full_scale_vpp!r}"]
+    for key in ("enob", "input_ohms", "max_alias_dbfs"):
+        if getattr(conv, key) is not None:
+            out.append(f"{key} = {getattr(conv, key)!r}")
+    out += [f"input_farads = {conv.input_farads!r}", f"headroom_db = {conv.headroom_db!r}", ""]
+    return out
+
+
 def chain_toml(chain: Chain, req, *, title: str) -> str:
-    """The chain in the audit format (design.md), so that `bandwright audit` reproduces it."""
+    """The chain in the audit format (docs/design.md), so that `bandwright audit` reproduces it."""
     out = [f"# {title}", "# Audit file written by bandwright: `bandwright audit chain.toml`.", ""]
     pb = req.passband
     if pb is not None:
@@ -46,8 +60,9 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
                 f"max_loss_db = {pb.max_loss_db!r}", f"gain_db = {pb.gain_db!r}",
                 f"gain_tolerance_db = {pb.gain_tolerance_db!r}", ""]
         for sp in req.stopband:
-            out += ["[[stopband]]", f"freq_hz = {sp.freq_hz!r}", f"min_loss_db = {sp.min_loss_db!r}",
-                    ""]
+            out += ["[[stopband]]"] + ([f"# added by the planner: {sp.added}"] if getattr(
+                sp, "added", "") else []) + [f"freq_hz = {sp.freq_hz!r}",
+                                              f"min_loss_db = {sp.min_loss_db!r}", ""]
     inp = req.input
     out += ["[input]", f"max_vpk = {inp.max_vpk!r}", f"source_ohms = {inp.source_ohms!r}"]
     for t in inp.tones:
@@ -65,6 +80,7 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
         if req.noise.max_output_vrms:
             out.append(f"max_output_vrms = {req.noise.max_output_vrms!r}")
         out.append("")
+    out += converter_lines(getattr(req, "converter", None))
     tol = getattr(req, "tolerance", None)
     if tol is not None:
         spreads = resolve_spreads(req)
@@ -101,8 +117,8 @@ def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
         else:
             series = r_series if e.kind == "R" else c_series
             if series is None or not is_member(e.value, series):
-                series = next((s for s in ("E6", "E12", "E24", "E48", "E96", "E192")
-                               if is_member(e.value, s)), "")
+                # E3's values are E6 values: name the coarsest series parts are sold in.
+                series = next((s for s in SERIES_NAMES[1:] if is_member(e.value, s)), "")
             pct = r_pct if e.kind == "R" else c_pct
             if pct is None and series:
                 pct = default_tolerance_pct(series)
@@ -151,7 +167,9 @@ def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
     from bandwright.report import tuning as trims
     plan = None if tuning is None else tuning.plan
     elements = flatten(chain) if plan is None else trims.trimmed_elements(flatten(chain), plan)
-    deck = spice_deck(elements, source_ohms=chain.source_ohms,
+    # The converter's input load sits on "out" in the deck too (not in the BOM).
+    deck = spice_deck(tuple(elements) + tuple(converter_elements(chain)),
+                      source_ohms=chain.source_ohms,
                       temperature_c=req.environment.temperature_c, title=title)
     toml = chain_toml(chain, req, title=title)
     bom = bom_for(chain, req, planned=planned, tuning=tuning)

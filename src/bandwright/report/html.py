@@ -19,8 +19,9 @@ import re
 from bandwright import __version__
 from bandwright.checks.base import worst_status
 from bandwright.parts.notation import format_value
+from bandwright.report import converter_view
 from bandwright.report.subject import Subject, net_label, stage_label, subject_of
-from bandwright.report.terminal import fmt_hz
+from bandwright.report.terminal import fmt_hz, ordering_built_text
 
 __all__ = ["html_report", "SECTION_IDS", "svg_inline", "verdict_text"]
 
@@ -187,7 +188,7 @@ def _summary(s: Subject) -> str:
                                       f"most {pb.max_loss_db:.4g} dB loss across the band"))
         for sp in req.stopband:
             rows.append(("stopband", f"at least {sp.min_loss_db:g} dB down at "
-                                     f"{fmt_hz(sp.freq_hz)}"))
+                                     f"{fmt_hz(sp.freq_hz)}{converter_view.added_text(sp)}"))
     else:
         rows.append(("mask", "none stated in the audit file: the response is not checked; "
                              f"grids use its −3 dB band {fmt_hz(pb.low_hz)} to "
@@ -200,15 +201,19 @@ def _summary(s: Subject) -> str:
     if s.chain is not None:
         models = sorted({st.model.name for st in s.chain.stages})
         m = s.chain.stages[0].model
-        rows.append(("op-amp", f"'{', '.join(models)}': {m.gbw_hz / 1e6:.3g} MHz GBW, "
+        rows.append(("op-amp", f"'{', '.join(models)}': {fmt_hz(m.gbw_hz, significant=3)} GBW, "
                                f"{m.slew_v_per_us:g} V/µs, {m.noise_v_per_rthz * 1e9:.3g} "
                                "nV/√Hz"))
     elif s.kind == "plan":
         m = s.source.model
-        rows.append(("op-amp", f"'{m.name}': {m.gbw_hz / 1e6:.3g} MHz GBW"))
+        rows.append(("op-amp", f"'{m.name}': {fmt_hz(m.gbw_hz, significant=3)} GBW"))
     band = req.noise.band_hz
+    conv = getattr(req, "converter", None)
     rows.append(("noise band", f"{fmt_hz(band[0])} to {fmt_hz(band[1])}" if band
+                 else "up to fs/2, what the converter sees" if conv is not None
                  else "the passband"))
+    if conv is not None:
+        rows.append(("converter", converter_view.requirement_text(conv)))
     if req.noise.max_output_vrms:
         rows.append(("noise budget", f"{req.noise.max_output_vrms * 1e6:.4g} µV rms at the "
                                      "output"))
@@ -314,6 +319,8 @@ def _chain(s: Subject, schematics: dict) -> str:
                    f"{o.gain_over_generated_db:+.1f} dB of dynamic range over the order as "
                    f"generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
                    "(planning model, equal-maxima gains).</p>")
+        if math.isfinite(o.built_noise_vrms):
+            out.append(f'<p class="note">{_e(ordering_built_text(o))}</p>')
     out.append("</section>")
     return "".join(out)
 
@@ -457,6 +464,9 @@ def _noise(s: Subject) -> str:
         f"{_e(fmt_hz(nz.band_hz[0]))}–{_e(fmt_hz(nz.band_hz[1]))}; SNR at full input "
         f"{an.snr_db:.1f} dB; dynamic range {an.dynamic_range_db:.1f} dB (input could grow "
         f"{an.worst_margin_db:+.1f} dB before the first net clips).</p>")
+    wide = converter_view.noise_band_text(nz, fmt_hz)
+    if wide:
+        out.append(f"<p>{_e(wide)}.</p>")
     total2 = nz.integrated_vrms ** 2
     rows = [[_e(name), _e(source_label(s.chain, name)), f"{v * 1e6:.3g}",
              f"{100 * v * v / total2:.1f} %"] for name, v in nz.contributions_vrms[:10]]
@@ -470,6 +480,16 @@ def _noise(s: Subject) -> str:
     out.append('<p class="note">Sources add in power (uncorrelated); the shares add up to '
                '100 %. The density plot is in <a href="#plot-noise">Plots</a>.</p></section>')
     return "".join(out)
+
+
+def _converter(s: Subject, plots: dict) -> str:
+    """The converter section, when the chain drives one (``report.converter_view``)."""
+    an = s.analyses
+    if an is None or getattr(an, "converter", None) is None:
+        return ""
+    svg = plots.get("folds.svg")
+    return converter_view.html_section(
+        an.converter, plot_svg=None if svg is None else svg_inline(svg, "plot-folds"))
 
 
 def _bom(bom_text: str | None) -> str:
@@ -541,7 +561,8 @@ def html_report(obj, *, plots: dict | None = None, schematics: dict | None = Non
         _levels(s) if s.analyses is not None else
         '<section id="levels"><h2>Node levels</h2><p class="note">No chain was built.</p>'
         "</section>",
-        _checks(s), _yield(s), _tuning_section(obj), _plots(plots), _noise(s), _bom(bom_text),
+        _checks(s), _yield(s), _tuning_section(obj), _plots(plots), _noise(s),
+        _converter(s, plots), _bom(bom_text),
         f"<footer>Written by bandwright {_e(__version__)}. Every figure is for the chain as "
         "built: parts rounded to their series, finite op-amp GBW, source resistance."
         "</footer>",

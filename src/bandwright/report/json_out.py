@@ -1,4 +1,4 @@
-"""The JSON object of design.md, built from a Plan or an Audit (a renderer: no maths here)."""
+"""The JSON object of docs/design.md, built from a Plan or an Audit (a renderer: no maths here)."""
 
 from __future__ import annotations
 
@@ -15,7 +15,7 @@ from bandwright import __version__
 from bandwright.chain.graph import Chain, global_net
 from bandwright.report.tuning import tuning_dict
 
-__all__ = ["plan_to_dict", "audit_to_dict", "dumps", "chain_dict", "num", "yield_dict",
+__all__ = ["plan_to_dict", "audit_to_dict", "dumps", "chain_dict", "num", "yield_dict", "converter_dict",
            "sensitivities_dict"]
 
 
@@ -70,7 +70,7 @@ def _stage_dict(st, chain: Chain) -> dict[str, Any]:
 def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
     """The parts of the JSON object that a plan and an audit share."""
     nz = an.noise
-    return {
+    out = {
         "stages": [_stage_dict(st, chain) for st in chain.stages],
         "checks": _checks(checks),
         "response": {"freq_hz": _nums(an.response.freq_hz),
@@ -88,6 +88,32 @@ def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
                                     for s, v in nz.contributions_vrms],
                   "snr_db": num(an.snr_db), "dynamic_range_db": num(an.dynamic_range_db)},
     }
+    if nz.wide_band_hz is not None:
+        out["noise"].update({"wide_band_hz": list(nz.wide_band_hz),
+                             "wide_vrms": num(nz.wide_vrms)})
+    if getattr(an, "converter", None) is not None:
+        out["converter"] = converter_dict(an.converter)
+    return out
+
+
+def converter_dict(c) -> dict[str, Any]:
+    """design.md's ``converter{…}`` (and the noise budget behind it)."""
+    conv = c.converter
+    return {"full_scale_vpk": num(c.full_scale_vpk), "peak_vpk": num(c.peak_vpk),
+            "margin_db": num(c.margin_db), "snr_db": num(c.snr_db),
+            "dynamic_range_db": num(c.dynamic_range_db), "dominant_noise": c.dominant_noise,
+            "folds": [{"source": f.source, "source_hz": num(f.source_hz),
+                       "alias_hz": num(f.alias_hz), "level_dbfs": num(f.level_dbfs),
+                       "limit_dbfs": num(f.limit_dbfs)} for f in c.folds],
+            "sample_rate_hz": num(conv.sample_rate_hz), "bits": conv.bits,
+            "effective_bits": num(conv.effective_bits), "headroom_db": num(conv.headroom_db),
+            "fill_gain_db": num(c.fill_gain_db), "band_hz": list(c.band_hz),
+            "chain_vrms": num(c.chain_vrms), "folded_vrms": num(c.folded_vrms),
+            "quantisation_vrms": num(c.quantisation_vrms), "total_vrms": num(c.total_vrms),
+            "input_referred_vrms": num(c.input_referred_vrms),
+            "noise_folded_to_hz": num(c.folds[-1].top_hz) if c.folds else None,
+            "load_time_constant_s": num(c.load_time_constant_s),
+            "settle_gbw_hz": num(c.settle_gbw_hz)}
 
 
 def _checks(checks) -> list[dict[str, Any]]:
@@ -110,7 +136,7 @@ def _candidate_dict(d) -> dict[str, Any]:
 
 
 def plan_to_dict(p) -> dict[str, Any]:
-    """The plan as design.md's JSON object (plus a few keys of our own)."""
+    """The plan as docs/design.md's JSON object (plus a few keys of our own)."""
     d = p.chosen
     c = d.candidate
     out: dict[str, Any] = {
@@ -136,7 +162,13 @@ def plan_to_dict(p) -> dict[str, Any]:
     o = d.ordering
     out["ordering"] = {"method": o.method, "order_as_generated": [i + 1 for i in o.order],
                        "gain_over_generated_db": num(o.gain_over_generated_db),
-                       "gain_over_increasing_q_db": num(o.gain_over_increasing_q_db)}
+                       "gain_over_increasing_q_db": num(o.gain_over_increasing_q_db),
+                       "model_noise_vrms": num(o.noise_vrms),
+                       "built": {"noise_vrms": num(o.built_noise_vrms),
+                                 "gain_over_generated_db": num(o.built_gain_over_generated_db),
+                                 "gain_over_increasing_q_db":
+                                     num(o.built_gain_over_increasing_q_db),
+                                 "placement": o.placement}}
     y = getattr(d, "yield_result", None)
     out["yield"] = yield_dict(y) if y is not None else None
     out["sensitivities"] = sensitivities_dict(y.sensitivities) if y is not None else None

@@ -14,6 +14,7 @@ Plots
 ``noise``     output noise density, the largest contributors and the rest, band marked.
 ``yield``     Monte Carlo response envelope against the mask (only when yield ran).
 ``poles``     section poles in the s-plane, built and target; f0 against Q.
+``folds``     the folded spectrum at the converter (only with a ``[converter]``).
 ``diagnosis`` a measured sweep over the chain as designed and as fitted, and the residual
               (only for ``audit --measured``).
 """
@@ -45,7 +46,7 @@ __all__ = ["plot_files", "plot_figures", "PLOT_NAMES", "DPI", "SIZE_PX", "source
 #: Resolution and pixel size of every PNG.
 DPI = 110
 SIZE_PX = (1000, 600)
-PLOT_NAMES = ("response", "levels", "noise", "yield", "poles")
+PLOT_NAMES = ("response", "levels", "noise", "yield", "poles", "folds")
 
 # Our own plain palette: one colour per stage, fixed so a stage keeps its colour across plots.
 STAGE_COLOURS = ("#1f4e79", "#c26a00", "#2e7d32", "#7b1fa2", "#00838f", "#8d5524",
@@ -484,8 +485,69 @@ def _poles(s: Subject) -> Figure | None:
 
 # --------------------------------------------------------------------------- files
 
+# --------------------------------------------------------------------------- folds
+
+
+def _folds(s: Subject) -> Figure | None:
+    """The folded spectrum at the converter: every fold where it lands in 0 … fs/2 at its
+    level (dBFS), the alias limit, the noise levels and the peak (all from
+    ``Analyses.converter``)."""
+    c = getattr(s.analyses, "converter", None)
+    if c is None:
+        return None
+    conv = c.converter
+    nyq = conv.nyquist_hz
+    pb = s.requirement.passband
+    fig, (ax,) = _figure(1)
+    ax.axvspan(pb.low_hz, pb.high_hz, color="#2f6f9f", alpha=0.08, label="passband")
+    ax.axhline(c.folds[0].limit_dbfs if c.folds else conv.alias_limit_dbfs, color=LIMIT,
+               linewidth=1.4, linestyle="--",
+               label=f"alias limit {conv.alias_limit_dbfs:.1f} dBFS")
+    ax.axhline(-c.margin_db, color=BUILT, linewidth=1.2,
+               label=f"peak at the converter {-c.margin_db:+.1f} dBFS")
+    levels = [-c.margin_db, conv.alias_limit_dbfs]
+
+    def rms_dbfs(v):
+        return 20 * math.log10(v * math.sqrt(2) / c.full_scale_vpk) if v > 0 else -300.0
+
+    q_db, n_db = rms_dbfs(c.quantisation_vrms), rms_dbfs(c.chain_vrms)
+    ax.axhline(q_db, color="#7b1fa2", linewidth=1.0, linestyle=":",
+               label=f"converter noise {q_db:.1f} dBFS ({conv.effective_bits:g} bits, band)")
+    ax.axhline(n_db, color="#5b8c2a", linewidth=1.0, linestyle="-.",
+               label=f"chain noise to fs/2 {n_db:.1f} dBFS")
+    levels += [q_db, n_db]
+    for k, f in enumerate(c.folds):
+        colour = STATUS_COLOUR["pass" if f.passes else "fail"]
+        if f.source == "noise":
+            ax.hlines(f.level_dbfs, pb.low_hz, pb.high_hz, color=colour, linewidth=4,
+                      label=f"noise above fs/2 folded onto the passband {f.level_dbfs:.1f} dBFS")
+            levels.append(f.level_dbfs)
+            continue
+        ax.vlines(f.alias_hz, -400, f.level_dbfs, color=colour, linewidth=2)
+        ax.plot([f.alias_hz], [f.level_dbfs], marker="D", color=colour, markersize=6)
+        # Folds that land together are labelled on alternate sides.
+        twin = sum(math.isclose(g.alias_hz, f.alias_hz) for g in c.folds[:k])
+        ax.annotate(f"{f.source} {fmt_hz(f.source_hz)} → {fmt_hz(f.alias_hz)}",
+                    (f.alias_hz, f.level_dbfs), textcoords="offset points",
+                    xytext=(-5 if twin % 2 else 5, 3), ha="right" if twin % 2 else "left",
+                    fontsize=8)
+        levels.append(f.level_dbfs)
+    finite = [v for v in levels if math.isfinite(v) and v > -300]
+    ax.set_ylim(min(finite) - 12, 6)
+    ax.set_xlim(0, nyq)
+    ax.xaxis.set_major_formatter(EngFormatter(unit="Hz", sep=" "))
+    ax.set_xlabel(f"where it lands after sampling, 0 … fs/2 = {fmt_hz(nyq)} (linear)")
+    ax.set_ylabel("level at the converter (dBFS)")
+    ax.grid(True, color="#d0d0d0", linewidth=0.6)
+    ax.set_title(f"Folded spectrum at the {conv.bits}-bit converter, fs = "
+                 f"{fmt_hz(conv.sample_rate_hz)}", loc="left", fontsize=11)
+    fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncols=2,
+               fontsize=8, frameon=False)
+    return fig
+
+
 _BUILDERS = {"response": _response, "levels": _levels, "noise": _noise, "yield": _yield,
-             "poles": _poles}
+             "poles": _poles, "folds": _folds}
 
 
 def plot_figures(obj) -> dict[str, Figure]:

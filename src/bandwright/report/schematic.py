@@ -1,6 +1,6 @@
 """Schematics drawn from the element list (schemdraw, SVG), and a block diagram of the chain.
 
-The element list is the one description of a circuit (design.md): the layout below works
+The element list is the one description of a circuit (docs/design.md): the layout below works
 from it alone, for any topology, so a new topology module draws without a line added here.
 
 Layout

@@ -1,10 +1,10 @@
 """The SPICE deck writer: a chain's element list as an ngspice-39 batch deck (``chain.cir``).
 
-The deck is the same element list the nodal solver analyses (design.md, "one element list
+The deck is the same element list the nodal solver analyses (docs/design.md, "one element list
 per stage is the truth"), written so that ngspice's ``.ac`` and ``.noise`` reproduce the
 nodal solver's response and noise, op-amp noise included.
 
-Deck layout (design.md, "Interfaces")
+Deck layout (docs/design.md, "Interfaces")
 ------------------------------------
 * ``VIN src 0 AC 1 DC 0`` -- the unit source; ``RSRC src in`` -- the source resistance.
   ngspice cannot hold a 0 ohm resistor, so ``source_ohms == 0`` is written as
@@ -325,7 +325,7 @@ def _validate(elements: Sequence[Element]) -> list[str]:
 
 def spice_deck(elements: Sequence[Element], *, source_ohms: float, temperature_c: float,
                title: str) -> str:
-    """Write a whole chain as an ngspice-39 batch deck (the ``chain.cir`` of design.md).
+    """Write a whole chain as an ngspice-39 batch deck (the ``chain.cir`` of docs/design.md).
 
     Parameters
     ----------

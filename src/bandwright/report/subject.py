@@ -94,4 +94,6 @@ def net_label(chain: Chain, net: str) -> str:
     if net == CHAIN_INPUT:
         return "chain input"
     (_, _, d), = chain.graph.in_edges(net, data=True)
+    if d["stage"] is None:
+        return "converter input"
     return f"{stage_label(d['stage'])} {d['local']}"

@@ -10,9 +10,10 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
+from bandwright.report import converter_view
 
-__all__ = ["render_plan", "render_audit", "fmt_hz"]
+__all__ = ["render_plan", "render_audit", "fmt_hz", "ordering_built_text"]
 
 _VERDICT = {"pass": "ok", "warn": "WARN", "fail": "FAIL"}
 
@@ -27,12 +28,8 @@ def _row(table: Table, *cells: str) -> None:
     table.add_row(*(Text(c) for c in cells))
 
 
-def fmt_hz(f: float) -> str:
-    """Frequency with an SI prefix: 40 kHz, 3.16 Hz, 1.2 MHz."""
-    for scale, unit in ((1e6, "MHz"), (1e3, "kHz"), (1.0, "Hz")):
-        if abs(f) >= scale:
-            return f"{f / scale:.4g} {unit}"
-    return f"{f * 1e3:.4g} mHz"
+# The package's one Hz formatter, under the name the renderers import it by.
+fmt_hz = format_hz
 
 
 def _db(x: float) -> str:
@@ -58,14 +55,17 @@ def _requirement(req, model, console: Console) -> None:
         f"{fmt_hz(pb.bandwidth_hz)}, {pb.bandwidth_hz / pb.center_hz:.3g} of centre); gain "
         f"{pb.gain_db:g} dB ± {pb.gain_tolerance_db:g}; at most {pb.max_loss_db:.4g} dB loss in band")
     for sp in req.stopband:
-        _say(console, f"Stop: at least {sp.min_loss_db:g} dB down at {fmt_hz(sp.freq_hz)}")
+        _say(console, f"Stop: at least {sp.min_loss_db:g} dB down at {fmt_hz(sp.freq_hz)}"
+                      f"{converter_view.added_text(sp)}")
     inp = req.input
     tones = ", ".join(f"{t.vpk:g} Vpk at {fmt_hz(t.freq_hz)}" for t in inp.tones) or "none"
     _say(console, f"Input: up to {inp.max_vpk:g} Vpk in band from {format_value(inp.source_ohms, 'Ω')}"
                   f"; tones: {tones}")
     _say(console, f"Rails {req.supply.rails_v[0]:g} / {req.supply.rails_v[1]:+g} V; op-amp "
-                  f"'{model.name}': {model.gbw_hz / 1e6:.3g} MHz GBW, {model.slew_v_per_us:g} V/µs, "
+                  f"'{model.name}': {fmt_hz(model.gbw_hz, significant=3)} GBW, {model.slew_v_per_us:g} V/µs, "
                   f"{model.noise_v_per_rthz * 1e9:.3g} nV/√Hz; {req.environment.temperature_c:g} °C")
+    if getattr(req, "converter", None) is not None:
+        _say(console, "Converter: " + converter_view.requirement_text(req.converter))
 
 
 def render_plan(p, console: Console) -> None:
@@ -103,6 +103,8 @@ def render_plan(p, console: Console) -> None:
             f"Section order ({o.method}): {o.gain_over_generated_db:+.1f} dB of dynamic range over "
             f"the order as generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
             f"(planning model, equal-maxima gains).")
+        if math.isfinite(o.built_noise_vrms):
+            _say(console, ordering_built_text(o))
     if getattr(d, "yield_result", None) is not None:
         _yield(d.yield_result, console)
     _tuning(p, console)
@@ -226,11 +228,17 @@ def _chain(chain, an, console: Console, *, first: str = "asked") -> None:
         f"{fmt_hz(nz.band_hz[1])}; SNR at full input {an.snr_db:.1f} dB; dynamic range "
         f"{an.dynamic_range_db:.1f} dB (input could grow {an.worst_margin_db:+.1f} dB "
         f"before the first net clips)")
+    wide = converter_view.noise_band_text(nz, fmt_hz)
+    if wide:
+        _say(console, wide)
     top = _table("Largest noise sources at the output", "source", "µV rms", "share of power")
     total2 = nz.integrated_vrms**2
     for name, v in nz.contributions_vrms[:6]:
         _row(top, name, f"{v * 1e6:.3g}", f"{100 * v * v / total2:.1f} %")
     _say(console, top)
+    if getattr(an, "converter", None) is not None:
+        for block in converter_view.terminal_blocks(an.converter):
+            _say(console, block)
 
 
 def _checks(checks, console: Console) -> None:
@@ -255,3 +263,12 @@ def _fmt(x: float | None, unit: str) -> str:
     if unit in ("ohm", "Hz", "Vrms", "Vpk"):
         return format_value(x, _SHOWN_UNIT[unit])
     return f"{x:.4g} {_SHOWN_UNIT.get(unit, unit)}".strip()
+
+
+def ordering_built_text(o) -> str:
+    """The ordering's figures for the chain as built, beside the planning model's."""
+    return (f"As built: {o.built_noise_vrms * 1e6:.3g} µV rms of output noise from the stages' "
+            f"own transfers and noise (planning model: {o.noise_vrms * 1e6:.3g} µV); "
+            f"{o.built_gain_over_generated_db:+.1f} dB of dynamic range over the same built "
+            f"stages (parts and gains as built) in the order as generated, "
+            f"{o.built_gain_over_increasing_q_db:+.1f} dB over increasing Q; {o.placement}.")

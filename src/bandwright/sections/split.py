@@ -35,7 +35,7 @@ def sections_from_poles(poles, center_hz: float, bandwidth_hz: float) -> tuple[S
     Each prototype pole p maps to the two roots of s^2 - p B s + w0^2 = 0 (the substitution
     s -> (s^2 + w0^2)/(B s), Williams & Taylor 2006, §5.1 [mem]); a bandpass pole q gives the
     section f0 = |q|/2pi, Q = |q|/(2|Re q|). This equals Geffe's closed form (EDN 1974 [mem];
-    references.md) and the pairing of scipy.signal.lp2bp_zpk's poles.
+    docs/methods.md) and the pairing of scipy.signal.lp2bp_zpk's poles.
     """
     w0_rad_s = 2 * math.pi * center_hz
     b_rad_s = 2 * math.pi * bandwidth_hz
@@ -81,7 +81,7 @@ def bandpass_sections(proto: Prototype, *, center_hz: float, bandwidth_hz: float
 
     The centre of the bandpass maps to the prototype's DC, so the centre gain is
     gain · dc_gain (below the maximum for an even-order Chebyshev, which starts in a
-    ripple trough; design.md, "Meanings").
+    ripple trough; docs/design.md, "Meanings").
     """
     secs = sections_from_poles(proto.poles, center_hz, bandwidth_hz)
     centre = abs(cascade_response(secs, np.array([center_hz]))[0])

@@ -29,7 +29,7 @@ def power_coefficients(coefs: np.ndarray) -> np.ndarray:
     """Coefficients in x = w^2 of |N(jw)|^2 for N with ascending coefficients (S, d+1).
 
     N(jw) = E(x) + j w O(x) with E, O the even and odd parts (alternating signs), so
-    |N(jw)|^2 = E(x)^2 + x O(x)^2: a real polynomial of degree <= d in x (design.md, "|H|^2
+    |N(jw)|^2 = E(x)^2 + x O(x)^2: a real polynomial of degree <= d in x (docs/design.md, "|H|^2
     as a ratio of real polynomials in w^2 is cheapest"). Products of the few coefficients
     only: loops run over coefficients, never over samples or frequencies.
     """

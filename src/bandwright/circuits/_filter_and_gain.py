@@ -1,13 +1,14 @@
-"""Shared rules of the lowpass, highpass and gain-stage topologies (wideband path).
+"""Helpers of the lowpass, highpass and gain-stage topologies (wideband path, make-up gain).
 
 Private helpers for ``sallen_key_lowpass``, ``mfb_lowpass``, ``sallen_key_highpass``,
 ``mfb_highpass``, ``noninverting_gain`` and ``inverting_gain``: the gain-resistor rule,
 the finite-GBW criterion, component spread and Q sensitivity, the checks every one of
 them makes on a section before designing it and on a part list before wiring it, and the
-non-inverting amplifier (Rf, Rg, U1) several of them end in.
+non-inverting amplifier (Rf, Rg, U1) several of them end in. The rules every topology shares
+(the GBW criterion, spread, capacitor check, nominal scale) are in ``circuits.rules``.
 
-The finite-GBW criterion
-------------------------
+First-order shifts from finite GBW
+----------------------------------
 For a single-op-amp circuit with open-loop gain A(s), the closed-loop poles are the roots
 of ``1 + A(s)/NG(s)``, the loop gain A·beta with NG = 1/beta the noise gain (Franco,
 *Design with Operational Amplifiers and Analog Integrated Circuits*, 4th ed., 2015, §1.2
@@ -23,12 +24,10 @@ order in eps gives (derived here; checked with sympy in the tests)::
 so, with e = f0/GBW (eps = e/w0), ``df0/f0 = -(n1 - n2 b) e / (2 w0)`` and
 ``dQ/Q = df0/f0 - (b'-b)/b``. No pole roots are needed, so it holds for any Q > 0.
 
-``gbw_needed_hz`` is the GBW at which both first-order shifts stay within
-``GBW_SHIFT_LIMIT`` (10 %, the limit the bandpass topologies use too). The planner
-predistorts the design for these shifts (design.md, "Built, not ideal"); the limit keeps
-the correction in the range where the first-order model is reliable. Without
-predistortion, the common-practice rule for a unity-gain Sallen-Key lowpass is
-"GBW >= 100 x gain x Q x f0", i.e. a 1 % shift (|df0/f0| = |dQ/Q| = Q e there).
+The GBW a filter section needs follows from (k_f, k_q) by the one criterion of
+``circuits.rules`` (pole movement within 10 % of the bandwidth). Without predistortion,
+the common-practice rule for a unity-gain Sallen-Key lowpass is "GBW >= 100 x gain x Q x
+f0", i.e. a 1 % shift (|df0/f0| = |dQ/Q| = Q e there).
 
 A flat gain stage cannot be predistorted: its roll-off adds to the passband loss. Its
 criterion is a gain error of at most ``GAIN_ERROR_LIMIT`` (1 %) at the highest signal
@@ -42,25 +41,23 @@ from collections.abc import Callable, Mapping
 
 from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, opamp, resistor
+from bandwright.circuits.rules import (MAX_SPREAD, NOMINAL_C_FARADS, check_capacitor,
+                                       gbw_needed_hz, gbw_reason, infeasible_limits)
 from bandwright.errors import InfeasibleDesign
+from bandwright.parts.notation import format_hz
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
-__all__ = ["GBW_SHIFT_LIMIT", "GAIN_ERROR_LIMIT", "MAX_SPREAD", "UNITY_RTOL", "BASE_R_OHMS",
-           "is_unity", "ratio_pair", "finite_gbw_shift", "gbw_needed_hz", "noise_gain_at",
+__all__ = ["GAIN_ERROR_LIMIT", "UNITY_RTOL", "BASE_R_OHMS",
+           "is_unity", "ratio_pair", "finite_gbw_shift", "noise_gain_at",
            "spread", "max_log_sensitivity", "section_problems", "design_gain", "unity_note",
-           "require", "infeasible_limits", "gbw_reason", "check_known_parts",
-           "check_exact_parts", "pair_fitted", "amplifier_elements", "NOMINAL_C_FARADS",
+           "require", "check_known_parts",
+           "check_exact_parts", "pair_fitted", "amplifier_elements",
            "check_capacitor", "amplifier_gain", "gain_resistors", "filter_limits",
            "closed_loop_bandwidth_hz", "gain_stage_gbw_needed_hz", "gain_stage_limits"]
 
-#: Largest first-order relative shift of f0 or Q allowed from finite GBW (criterion above).
-GBW_SHIFT_LIMIT = 0.1
 #: Largest gain error of a flat gain stage at the highest signal frequency.
 GAIN_ERROR_LIMIT = 0.01
-#: Largest component spread (largest/smallest R, or C) accepted. Beyond about 1000:1 one part
-#: ends up near stray capacitance or at an impractical resistance (common practice).
-MAX_SPREAD = 1000.0
 #: A gain this close to 1 (relative) is built at unity (follower). Any other circuit would
 #: need a gain-resistor ratio below 1/MAX_SPREAD, which ``limits`` refuses; and a gain this
 #: near 1 is the size of the finite-A0 loss of a real op-amp (A0 >= 60 dB) that a
@@ -70,9 +67,6 @@ UNITY_RTOL = 1.0 / MAX_SPREAD
 #: The smaller resistor of a gain-setting pair (design choice: 10 kOhm keeps the op-amp
 #: load light and the Johnson noise modest; common practice).
 BASE_R_OHMS = 10e3
-#: The impedance scale at which ``filter_limits`` designs a section: every figure it
-#: reports is scale-free.
-NOMINAL_C_FARADS = 1e-9
 # f_max / f_b at which a single-pole closed loop 1/sqrt(1 + (f/f_b)^2) has lost
 # GAIN_ERROR_LIMIT of its gain (Franco 2015, §6.2 [mem]).
 _GAIN_ERROR_BANDWIDTH_RATIO = math.sqrt(1 / (1 - GAIN_ERROR_LIMIT) ** 2 - 1)
@@ -148,25 +142,6 @@ def finite_gbw_shift(f0_hz: float, q: float, ng_num: tuple[float, float, float]
     k_f = 0.5 * dc_per_eps / c / w0
     k_b = db_per_eps / b / w0
     return k_f, k_f - k_b
-
-
-def gbw_needed_hz(f0_hz: float, shifts: tuple[float, float]) -> float:
-    """GBW keeping both first-order shifts within ``GBW_SHIFT_LIMIT``.
-
-    Parameters
-    ----------
-    f0_hz : float
-        Pole frequency, Hz.
-    shifts : (float, float)
-        (k_f, k_q) from `finite_gbw_shift`.
-
-    Returns
-    -------
-    float
-        f0 · max(|k_f|, |k_q|) / GBW_SHIFT_LIMIT, Hz (10 Q f0 for a unity-gain
-        Sallen-Key lowpass).
-    """
-    return f0_hz * max(abs(shifts[0]), abs(shifts[1])) / GBW_SHIFT_LIMIT
 
 
 def noise_gain_at(f_hz: float, f0_hz: float, q: float,
@@ -262,7 +237,7 @@ def section_problems(section: Section, *, kind: str, min_gain: float = 0.0) -> l
     """Reasons a section cannot be built by a topology of `kind`, or [].
 
     The sign of ``section.gain`` is not checked: the chain's gains are magnitudes and a
-    topology's sign is its ``INVERTING`` flag (design.md; ``circuits.assign``).
+    topology's sign is its ``INVERTING`` flag (docs/design.md; ``circuits.assign``).
 
     Parameters
     ----------
@@ -355,49 +330,6 @@ def require(section: Section, *, kind: str, min_gain: float = 0.0) -> None:
         if section.kind != kind:
             raise ValueError(problems[0])
         raise InfeasibleDesign("; ".join(problems))
-
-
-def infeasible_limits(problems: list[str], opamps: int) -> Limits:
-    """Limits of a section that has no design at all: every figure is infinite.
-
-    Parameters
-    ----------
-    problems : list of str
-        The reasons.
-    opamps : int
-        Op-amp count of the topology.
-
-    Returns
-    -------
-    Limits
-        feasible False; gbw_needed_hz, spread, q_sensitivity and noise_gain ``math.inf``.
-    """
-    return Limits(feasible=False, reasons=tuple(problems), gbw_needed_hz=math.inf,
-                  spread=math.inf, q_sensitivity=math.inf, noise_gain=math.inf,
-                  opamps=opamps)
-
-
-def gbw_reason(needed_hz: float, model_gbw_hz: float, what: str) -> tuple[bool, str]:
-    """Compare the op-amp's GBW with the need.
-
-    Parameters
-    ----------
-    needed_hz : float
-        GBW needed, Hz.
-    model_gbw_hz : float
-        GBW of the op-amp model, Hz.
-    what : str
-        The criterion, for the text.
-
-    Returns
-    -------
-    (bool, str)
-        True when the GBW suffices, and the reason with both figures.
-    """
-    ok = model_gbw_hz >= needed_hz
-    verdict = "meets" if ok else "falls short of"
-    return ok, (f"GBW {model_gbw_hz:.4g} Hz {verdict} the {needed_hz:.4g} Hz needed "
-                f"({what})")
 
 
 def check_known_parts(name: str, parts: tuple[str, ...], components: Mapping[str, float], *,
@@ -512,23 +444,6 @@ def amplifier_elements(components: Mapping[str, float], model: OpAmp, *, plus: s
             opamp("U1", plus, "fb", "out", model)]
 
 
-def check_capacitor(c_farads: float) -> None:
-    """Raise ValueError unless `c_farads` > 0.
-
-    Parameters
-    ----------
-    c_farads : float
-        The capacitor value a design is asked for, farads.
-
-    Raises
-    ------
-    ValueError
-        If `c_farads` is not > 0 (NaN included).
-    """
-    if not c_farads > 0:
-        raise ValueError(f"c_farads must be > 0; got {c_farads}")
-
-
 def amplifier_gain(components: Mapping[str, float]) -> float:
     """Gain K = 1 + Rf/Rg of the non-inverting amplifier; 1 without Rf and Rg (follower).
 
@@ -616,10 +531,10 @@ def filter_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
     parts = design(section, c_farads=NOMINAL_C_FARADS)
     fig = ideal_figures(parts)
     ng = noise_gain_numerator(parts)
-    needed = gbw_needed_hz(section.f0_hz, finite_gbw_shift(fig.f0_hz, fig.q, ng))
+    needed = gbw_needed_hz(section.f0_hz, fig.q, finite_gbw_shift(fig.f0_hz, fig.q, ng))
     part_spread = spread(parts, separate=separate)
     q_sens = max_log_sensitivity(lambda p: ideal_figures(p).q, parts)
-    gbw_ok, gbw_text = gbw_reason(needed, model.gbw_hz, "first-order f0 and Q shift <= 10 %")
+    gbw_ok, gbw_text = gbw_reason(needed, model.gbw_hz)
     reasons = [summary(parts, fig), gbw_text, f"max |S^Q| = {q_sens:.3g}"]
     if note_unity:
         reasons += unity_note(section)
@@ -707,7 +622,7 @@ def gain_stage_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
     parts = design(section)
     ng = noise_gain(parts)
     reasons = [f"{summary(parts)}; noise gain {ng:.4g}; bandwidth "
-               f"{closed_loop_bandwidth_hz(ng, model):.4g} Hz"]
+               f"{format_hz(closed_loop_bandwidth_hz(ng, model))}"]
     if note_unity:
         reasons += unity_note(section)
     ok = True
@@ -718,7 +633,7 @@ def gain_stage_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
     else:
         needed = gain_stage_gbw_needed_hz(ng, max_freq_hz)
         ok, text = gbw_reason(needed, model.gbw_hz,
-                              f"gain error <= 1 % at {max_freq_hz:.4g} Hz")
+                              f"gain error <= 1 % at {format_hz(max_freq_hz)}")
         reasons.append(text)
     part_spread = spread(parts)
     if part_spread > MAX_SPREAD:

@@ -1,0 +1,50 @@
+"""Checks at the converter: `alias` (one per tone that folds into the band, one for the
+broadband noise) and the driver's settling (a `drive` check on the converter's node)."""
+
+from __future__ import annotations
+
+from bandwright.analysis import Analyses
+from bandwright.chain.graph import CONVERTER_NET
+from bandwright.checks.base import Check
+from bandwright.parts.notation import format_value
+
+__all__ = ["alias_checks", "settling_checks"]
+
+
+def alias_checks(an: Analyses) -> list[Check]:
+    """Each fold's level at the converter against ``converter.max_alias_dbfs``."""
+    c = an.converter
+    if c is None:
+        return []
+    out = []
+    for f in c.folds:
+        if f.source == "noise":
+            what = (f"noise from {format_value(f.source_hz, 'Hz')} to "
+                    f"{format_value(f.top_hz, 'Hz')} folds onto the passband")
+        else:
+            what = (f"{f.source} at {format_value(f.source_hz, 'Hz')} folds to "
+                    f"{format_value(f.alias_hz, 'Hz')}")
+        out.append(Check(
+            id="alias", status="pass" if f.passes else "fail", value=f.level_dbfs,
+            limit=f.limit_dbfs, unit="dBFS", stage=None, net=CONVERTER_NET,
+            message=f"{what} at {f.level_dbfs:.1f} dBFS (limit {f.limit_dbfs:.1f} dBFS)"))
+    return out
+
+
+def settling_checks(an: Analyses) -> list[Check]:
+    """The op-amp at the output against the GBW a first-order estimate of the sampling
+    kick's settling needs (``analysis.converter.settling_gbw_hz``); a warning only: the AC
+    model does not simulate the kick."""
+    c = an.converter
+    if c is None:
+        return []
+    need, have = c.settle_gbw_hz, c.last_gbw_hz
+    rc = "" if c.load_time_constant_s is None else \
+        f"; the converter's input RC is {format_value(c.load_time_constant_s, 's')}"
+    ok = have >= need
+    return [Check(
+        id="drive", status="pass" if ok else "warn", value=need, limit=have, unit="Hz",
+        net=CONVERTER_NET,
+        message=f"settling a full-scale kick to 1 LSB in half a sample period needs about "
+                f"{format_value(need, 'Hz')} GBW (first-order estimate), the op-amp has "
+                f"{format_value(have, 'Hz')}{rc}")]
