@@ -39,6 +39,7 @@ from bandwright.planner import plan
 from bandwright.report.files import plan_files
 from bandwright.report.json_out import dumps, plan_to_dict
 from bandwright.report.spice import spice_deck
+from bandwright.report.tuning import design_settings, set_trimmers
 from bandwright.inputs import spec_from_dict
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
@@ -146,7 +147,11 @@ def out_files(name: str) -> dict[str, bytes]:
 
 
 def chain_cir(name: str) -> str:
-    return out_files(name)["chain.cir"].decode()
+    """The case's chain.cir with any trimmer set where its part has the designed value: the
+    circuit the tool's analyses describe (the file itself gives trimmers at mid-travel)."""
+    deck = out_files(name)["chain.cir"].decode()
+    tuning = planned(name).chosen.tuning
+    return deck if tuning is None else set_trimmers(deck, design_settings(tuning.plan))
 
 
 def opamp_nets(chain) -> list[str]:

@@ -12,6 +12,8 @@ import numpy as np
 from bandwright.amplifier import check_tones, resolve_amplifier
 from bandwright.analysis import Analyses, analyse
 from bandwright.advice.tolerance import plan_yield
+from bandwright.analysis.montecarlo.tuned import TuningResult, tuning_for
+from bandwright.analysis.tuning import plan_from_trims
 from bandwright.analysis.montecarlo import YieldResult
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.graph import attach_converter
@@ -44,6 +46,10 @@ class Audit:
     yield_result : YieldResult or None
         Monte Carlo yield at the file's `[tolerance]` (customary E96/E12 tolerances when it
         has none); only when the file states a mask.
+    tuning : TuningResult or None
+        The trims the file names (``trim`` tables), or a tuning plan of the tool's own when
+        the untrimmed yield misses the target or `[tuning] enabled = true`; its tuned yield
+        is what the yield check judges.
     diagnosis : Diagnosis or None
         What a measured sweep (`--measured`) says about the chain (``bandwright.diagnosis``).
     """
@@ -55,6 +61,7 @@ class Audit:
     analyses: Analyses
     checks: tuple[Check, ...]
     yield_result: YieldResult | None = None
+    tuning: TuningResult | None = None
     diagnosis: object = None
 
 
@@ -152,11 +159,14 @@ def audit(path: str | Path, *, measured: str | Path | None = None,
     an = analyse(chain, req, with_mask=has_mask)
     checks = tuple(all_checks(chain, an, req))
     result = None
+    tuning = None
     if has_mask:  # the yield is the share of boards meeting the mask: it needs one
         result = plan_yield(chain, req, progress=progress)
-        checks += tuple(yield_checks(result))
+        given = plan_from_trims(chain, common.get("trims", {}))
+        tuning = tuning_for(chain, req, result, given=given)
+        checks += tuple(yield_checks(result, tuning=tuning))
     out = Audit(path=p, requirement=req, has_mask=has_mask, chain=chain, analyses=an,
-                checks=checks, yield_result=result)
+                checks=checks, yield_result=result, tuning=tuning)
     if measured is not None:
         from bandwright.diagnosis import diagnose
         from bandwright.inputs.sweep_file import load_sweep

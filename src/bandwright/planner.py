@@ -18,6 +18,7 @@ from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.analysis.grid import noise_grid, passband_grid
 from bandwright.advice.tolerance import tighter_offer
 from bandwright.analysis.montecarlo import YieldResult, monte_carlo, resolve_spreads
+from bandwright.analysis.montecarlo.tuned import TuningResult, tuning_for
 from bandwright.candidates import Candidate, make_candidates
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.graph import attach_converter
@@ -96,6 +97,7 @@ class Design:
     analyses: Analyses | None
     checks: tuple[Check, ...]
     yield_result: YieldResult | None = None
+    tuning: TuningResult | None = None
 
     @property
     def buildable(self) -> bool:
@@ -238,8 +240,15 @@ def with_yield(design: Design, requirement: Requirement, *,
     if offer and result.offer is None:
         extra = tighter_offer(design.chain, requirement, result, progress=report)
         result = result if extra is None else replace(result, offer=extra)
+    tuning = design.tuning
+    if offer and tuning is None:
+        # Only the chosen design is tuned: the ranking compares untrimmed chains.
+        tuning = tuning_for(design.chain, requirement, result, targets={
+            st.position: (st.target.f0_hz, st.target.q, abs(st.target.gain))
+            for st in design.chain.stages if st.kind == "bandpass"})
     checks = tuple(c for c in design.checks if c.id != "yield")
-    return replace(design, yield_result=result, checks=checks + tuple(yield_checks(result)))
+    return replace(design, yield_result=result, tuning=tuning,
+                   checks=checks + tuple(yield_checks(result, tuning=tuning)))
 
 
 def _shortfall(d: Design) -> float:

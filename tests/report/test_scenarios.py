@@ -18,8 +18,11 @@ EXPECTED = {
     "ultrasonic_ranging": (0, None, None),
     # One 3.3 V rail: every output biased at the 1.65 V reference, every + input in range.
     "piezo_pump_3v3": (0, None, None),
-    # Staggered sections of Q 80 to 160: built and inside the mask, but not in production.
-    "tone_detector": (1, "yield", "boards"),
+    # Staggered sections of Q 90 to 185: not made in production untrimmed; trimmed, they are.
+    "tone_detector": (0, None, None),
+    # The same chain with ordinary parts and a 0.25 dB gain window: no section can trim its
+    # gain without undoing f0 or Q, so even after tuning about half the boards fail.
+    "tone_detector_tight_gain": (1, "yield", "after tuning"),
 }
 
 

@@ -14,7 +14,7 @@ def _pct(x: float) -> str:
     return f"{100 * x:.1f} %"
 
 
-def yield_checks(result: YieldResult) -> list[Check]:
+def yield_checks(result: YieldResult, *, tuning=None) -> list[Check]:
     """One chain-wide check: pass when the yield reaches `tolerance.min_yield`.
 
     Parameters
@@ -22,12 +22,17 @@ def yield_checks(result: YieldResult) -> list[Check]:
     result : YieldResult
         From ``advice.tolerance.plan_yield`` (its `offer` is quoted when the yield
         falls short).
+    tuning : TuningResult, optional
+        When the chain has a tuning plan (``analysis.montecarlo.tuned``), the check judges
+        the yield after tuning and says so.
 
     Returns
     -------
     list of Check
         One record, id "yield", value and limit as shares (0 to 1).
     """
+    if tuning is not None:
+        return [_tuned_check(result, tuning)]
     sp = result.spreads
     lo, hi = result.interval
     ok = result.meets_target
@@ -54,3 +59,27 @@ def yield_checks(result: YieldResult) -> list[Check]:
             msg += "; " + prefix + result.offer.message
     return [Check(id="yield", status="pass" if ok else "fail", value=result.yield_fraction,
                   limit=result.min_yield, unit="share", message=msg)]
+
+
+def _tuned_check(result: YieldResult, tuning) -> Check:
+    t = tuning.tuned
+    lo, hi = t.interval
+    ok = t.yield_fraction >= result.min_yield
+    sp = result.spreads
+    n_trim = len(tuning.plan.steps)
+    msg = (f"after tuning ({n_trim} trimmer{'s' if n_trim != 1 else ''}, the procedure below): "
+           f"{_pct(t.yield_fraction)} of {t.samples} boards are stable and meet the mask and "
+           f"headroom (95 % interval {_pct(lo)}–{_pct(hi)}; target {_pct(result.min_yield)}); "
+           f"untrimmed {_pct(tuning.yield_untrimmed)}; R ±{sp.resistor_pct:g} %, "
+           f"C ±{sp.capacitor_pct:g} %, GBW ±{sp.gbw_spread_pct:g} %, {sp.distribution}; "
+           f"seed {t.seed}; trimmed because {tuning.reason}")
+    if t.unrescued:
+        short = ", ".join(f"{k} {v}" for k, v in t.out_of_range.items() if v)
+        fails = ", ".join(f"{k} {v}" for k, v in t.fail_counts.items() if v)
+        msg += (f"; {t.unrescued} boards fail after tuning ({fails or 'none'}); "
+                f"{t.beyond_range} ran out of trimmer travel" + (f" ({short})" if short else ""))
+        if tuning.plan.untrimmable:
+            msg += ("; no part sets " + "; ".join(tuning.plan.untrimmable)
+                    + " without undoing a figure already set: that spread stays")
+    return Check(id="yield", status="pass" if ok else "fail", value=t.yield_fraction,
+                 limit=result.min_yield, unit="share", message=msg)

@@ -9,8 +9,9 @@ from pathlib import Path
 
 from bandwright.circuits import TOPOLOGY_NAMES, topology
 from bandwright.errors import SpecError
-from bandwright.inputs.loader import (TOLERANCE_KEYS, read_amplifier, read_common_tables,
-                                      read_converter, read_passband, read_stop, read_tolerance)
+from bandwright.inputs.loader import (TOLERANCE_KEYS, TUNING_KEYS, read_amplifier,
+                                      read_common_tables, read_converter, read_passband,
+                                      read_stop, read_tolerance, read_tuning)
 from bandwright.inputs.reader import TableReader, read_toml
 from bandwright.inputs.requirement import Requirement
 from bandwright.parts.notation import parse_value
@@ -23,7 +24,7 @@ MAX_STAGES = 40
 
 AUDIT_TABLES = ("passband", "stopband", "stage", "input", "supply", "amplifier", "environment",
                 "tolerance",
-                "noise", "converter")
+                "noise", "converter", "tuning")
 # Values outside these are typing errors, not parts (1 mΩ … 1 TΩ, 1 fF … 1 F).
 _R_RANGE = (1e-3, 1e12)
 _C_RANGE = (1e-15, 1.0)
@@ -80,6 +81,41 @@ def _stage_parts(path: str, key: str, topo, table) -> dict[str, float]:
     return out
 
 
+def _stage_trims(path: str, key: str, topo, table, parts: dict[str, float]
+                 ) -> dict[str, tuple[float, float]]:
+    """`trim = { R2 = ["8.2k", "2k"] }`: each trimmed resistor as [fixed, trimmer]; the
+    part's value in `parts` is the value the trimmer is set to reach (inside the travel)."""
+    if not isinstance(table, dict):
+        raise SpecError(path, key, 'expected a table of part = ["fixed", "trimmer"]',
+                        value=table)
+    out = {}
+    for name, raw in table.items():
+        k = f"{key}.{name}"
+        if name not in topo.PARTS or name not in parts:
+            raise SpecError(path, k, f"{topo.NAME} has no part {name} in this stage (its "
+                            f"parts: {', '.join(parts)})", value=raw)
+        if not name.startswith("R"):
+            raise SpecError(path, k, f"{name} is not a resistor: only resistors are trimmed",
+                            value=raw)
+        if not (isinstance(raw, list) and len(raw) == 2):
+            raise SpecError(path, k, 'expected ["fixed", "trimmer"], two values in ohms',
+                            value=raw)
+        try:
+            fixed, trimmer = (parse_value(v) for v in raw)
+        except (ValueError, TypeError) as exc:
+            raise SpecError(path, k, str(exc), value=raw) from None
+        if not (fixed > 0 and trimmer > 0):
+            raise SpecError(path, k, "both values must be > 0", value=raw)
+        if trimmer > fixed:
+            raise SpecError(path, k, f"the trimmer ({trimmer:g} Ω) is larger than the fixed "
+                            f"part it is in series with ({fixed:g} Ω)", value=raw)
+        if not fixed <= parts[name] <= fixed + trimmer:
+            raise SpecError(path, k, f"{name} = {parts[name]:g} Ω lies outside the trim's "
+                            f"travel {fixed:g} … {fixed + trimmer:g} Ω", value=raw)
+        out[name] = (fixed, trimmer)
+    return out
+
+
 def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]:
     """Parse and validate an audit file; returns (requirement-or-None, common tables, stage
     specs (position, topology module, parts, amplifier choice))."""
@@ -103,9 +139,10 @@ def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]
         raise SpecError(p, "stage", f"{len(stage_tables)} stages; an audit takes at most "
                         f"{MAX_STAGES} (twice the sections a plan builds)")
     specs = []
+    trims: dict[int, dict[str, tuple[float, float]]] = {}
     for i, t in enumerate(stage_tables):
         key = f"stage[{i}]"
-        st = TableReader(p, key, t, ("topology", "parts", "amplifier"))
+        st = TableReader(p, key, t, ("topology", "parts", "amplifier", "trim"))
         name = st.string("topology")
         if name is None:
             raise SpecError(p, f"{key}.topology", f"missing; one of {', '.join(TOPOLOGY_NAMES)}")
@@ -118,9 +155,13 @@ def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]
         if not st.has("parts"):
             raise SpecError(p, f"{key}.parts", f"missing; {name} needs {', '.join(topo.PARTS)}")
         parts = _stage_parts(p, f"{key}.parts", topo, t["parts"])
+        if st.has("trim"):
+            trims[i + 1] = _stage_trims(p, f"{key}.trim", topo, t["trim"], parts)
         amp = read_amplifier(p, f"{key}.amplifier", t["amplifier"]) if st.has("amplifier") \
             else None
         specs.append((i + 1, topo, parts, amp, key))
+    common["trims"] = trims
+    common["tuning"] = read_tuning(TableReader(p, "tuning", doc.get("tuning", {}), TUNING_KEYS))
     common["tolerance"] = read_tolerance(TableReader(p, "tolerance", doc.get("tolerance", {}),
                                                      TOLERANCE_KEYS))
     common["converter"] = read_converter(p, doc.get("converter"), passband=passband,
@@ -130,5 +171,6 @@ def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]
         req = Requirement(path=p, passband=passband, stopband=stops, input=common["input"],
                           supply=common["supply"], amplifier=common["amplifier"],
                           environment=common["environment"], noise=common["noise"],
-                          tolerance=common["tolerance"], converter=common["converter"])
+                          tolerance=common["tolerance"], converter=common["converter"],
+                          tuning=common["tuning"])
     return req, common, specs

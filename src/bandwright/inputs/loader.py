@@ -11,7 +11,7 @@ from bandwright.errors import SpecError
 from bandwright.inputs.reader import TableReader, read_toml
 from bandwright.inputs.requirement import (
     AmplifierChoice, Converter, DesignChoice, Environment, InputSignal, NoiseBudget, Passband,
-    Requirement, StopbandPoint, Supply, TimeLimits, Tolerance, Tone,
+    Requirement, StopbandPoint, Supply, TimeLimits, Tolerance, Tone, Tuning,
 )
 from bandwright.parts.eseries import SERIES_NAMES
 from bandwright.vocabulary import FAMILIES
@@ -23,7 +23,8 @@ __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "rea
            "DISTRIBUTIONS", "TEMPERATURE_RANGE_C", "MIN_VPK", "MAX_TONES", "MAX_SAMPLES",
            "CONVERTER_KEYS", "read_converter",
            "SUPPLY_KEYS", "INPUT_LEVEL_KEYS", "read_supply", "read_dc_level",
-           "AMPLIFIER_DC_KEYS", "read_amplifier_dc", "TIME_KEYS", "read_time"]
+           "AMPLIFIER_DC_KEYS", "read_amplifier_dc", "TIME_KEYS", "read_time",
+           "read_tuning", "TUNING_KEYS"]
 
 #: The op-amp's DC errors (signed) and input common-mode range, read by ``read_amplifier_dc``.
 AMPLIFIER_DC_KEYS = ("offset_v", "bias_current_a", "input_cm_to_rail_v")
@@ -31,9 +32,10 @@ AMPLIFIER_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "n
                   "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms",
                   "current_noise_corner_hz") + AMPLIFIER_DC_KEYS
 TOP_TABLES = ("passband", "stopband", "design", "input", "supply", "amplifier", "environment",
-              "noise", "tolerance", "converter", "time")
+              "noise", "tolerance", "converter", "time", "tuning")
 CONVERTER_KEYS = ("sample_rate_hz", "bits", "full_scale_vpp", "enob", "input_ohms",
                   "input_farads", "max_alias_dbfs", "headroom_db")
+TUNING_KEYS = ("enabled",)
 TOLERANCE_KEYS = ("resistor_pct", "capacitor_pct", "distribution", "gbw_spread_pct", "samples",
                   "seed", "min_yield")
 DISTRIBUTIONS = ("uniform", "gaussian")
@@ -117,10 +119,12 @@ def spec_from_dict(doc: dict[str, Any], *, path: str = "<requirement>") -> Requi
     converter = read_converter(path, doc.get("converter"), passband=passband,
                                supply=common["supply"])
     time_limits = read_time(TableReader(path, "time", doc.get("time", {}), TIME_KEYS), passband)
+    tuning = read_tuning(TableReader(path, "tuning", doc.get("tuning", {}), TUNING_KEYS))
     return Requirement(path=path, passband=passband, stopband=stopband, design=design,
                        input=common["input"], supply=common["supply"],
                        amplifier=common["amplifier"], environment=common["environment"],
-                       noise=noise, tolerance=tolerance, converter=converter, time=time_limits)
+                       noise=noise, tolerance=tolerance, converter=converter, time=time_limits,
+                       tuning=tuning)
 
 
 def read_common_tables(path: str, doc: dict[str, Any]) -> dict[str, Any]:
@@ -334,6 +338,14 @@ def read_time(t: TableReader, passband: Passband) -> TimeLimits:
         raise t.error("burst_s", f"shorter than one period of the passband's low edge "
                       f"({1.0 / passband.low_hz:.4g} s)")
     return TimeLimits(**values)
+def read_tuning(t: TableReader) -> Tuning:
+    """`[tuning]`: `enabled` (true, false; left out: trim only when the yield needs it)."""
+    if not t.has("enabled"):
+        return Tuning()
+    v = t.table["enabled"]
+    if not isinstance(v, bool):
+        raise t.error("enabled", "must be true or false (a TOML boolean)")
+    return Tuning(enabled=v)
 
 
 def _read_design(d: TableReader) -> DesignChoice:

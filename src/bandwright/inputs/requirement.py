@@ -7,8 +7,8 @@ from dataclasses import dataclass, field
 
 __all__ = [
     "Passband", "StopbandPoint", "DesignChoice", "Tone", "InputSignal", "Supply",
-    "AmplifierChoice", "Environment", "NoiseBudget", "Tolerance", "Converter", "Requirement",
-    "TimeLimits",
+    "AmplifierChoice", "Environment", "NoiseBudget", "Tolerance", "Tuning", "Converter",
+    "Requirement", "TimeLimits",
 ]
 
 
@@ -144,6 +144,20 @@ class Tolerance:
 
 
 @dataclass(frozen=True, slots=True)
+class Tuning:
+    """`[tuning]`: whether the chain gets trimmers.
+
+    Attributes
+    ----------
+    enabled : bool or None
+        True: always plan trims; False: never; None (left out): only when the untrimmed
+        yield misses `tolerance.min_yield`.
+    """
+
+    enabled: bool | None = None
+
+
+@dataclass(frozen=True, slots=True)
 class Converter:
     """`[converter]`: the ADC at the end of the chain.
 
@@ -257,3 +271,4 @@ class Requirement:
     tolerance: Tolerance = field(default_factory=Tolerance)
     converter: Converter | None = None
     time: TimeLimits = field(default_factory=TimeLimits)
+    tuning: Tuning = field(default_factory=Tuning)

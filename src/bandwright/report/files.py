@@ -16,7 +16,8 @@ from bandwright.parts.notation import format_value
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
 from bandwright.report.spice import spice_deck
 
-__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "converter_lines"]
+__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "converter_lines",
+           "bom_for"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
              "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz",
@@ -109,14 +110,17 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
 
 
 def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
-            r_pct: float | None = None, c_pct: float | None = None, reference=None) -> str:
+            r_pct: float | None = None, c_pct: float | None = None, reference=None,
+            elements=None, extra_rows=()) -> str:
     """Bill of materials: one row per distinct part, with designators and quantity.
 
     The tolerance is the one the yield was computed for (`r_pct`, `c_pct`), else the one
-    customary for the part's series (common practice, ``parts.tolerance``).
+    customary for the part's series (common practice, ``parts.tolerance``). `elements`
+    replaces the chain's flat element list (a tuned chain's fixed parts); `extra_rows` are
+    appended as given (its trimmers).
     """
     rows: dict[tuple, list[str]] = {}
-    for e in flatten(chain, reference):
+    for e in (flatten(chain, reference) if elements is None else elements):
         if e.kind == "opamp":
             key = ("op-amp", e.model.name, "", "", "")
         else:
@@ -137,6 +141,8 @@ def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
     w.writerow(["designators", "part", "value", "series", "tolerance", "dielectric", "quantity"])
     for key, refs in rows.items():
         w.writerow([" ".join(refs), key[0], key[1], key[2], key[3], key[4], len(refs)])
+    for row in extra_rows:
+        w.writerow(row)
     return buf.getvalue()
 
 
@@ -151,25 +157,46 @@ def bom_args(req, *, planned: bool) -> dict[str, Any]:
             "c_pct": req.tolerance.capacitor_pct}
 
 
-def _deck(chain: Chain, req, title: str) -> str:
-    """chain.cir: the chain with its reference network and rails on a single supply, and the
-    converter's input load on "out" (not in the BOM)."""
+def bom_for(chain: Chain, req, *, planned: bool, tuning=None) -> str:
+    """bom.csv of a chain (with its single-supply reference network): with a tuning plan,
+    each trimmed part at its fixed value and a row per trimmer value
+    (``report.tuning.bom_trimmer_rows``)."""
     reference = chain_reference(chain, req)
-    return spice_deck(flatten(chain, reference) + converter_elements(chain),
+    if tuning is None:
+        return bom_csv(chain, **bom_args(req, planned=planned), reference=reference)
+    from bandwright.report import tuning as trims
+    plan = tuning.plan
+    trimmers = {f"{s.part}_s{s.stage}" for s in plan.steps}
+    elements = trims.trimmed_elements(flatten(chain, reference), plan)
+    return bom_csv(chain, **bom_args(req, planned=planned),
+                   elements=[e for e in elements if e.name not in trimmers],
+                   extra_rows=trims.bom_trimmer_rows(plan))
+
+
+def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
+           planned: bool, tuning=None) -> dict[str, bytes]:
+    from bandwright.report import tuning as trims
+    plan = None if tuning is None else tuning.plan
+    reference = chain_reference(chain, req)
+    flat = flatten(chain, reference)
+    elements = flat if plan is None else trims.trimmed_elements(flat, plan)
+    # The converter's input load sits on "out" in the deck too (not in the BOM); a single
+    # supply's deck carries its rail and the source's DC level.
+    deck = spice_deck(tuple(elements) + tuple(converter_elements(chain)),
                       source_ohms=chain.source_ohms,
                       temperature_c=req.environment.temperature_c, title=title,
                       dc_v=req.input.dc_v,
                       supply_v=reference.supply_v if reference.single else None)
-
-
-def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
-           planned: bool) -> dict[str, bytes]:
+    toml = chain_toml(chain, req, title=title)
+    bom = bom_for(chain, req, planned=planned, tuning=tuning)
+    if plan is not None:
+        deck = trims.trimmer_comments(deck, plan)
+        toml = trims.toml_with_trims(toml, plan)
     return {
         json_name: (json_text + "\n").encode(),
-        "chain.cir": _deck(chain, req, title).encode(),
-        "chain.toml": chain_toml(chain, req, title=title).encode(),
-        "bom.csv": bom_csv(chain, **bom_args(req, planned=planned),
-                           reference=chain_reference(chain, req)).encode(),
+        "chain.cir": deck.encode(),
+        "chain.toml": toml.encode(),
+        "bom.csv": bom.encode(),
     }
 
 
@@ -179,14 +206,16 @@ def plan_files(p, json_text: str) -> dict[str, bytes]:
     if d.chain is None:
         return {"plan.json": (json_text + "\n").encode(), **_graphic_files(p, None)}
     title = f"bandwright plan of {p.requirement.path}"
-    out = _files(d.chain, p.requirement, json_text, "plan.json", title, planned=True)
+    out = _files(d.chain, p.requirement, json_text, "plan.json", title, planned=True,
+                 tuning=getattr(d, "tuning", None))
     return {**out, **_graphic_files(p, out["bom.csv"])}
 
 
 def audit_files(a, json_text: str) -> dict[str, bytes]:
     """Every file of an audit's --out folder."""
     out = _files(a.chain, a.requirement, json_text, "audit.json",
-                 f"bandwright audit of {a.path}", planned=False)
+                 f"bandwright audit of {a.path}", planned=False,
+                 tuning=getattr(a, "tuning", None))
     return {**out, **_graphic_files(a, out["bom.csv"])}
 
 
@@ -198,7 +227,10 @@ def _graphic_files(obj, bom: bytes | None) -> dict[str, bytes]:
     from bandwright.report.schematic import schematic_files
     from bandwright.report.subject import subject_of
     plots = plot_files(obj)
-    schematics = schematic_files(subject_of(obj).chain)
+    from bandwright.report.tuning import tuning_of
+    tuning = tuning_of(obj)
+    schematics = schematic_files(subject_of(obj).chain,
+                                 tuning_plan=None if tuning is None else tuning.plan)
     page = html_report(obj, plots=plots, schematics=schematics,
                        bom_text=None if bom is None else bom.decode())
     return {**plots, **schematics, "report.html": page.encode()}

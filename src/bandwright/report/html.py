@@ -508,6 +508,11 @@ def _bom(bom_text: str | None) -> str:
     return "".join(out)
 
 
+def _tuning_section(obj) -> str:
+    from bandwright.report.tuning import tuning_html, tuning_of
+    return tuning_html(tuning_of(obj))
+
+
 def _diagnosis_section(s, plots) -> str:
     from bandwright.report.diagnosis_view import diagnosis_html
     return diagnosis_html(s.source, plots)
@@ -546,10 +551,15 @@ def html_report(obj, *, plots: dict | None = None, schematics: dict | None = Non
         plots = plot_files(s)
     if schematics is None:
         from bandwright.report.schematic import schematic_files
-        schematics = schematic_files(s.chain)
+        from bandwright.report.tuning import tuning_of
+        tuning = tuning_of(obj)
+        schematics = schematic_files(s.chain,
+                                     tuning_plan=None if tuning is None else tuning.plan)
     if bom_text is None and s.chain is not None:
-        from bandwright.report.files import bom_args, bom_csv
-        bom_text = bom_csv(s.chain, **bom_args(s.requirement, planned=s.kind == "plan"))
+        from bandwright.report.files import bom_for
+        from bandwright.report.tuning import tuning_of
+        bom_text = bom_for(s.chain, s.requirement, planned=s.kind == "plan",
+                           tuning=tuning_of(obj))
     title = f"bandwright {s.kind} — {s.path}"
     nav = "".join(f'<a href="#{i}">{i}</a>' for i in SECTION_IDS)
     body = [
@@ -560,8 +570,8 @@ def html_report(obj, *, plots: dict | None = None, schematics: dict | None = Non
         _levels(s) if s.analyses is not None else
         '<section id="levels"><h2>Node levels</h2><p class="note">No chain was built.</p>'
         "</section>",
-        _checks(s), _yield(s), _plots(plots), _noise(s), _converter(s, plots),
-        _time_section(s, plots), _bom(bom_text),
+        _checks(s), _yield(s), _tuning_section(obj), _plots(plots), _noise(s),
+        _converter(s, plots), _time_section(s, plots), _bom(bom_text),
         f"<footer>Written by bandwright {_e(__version__)}. Every figure is for the chain as "
         "built: parts rounded to their series, finite op-amp GBW, source resistance."
         "</footer>",

@@ -14,6 +14,7 @@ import scipy
 from bandwright import __version__
 from bandwright.chain.graph import Chain, global_net
 from bandwright.report.time_view import time_dict
+from bandwright.report.tuning import tuning_dict
 
 __all__ = ["plan_to_dict", "audit_to_dict", "dumps", "chain_dict", "num", "yield_dict", "converter_dict",
            "sensitivities_dict"]
@@ -186,6 +187,7 @@ def plan_to_dict(p) -> dict[str, Any]:
     y = getattr(d, "yield_result", None)
     out["yield"] = yield_dict(y) if y is not None else None
     out["sensitivities"] = sensitivities_dict(y.sensitivities) if y is not None else None
+    out["tuning"] = tuning_dict(getattr(d, "tuning", None))
     return out
 
 
@@ -239,6 +241,7 @@ def audit_to_dict(a) -> dict[str, Any]:
     out.update(chain_dict(a.chain, a.analyses, a.checks))
     y = getattr(a, "yield_result", None)
     out["yield"] = yield_dict(y) if y is not None else None
+    out["tuning"] = tuning_dict(getattr(a, "tuning", None))
     if getattr(a, "diagnosis", None) is not None:
         from bandwright.report.diagnosis_view import diagnosis_dict
         out["diagnosis"] = diagnosis_dict(a.diagnosis)

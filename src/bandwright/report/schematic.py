@@ -400,7 +400,8 @@ def _value(e: Element) -> str:
     return format_value(e.value, "Ω" if e.kind == "R" else "F")
 
 
-def elements_svg(elements, *, net_names: dict | None = None, title: str = "") -> bytes:
+def elements_svg(elements, *, net_names: dict | None = None, title: str = "",
+                 trims: dict | None = None) -> bytes:
     """Draw an element list as a schematic.
 
     Parameters
@@ -412,6 +413,9 @@ def elements_svg(elements, *, net_names: dict | None = None, title: str = "") ->
         (local net → shown name); by default the local names.
     title : str, optional
         A line of text above the drawing.
+    trims : dict of str to str, optional
+        Trimmed parts (name → value text, "1.27kΩ = 1.21kΩ + 200Ω trim": the value set,
+        the fixed part and the trimmer): drawn as variable resistors with that text.
 
     Returns
     -------
@@ -423,18 +427,22 @@ def elements_svg(elements, *, net_names: dict | None = None, title: str = "") ->
     d = schemdraw.Drawing(canvas="svg", show=False, fontsize=10, lw=1.4, margin=0.7)
     for i, p1, p2 in lay.parts:
         e = elements[i]
-        part = elm.Resistor() if e.kind == "R" else elm.Capacitor()
+        trimmed = trims is not None and e.name in trims
+        part = (elm.ResistorVar() if trimmed else elm.Resistor()) if e.kind == "R" \
+            else elm.Capacitor()
         part = part.at(p1).to(p2)
+        name = f"{e.name} (trim)" if trimmed else e.name
+        value = trims[e.name] if trimmed else _value(e)
         if i in lay.combed:
-            part.label(f"{e.name}\n{_value(e)}", loc="bottom")
+            part.label(f"{name}\n{value}", loc="bottom")
             d.add(part)
             d.add(elm.Ground().theta(0).at(p2))
         elif i in lay.grounded:
-            part.label(e.name, loc="top").label(_value(e), loc="bottom")
+            part.label(name, loc="top").label(value, loc="bottom")
             d.add(part)
             d.add(elm.Ground().theta(0).at(p2))
         else:
-            part.label(e.name, loc="top").label(_value(e), loc="bottom")
+            part.label(name, loc="top").label(value, loc="bottom")
             d.add(part)
     outs = {}
     for i, out_pt, flip in lay.opamps:
@@ -485,7 +493,7 @@ def _local_names(chain: Chain, stage) -> dict:
     return out
 
 
-def stage_svg(chain: Chain, stage) -> bytes:
+def stage_svg(chain: Chain, stage, *, trims: dict | None = None) -> bytes:
     """The schematic of one stage with its part values, nets named as in the chain.
 
     Parameters
@@ -503,7 +511,7 @@ def stage_svg(chain: Chain, stage) -> bytes:
     what = "" if stage.kind == "gain" else f", f0 {fmt_hz(t.f0_hz)}, Q {t.q:.3g}"
     title = (f"Stage {stage.position}: {stage.kind}, {stage.topology}{what}, gain {t.gain:.3g} "
              f"(as built)")
-    return elements_svg(stage.elements, net_names=names, title=title)
+    return elements_svg(stage.elements, net_names=names, title=title, trims=trims)
 
 
 def _db(gain: float) -> str:
@@ -560,15 +568,24 @@ def block_svg(chain: Chain, *, per_row: int = 4) -> bytes:
     return d.get_imagedata("svg")
 
 
-def schematic_files(chain: Chain | None) -> dict[str, bytes]:
+def schematic_files(chain: Chain | None, *, tuning_plan=None) -> dict[str, bytes]:
     """{"schematic_stage1.svg": ..., …, "block.svg": ...} for a built chain ({} if none).
 
     Parameters
     ----------
     chain : Chain or None
+    tuning_plan : TuningPlan, optional
+        Its trimmed parts are drawn as variable resistors, "set = fixed + trimmer".
     """
     if chain is None:
         return {}
-    out = {f"schematic_stage{st.position}.svg": stage_svg(chain, st) for st in chain.stages}
+    trims: dict[int, dict[str, str]] = {}
+    for s in (tuning_plan.steps if tuning_plan is not None else ()):
+        trims.setdefault(s.stage, {})[s.trims] = (
+            f"{format_value(s.design_ohms, 'Ω')} = {format_value(s.fixed_ohms, 'Ω')} + "
+            f"{format_value(s.trimmer_ohms, 'Ω')} trim")
+    out = {f"schematic_stage{st.position}.svg": stage_svg(chain, st,
+                                                          trims=trims.get(st.position))
+           for st in chain.stages}
     out["block.svg"] = block_svg(chain)
     return out

@@ -107,6 +107,7 @@ def render_plan(p, console: Console) -> None:
             _say(console, ordering_built_text(o))
     if getattr(d, "yield_result", None) is not None:
         _yield(d.yield_result, console)
+    _tuning(p, console)
     if d.analyses is not None:
         from bandwright.report.time_view import render_time
         render_time(d.analyses, console)
@@ -120,11 +121,22 @@ def render_audit(a, console: Console) -> None:
     _chain(a.chain, a.analyses, console, first="ideal")
     _say(console, "ideal: the parts as given with an ideal op-amp; built: with this op-amp "
                   "(finite GBW), the first stage as the source drives it")
+    _tuning(a, console)
     from bandwright.report.time_view import render_time
     render_time(a.analyses, console)
     _checks(a.checks, console)
     from bandwright.report.diagnosis_view import render_diagnosis
     render_diagnosis(a, console)
+
+
+def _tuning(obj, console: Console) -> None:
+    """The tuning procedure as numbered steps (``report.tuning``), when there is one."""
+    from bandwright.report.tuning import tuning_of, tuning_terminal
+    lines = tuning_terminal(tuning_of(obj))
+    if lines:
+        _say(console, lines[0], style="bold")
+        for line in lines[1:]:
+            _say(console, "  " + line)
 
 
 def _yield(y, console: Console) -> None:

@@ -7,6 +7,7 @@
 | ``verdicts`` | per board: mask, headroom, and the worst excess in dB |
 | ``drivers`` | which parts decide a failure (first-order indices) |
 | ``run`` | ``monte_carlo``: the run over every chunk, its ``YieldResult`` and interval |
+| ``tuned`` | the tuned mode: every board trimmed by a tuning plan, then judged |
 
 What tighter parts would give is advice: ``bandwright.advice.tolerance``.
 """
