@@ -37,7 +37,7 @@ from schemdraw import flow
 from bandwright.chain.graph import CHAIN_INPUT, Chain, global_net
 from bandwright.circuits.elements import GROUND, Element
 from bandwright.parts.notation import format_value
-from bandwright.report.terminal import fmt_hz
+from bandwright.parts.notation import format_hz as fmt_hz
 
 __all__ = ["stage_svg", "block_svg", "schematic_files", "elements_svg", "Layout", "layout",
            "opamp_pins"]
