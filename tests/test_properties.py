@@ -184,7 +184,7 @@ def _part_values(name: str):
 def random_stage(draw):
     name = draw(st.sampled_from(TOPOLOGY_NAMES))
     topo = topology(name)
-    optional = set(getattr(topo, "OPTIONAL_PARTS", ()))
+    optional = set(topo.OPTIONAL_PARTS)
     parts = {}
     for p in topo.PARTS:
         if p in optional and draw(st.booleans()):

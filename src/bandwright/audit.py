@@ -94,7 +94,7 @@ def _build_stage(path: str, position: int, topo, parts, model, key: str,
                  reason="as given in the audit file")
 
 
-def _passband_from_response(chain: Chain, req_common: dict) -> Passband:
+def _passband_from_response(chain: Chain) -> Passband:
     """The -3 dB band around the built response's peak (for grids only, no mask)."""
     from bandwright.analysis.levels import net_transfers
     fs = [st.built.f0_hz for st in chain.stages if st.kind != "gain" and st.built.f0_hz > 0]
@@ -150,7 +150,7 @@ def audit(path: str | Path, *, measured: str | Path | None = None,
     chain = build_chain(stages, source_ohms=common["input"].source_ohms)
     has_mask = req is not None
     if req is None:
-        req = Requirement(path=p, passband=_passband_from_response(chain, common),
+        req = Requirement(path=p, passband=_passband_from_response(chain),
                           input=common["input"], supply=common["supply"],
                           amplifier=common["amplifier"], environment=common["environment"],
                           noise=common["noise"], tolerance=common["tolerance"],

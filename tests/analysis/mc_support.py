@@ -27,7 +27,7 @@ __all__ = ["MODEL", "stage_of", "mfb_chain", "mixed_chain", "requirement_around"
 def stage_of(topo, position: int, f0_hz: float, q: float, gain: float,
              model: OpAmp = MODEL, c_farads: float = 10e-9) -> Stage:
     """A stage built from a topology's design equations (exact values, finite GBW)."""
-    sign = -1.0 if getattr(topo, "INVERTING", False) else 1.0
+    sign = -1.0 if topo.INVERTING else 1.0
     target = Section(kind="bandpass", f0_hz=f0_hz, q=q, gain=sign * gain)
     comps = topo.design(target, c_farads=c_farads)
     els = tuple(topo.elements(comps, model))

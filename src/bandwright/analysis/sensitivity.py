@@ -101,11 +101,6 @@ class StageSensitivity:
         i = self.parts.index(part)
         return self.f0[i], self.q[i], self.gain[i]
 
-    @property
-    def worst_weight(self) -> float:
-        """`weight` of `worst_part`."""
-        return self.weight[self.parts.index(self.worst_part)]
-
 
 def _log_figures(stage: Stage, values: np.ndarray, gbw_scale: np.ndarray | None
                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

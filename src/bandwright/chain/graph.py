@@ -78,15 +78,6 @@ class Chain:
         (a, _, d), = self.graph.in_edges(net, data=True)
         return d["stage"]
 
-    def path_to(self, net: str) -> list[tuple[Stage, str, str]]:
-        """(stage, its input net, local net) for every edge from the chain input to `net`."""
-        path = nx.shortest_path(self.graph, CHAIN_INPUT, net)
-        out = []
-        for a, b in zip(path[:-1], path[1:]):
-            d = self.graph.edges[a, b]
-            out.append((d["stage"], a, d["local"]))
-        return out
-
 
 def build_chain(stages: Sequence[Stage], *, source_ohms: float = 0.0) -> Chain:
     """Join `stages` in order: each stage's input is the previous stage's "out"."""

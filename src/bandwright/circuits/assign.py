@@ -245,7 +245,7 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
             continue
         # Each topology is asked for the gain with its own sign: an inverting circuit
         # realises -|G|; the chain's reference gain is a magnitude (docs/design.md).
-        sign = -1.0 if getattr(topo, "INVERTING", False) else 1.0
+        sign = -1.0 if topo.INVERTING else 1.0
         signed = Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q,
                          gain=sign * abs(section.gain))
         try:
@@ -339,7 +339,7 @@ def _with_shortfall(section: Section, model: OpAmp, rejected: list[tuple[str, st
         reach = _natural_gain(topo, section.q)
         if not reach < abs(section.gain) <= SHORTFALL_MAX * reach:
             continue
-        sign = -1.0 if getattr(topo, "INVERTING", False) else 1.0
+        sign = -1.0 if topo.INVERTING else 1.0
         try:
             lim = topo.limits(Section(kind=section.kind, f0_hz=section.f0_hz, q=section.q,
                                       gain=sign * abs(section.gain)), model,

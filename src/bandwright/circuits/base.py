@@ -10,7 +10,7 @@ from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 from bandwright.vocabulary import StageKind
 
-__all__ = ["Topology", "Limits", "Figures"]
+__all__ = ["Topology", "BandpassTopology", "GainStageTopology", "Limits", "Figures"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -56,17 +56,70 @@ class Limits:
 
 
 class Topology(Protocol):
-    """The module-level interface of every ``circuits/<name>.py``."""
+    """The module-level interface of every ``circuits/<name>.py``.
+
+    Attributes
+    ----------
+    NAME : str
+        The topology's name in plan, chain and report files.
+    KIND : StageKind
+        The kind of section it builds.
+    OPAMPS : int
+        Number of op-amps.
+    PARTS : tuple of str
+        Its passive parts, in the order files list them.
+    OPTIONAL_PARTS : tuple of str
+        The parts of `PARTS` a chain file may leave out (empty: every part is needed).
+    NETS : Mapping[str, str]
+        Its local nets and what each one is.
+    REFERENCE : str
+        The published source of its design equations.
+    INVERTING : bool
+        True when its passband gain is -|gain|; the chain's gains are magnitudes, so every
+        caller gives a section the sign this flag says (docs/design.md).
+
+    Notes
+    -----
+    ``limits`` takes keyword options by kind, each with a default so a bare
+    ``limits(section, model)`` always works: the bandpass topologies (`BandpassTopology`)
+    take the part tolerances of their Q-shift rule, a spread limit and
+    `accept_gain_shortfall`; the gain stages (`GainStageTopology`) take the highest
+    frequency they must pass; lowpass and highpass sections take none.
+    """
 
     NAME: str
     KIND: StageKind
     OPAMPS: int
     PARTS: tuple[str, ...]
+    OPTIONAL_PARTS: tuple[str, ...]
     NETS: Mapping[str, str]
     REFERENCE: str
+    INVERTING: bool
 
     def design(self, section: Section, *, c_farads: float) -> dict[str, float]: ...
 
     def elements(self, components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]: ...
 
     def limits(self, section: Section, model: OpAmp) -> Limits: ...
+
+
+class BandpassTopology(Topology, Protocol):
+    """A bandpass ``Topology``: its ``limits`` judge the Q shift at the part tolerances.
+
+    ``limits`` options: `r_tolerance`, `c_tolerance` (relative; None for `c_tolerance`:
+    the resistors'), `max_spread` (the largest component ratio allowed) and
+    `accept_gain_shortfall` (feasible at the topology's natural gain when the asked gain is
+    out of reach).
+    """
+
+    def limits(self, section: Section, model: OpAmp, *, r_tolerance: float = ...,
+               c_tolerance: float | None = None, max_spread: float = ...,
+               accept_gain_shortfall: bool = False) -> Limits: ...
+
+
+class GainStageTopology(Topology, Protocol):
+    """A gain-stage ``Topology``: its ``limits`` take the highest frequency it must pass
+    (`max_freq_hz`; None: its own default)."""
+
+    def limits(self, section: Section, model: OpAmp, *,
+               max_freq_hz: float | None = None) -> Limits: ...

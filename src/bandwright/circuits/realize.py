@@ -29,18 +29,42 @@ __all__ = ["Realization", "realize", "figure_error", "choose_capacitor", "predis
            "impedance_target_ohms",
            "round_to_series"]
 
+# The design equations are run at 1 nF and then scaled: any value would do, this one is mid-window.
 _REFERENCE_C_FARADS = 1e-9
+# Predistortion converges in a few steps while f0/GBW is small; more only where it will not.
 _PREDISTORT_STEPS = 12
+# Grid sweeps per block: each recentres on the last best point; the error stops falling sooner.
 _SEARCH_SWEEPS = 4
+# A gain error under 0.1 % is left alone (see ``predistort``).
 _GAIN_DEADBAND = 1e-3
+# Gauss-Newton iterations for the exact resistors: quadratic convergence needs far fewer.
 _SOLVE_STEPS = 20
 _GRID_MAX = 729  # 3^6: every ±1 combination of a six-part section
 _WIDE_GRID_MAX = 625  # 5^4: every ±2 combination of a four-part section
+# Parts moved at once when a section is too large for one ±1 grid (3^5 = 243 points).
 _BLOCK = 5
+# Best solved capacitor combinations that are rounded: which rounds best shows only after.
 _CAP_STARTS = 3
 # A rounded design this close (about 0.03 dB at the band edge) needs no second search.
 _GOOD_ENOUGH = 1.5e-5
-_NEIGHBOURS = 2
+_NEIGHBOURS = 2  # ±2 series steps per part where the grid stays within _WIDE_GRID_MAX
+# Predistortion stops once every figure is this close (relative): far below any part tolerance.
+_PREDISTORT_TOL = 1e-7
+# Finite-difference step in log R: about the square root of the solver's own rounding, so the
+# Jacobian's truncation and rounding errors are of one size.
+_FD_STEP = 1e-5
+# Largest Gauss-Newton step in log R (a factor e^0.5 ≈ 1.65): keeps each step where the
+# linearisation still holds.
+_MAX_LOG_STEP = 0.5
+# A step this small in log R (a part-per-billion change of a resistor) has converged.
+_STEP_TOL = 1e-9
+# A grid point must beat the best by more than rounding to count as better.
+_IMPROVEMENT_TOL = 1e-15
+# No resistor below this many times the op-amp's minimum load: any may hang on an output.
+_MIN_LOAD_FACTOR = 4
+_KELVIN_OFFSET = 273.15
+# A gain stage has no f0: its figures are read at this frequency (far below any GBW).
+_GAIN_STAGE_NEAR_HZ = 1.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -107,7 +131,7 @@ def figure_error(fig: Figures, target: Section) -> float:
 def _figures(topo: ModuleType, components: Mapping[str, float], model: OpAmp,
              target: Section, source_ohms: float = 0.0) -> tuple[tuple[Element, ...], Figures]:
     elements = tuple(topo.elements(components, model))
-    near = target.f0_hz if target.kind != "gain" else 1.0
+    near = target.f0_hz if target.kind != "gain" else _GAIN_STAGE_NEAR_HZ
     return elements, section_figures(elements, kind=target.kind, near_hz=near,
                                      source_ohms=source_ohms)
 
@@ -126,7 +150,7 @@ def impedance_target_ohms(model: OpAmp | None, windows: PartWindows,
     """
     if model is None or not model.noise_v_per_rthz > 0:
         return None
-    kt4 = 4 * BOLTZMANN_J_PER_K * (temperature_c + 273.15)
+    kt4 = 4 * BOLTZMANN_J_PER_K * (temperature_c + _KELVIN_OFFSET)
     r = model.noise_v_per_rthz**2 / kt4
     if model.noise_a_per_rthz > 0:
         r = min(r, model.noise_v_per_rthz / model.noise_a_per_rthz)
@@ -154,9 +178,7 @@ def choose_capacitor(topo: ModuleType, section: Section, *, series: str,
     r = np.array([v for n, v in values.items() if n.startswith("R")])
     c = np.array([v for n, v in values.items() if n.startswith("C")])
     if target is not None and r.size and c.size:
-        # No resistor below four times the op-amp's minimum load: any of them may hang on
-        # an op-amp output.
-        floor = max(windows.r_min_ohms, 4 * model.min_load_ohms)
+        floor = max(windows.r_min_ohms, _MIN_LOAD_FACTOR * model.min_load_ohms)
         k_lo = max(floor / r.min(), c.max() / windows.c_max_farads)
         k_hi = min(windows.r_max_ohms / r.max(), c.min() / windows.c_min_farads)
         if k_lo <= k_hi:
@@ -180,7 +202,7 @@ def predistort(topo: ModuleType, target: Section, model: OpAmp, *, c_farads: flo
     for _ in range(_PREDISTORT_STEPS):
         _, fig = _figures(topo, values, model, target, source_ohms)
         df, dq, dg = _relative(fig, target)
-        if max(abs(df), abs(dq), abs(dg) if abs(dg) > _GAIN_DEADBAND else 0.0) < 1e-7 \
+        if max(abs(df), abs(dq), abs(dg) if abs(dg) > _GAIN_DEADBAND else 0.0) < _PREDISTORT_TOL \
                 or fig.q <= 0:
             break
         # A built figure of zero (an open-loop gain near 1, a source of 1 TΩ) or worse has
@@ -250,8 +272,8 @@ def solve_resistors(elements: tuple[Element, ...], starts: np.ndarray, target: S
     free = np.flatnonzero([n.startswith("R") for n in names])
     x = np.log(np.asarray(starts, dtype=float))
     k_count, n_free = x.shape[0], free.size
-    near = target.f0_hz if target.kind != "gain" else 1.0
-    h = 1e-5
+    near = target.f0_hz if target.kind != "gain" else _GAIN_STAGE_NEAR_HZ
+    h = _FD_STEP
     for _ in range(_SOLVE_STEPS if n_free else 0):
         probes = np.repeat(x[:, None, :], 1 + n_free, axis=1)       # (K, 1+F, P)
         probes[:, np.arange(1, n_free + 1), free] += h
@@ -264,9 +286,9 @@ def solve_resistors(elements: tuple[Element, ...], starts: np.ndarray, target: S
         jac = np.where(ok[:, None, None], jac, 0.0)
         rhs = np.where(ok[:, None], -r[:, 0], 0.0)
         step = np.linalg.pinv(jac) @ rhs[..., None]
-        step = np.clip(step[..., 0], -0.5, 0.5)
+        step = np.clip(step[..., 0], -_MAX_LOG_STEP, _MAX_LOG_STEP)
         x[:, free] += step
-        if np.max(np.abs(step)) < 1e-9:
+        if np.max(np.abs(step)) < _STEP_TOL:
             break
     vals = np.exp(x)
     f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near, values=vals,
@@ -291,7 +313,7 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
     steps = _NEIGHBOURS if (2 * _NEIGHBOURS + 1) ** len(moving) <= _WIDE_GRID_MAX else 1
     blocks = [moving] if 3 ** len(moving) <= _GRID_MAX else \
         [moving[i:i + _BLOCK] for i in range(0, len(moving), _BLOCK)]
-    near = target.f0_hz if target.kind != "gain" else 1.0
+    near = target.f0_hz if target.kind != "gain" else _GAIN_STAGE_NEAR_HZ
     best_err = math.inf
     seen: dict[bytes, float] = {}  # a recentred grid shares most of its points
     for _ in range(_SEARCH_SWEEPS * len(blocks)):
@@ -310,7 +332,7 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
                     seen[key] = float(e)
             err = np.array([seen[k] for k in keys])
             k = int(np.argmin(err))
-            if err[k] < best_err - 1e-15:
+            if err[k] < best_err - _IMPROVEMENT_TOL:
                 best_err, improved = float(err[k]), True
                 current = {n: float(v) for n, v in zip(names, grid[k])}
         if not improved:
@@ -334,7 +356,7 @@ def round_to_series(topo: ModuleType, values: Mapping[str, float], target: Secti
 
     elements = tuple(topo.elements(values, model))
     names = passive_names(elements)
-    near = target.f0_hz if target.kind != "gain" else 1.0
+    near = target.f0_hz if target.kind != "gain" else _GAIN_STAGE_NEAR_HZ
     if not names:  # a follower: nothing to round
         return dict(values), elements, section_figures(elements, kind=target.kind,
                                                        near_hz=near, source_ohms=source_ohms)

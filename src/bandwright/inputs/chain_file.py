@@ -48,7 +48,7 @@ def _unit_clash(name: str, raw) -> str:
 def _stage_parts(path: str, key: str, topo, table) -> dict[str, float]:
     if not isinstance(table, dict):
         raise SpecError(path, key, "expected a table of part = value", value=table)
-    optional = set(getattr(topo, "OPTIONAL_PARTS", ()))
+    optional = set(topo.OPTIONAL_PARTS)
     required = [p for p in topo.PARTS if p not in optional]
     for name in table:
         if name not in topo.PARTS:

@@ -63,7 +63,7 @@ def _value(part: str, value: float | None) -> str:
 
 
 def _fhz(f: float) -> str:
-    from bandwright.report.terminal import fmt_hz
+    from bandwright.parts.notation import format_hz as fmt_hz
     return fmt_hz(f) if f > 0 else "—"
 
 

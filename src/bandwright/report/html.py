@@ -18,10 +18,11 @@ import re
 
 from bandwright import __version__
 from bandwright.checks.base import worst_status
+from bandwright.parts.notation import format_hz as fmt_hz
 from bandwright.parts.notation import format_value
 from bandwright.report import converter_view
-from bandwright.report.subject import Subject, net_label, stage_label, subject_of
-from bandwright.report.terminal import fmt_hz, ordering_built_text
+from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
+from bandwright.report.terminal import ordering_built_text
 
 __all__ = ["html_report", "SECTION_IDS", "svg_inline", "verdict_text"]
 
@@ -459,7 +460,6 @@ def _noise(s: Subject) -> str:
     if an is None:
         out.append('<p class="note">No chain was built.</p></section>')
         return "".join(out)
-    from bandwright.report.plots import source_label
     nz = an.noise
     out.append(
         f"<p>Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over "

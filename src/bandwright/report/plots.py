@@ -38,8 +38,8 @@ from matplotlib.patches import Patch, Rectangle
 from matplotlib.ticker import EngFormatter, MaxNLocator, NullFormatter, NullLocator
 
 from bandwright.analysis.levels import net_transfers
-from bandwright.report.subject import Subject, net_label, stage_label, subject_of
-from bandwright.report.terminal import fmt_hz
+from bandwright.parts.notation import format_hz as fmt_hz
+from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
 from bandwright.sections.split import cascade_response
 
 __all__ = ["plot_files", "plot_figures", "PLOT_NAMES", "DPI", "SIZE_PX", "source_label",
@@ -293,28 +293,6 @@ def _levels(s: Subject) -> Figure:
 
 
 # --------------------------------------------------------------------------- noise
-
-
-def source_label(chain, name: str) -> str:
-    """A noise source in words: "stage 1 R2, thermal", "stage 2 U1, current noise into −".
-
-    Parameters
-    ----------
-    chain : Chain
-    name : str
-        A key of ``NoiseAnalysis.contributions_psd`` ("R2_s1", "U1_s2 voltage",
-        "U1_s2 current-", "Rsource").
-    """
-    if name == "Rsource":
-        return "source resistance, thermal"
-    part, _, what = name.partition(" ")
-    ref, _, pos = part.rpartition("_s")
-    if not pos.isdigit():
-        return name
-    where = f"stage {pos} {ref}"
-    return {"": f"{where}, thermal", "voltage": f"{where}, voltage noise",
-            "current+": f"{where}, current noise into +",
-            "current-": f"{where}, current noise into −"}.get(what, f"{where} {what}")
 
 
 def _noise(s: Subject) -> Figure:

@@ -37,7 +37,7 @@ from schemdraw import flow
 from bandwright.chain.graph import CHAIN_INPUT, Chain, global_net
 from bandwright.circuits.elements import GROUND, Element
 from bandwright.parts.notation import format_value
-from bandwright.report.terminal import fmt_hz
+from bandwright.parts.notation import format_hz as fmt_hz
 
 __all__ = ["stage_svg", "block_svg", "schematic_files", "elements_svg", "Layout", "layout",
            "opamp_pins"]
@@ -45,7 +45,7 @@ __all__ = ["stage_svg", "block_svg", "schematic_files", "elements_svg", "Layout"
 GAP = 4.4          # between adjacent buses
 ROW = 2.6          # between rows of parts
 PIN = 0.625        # half the op-amp's input pin spacing (schemdraw's Opamp)
-OPAMP_W = 2.1650635094610964  # schemdraw Opamp, input pins to output
+OPAMP_W = 1.25 * math.sqrt(3)  # schemdraw Opamp, input pins to output (its triangle)
 OUT_LEAD = 0.5     # wire from an op-amp output to its bus
 STUB = 0.45        # wire from an op-amp input pin before it turns
 DROP = 2.4         # length of a part hanging to ground

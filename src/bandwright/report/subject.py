@@ -12,7 +12,7 @@ from typing import Any
 
 from bandwright.chain.graph import CHAIN_INPUT, Chain
 
-__all__ = ["Subject", "subject_of", "net_label", "stage_label"]
+__all__ = ["Subject", "subject_of", "net_label", "stage_label", "source_label"]
 
 
 @dataclass(frozen=True)
@@ -97,3 +97,25 @@ def net_label(chain: Chain, net: str) -> str:
     if d["stage"] is None:
         return "converter input"
     return f"{stage_label(d['stage'])} {d['local']}"
+
+
+def source_label(chain, name: str) -> str:
+    """A noise source in words: "stage 1 R2, thermal", "stage 2 U1, current noise into −".
+
+    Parameters
+    ----------
+    chain : Chain
+    name : str
+        A key of ``NoiseAnalysis.contributions_psd`` ("R2_s1", "U1_s2 voltage",
+        "U1_s2 current-", "Rsource").
+    """
+    if name == "Rsource":
+        return "source resistance, thermal"
+    part, _, what = name.partition(" ")
+    ref, _, pos = part.rpartition("_s")
+    if not pos.isdigit():
+        return name
+    where = f"stage {pos} {ref}"
+    return {"": f"{where}, thermal", "voltage": f"{where}, voltage noise",
+            "current+": f"{where}, current noise into +",
+            "current-": f"{where}, current noise into −"}.get(what, f"{where} {what}")
