@@ -243,7 +243,7 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
     for st in chain.stages:
         if st.kind != "bandpass":
             continue
-        inverting = bool(getattr(topology(st.topology), "INVERTING", False))
+        inverting = bool(topology(st.topology).INVERTING)
         sens = stage_sensitivity(st)
         resistors = {e.name for e in st.elements if e.kind == "R"}
         values = {e.name: e.value for e in st.elements}
@@ -332,7 +332,7 @@ def plan_from_trims(chain: Chain, trims: dict[int, dict[str, tuple[float, float]
         mine = dict(trims.get(st.position, {}))
         if not mine or st.kind != "bandpass":
             continue
-        inverting = bool(getattr(topology(st.topology), "INVERTING", False))
+        inverting = bool(topology(st.topology).INVERTING)
         sens = stage_sensitivity(st)
         rows = {"f0": sens.f0, "q": sens.q, "gain": sens.gain}
         built = {"f0": st.built.f0_hz, "q": st.built.q, "gain": abs(st.built.gain)}
