@@ -173,20 +173,26 @@ def bom_for(chain: Chain, req, *, planned: bool, tuning=None) -> str:
                    extra_rows=trims.bom_trimmer_rows(plan))
 
 
-def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
-           planned: bool, tuning=None) -> dict[str, bytes]:
+def _deck(chain: Chain, req, title: str, plan=None) -> str:
+    """chain.cir: the chain with its reference network and rails on a single supply, the
+    source's DC level, the converter's input load on "out" (not in the BOM), and with a
+    tuning `plan` each trimmed part as its fixed part plus its trimmer."""
     from bandwright.report import tuning as trims
-    plan = None if tuning is None else tuning.plan
     reference = chain_reference(chain, req)
     flat = flatten(chain, reference)
     elements = flat if plan is None else trims.trimmed_elements(flat, plan)
-    # The converter's input load sits on "out" in the deck too (not in the BOM); a single
-    # supply's deck carries its rail and the source's DC level.
-    deck = spice_deck(tuple(elements) + tuple(converter_elements(chain)),
+    return spice_deck(tuple(elements) + tuple(converter_elements(chain)),
                       source_ohms=chain.source_ohms,
                       temperature_c=req.environment.temperature_c, title=title,
                       dc_v=req.input.dc_v,
                       supply_v=reference.supply_v if reference.single else None)
+
+
+def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
+           planned: bool, tuning=None) -> dict[str, bytes]:
+    from bandwright.report import tuning as trims
+    plan = None if tuning is None else tuning.plan
+    deck = _deck(chain, req, title, plan)
     toml = chain_toml(chain, req, title=title)
     bom = bom_for(chain, req, planned=planned, tuning=tuning)
     if plan is not None:
