@@ -28,7 +28,7 @@ from bandwright.report.json_out import dumps, plan_to_dict
 from bandwright.report.terminal import render_plan
 from bandwright.inputs import spec_from_dict
 
-from conftest import run_cli
+from conftest import exit_code_of, run_cli
 from trust_support import (NON_FINITE_WORD, missing_figures, non_finite_paths,
                            recompute_mask, terminal_text)
 
@@ -162,7 +162,9 @@ def test_extreme_plan_json_is_the_same_in_two_processes(name, write_spec):
     or the order of a set. (Python's hash seed differs between processes unless pinned.)"""
     spec = write_spec(_toml(GRID[name][0]))
     first, second = run_cli("plan", spec, "--json"), run_cli("plan", spec, "--json")
-    assert first.returncode == second.returncode == 1  # the yield check fails at 10 samples
     assert first.stdout and first.stdout == second.stdout
+    # At 10 samples the untrimmed yield misses; whether the tuning plan rescues it, both
+    # processes say the same and their exit status is the one the checks imply.
+    assert first.returncode == second.returncode == exit_code_of(json.loads(first.stdout))
     here = plan(spec_from_dict(GRID[name][0], path=str(spec)))
     assert json.loads(first.stdout) == json.loads(dumps(plan_to_dict(here)))

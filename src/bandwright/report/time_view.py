@@ -103,9 +103,13 @@ def time_figure(tf, *, low_hz: float, high_hz: float, size_in: tuple[float, floa
     t_ms = b.t_s * 1e3
     env_ax.plot(t_ms, np.where(b.t_s <= b.burst_s, 1.0, 0.0), color=grey, linewidth=1.0,
                 label="input envelope")
-    for other in tf.bursts[1:]:
+    for i, other in enumerate(tf.bursts[1:]):
+        # The edge tones' envelopes, faint: an edge burst can overshoot where the centre's
+        # does not (its switch-off transient rings at the nearest pole pair).
         env_ax.plot(other.t_s * 1e3, other.envelope / other.gain, color=colour, alpha=0.35,
-                    linewidth=0.8)
+                    linewidth=0.8,
+                    label=None if i else "output envelopes at the band edges " +
+                    " and ".join(f"{o.freq_hz:.4g} Hz" for o in tf.bursts[1:]))
     env_ax.plot(t_ms, b.envelope / b.gain, color=colour, linewidth=1.4,
                 label=f"output envelope at {b.freq_hz:.4g} Hz")
     _crossings(env_ax, b, colour)
