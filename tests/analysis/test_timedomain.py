@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import functools
 import math
+import re
 from pathlib import Path
 
 import numpy as np
@@ -152,7 +153,9 @@ def test_single_section_envelope_rises_with_time_constant_2q_over_w0():
 
 def _tran(deck: str, sources: list[str], t_stop: float, t_step: float, nets, tmp_path,
           tag: str) -> dict[str, np.ndarray]:
-    text = deck.replace("VIN src 0 AC 1 DC 0", "\n".join(sources))
+    # The deck's small-signal source (VIN src 0 DC <dc_v> AC 1) gives way to the transient ones.
+    text = re.sub(r"(?m)^VIN src 0 .*$", lambda _: "\n".join(sources), deck, count=1)
+    assert text != deck
     probes = " ".join(f"v({n})" for n in nets)
     text = with_control(text, [WRDATA_SETUP, f"tran {t_step!r} {t_stop!r} 0 {t_step!r} uic",
                                f"linearize {probes}", f"wrdata {tag}.txt {probes}"])
