@@ -10,7 +10,7 @@ from typing import Any, Callable
 
 from bandwright.inputs.requirement import Requirement
 
-__all__ = ["with_gain_advice"]
+__all__ = ["with_gain_advice", "advise_on_headroom"]
 
 # The gain advice plans at most this many times; below the least gain a requirement may
 # ask (passband.gain_db >= -60 dB) it stops.
@@ -79,9 +79,15 @@ def with_gain_advice(design, req: Requirement, rebuild: Callable[[Requirement], 
                   f"{where} with "
                   f"{_volts(inp.max_vpk)} in{tones} (asked: {pb.gain_db:g} dB; planned at "
                   f"{found[0]:.1f} dB, the worst margin is {found[1]:+.1f} dB)")
+    return advise_on_headroom(design, worst.net, advice)
+
+
+def advise_on_headroom(design, net: str, advice: str):
+    """`design` with `advice` added to the message of its first failing headroom check on
+    `net` (the worst clipping net, where every fix is said once)."""
     out, done = [], False
     for c in design.checks:
-        if not done and c.id == "headroom" and c.status == "fail" and c.net == worst.net:
+        if not done and c.id == "headroom" and c.status == "fail" and c.net == net:
             c = replace(c, message=c.message + advice)
             done = True
         out.append(c)

@@ -11,6 +11,7 @@ import math
 from dataclasses import replace
 from typing import Any, Callable
 
+from bandwright.advice.gain import advise_on_headroom
 from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.inputs.requirement import AmplifierChoice, Requirement, Supply
 from bandwright.parts.catalogue import ARCHETYPES
@@ -93,10 +94,4 @@ def with_supply_advice(design, req: Requirement,
                          f"margin {margin:+.1f} dB")
     why += ("; fixes: " + "; ".join(fixes)) if fixes else "; no rail-to-rail class or " \
         "common supply up to 36 V was found to fit: lower the gain or input.max_vpk"
-    out, done = [], False
-    for c in design.checks:
-        if not done and c.id == "headroom" and c.status == "fail" and c.net == worst.net:
-            c = replace(c, message=c.message + why)
-            done = True
-        out.append(c)
-    return replace(design, checks=tuple(out))
+    return advise_on_headroom(design, worst.net, why)
