@@ -21,7 +21,7 @@ from bandwright.analysis.response import MaskReading
 from bandwright.checks.base import Check
 from bandwright.checks.mask import mask_checks
 from bandwright.circuits.base import Figures
-from bandwright.diagnosis.fit import (DEG_PER_RAD, FitResult, Measurement, SingleFit,
+from bandwright.diagnosis.fit import (DEG_PER_RAD, Measurement, SingleFit,
                                       fit_all, fit_each, roughness)
 from bandwright.diagnosis.model import DB_PER_NEPER, ChainModel, Variable
 from bandwright.inputs.sweep_file import Sweep, check_covers
