@@ -3,21 +3,17 @@ report.html."""
 
 from __future__ import annotations
 
-import csv
-import io
 from typing import Any
 
 from bandwright.analysis.montecarlo import resolve_spreads
 from bandwright.analysis.bias import chain_reference
 from bandwright.chain.graph import Chain, converter_elements, flatten
 from bandwright.parts.catalogue import ARCHETYPES
-from bandwright.parts.eseries import SERIES_NAMES, is_member
 from bandwright.parts.notation import format_value
-from bandwright.parts.tolerance import default_tolerance_pct, dielectric
+from bandwright.report.bom import bom_for
 from bandwright.report.spice import spice_deck
 
-__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "converter_lines",
-           "bom_for"]
+__all__ = ["plan_files", "audit_files", "chain_toml", "converter_lines"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
              "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz",
@@ -107,70 +103,6 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
             out += _amplifier_lines(st.model, "[stage.amplifier]")
         out.append("")
     return "\n".join(out)
-
-
-def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
-            r_pct: float | None = None, c_pct: float | None = None, reference=None,
-            elements=None, extra_rows=()) -> str:
-    """Bill of materials: one row per distinct part, with designators and quantity.
-
-    The tolerance is the one the yield was computed for (`r_pct`, `c_pct`), else the one
-    customary for the part's series (common practice, ``parts.tolerance``). `elements`
-    replaces the chain's flat element list (a tuned chain's fixed parts); `extra_rows` are
-    appended as given (its trimmers).
-    """
-    rows: dict[tuple, list[str]] = {}
-    for e in (flatten(chain, reference) if elements is None else elements):
-        if e.kind == "opamp":
-            key = ("op-amp", e.model.name, "", "", "")
-        else:
-            series = r_series if e.kind == "R" else c_series
-            if series is None or not is_member(e.value, series):
-                # E3's values are E6 values: name the coarsest series parts are sold in.
-                series = next((s for s in SERIES_NAMES[1:] if is_member(e.value, s)), "")
-            pct = r_pct if e.kind == "R" else c_pct
-            if pct is None and series:
-                pct = default_tolerance_pct(series)
-            tol = f"{pct:g} %" if pct is not None else ""
-            unit = "Ω" if e.kind == "R" else "F"
-            key = ("resistor" if e.kind == "R" else "capacitor", format_value(e.value, unit),
-                   series, tol, dielectric(e.value) if e.kind == "C" else "")
-        rows.setdefault(key, []).append(e.name)
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["designators", "part", "value", "series", "tolerance", "dielectric", "quantity"])
-    for key, refs in rows.items():
-        w.writerow([" ".join(refs), key[0], key[1], key[2], key[3], key[4], len(refs)])
-    for row in extra_rows:
-        w.writerow(row)
-    return buf.getvalue()
-
-
-def bom_args(req, *, planned: bool) -> dict[str, Any]:
-    """The series and tolerances the BOM states: a plan's series and the tolerances its yield
-    used; an audit's explicit `[tolerance]` only (its parts' series are not known)."""
-    if planned:
-        spreads = resolve_spreads(req)
-        return {"r_series": req.design.resistor_series, "c_series": req.design.capacitor_series,
-                "r_pct": spreads.resistor_pct, "c_pct": spreads.capacitor_pct}
-    return {"r_series": None, "c_series": None, "r_pct": req.tolerance.resistor_pct,
-            "c_pct": req.tolerance.capacitor_pct}
-
-
-def bom_for(chain: Chain, req, *, planned: bool, tuning=None) -> str:
-    """bom.csv of a chain (with its single-supply reference network): with a tuning plan,
-    each trimmed part at its fixed value and a row per trimmer value
-    (``report.tuning.bom_trimmer_rows``)."""
-    reference = chain_reference(chain, req)
-    if tuning is None:
-        return bom_csv(chain, **bom_args(req, planned=planned), reference=reference)
-    from bandwright.report import tuning as trims
-    plan = tuning.plan
-    trimmers = {f"{s.part}_s{s.stage}" for s in plan.steps}
-    elements = trims.trimmed_elements(flatten(chain, reference), plan)
-    return bom_csv(chain, **bom_args(req, planned=planned),
-                   elements=[e for e in elements if e.name not in trimmers],
-                   extra_rows=trims.bom_trimmer_rows(plan))
 
 
 def _deck(chain: Chain, req, title: str, plan=None) -> str:
