@@ -136,7 +136,9 @@ def test_extreme_out_folder_has_no_non_finite_figures(name, tmp_path, write_spec
     spec = write_spec(_toml(GRID[name][0]))
     out = tmp_path / "out"
     code = cli.main(["plan", str(spec), "--out", str(out)])
-    assert code == 1  # the yield check fails at 10 Monte Carlo samples
+    # At 10 Monte Carlo samples the untrimmed yield misses; the tuning plan may rescue it:
+    # the exit status is the one the written checks imply.
+    assert code == exit_code_of(json.loads((out / "plan.json").read_text(encoding="utf-8")))
     texts = [f for f in out.rglob("*") if f.suffix in (".json", ".cir", ".toml", ".csv", ".html")]
     assert {f.name for f in texts} >= {"plan.json", "chain.cir", "chain.toml", "bom.csv"}
     for f in texts:

@@ -3,6 +3,8 @@ cannot fit its rails (each fix planned again to show it works)."""
 
 from __future__ import annotations
 
+import re
+
 import textwrap
 
 import pytest
@@ -73,7 +75,9 @@ def test_gain_that_cannot_fit_a_single_supply_says_why_and_plans_the_fixes(tmp_p
     assert head
     msg = next(c.message for c in head if "reference is" in c.message)
     assert "the swing around the 1.65 V reference is 0.65 Vpk on 0/3.3 V" in msg
-    assert "gain 28 dB puts 1.27 Vpk on out" in msg  # built gain a little above 28 dB
+    # Built gain a little above 28 dB: the chosen series parts decide the last digit.
+    built_vpk = float(re.search(r"gain 28 dB puts (\d+\.\d+) Vpk on out", msg).group(1))
+    assert 1.256 <= built_vpk <= 1.30
     assert "rail-to-rail class ('rail-to-rail', 0.02 V from each rail) fits: planned" in msg
     # 2 (1.26 + 1) = 4.5 V: the next common supply is 5 V.
     assert "a 5 V supply (reference 2.5 V) fits: planned" in msg

@@ -70,8 +70,9 @@ def test_planner_adds_the_stopband_points_the_converter_needs(planned):
 def test_internal_nets_sit_as_far_inside_their_swing_as_the_peak_inside_full_scale(planned):
     """Equal maxima with a lower limit at the last node (Schaumann & Van Valkenburg 2001,
     ch. 6 [mem]: every node reaches its limit at the same input): the op-amp nets' margins
-    equal the converter's within the section model's error (0.5 dB: the ordering uses
-    unit-gain shapes, the chain its built parts)."""
+    equal the converter's within the section model's error (0.6 dB: the ordering uses
+    unit-gain shapes, the chain its built parts, whose series values move a section's gain
+    by up to half a series step)."""
     an = planned.chosen.analyses
     adc = next(n for n in an.nodes if n.net == CONVERTER_NET)
     # Full scale around the signal reference, less the output's DC offset (op-amp offset
@@ -87,7 +88,7 @@ def test_internal_nets_sit_as_far_inside_their_swing_as_the_peak_inside_full_sca
     swing = swing_limit_vpk(planned.requirement.supply, planned.model.swing_to_rail_v)
     ac_adc = 20 * math.log10(2.048 / adc.peak_vpk)
     for n in internal:
-        assert 20 * math.log10(swing / n.peak_vpk) == pytest.approx(ac_adc, abs=0.5), n.net
+        assert 20 * math.log10(swing / n.peak_vpk) == pytest.approx(ac_adc, abs=0.6), n.net
     # The peak itself is the asked gain's: 0.5 V × 3.162 (+ the tone's remnant).
     assert adc.peak_vpk == pytest.approx(0.5 * 10 ** 0.5, rel=0.06)
 

@@ -45,6 +45,7 @@ from numpy.polynomial import polynomial as npoly
 
 from bandwright.circuits.base import Figures
 from bandwright.circuits.elements import Element
+from bandwright.circuits.expansion import expanded_polynomials
 from bandwright.circuits.nodal import mna_system
 from bandwright.vocabulary import StageKind
 
@@ -135,6 +136,29 @@ def _scaled_polynomials(elements: Sequence[Element], *, out_net: str, input_net:
     num = np.fft.fft(np.linalg.det(y_out), axis=-1) / n_points
     norm = np.max(np.abs(den), axis=-1, keepdims=True)
     return (num / norm).real, (den / norm).real, w_c
+
+
+def _scaled_expanded(elements: Sequence[Element], *, out_net: str, input_net: str,
+                     source_ohms: float, values: np.ndarray | None,
+                     gbw_scale: np.ndarray | None = None
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``_scaled_polynomials`` from the cached monomial expansion (``circuits.expansion``)
+    instead of determinants: the same scaling to sigma = s / w_c and normalisation."""
+    if gbw_scale is not None and values is None:
+        nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+        values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
+    num, den = expanded_polynomials(elements, out_net=out_net, input_net=input_net,
+                                    source_ohms=source_ohms, values=values, gbw_scale=gbw_scale)
+    if values is None:
+        v = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+        num, den = num[0], den[0]
+    else:
+        v = np.asarray(values, dtype=float)
+    w_c = _scale_rad_s(elements, v)
+    powers = w_c[..., None] ** np.arange(den.shape[-1])
+    num, den = num * powers, den * powers
+    norm = np.max(np.abs(den), axis=-1, keepdims=True)
+    return num / norm, den / norm, w_c
 
 
 def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
@@ -404,8 +428,8 @@ def _batch_degree(coefs: np.ndarray) -> int:
 
 def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
                           values: np.ndarray, out_net: str = "out", input_net: str = "in",
-                          gbw_scale: np.ndarray | None = None, source_ohms: float = 0.0
-                          ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                          gbw_scale: np.ndarray | None = None, source_ohms: float = 0.0,
+                          method: str = "det") -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``section_figures`` for many part-value samples at once.
 
     Parameters
@@ -429,9 +453,15 @@ def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_
     Notes
     -----
     Roots come from batched companion-matrix eigenvalues instead of ``np.roots`` per
-    sample; the figures are the same to rounding (tested).
+    sample; the figures are the same to rounding (tested). ``method="expansion"`` takes the
+    polynomials from the wiring's cached monomial expansion (``circuits.expansion``), a
+    product and a matrix multiply per batch, instead of determinants on a circle; the
+    figures agree to rounding (tests/circuits/test_expansion.py).
     """
-    num, den, w_c = _scaled_polynomials(elements, out_net=out_net, input_net=input_net,
+    if method not in ("det", "expansion"):
+        raise ValueError(f"unknown method {method!r}")
+    poly = _scaled_expanded if method == "expansion" else _scaled_polynomials
+    num, den, w_c = poly(elements, out_net=out_net, input_net=input_net,
                                         source_ohms=source_ohms, values=values,
                                         gbw_scale=gbw_scale)
     num = num[..., : _batch_degree(num) + 1]

@@ -63,6 +63,11 @@ _IMPROVEMENT_TOL = 1e-15
 # No resistor below this many times the op-amp's minimum load: any may hang on an output.
 _MIN_LOAD_FACTOR = 4
 _KELVIN_OFFSET = 273.15
+# The series grid search reads figures from the wiring's cached monomial expansion (one
+# product and one matrix multiply per batch). The continuous resistor solve stays on the
+# determinant path: several capacitor starts solve to errors at rounding level, and their
+# ranking (which ones are rounded) is decided by that rounding; reported figures stay too.
+_SEARCH_METHOD = "expansion"
 # A gain stage has no f0: its figures are read at this frequency (far below any GBW).
 _GAIN_STAGE_NEAR_HZ = 1.0
 
@@ -316,6 +321,9 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
     near = target.f0_hz if target.kind != "gain" else _GAIN_STAGE_NEAR_HZ
     best_err = math.inf
     seen: dict[bytes, float] = {}  # a recentred grid shares most of its points
+    # A gain stage's error depends only on a resistor ratio: every pair of equal resistors
+    # ties exactly, and rounding picks among them; the determinant path keeps its choice.
+    method = "det" if target.kind == "gain" else _SEARCH_METHOD
     for _ in range(_SEARCH_SWEEPS * len(blocks)):
         improved = False
         for block in blocks:
@@ -326,7 +334,8 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
             new = np.array([k not in seen for k in keys])
             if new.any():
                 f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near,
-                                                 values=grid[new], source_ohms=source_ohms)
+                                                 values=grid[new], source_ohms=source_ohms,
+                                                 method=method)
                 for key, e in zip((k for k, n in zip(keys, new) if n),
                                   _error_batch(f0, q, g, target)):
                     seen[key] = float(e)

@@ -1,28 +1,34 @@
-"""bom.csv: one row per distinct part of a chain, with its series, tolerance and dielectric.
+"""bom.csv: the bill of materials of a chain, one row per distinct part.
 
-Its own module so that both `report.files` (the --out folder) and `report.html` (the BOM table)
-take it without importing each other.
+Its own module so that the files of ``--out`` (``report.files``) and the HTML report
+(``report.html``) both read it without importing each other.
 """
 
 from __future__ import annotations
 
 import csv
 import io
-from typing import Any
+from typing import Any, Iterable, Sequence
 
 from bandwright.analysis.bias import chain_reference
 from bandwright.analysis.montecarlo import resolve_spreads
+from bandwright.analysis.montecarlo.tuned import TuningResult
 from bandwright.chain.graph import Chain, flatten
+from bandwright.circuits.elements import Element
+from bandwright.circuits.reference import Reference
+from bandwright.inputs.requirement import Requirement
 from bandwright.parts.eseries import SERIES_NAMES, is_member
 from bandwright.parts.notation import format_value
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
+from bandwright.report import tuning as trims
 
 __all__ = ["bom_csv", "bom_args", "bom_for"]
 
 
 def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
-            r_pct: float | None = None, c_pct: float | None = None, reference=None,
-            elements=None, extra_rows=()) -> str:
+            r_pct: float | None = None, c_pct: float | None = None,
+            reference: Reference | None = None, elements: Iterable[Element] | None = None,
+            extra_rows: Iterable[Sequence[object]] = ()) -> str:
     """Bill of materials: one row per distinct part, with designators and quantity.
 
     The tolerance is the one the yield was computed for (`r_pct`, `c_pct`), else the one
@@ -57,7 +63,7 @@ def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
     return buf.getvalue()
 
 
-def bom_args(req, *, planned: bool) -> dict[str, Any]:
+def bom_args(req: Requirement, *, planned: bool) -> dict[str, Any]:
     """The series and tolerances the BOM states: a plan's series and the tolerances its yield
     used; an audit's explicit `[tolerance]` only (its parts' series are not known)."""
     if planned:
@@ -68,14 +74,14 @@ def bom_args(req, *, planned: bool) -> dict[str, Any]:
             "c_pct": req.tolerance.capacitor_pct}
 
 
-def bom_for(chain: Chain, req, *, planned: bool, tuning=None) -> str:
+def bom_for(chain: Chain, req: Requirement, *, planned: bool,
+            tuning: TuningResult | None = None) -> str:
     """bom.csv of a chain (with its single-supply reference network): with a tuning plan,
     each trimmed part at its fixed value and a row per trimmer value
     (``report.tuning.bom_trimmer_rows``)."""
     reference = chain_reference(chain, req)
     if tuning is None:
         return bom_csv(chain, **bom_args(req, planned=planned), reference=reference)
-    from bandwright.report import tuning as trims
     plan = tuning.plan
     trimmers = {f"{s.part}_s{s.stage}" for s in plan.steps}
     elements = trims.trimmed_elements(flatten(chain, reference), plan)

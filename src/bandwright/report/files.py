@@ -10,11 +10,10 @@ from bandwright.analysis.bias import chain_reference
 from bandwright.chain.graph import Chain, converter_elements, flatten
 from bandwright.parts.catalogue import ARCHETYPES
 from bandwright.parts.notation import format_value
-from bandwright.report.bom import bom_args, bom_csv, bom_for
+from bandwright.report.bom import bom_for
 from bandwright.report.spice import spice_deck
 
-__all__ = ["plan_files", "audit_files", "chain_toml", "bom_csv", "bom_args", "converter_lines",
-           "bom_for"]
+__all__ = ["plan_files", "audit_files", "chain_toml", "converter_lines"]
 
 _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_v_per_rthz",
              "noise_a_per_rthz", "noise_corner_hz", "min_load_ohms", "current_noise_corner_hz",

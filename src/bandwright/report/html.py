@@ -21,6 +21,7 @@ from bandwright.checks.base import worst_status
 from bandwright.parts.notation import format_hz as fmt_hz
 from bandwright.parts.notation import format_value
 from bandwright.report import converter_view
+from bandwright.report.bom import bom_for
 from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
 from bandwright.report.terminal import ordering_built_text
 
@@ -556,7 +557,6 @@ def html_report(obj, *, plots: dict | None = None, schematics: dict | None = Non
         schematics = schematic_files(s.chain,
                                      tuning_plan=None if tuning is None else tuning.plan)
     if bom_text is None and s.chain is not None:
-        from bandwright.report.bom import bom_for
         from bandwright.report.tuning import tuning_of
         bom_text = bom_for(s.chain, s.requirement, planned=s.kind == "plan",
                            tuning=tuning_of(obj))

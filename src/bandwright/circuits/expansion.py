@@ -1,0 +1,244 @@
+"""Transfer polynomials as explicit sums of monomials in the element values.
+
+``figures.transfer_polynomials`` evaluates ``det(G + s C)`` numerically at points on a
+circle for every candidate value set. Here the same determinants are expanded once per
+wiring (element kinds and nets, not values) into monomials of the element values with
+integer coefficients; a whole batch of candidate values is then one product and one
+matrix multiply.
+
+Method
+------
+Every MNA entry that holds a value is affine in it, and every value sits in a rank-one
+stamp: a conductance or capacitance y between nets a and b adds ``y u u^T`` with
+``u = e_a - e_b``; a source conductance 1/Rs sits in one row (matrix and excitation); an
+op-amp's 1/A0 and 1/wt sit in one entry each ([1]_). A determinant is affine in a rank-one
+term (matrix determinant lemma, [2]_), so ``det`` is multilinear in the variables
+x = (1/R_i, s C_j, 1/Rs, 1/A0_k, s/wt_k)::
+
+    det = sum over subsets T of the variables of  c_T * prod_{v in T} x_v
+
+with c_T an integer (every stamp entry is 0 or +-1). The c_T are recovered exactly from the
+2^n determinants of the integer matrices at x in {0, 1}^n by the Moebius transform over the
+subset lattice ([3]_), rounded to integers. The power of s of a monomial is the number of
+its capacitive variables. The numerator (Cramer's rule: output column replaced by the
+excitation) is expanded the same way.
+
+References
+----------
+.. [1] C.-W. Ho, A. E. Ruehli, P. A. Brennan, "The modified nodal approach to network
+   analysis", IEEE Trans. Circuits Syst. CAS-22(6), 1975 [mem].
+.. [2] D. A. Harville, *Matrix Algebra From a Statistician's Perspective*, Springer, 1997,
+   §18.1 -- det(A + u v^T) = det(A) (1 + v^T A^-1 u): affine in a rank-one term [mem].
+.. [3] G.-C. Rota, "On the foundations of combinatorial theory I. Theory of Moebius
+   functions", Z. Wahrscheinlichkeitstheorie 2, 1964 -- inversion over the subset lattice.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+from typing import Sequence
+
+import numpy as np
+
+from bandwright.circuits.elements import GROUND, SUPPLY_NET, Element
+
+__all__ = ["Expansion", "expansion", "structure_key", "expanded_polynomials"]
+
+# Variables past this count would make 2^n determinants at derivation: no topology has so many.
+_MAX_VARIABLES = 20
+
+
+@dataclass(frozen=True)
+class Expansion:
+    """Monomial table of one wiring's numerator and denominator.
+
+    Attributes
+    ----------
+    n_vars : int
+        Number of variables (see ``variable_values``).
+    den_masks, num_masks : ndarray of bool, shape (m, n_vars)
+        Which variables each monomial multiplies.
+    den_coefs, num_coefs : ndarray of int, shape (m,)
+        Integer coefficient of each monomial.
+    den_powers, num_powers : ndarray of int, shape (m,)
+        Power of s of each monomial.
+    degree : int
+        Number of capacitive variables: the highest possible power of s.
+    """
+
+    n_vars: int
+    den_masks: np.ndarray
+    den_coefs: np.ndarray
+    den_powers: np.ndarray
+    num_masks: np.ndarray
+    num_coefs: np.ndarray
+    num_powers: np.ndarray
+    degree: int
+
+
+def structure_key(elements: Sequence[Element], *, out_net: str, input_net: str,
+                  source_ohms: float) -> tuple:
+    """What the expansion depends on: kinds, nets, ideal op-amps, source type, nets read."""
+    return (tuple((e.kind, e.nets, e.kind == "opamp" and math.isfinite(e.model.gbw_hz))
+                  for e in elements), out_net, input_net, source_ohms > 0)
+
+
+def _stamps(key: tuple) -> tuple[np.ndarray, np.ndarray, list[bool], np.ndarray, np.ndarray, int]:
+    """Constant matrix F, variable stamps U (n, M, M), which variables are capacitive, the
+    excitation's constant part and its per-variable part, and the output index."""
+    elems, out_net, input_net, norton = key
+    nets: list[str] = [input_net]
+    for _, en, _ in elems:
+        for n in en:
+            if n not in (GROUND, SUPPLY_NET) and n not in nets:
+                nets.append(n)
+    n_nets = len(nets)
+    n_op = sum(1 for k, _, _ in elems if k == "opamp")
+    size = n_nets + int(not norton) + n_op
+    idx = {n: i for i, n in enumerate(nets)}
+    idx[GROUND] = idx[SUPPLY_NET] = size   # scratch slot, sliced off
+    f = np.zeros((size + 1, size + 1))
+    stamps: list[np.ndarray] = []
+    capacitive: list[bool] = []
+    rhs_const = np.zeros(size + 1)
+    rhs_var: list[np.ndarray] = []
+
+    def new_var(cap: bool) -> tuple[np.ndarray, np.ndarray]:
+        u, r = np.zeros((size + 1, size + 1)), np.zeros(size + 1)
+        stamps.append(u)
+        rhs_var.append(r)
+        capacitive.append(cap)
+        return u, r
+
+    for kind, en, _ in elems:               # passives first: ``passive_names`` order
+        if kind in ("R", "C"):
+            u, _ = new_var(kind == "C")
+            a, b = idx[en[0]], idx[en[1]]
+            u[a, a] += 1
+            u[b, b] += 1
+            u[a, b] -= 1
+            u[b, a] -= 1
+    k_in = idx[input_net]
+    if norton:
+        u, r = new_var(False)
+        u[k_in, k_in] = 1
+        r[k_in] = 1
+    else:
+        f[n_nets, k_in] = f[k_in, n_nets] = 1
+        rhs_const[n_nets] = 1
+    row = n_nets + int(not norton)
+    for kind, en, finite in elems:
+        if kind != "opamp":
+            continue
+        plus, minus, out = (idx[n] for n in en)
+        if finite:
+            u, _ = new_var(False)           # 1/A0
+            u[row, out] = 1
+            u, _ = new_var(True)            # s/wt
+            u[row, out] = 1
+        f[row, plus] -= 1
+        f[row, minus] += 1
+        f[out, row] += 1
+        row += 1
+    sl = slice(0, size)
+    k_out = idx[out_net]
+    if k_out >= size:
+        raise ValueError("out_net cannot be ground")
+    return (f[sl, sl], np.array([u[sl, sl] for u in stamps]).reshape(-1, size, size),
+            capacitive, rhs_const[sl], np.array(rhs_var).reshape(-1, size + 1)[:, sl], k_out)
+
+
+def _moebius(f_const: np.ndarray, stamps: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Integer coefficients of the multilinear det(F + sum x_v U_v): (subset bitmask, coef)."""
+    n = stamps.shape[0]
+    bits = (np.arange(2 ** n)[:, None] >> np.arange(n)) & 1          # (2^n, n)
+    mats = f_const + np.einsum("kv,vij->kij", bits.astype(float), stamps)
+    vals = np.linalg.det(mats) if mats.shape[-1] else np.ones(2 ** n)
+    vals = np.rint(vals)
+    for v in range(n):                      # inverse zeta transform, one variable at a time
+        has = bits[:, v] == 1
+        vals[has] -= vals[np.flatnonzero(has) ^ (1 << v)]
+    keep = np.flatnonzero(vals)
+    return bits[keep].astype(bool), vals[keep].astype(np.int64)
+
+
+@lru_cache(maxsize=256)
+def _expansion_for_key(key: tuple) -> Expansion:
+    f, u, capacitive, rhs_const, rhs_var, k_out = _stamps(key)
+    n = u.shape[0]
+    if n > _MAX_VARIABLES:
+        raise ValueError(f"{n} variables are too many to expand")
+    cap = np.array(capacitive, dtype=bool)
+    den_masks, den_coefs = _moebius(f, u)
+    f_num, u_num = f.copy(), u.copy()
+    f_num[:, k_out] = rhs_const
+    u_num[:, :, k_out] = rhs_var
+    num_masks, num_coefs = _moebius(f_num, u_num)
+    return Expansion(n_vars=n, den_masks=den_masks, den_coefs=den_coefs,
+                     den_powers=den_masks[:, cap].sum(axis=1) if n else np.zeros(0, int),
+                     num_masks=num_masks, num_coefs=num_coefs,
+                     num_powers=num_masks[:, cap].sum(axis=1) if n else np.zeros(0, int),
+                     degree=int(cap.sum()))
+
+
+def expansion(elements: Sequence[Element], *, out_net: str = "out", input_net: str = "in",
+              source_ohms: float = 0.0) -> Expansion:
+    """The (cached) monomial expansion of an element list's wiring."""
+    return _expansion_for_key(structure_key(elements, out_net=out_net, input_net=input_net,
+                                            source_ohms=source_ohms))
+
+
+def variable_values(elements: Sequence[Element], *, values: np.ndarray | None,
+                    source_ohms: float, gbw_scale: np.ndarray | None = None) -> np.ndarray:
+    """Per-sample variables (S, n) without the factor s: 1/R or C per passive (in
+    ``passive_names`` order), 1/Rs (Norton source), then 1/A0 and 1/wt per finite op-amp."""
+    passives = [e for e in elements if e.kind in ("R", "C")]
+    if values is None:
+        v = np.array([[e.value for e in passives]], dtype=float)
+    else:
+        v = np.asarray(values, dtype=float).reshape(-1, len(passives))
+    is_r = np.array([e.kind == "R" for e in passives], dtype=bool)
+    cols = [np.where(is_r, 1.0 / v, v)]
+    s_count = v.shape[0]
+    if source_ohms > 0:
+        cols.append(np.full((s_count, 1), 1.0 / source_ohms))
+    opamps = [e for e in elements if e.kind == "opamp"]
+    if gbw_scale is not None:
+        k = np.asarray(gbw_scale, dtype=float)
+        k = np.repeat(k[:, None], len(opamps), axis=1) if k.ndim == 1 else k
+    for j, e in enumerate(opamps):
+        if not math.isfinite(e.model.gbw_hz):
+            continue
+        wt = 2 * math.pi * e.model.gbw_hz
+        scale = k[:, j] if gbw_scale is not None else np.ones(s_count)
+        cols.append(np.full((s_count, 1), 1.0 / e.model.a0))
+        cols.append((1.0 / (wt * scale))[:, None])
+    return np.concatenate(cols, axis=1)
+
+
+def _evaluate(masks: np.ndarray, coefs: np.ndarray, powers: np.ndarray, degree: int,
+              x: np.ndarray) -> np.ndarray:
+    """Coefficients in ascending powers of s, (S, degree + 1)."""
+    mono = np.prod(np.where(masks[None, :, :], x[:, None, :], 1.0), axis=-1)   # (S, m)
+    weights = np.zeros((masks.shape[0], degree + 1))
+    weights[np.arange(masks.shape[0]), powers] = coefs
+    return mono @ weights
+
+
+def expanded_polynomials(elements: Sequence[Element], *, out_net: str = "out",
+                         input_net: str = "in", source_ohms: float = 0.0,
+                         values: np.ndarray | None = None,
+                         gbw_scale: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Numerator and denominator of the transfer to `out_net`, ascending powers of s.
+
+    Same transfer as ``figures.transfer_polynomials`` (open-circuit source voltage to
+    `out_net`), unnormalised: num = det(Y_out), den = det(Y) as the expansions give them.
+    Shapes (S, d + 1), S = 1 without `values`.
+    """
+    exp = expansion(elements, out_net=out_net, input_net=input_net, source_ohms=source_ohms)
+    x = variable_values(elements, values=values, source_ohms=source_ohms, gbw_scale=gbw_scale)
+    den = _evaluate(exp.den_masks, exp.den_coefs, exp.den_powers, exp.degree, x)
+    num = _evaluate(exp.num_masks, exp.num_coefs, exp.num_powers, exp.degree, x)
+    return num, den

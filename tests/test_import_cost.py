@@ -1,0 +1,32 @@
+"""`plan --json` draws nothing, so it must not import the drawing stack (issue 14: import
+cost). Checked in a fresh process through `sys.modules`; nothing here is timed."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+from conftest import SCENARIOS
+
+#: Modules only drawing and the HTML report need.
+DRAWING_ONLY = ("matplotlib", "schemdraw", "PIL", "bandwright.report.plots",
+                "bandwright.report.schematic", "bandwright.report.html")
+
+_PROBE = """
+import contextlib, io, json, sys
+from bandwright.cli import main
+with contextlib.redirect_stdout(io.StringIO()):
+    code = main(["plan", sys.argv[1], "--json"])
+print(json.dumps({"code": code, "modules": sorted(sys.modules)}))
+"""
+
+
+def test_plan_json_imports_no_drawing_module():
+    proc = subprocess.run([sys.executable, "-c", _PROBE, str(SCENARIOS / "tone_detector.toml")],
+                          capture_output=True, text=True, check=True)
+    out = json.loads(proc.stdout.strip().splitlines()[-1])
+    assert out["code"] in (0, 1)  # the plan ran to its checks
+    loaded = [m for m in out["modules"]
+              if any(m == d or m.startswith(d + ".") for d in DRAWING_ONLY)]
+    assert loaded == []
