@@ -144,13 +144,13 @@ def _scaled_expanded(elements: Sequence[Element], *, out_net: str, input_net: st
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``_scaled_polynomials`` from the cached monomial expansion (``circuits.expansion``)
     instead of determinants: the same scaling to sigma = s / w_c and normalisation."""
+    nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
     if gbw_scale is not None and values is None:
-        nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
         values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
     num, den = expanded_polynomials(elements, out_net=out_net, input_net=input_net,
                                     source_ohms=source_ohms, values=values, gbw_scale=gbw_scale)
     if values is None:
-        v = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+        v = nominal
         num, den = num[0], den[0]
     else:
         v = np.asarray(values, dtype=float)
