@@ -44,8 +44,9 @@ import numpy as np
 from numpy.polynomial import polynomial as npoly
 
 from bandwright.circuits.base import Figures
-from bandwright.circuits.elements import Element
-from bandwright.circuits.expansion import expanded_polynomials
+from bandwright.circuits.elements import GROUND, Element
+from bandwright.circuits.expansion import (expandable, expanded_polynomials,
+                                           expanded_polynomials_many)
 from bandwright.circuits.nodal import mna_system
 from bandwright.vocabulary import StageKind
 
@@ -140,15 +141,17 @@ def _scaled_polynomials(elements: Sequence[Element], *, out_net: str, input_net:
 
 def _scaled_expanded(elements: Sequence[Element], *, out_net: str, input_net: str,
                      source_ohms: float, values: np.ndarray | None,
-                     gbw_scale: np.ndarray | None = None
+                     gbw_scale: np.ndarray | None = None, fast: bool = False
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``_scaled_polynomials`` from the cached monomial expansion (``circuits.expansion``)
-    instead of determinants: the same scaling to sigma = s / w_c and normalisation."""
+    instead of determinants: the same scaling to sigma = s / w_c and normalisation.
+    `fast`: see ``expansion.expanded_polynomials``."""
     nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
     if gbw_scale is not None and values is None:
         values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
     num, den = expanded_polynomials(elements, out_net=out_net, input_net=input_net,
-                                    source_ohms=source_ohms, values=values, gbw_scale=gbw_scale)
+                                    source_ohms=source_ohms, values=values, gbw_scale=gbw_scale,
+                                    fast=fast)
     if values is None:
         v = nominal
         num, den = num[0], den[0]
@@ -159,6 +162,17 @@ def _scaled_expanded(elements: Sequence[Element], *, out_net: str, input_net: st
     num, den = num * powers, den * powers
     norm = np.max(np.abs(den), axis=-1, keepdims=True)
     return num / norm, den / norm, w_c
+
+
+def _scaled_auto(elements: Sequence[Element], *, source_ohms: float, **kw
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The expansion where the wiring can be expanded, the determinants otherwise."""
+    if expandable(elements, source_ohms=source_ohms):
+        return _scaled_expanded(elements, source_ohms=source_ohms, fast=True, **kw)
+    return _scaled_polynomials(elements, source_ohms=source_ohms, **kw)
+
+
+_METHODS = {"det": _scaled_polynomials, "expansion": _scaled_expanded, "auto": _scaled_auto}
 
 
 def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
@@ -215,7 +229,7 @@ def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
 def transfer_polynomials_many(elements: Sequence[Element], *, out_nets: Sequence[str],
                               input_net: str = "in", source_ohms: float = 0.0,
                               values: np.ndarray | None = None,
-                              gbw_scale: np.ndarray | None = None
+                              gbw_scale: np.ndarray | None = None, method: str = "det"
                               ) -> tuple[np.ndarray, np.ndarray]:
     """Numerators of the transfers to several nets, over their one shared denominator.
 
@@ -255,7 +269,16 @@ def transfer_polynomials_many(elements: Sequence[Element], *, out_nets: Sequence
     net, where ``transfer_polynomials`` takes one determinant per net. The DFT then
     interpolates the coefficients exactly as there ([2]_). Matches
     ``transfer_polynomials`` net by net to rounding (tested).
+
+    ``method="auto"`` takes the polynomials from the cached monomial expansion of each net
+    (``circuits.expansion``) where the wiring can be expanded, the determinants otherwise;
+    the same normalisation, equal to rounding (tests/circuits/test_expansion.py).
     """
+    if method not in ("det", "auto"):
+        raise ValueError(f"unknown method {method!r}")
+    if method == "auto" and expandable(elements, source_ohms=source_ohms):
+        return _expanded_many(elements, out_nets=out_nets, input_net=input_net,
+                              source_ohms=source_ohms, values=values, gbw_scale=gbw_scale)
     if gbw_scale is not None and values is None:
         nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
         values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
@@ -290,6 +313,28 @@ def transfer_polynomials_many(elements: Sequence[Element], *, out_nets: Sequence
     nums = np.stack([(np.fft.fft(det * z[..., k] * col[..., k, None], axis=-1) / n_points
                       / norm).real * powers for k in ks])
     return nums, (den / norm).real * powers
+
+
+def _expanded_many(elements: Sequence[Element], *, out_nets: Sequence[str], input_net: str,
+                   source_ohms: float, values: np.ndarray | None,
+                   gbw_scale: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+    """``transfer_polynomials_many`` from the expansions: one per net, one shared den."""
+    nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+    if gbw_scale is not None and values is None:
+        values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
+    if any(n == GROUND for n in out_nets):
+        raise ValueError("an output net cannot be ground")
+    nums, den = expanded_polynomials_many(elements, out_nets=out_nets, input_net=input_net,
+                                          source_ohms=source_ohms, values=values,
+                                          gbw_scale=gbw_scale, fast=True)
+    v = nominal if values is None else np.asarray(values, dtype=float)
+    w_c = _scale_rad_s(elements, v)
+    norm = np.max(np.abs(den * w_c[..., None] ** np.arange(den.shape[-1])), axis=-1,
+                  keepdims=True)
+    out_nums, out_den = np.stack(nums) / norm, den / norm
+    if values is None:
+        return out_nums[:, 0], out_den[0]
+    return out_nums, out_den
 
 
 def _trim(coefs: np.ndarray) -> np.ndarray:
@@ -456,21 +501,47 @@ def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_
     sample; the figures are the same to rounding (tested). ``method="expansion"`` takes the
     polynomials from the wiring's cached monomial expansion (``circuits.expansion``), a
     product and a matrix multiply per batch, instead of determinants on a circle; the
-    figures agree to rounding (tests/circuits/test_expansion.py).
+    figures agree to rounding (tests/circuits/test_expansion.py). ``method="auto"`` takes
+    the expansion where the wiring can be expanded (``circuits.expansion.expandable``) and
+    the determinants otherwise, and solves a quadratic denominator in closed form.
     """
-    if method not in ("det", "expansion"):
+    if method not in _METHODS:
         raise ValueError(f"unknown method {method!r}")
-    poly = _scaled_expanded if method == "expansion" else _scaled_polynomials
-    num, den, w_c = poly(elements, out_net=out_net, input_net=input_net,
-                                        source_ohms=source_ohms, values=values,
-                                        gbw_scale=gbw_scale)
+    num, den, w_c = _METHODS[method](elements, out_net=out_net, input_net=input_net,
+                                     source_ohms=source_ohms, values=values,
+                                     gbw_scale=gbw_scale)
+    return figures_from_scaled(num, den, w_c, kind=kind, near_hz=near_hz,
+                               closed_form=method == "auto")
+
+
+def _quadratic_roots(coefs: np.ndarray) -> np.ndarray:
+    """Roots (S, 2) of c0 + c1 x + c2 x^2 in closed form, the larger-magnitude one first
+    computed without cancellation (Numerical Recipes, 3rd ed., §5.6 [mem])."""
+    c0, c1, c2 = coefs[:, 0].astype(complex), coefs[:, 1].astype(complex), coefs[:, 2]
+    root = np.sqrt(c1 * c1 - 4 * c2 * c0)
+    # q = -(c1 + sgn(c1) sqrt(disc)) / 2, the sign taken so that no cancellation occurs.
+    sgn = np.where((np.conj(c1) * root).real >= 0, 1.0, -1.0)
+    q = -0.5 * (c1 + sgn * root)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.stack([q / c2, c0 / q], axis=1)
+
+
+def figures_from_scaled(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, kind: StageKind,
+                        near_hz: float, closed_form: bool = False
+                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """f0, Q and gain (S,) from scaled polynomials (S, d + 1) in sigma = s / w_c, as
+    ``section_figures_batch`` reads them. `closed_form`: a quadratic denominator's roots
+    by formula instead of eigenvalues (equal to rounding)."""
     num = num[..., : _batch_degree(num) + 1]
     den = den[..., : _batch_degree(den) + 1]
     s_count = den.shape[0]
     if kind == "gain":
         g = num[:, 0] / den[:, 0]
         return np.zeros(s_count), np.zeros(s_count), g
-    poles = _batch_roots(den)                                   # (S, d), in s / w_c
+    if closed_form and den.shape[-1] == 3:
+        poles = _quadratic_roots(den)
+    else:
+        poles = _batch_roots(den)                               # (S, d), in s / w_c
     w_near = 2 * math.pi * near_hz / w_c                        # (S,)
     mag = np.abs(poles)
     upper = poles.imag > 1e-9 * np.maximum(mag, np.finfo(float).tiny)

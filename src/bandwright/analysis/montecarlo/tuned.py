@@ -86,7 +86,7 @@ def _figure(stage, chain: Chain, values: np.ndarray, gbw, adjusts: str) -> np.nd
     rs = chain.source_ohms if chain.input_of(stage) == CHAIN_INPUT else 0.0
     f0, q, g = section_figures_batch(stage.elements, kind=stage.kind,
                                      near_hz=stage.built.f0_hz, values=values,
-                                     gbw_scale=gbw, source_ohms=rs)
+                                     gbw_scale=gbw, source_ohms=rs, method="auto")
     return {"f0": f0, "q": q, "gain": np.abs(g)}[adjusts]
 
 
