@@ -166,13 +166,22 @@ def _moebius(f_const: np.ndarray, stamps: np.ndarray) -> tuple[np.ndarray, np.nd
 
 
 @lru_cache(maxsize=256)
+def _den_for_key(key: tuple) -> tuple[np.ndarray, np.ndarray]:
+    """det(Y)'s expansion: it does not depend on the net read, so the nets of one stage
+    share it (`key` has the input net in the out_net slot)."""
+    f, u, _, _, _, _ = _stamps(key)
+    return _moebius(f, u)
+
+
+@lru_cache(maxsize=256)
 def _expansion_for_key(key: tuple) -> Expansion:
     f, u, capacitive, rhs_const, rhs_var, k_out = _stamps(key)
     n = u.shape[0]
     if n > _MAX_VARIABLES:
         raise ValueError(f"{n} variables are too many to expand")
     cap = np.array(capacitive, dtype=bool)
-    den_masks, den_coefs = _moebius(f, u)
+    elems, _, input_net, norton = key
+    den_masks, den_coefs = _den_for_key((elems, input_net, input_net, norton))
     f_num, u_num = f.copy(), u.copy()
     f_num[:, k_out] = rhs_const
     u_num[:, :, k_out] = rhs_var

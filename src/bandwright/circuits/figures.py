@@ -38,7 +38,7 @@ References
 from __future__ import annotations
 
 import math
-from typing import Sequence
+from typing import Callable, Sequence
 
 import numpy as np
 from numpy.polynomial import polynomial as npoly
@@ -46,12 +46,13 @@ from numpy.polynomial import polynomial as npoly
 from bandwright.circuits.base import Figures
 from bandwright.circuits.elements import GROUND, Element
 from bandwright.circuits.expansion import (expandable, expanded_polynomials,
-                                           expanded_polynomials_many)
+                                           expanded_polynomials_many, expanded_split)
 from bandwright.circuits.nodal import mna_system
 from bandwright.vocabulary import StageKind
 
 __all__ = ["transfer_polynomials", "transfer_polynomials_many", "polynomial_degree",
-           "section_figures", "section_figures_batch"]
+           "section_figures", "section_figures_batch", "figures_from_scaled",
+           "part_sweep_figures"]
 
 # Coefficients below this fraction of the largest one (in sigma = s/w_c) are rounding
 # noise of the FFT interpolation: a genuine coefficient that small would stand for a pole
@@ -571,3 +572,63 @@ def figures_from_scaled(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, ki
         gain = np.real(num[:, -1] / den[:, -1] * np.prod(-extra, axis=1) / np.prod(others, axis=1))
     f0 = np.where(ok, w0 * w_c / (2 * math.pi), np.nan)
     return f0, q, np.where(ok, gain, np.nan)
+
+
+def part_sweep_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
+                       values: np.ndarray, part: int, out_net: str = "out",
+                       input_net: str = "in", gbw_scale: np.ndarray | None = None,
+                       source_ohms: float = 0.0
+                       ) -> Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """``section_figures_batch(method="auto")`` as a function of one part's value per
+    sample, every other part held at `values`: what a trim's root search calls many times.
+
+    Parameters
+    ----------
+    elements, kind, near_hz, out_net, input_net, gbw_scale, source_ohms
+        As ``section_figures_batch``.
+    values : ndarray, shape (S, P)
+        Part values; column `part` is ignored (copied: the caller's array is not changed).
+    part : int
+        Column (``passive_names`` order) of the part that varies.
+
+    Returns
+    -------
+    callable
+        ``f(value (S,)) -> (f0_hz, q, gain)``, each (S,).
+
+    Notes
+    -----
+    The expansion is multilinear in its variables ([1]_ of ``circuits.expansion``), so
+    num and den are ``a + x b`` in the part's variable x (1/R or C): the monomials are
+    evaluated once here and each call is two multiply-adds and the roots. Wirings too large
+    to expand fall back to ``section_figures_batch`` per call (determinants).
+    """
+    vals = np.array(values, dtype=float)
+    is_r = [e.kind for e in elements if e.kind in ("R", "C")][part] == "R"
+    if not expandable(elements, source_ohms=source_ohms):
+        def by_det(value: np.ndarray):
+            vals[:, part] = value
+            return section_figures_batch(elements, kind=kind, near_hz=near_hz, values=vals,
+                                         out_net=out_net, input_net=input_net,
+                                         gbw_scale=gbw_scale, source_ohms=source_ohms,
+                                         method="auto")
+        return by_det
+    if gbw_scale is not None and vals.shape[0] != np.shape(gbw_scale)[0]:
+        raise ValueError("values and gbw_scale must have one row per sample")
+    (num_a, num_b), (den_a, den_b) = expanded_split(
+        elements, var=part, out_net=out_net, input_net=input_net, source_ohms=source_ohms,
+        values=vals, gbw_scale=gbw_scale)
+    k = np.arange(den_a.shape[-1])
+
+    def by_expansion(value: np.ndarray):
+        value = np.asarray(value, dtype=float)
+        vals[:, part] = value
+        x = (1.0 / value if is_r else value)[:, None]
+        num, den = num_a + x * num_b, den_a + x * den_b
+        w_c = _scale_rad_s(elements, vals)
+        powers = w_c[:, None] ** k
+        num, den = num * powers, den * powers
+        norm = np.max(np.abs(den), axis=-1, keepdims=True)
+        return figures_from_scaled(num / norm, den / norm, w_c, kind=kind, near_hz=near_hz,
+                                   closed_form=True)
+    return by_expansion
