@@ -527,20 +527,83 @@ def _quadratic_roots(coefs: np.ndarray) -> np.ndarray:
         return np.stack([q / c2, c0 / q], axis=1)
 
 
+# Aberth iterations from given starting roots, and the relative step below which a root
+# counts as converged: convergence is cubic, so the root after a step of 1e-11 is exact to
+# rounding, as the companion eigenvalues are.
+_ABERTH_ITERATIONS = 8
+_ABERTH_TOL = 1e-11
+
+
+def _aberth_step(coefs: np.ndarray, z: np.ndarray, off: np.ndarray) -> np.ndarray:
+    """One Aberth correction (S, d) for roots `z` of ascending `coefs` (S, d + 1)."""
+    d = z.shape[-1]
+    p = np.broadcast_to(coefs[:, -1:], z.shape).astype(complex)
+    dp = np.zeros_like(z)
+    for m in range(d - 1, -1, -1):                       # Horner for p and p'
+        dp = dp * z + p
+        p = p * z + coefs[:, m:m + 1]
+    w = p / dp
+    diff = z[:, :, None] - z[:, None, :]
+    inv = (1.0 / np.where(off, diff, np.inf)).sum(axis=-1)
+    step = w / (1.0 - w * inv)
+    return np.where(np.isfinite(step), step, 0.0)
+
+
+def _polished_roots(coefs: np.ndarray, start: np.ndarray) -> np.ndarray:
+    """Roots (S, d) of ascending `coefs` (S, d + 1) by the Aberth–Ehrlich simultaneous
+    iteration from `start` (S, d), e.g. the roots of a nearby polynomial; samples that do
+    not converge get the companion eigenvalues (``_batch_roots``).
+
+    O. Aberth, "Iteration methods for finding all zeros of a polynomial simultaneously",
+    Math. Comp. 27(122), 1973 [mem]: z_i -= w_i / (1 - w_i sum_{j != i} 1/(z_i - z_j)),
+    w_i = p(z_i) / p'(z_i); cubic convergence to simple roots.
+    """
+    d = coefs.shape[-1] - 1
+    z = start.astype(complex).copy()
+    off = ~np.eye(d, dtype=bool)
+    rows = np.arange(z.shape[0])                          # samples still iterating
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        for _ in range(_ABERTH_ITERATIONS):
+            zr = z[rows]
+            step = _aberth_step(coefs[rows], zr, off)
+            zr = zr - step
+            z[rows] = zr
+            done = (np.all(np.abs(step) <= _ABERTH_TOL * np.abs(zr), axis=-1)
+                    & np.all(np.isfinite(zr), axis=-1))
+            rows = rows[~done]
+            if not rows.size:
+                break
+    if rows.size:
+        z[rows] = _batch_roots(coefs[rows])
+    return z
+
+
 def figures_from_scaled(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, kind: StageKind,
                         near_hz: float, closed_form: bool = False
                         ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """f0, Q and gain (S,) from scaled polynomials (S, d + 1) in sigma = s / w_c, as
     ``section_figures_batch`` reads them. `closed_form`: a quadratic denominator's roots
     by formula instead of eigenvalues (equal to rounding)."""
+    return _figures_and_poles(num, den, w_c, kind=kind, near_hz=near_hz,
+                              closed_form=closed_form)[:3]
+
+
+def _figures_and_poles(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, kind: StageKind,
+                       near_hz: float, closed_form: bool = False,
+                       start: np.ndarray | None = None
+                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
+    """``figures_from_scaled`` and the poles (S, d) in s / w_c; `start`: approximate poles
+    in the same units, polished (``_polished_roots``) instead of eigenvalues."""
     num = num[..., : _batch_degree(num) + 1]
     den = den[..., : _batch_degree(den) + 1]
     s_count = den.shape[0]
     if kind == "gain":
         g = num[:, 0] / den[:, 0]
-        return np.zeros(s_count), np.zeros(s_count), g
+        return np.zeros(s_count), np.zeros(s_count), g, None
     if closed_form and den.shape[-1] == 3:
         poles = _quadratic_roots(den)
+    elif start is not None and start.shape == (s_count, den.shape[-1] - 1):
+        poles = _polished_roots(den, start)
     else:
         poles = _batch_roots(den)                               # (S, d), in s / w_c
     w_near = 2 * math.pi * near_hz / w_c                        # (S,)
@@ -571,7 +634,7 @@ def figures_from_scaled(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, ki
         others = np.where(mask, -poles, 1.0)
         gain = np.real(num[:, -1] / den[:, -1] * np.prod(-extra, axis=1) / np.prod(others, axis=1))
     f0 = np.where(ok, w0 * w_c / (2 * math.pi), np.nan)
-    return f0, q, np.where(ok, gain, np.nan)
+    return f0, q, np.where(ok, gain, np.nan), poles
 
 
 def part_sweep_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
@@ -600,7 +663,9 @@ def part_sweep_figures(elements: Sequence[Element], *, kind: StageKind, near_hz:
     -----
     The expansion is multilinear in its variables ([1]_ of ``circuits.expansion``), so
     num and den are ``a + x b`` in the part's variable x (1/R or C): the monomials are
-    evaluated once here and each call is two multiply-adds and the roots. Wirings too large
+    evaluated once here and each call is two multiply-adds and the roots: in closed form for
+    a quadratic, else the previous call's poles polished by Aberth's iteration
+    (``_polished_roots``; eigenvalues on the first call). Wirings too large
     to expand fall back to ``section_figures_batch`` per call (determinants).
     """
     vals = np.array(values, dtype=float)
@@ -619,6 +684,9 @@ def part_sweep_figures(elements: Sequence[Element], *, kind: StageKind, near_hz:
         elements, var=part, out_net=out_net, input_net=input_net, source_ohms=source_ohms,
         values=vals, gbw_scale=gbw_scale)
     k = np.arange(den_a.shape[-1])
+    # The poles of the previous call, rad/s: a root search moves the part a little per
+    # call, so they are close starting points for the next call's roots.
+    last = {"poles_rad_s": None}
 
     def by_expansion(value: np.ndarray):
         value = np.asarray(value, dtype=float)
@@ -629,6 +697,11 @@ def part_sweep_figures(elements: Sequence[Element], *, kind: StageKind, near_hz:
         powers = w_c[:, None] ** k
         num, den = num * powers, den * powers
         norm = np.max(np.abs(den), axis=-1, keepdims=True)
-        return figures_from_scaled(num / norm, den / norm, w_c, kind=kind, near_hz=near_hz,
-                                   closed_form=True)
+        prev = last["poles_rad_s"]
+        f0, q, gain, poles = _figures_and_poles(
+            num / norm, den / norm, w_c, kind=kind, near_hz=near_hz, closed_form=True,
+            start=None if prev is None else prev / w_c[:, None])
+        if poles is not None:
+            last["poles_rad_s"] = np.where(np.isfinite(poles), poles, 1.0) * w_c[:, None]
+        return f0, q, gain
     return by_expansion
