@@ -103,7 +103,7 @@ def _block_for(stage: Stage, req, *, dc_in_v: float, ref_v: float, room_v: float
     reason = (f"{what} sits {_volts(offset)} from the reference; DC gain {gains[net]:.3g} "
               f"would move the stage's {net} by {_volts(shifts[net] * math.copysign(1, gains[net] * offset))}, "
               f"{100 * shifts[net] / room_v:.0f} % of its {room_v:.3g} V room to the rails "
-              f"(blocked above {100 * BLOCK_SHARE:g} %); corner {corner:.3g} Hz, 1/"
+              f"(blocked above {100 * BLOCK_SHARE:g} %); corner {corner:.3g} Hz, at or below 1/"
               f"{CORNER_RATIO:g} of the band's low edge")
     return DcBlock(c_farads=c, r_ohms=r_ohms, net="in", corner_hz=corner, reason=reason)
 
