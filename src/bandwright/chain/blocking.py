@@ -5,7 +5,8 @@ reference, an earlier stage's output offset) into a shift of its own output's bi
 the chain from its input, a stage whose input DC times its DC gain would move one of its
 outputs by more than ``BLOCK_SHARE`` of that output's room to the rails gets a block at its
 input: a series capacitor, and for an input that would then have no DC return (a
-non-inverting input) a resistor to the reference behind it.
+non-inverting input) a resistor to the reference behind it. Single supplies only: on split
+rails the chain stays as planned and the bias check reports what offsets do.
 """
 
 from __future__ import annotations
@@ -114,7 +115,9 @@ def place_dc_blocks(chain: Chain, req) -> Chain:
     Stages are walked from the input; after each block the chain's bias points are solved
     again, so a later stage sees the DC its blocked predecessor now passes on.
     """
-    if req.passband is None:
+    if req.passband is None or not req.supply.single:
+        # Split rails keep their chains as they were: the bias check reports the offsets
+        # there (``checks.bias_checks``); a block is a single-supply front end's part.
         return chain
     stages = list(chain.stages)
     bias = None
