@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from bandwright.analysis.bias import bias_points, chain_reference
+from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.analysis.mask import mask_margins
 from bandwright.analysis.montecarlo.kernel import (Grid, StagePolynomials, chain_mag_sq,
                                                    chain_stable)
@@ -29,10 +30,17 @@ REASONS = ("unstable", "passband loss", "passband gain", "stopband", "headroom")
 def bias_limits_vpk(chain: Chain, requirement: Requirement) -> dict[str, float]:
     """Each output net's room around its nominal bias, Vpk: min((V+ - swing) - bias,
     bias - (V- + swing)), the nominal headroom check's limit (``analysis.levels.node_levels``
-    with the bias points of ``analysis.bias``). The boards share the nominal bias: a part's
+    with the bias points of ``analysis.bias``) on a single supply; on split rails the swing
+    around the reference, as before. The boards share the nominal bias: a part's
     spread moves the bias far less than it moves the response."""
+    sup = requirement.supply
+    if not sup.single:
+        # Split rails keep the limit around the reference (their yields stay as they were;
+        # the nominal headroom check judges the bias there).
+        return {net: swing_limit_vpk(sup, chain.stage_of(net).model.swing_to_rail_v)
+                for net in chain.output_nets}
     bias = bias_points(chain, requirement, chain_reference(chain, requirement))
-    lo, hi = requirement.supply.rails_v
+    lo, hi = sup.rails_v
     out = {}
     for net in chain.output_nets:
         swing = chain.stage_of(net).model.swing_to_rail_v
