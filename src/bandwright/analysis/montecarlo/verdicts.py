@@ -90,7 +90,9 @@ def verdicts(t2: dict[str, np.ndarray], chain: Chain, grid: Grid, requirement: R
         peak = requirement.input.max_vpk * mag[:, :n_pb].max(axis=1) + mag[:, n_pb:] @ tv
         limit = limits[net]
         with np.errstate(divide="ignore"):
-            head_x = np.maximum(head_x, 20 * np.log10(peak / limit))
+            # A bias beyond its swing limit leaves no room at all: an infinite excess.
+            x = 20 * np.log10(peak / limit) if limit > 0 else np.full(n_boards, np.inf)
+            head_x = np.maximum(head_x, x)
     excess = np.where(stable, np.maximum(m.excess_db, head_x), np.inf)
     free = {"passband loss": m.loss_ok, "passband gain": m.gain_ok, "stopband": m.stop_ok,
             "headroom": head_x <= 0.0}
