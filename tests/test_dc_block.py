@@ -172,3 +172,14 @@ archetype = "rail-to-rail"
 [tolerance]
 samples = 50
 """
+
+
+def test_planner_blocks_a_dc_source_on_split_rails(tmp_path):
+    """Split rails with a source at 1 V DC: the same DC-coupled first stage gets a block, and
+    every output then sits near 0 V (the split-rail reference)."""
+    p = tmp_path / "s.toml"
+    p.write_text(SPEC.replace("rails_v = [0, 5]\nreference_v = 2.5", "rails_v = [-5, 5]"))
+    d = plan(load_spec(p)).chosen
+    assert any(st.dc_block is not None for st in d.chain.stages)
+    for n in d.analyses.nodes:
+        assert abs(n.dc_v) < 0.05, n.net

@@ -115,9 +115,9 @@ def place_dc_blocks(chain: Chain, req) -> Chain:
     Stages are walked from the input; after each block the chain's bias points are solved
     again, so a later stage sees the DC its blocked predecessor now passes on.
     """
-    if req.passband is None or not req.supply.single:
-        # Split rails keep their chains as they were: the bias check reports the offsets
-        # there (``checks.bias_checks``); a block is a single-supply front end's part.
+    if req.passband is None or not (req.supply.single or req.input.dc_v != 0.0):
+        # Split rails with a source at 0 V DC keep their chains as they were: the bias
+        # check reports the op-amp offsets there (``checks.bias_checks``).
         return chain
     stages = list(chain.stages)
     bias = None
