@@ -107,10 +107,21 @@ def chain_toml(chain: Chain, req: Requirement, *, title: str) -> str:
         out += ["[[stage]]", f"topology = {_toml_value(st.topology)}",
                 "parts = { " + ", ".join(f"{n} = {_toml_value(format_value(v, significant=6))}"
                                           for n, v in st.components) + " }"]
+        if getattr(st, "dc_block", None) is not None:
+            out += _dc_block_lines(st.dc_block)
         if not shared:
             out += _amplifier_lines(st.model, "[stage.amplifier]")
         out.append("")
     return "\n".join(out)
+
+
+def _dc_block_lines(block) -> list[str]:
+    """A stage's `dc_block` (its series C and shunt R to the reference) for the audit file."""
+    parts = [f"C = {_toml_value(format_value(block.c_farads, significant=6))}"]
+    if block.r_ohms is not None:
+        parts.append(f"R = {_toml_value(format_value(block.r_ohms, significant=6))}")
+    return ["# DC block at the stage input, added by the planner",
+            "dc_block = { " + ", ".join(parts) + " }"]
 
 
 def _deck(chain: Chain, req: Requirement, title: str, plan: TuningPlan | None = None) -> str:
