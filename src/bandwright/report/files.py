@@ -4,15 +4,23 @@ report.html."""
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from bandwright.analysis.montecarlo import resolve_spreads
 from bandwright.analysis.bias import chain_reference
 from bandwright.chain.graph import Chain, converter_elements, flatten
 from bandwright.parts.catalogue import ARCHETYPES
-from bandwright.parts.notation import format_exact
+from bandwright.parts.notation import format_exact, format_value
 from bandwright.report.bom import bom_for
 from bandwright.report.spice import spice_deck
+
+if TYPE_CHECKING:
+    from bandwright.analysis.montecarlo.tuned import TuningResult
+    from bandwright.analysis.tuning import TuningPlan
+    from bandwright.audit import Audit
+    from bandwright.inputs.requirement import Converter, Requirement
+    from bandwright.parts.opamp import OpAmp
+    from bandwright.planner import Plan
 
 __all__ = ["plan_files", "audit_files", "chain_toml", "converter_lines"]
 
@@ -58,7 +66,7 @@ def _kv(key: str, x: float) -> str:
     return f"{key} = {text}" + (f"  # {float(x):.6g}" if digits > 6 else "")
 
 
-def _amplifier_lines(model, header: str) -> list[str]:
+def _amplifier_lines(model: OpAmp, header: str) -> list[str]:
     lines = [header, f"# op-amp model '{model.name}', every figure written out"]
     if model.name in ARCHETYPES:
         lines.append(f"archetype = {_toml_value(model.name)}")
@@ -66,7 +74,7 @@ def _amplifier_lines(model, header: str) -> list[str]:
     return lines
 
 
-def converter_lines(conv) -> list[str]:
+def converter_lines(conv: Converter | None) -> list[str]:
     """`[converter]` as the requirement gave it (optional keys only when given)."""
     if conv is None:
         return []
@@ -79,7 +87,7 @@ def converter_lines(conv) -> list[str]:
     return out
 
 
-def chain_toml(chain: Chain, req, *, title: str) -> str:
+def chain_toml(chain: Chain, req: Requirement, *, title: str) -> str:
     """The chain in the audit format (docs/design.md), so that `bandwright audit` reproduces it."""
     out = [f"# {title}", "# Audit file written by bandwright: `bandwright audit chain.toml`.", ""]
     pb = req.passband
@@ -128,13 +136,24 @@ def chain_toml(chain: Chain, req, *, title: str) -> str:
     for st in chain.stages:
         out += ["[[stage]]", f"topology = {_toml_value(st.topology)}",
                 *_parts_line(st.components)]
+        if getattr(st, "dc_block", None) is not None:
+            out += _dc_block_lines(st.dc_block)
         if not shared:
             out += _amplifier_lines(st.model, "[stage.amplifier]")
         out.append("")
     return "\n".join(out)
 
 
-def _deck(chain: Chain, req, title: str, plan=None) -> str:
+def _dc_block_lines(block) -> list[str]:
+    """A stage's `dc_block` (its series C and shunt R to the reference) for the audit file."""
+    parts = [f"C = {_toml_value(format_value(block.c_farads, significant=6))}"]
+    if block.r_ohms is not None:
+        parts.append(f"R = {_toml_value(format_value(block.r_ohms, significant=6))}")
+    return ["# DC block at the stage input, added by the planner",
+            "dc_block = { " + ", ".join(parts) + " }"]
+
+
+def _deck(chain: Chain, req: Requirement, title: str, plan: TuningPlan | None = None) -> str:
     """chain.cir: the chain with its reference network and rails on a single supply, the
     source's DC level, the converter's input load on "out" (not in the BOM), and with a
     tuning `plan` each trimmed part as its fixed part plus its trimmer."""
@@ -149,8 +168,8 @@ def _deck(chain: Chain, req, title: str, plan=None) -> str:
                       supply_v=reference.supply_v if reference.single else None)
 
 
-def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
-           planned: bool, tuning=None) -> dict[str, bytes]:
+def _files(chain: Chain, req: Requirement, json_text: str, json_name: str, title: str, *,
+           planned: bool, tuning: TuningResult | None = None) -> dict[str, bytes]:
     from bandwright.report import tuning as trims
     plan = None if tuning is None else tuning.plan
     deck = _deck(chain, req, title, plan)
@@ -167,34 +186,34 @@ def _files(chain: Chain, req, json_text: str, json_name: str, title: str, *,
     }
 
 
-def plan_files(p, json_text: str) -> dict[str, bytes]:
+def plan_files(p: Plan, json_text: str) -> dict[str, bytes]:
     """Every file of a plan's --out folder."""
     d = p.chosen
     if d.chain is None:
         return {"plan.json": (json_text + "\n").encode(), **_graphic_files(p, None)}
     title = f"bandwright plan of {p.requirement.path}"
     out = _files(d.chain, p.requirement, json_text, "plan.json", title, planned=True,
-                 tuning=getattr(d, "tuning", None))
+                 tuning=d.tuning)
     return {**out, **_graphic_files(p, out["bom.csv"])}
 
 
-def audit_files(a, json_text: str) -> dict[str, bytes]:
+def audit_files(a: Audit, json_text: str) -> dict[str, bytes]:
     """Every file of an audit's --out folder."""
     out = _files(a.chain, a.requirement, json_text, "audit.json",
                  f"bandwright audit of {a.path}", planned=False,
-                 tuning=getattr(a, "tuning", None))
+                 tuning=a.tuning)
     return {**out, **_graphic_files(a, out["bom.csv"])}
 
 
-def _graphic_files(obj, bom: bytes | None) -> dict[str, bytes]:
+def _graphic_files(obj: Plan | Audit, bom: bytes | None) -> dict[str, bytes]:
     """Plots (PNG and SVG), schematics (schematic_stage<k>.svg, block.svg) and report.html,
     each drawn once and inlined into the report."""
     from bandwright.report.html import html_report
     from bandwright.report.plots import plot_files
     from bandwright.report.schematic import schematic_files
     from bandwright.report.subject import subject_of
-    plots = plot_files(obj)
     from bandwright.report.tuning import tuning_of
+    plots = plot_files(obj)
     tuning = tuning_of(obj)
     schematics = schematic_files(subject_of(obj).chain,
                                  tuning_plan=None if tuning is None else tuning.plan)

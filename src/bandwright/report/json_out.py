@@ -64,7 +64,17 @@ def _stage_dict(st, chain: Chain) -> dict[str, Any]:
         "amplifier": st.model.name,
         "why": st.reason,
         "rejected": [{"topology": t, "reason": r} for t, r in st.rejected],
+        **_dc_block_dict(st),
     }
+
+
+def _dc_block_dict(st) -> dict[str, Any]:
+    """`dc_block` of a stage entry, only for a stage that has one (``circuits.dc_block``)."""
+    b = getattr(st, "dc_block", None)
+    if b is None:
+        return {}
+    return {"dc_block": {"c_farads": num(b.c_farads), "r_ohms": num(b.r_ohms),
+                         "corner_hz": num(b.corner_hz), "reason": b.reason}}
 
 
 def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
