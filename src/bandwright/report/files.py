@@ -10,11 +10,12 @@ from bandwright.analysis.montecarlo import resolve_spreads
 from bandwright.analysis.bias import chain_reference
 from bandwright.chain.graph import Chain, converter_elements, flatten
 from bandwright.parts.catalogue import ARCHETYPES
-from bandwright.parts.notation import format_exact, format_value
+from bandwright.parts.notation import format_exact
 from bandwright.report.bom import bom_for
 from bandwright.report.spice import spice_deck
 
 if TYPE_CHECKING:
+    from bandwright.circuits.dc_block import DcBlock
     from bandwright.analysis.montecarlo.tuned import TuningResult
     from bandwright.analysis.tuning import TuningPlan
     from bandwright.audit import Audit
@@ -144,11 +145,11 @@ def chain_toml(chain: Chain, req: Requirement, *, title: str) -> str:
     return "\n".join(out)
 
 
-def _dc_block_lines(block) -> list[str]:
+def _dc_block_lines(block: DcBlock) -> list[str]:
     """A stage's `dc_block` (its series C and shunt R to the reference) for the audit file."""
-    parts = [f"C = {_toml_value(format_value(block.c_farads, significant=6))}"]
+    parts = [f"C = {_toml_value(format_exact(block.c_farads))}"]
     if block.r_ohms is not None:
-        parts.append(f"R = {_toml_value(format_value(block.r_ohms, significant=6))}")
+        parts.append(f"R = {_toml_value(format_exact(block.r_ohms))}")
     return ["# DC block at the stage input, added by the planner",
             "dc_block = { " + ", ".join(parts) + " }"]
 
