@@ -5,11 +5,11 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+from importlib.metadata import version
 from pathlib import Path
 from typing import Any
 
 import numpy as np
-import scipy
 
 from bandwright import __version__
 from bandwright.chain.graph import Chain, global_net
@@ -41,7 +41,7 @@ def _requirement_hash(path: str) -> str | None:
 
 def _tool() -> dict[str, Any]:
     return {"name": "bandwright", "version": __version__, "numpy": np.__version__,
-            "scipy": scipy.__version__}
+            "scipy": version("scipy")}
 
 
 def _stage_dict(st, chain: Chain) -> dict[str, Any]:
