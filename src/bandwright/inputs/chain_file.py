@@ -182,9 +182,11 @@ def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]
                 f"; known: {', '.join(TOPOLOGY_NAMES)}"
             raise SpecError(p, f"{key}.topology", "unknown topology" + hint, value=name)
         topo = topology(name)
-        if not st.has("parts"):
-            raise SpecError(p, f"{key}.parts", f"missing; {name} needs {', '.join(topo.PARTS)}")
-        parts = _stage_parts(p, f"{key}.parts", topo, t["parts"])
+        required = [n for n in topo.PARTS if n not in topo.OPTIONAL_PARTS]
+        if not st.has("parts") and required:
+            raise SpecError(p, f"{key}.parts", f"missing; {name} needs {', '.join(required)}")
+        # A topology whose parts are all optional (a follower) may leave the table out.
+        parts = _stage_parts(p, f"{key}.parts", topo, t["parts"] if st.has("parts") else {})
         if st.has("trim"):
             trims[i + 1] = _stage_trims(p, f"{key}.trim", topo, t["trim"], parts)
         if st.has("dc_block"):

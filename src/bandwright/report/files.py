@@ -3,17 +3,19 @@ report.html."""
 
 from __future__ import annotations
 
+import math
 from typing import TYPE_CHECKING, Any
 
 from bandwright.analysis.montecarlo import resolve_spreads
 from bandwright.analysis.bias import chain_reference
 from bandwright.chain.graph import Chain, converter_elements, flatten
 from bandwright.parts.catalogue import ARCHETYPES
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_exact
 from bandwright.report.bom import bom_for
 from bandwright.report.spice import spice_deck
 
 if TYPE_CHECKING:
+    from bandwright.circuits.dc_block import DcBlock
     from bandwright.analysis.montecarlo.tuned import TuningResult
     from bandwright.analysis.tuning import TuningPlan
     from bandwright.audit import Audit
@@ -28,12 +30,41 @@ _AMP_KEYS = ("gbw_hz", "dc_gain_db", "slew_v_per_us", "swing_to_rail_v", "noise_
              "offset_v", "bias_current_a", "input_cm_to_rail_v")
 
 
+def _shortest(x: float) -> str:
+    """`x` as the shortest text that reads back as exactly `x` (Python's repr is the
+    shortest round-trip form), a TOML float: "500.0", "0.05", "1.2e-8", "3e6"."""
+    text = repr(float(x))
+    if "e" not in text and math.isfinite(x) and abs(x) >= 1e5 and x == int(x):
+        # 3000000.0 reads better as 3e6: the fewest mantissa digits that stay exact.
+        text = next(t for n in range(17) if float(t := f"{x:.{n}e}") == x)
+    if "e" in text:
+        mantissa, exp = text.split("e")
+        text = f"{mantissa}e{int(exp)}"
+    return text
+
+
 def _toml_value(v: Any) -> str:
     if isinstance(v, str):
         return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
     if isinstance(v, (list, tuple)):
         return "[" + ", ".join(_toml_value(x) for x in v) + "]"
-    return repr(float(v)) if isinstance(v, float) else str(v)
+    return _shortest(float(v)) if isinstance(v, float) else str(v)
+
+
+def _parts_line(components) -> list[str]:
+    """``parts = { … }``, or nothing for a stage without parts (a follower)."""
+    if not components:
+        return []
+    return ["parts = { " + ", ".join(f"{n} = {_toml_value(format_exact(v))}"
+                                     for n, v in components) + " }"]
+
+
+def _kv(key: str, x: float) -> str:
+    """``key = x`` exactly, with the figure to six digits beside it when the exact text
+    is long (a computed band edge: ``low_hz = 995.4863183232978  # 995.5``)."""
+    text = _shortest(float(x))
+    digits = len(text.split("e")[0].replace("-", "").replace(".", "").lstrip("0"))
+    return f"{key} = {text}" + (f"  # {float(x):.6g}" if digits > 6 else "")
 
 
 def _amplifier_lines(model: OpAmp, header: str) -> list[str]:
@@ -48,12 +79,12 @@ def converter_lines(conv: Converter | None) -> list[str]:
     """`[converter]` as the requirement gave it (optional keys only when given)."""
     if conv is None:
         return []
-    out = ["[converter]", f"sample_rate_hz = {conv.sample_rate_hz!r}", f"bits = {conv.bits}",
-           f"full_scale_vpp = {conv.full_scale_vpp!r}"]
+    out = ["[converter]", _kv("sample_rate_hz", conv.sample_rate_hz), f"bits = {conv.bits}",
+           _kv("full_scale_vpp", conv.full_scale_vpp)]
     for key in ("enob", "input_ohms", "max_alias_dbfs"):
         if getattr(conv, key) is not None:
-            out.append(f"{key} = {getattr(conv, key)!r}")
-    out += [f"input_farads = {conv.input_farads!r}", f"headroom_db = {conv.headroom_db!r}", ""]
+            out.append(_kv(key, getattr(conv, key)))
+    out += [_kv("input_farads", conv.input_farads), _kv("headroom_db", conv.headroom_db), ""]
     return out
 
 
@@ -62,51 +93,50 @@ def chain_toml(chain: Chain, req: Requirement, *, title: str) -> str:
     out = [f"# {title}", "# Audit file written by bandwright: `bandwright audit chain.toml`.", ""]
     pb = req.passband
     if pb is not None:
-        out += ["[passband]", f"low_hz = {pb.low_hz!r}", f"high_hz = {pb.high_hz!r}",
-                f"max_loss_db = {pb.max_loss_db!r}", f"gain_db = {pb.gain_db!r}",
-                f"gain_tolerance_db = {pb.gain_tolerance_db!r}", ""]
+        out += ["[passband]", _kv("low_hz", pb.low_hz), _kv("high_hz", pb.high_hz),
+                _kv("max_loss_db", pb.max_loss_db), _kv("gain_db", pb.gain_db),
+                _kv("gain_tolerance_db", pb.gain_tolerance_db), ""]
         for sp in req.stopband:
             out += ["[[stopband]]"] + ([f"# added by the planner: {sp.added}"] if getattr(
-                sp, "added", "") else []) + [f"freq_hz = {sp.freq_hz!r}",
-                                              f"min_loss_db = {sp.min_loss_db!r}", ""]
+                sp, "added", "") else []) + [_kv("freq_hz", sp.freq_hz),
+                                              _kv("min_loss_db", sp.min_loss_db), ""]
     inp = req.input
-    out += ["[input]", f"max_vpk = {inp.max_vpk!r}", f"source_ohms = {inp.source_ohms!r}"]
+    out += ["[input]", _kv("max_vpk", inp.max_vpk), _kv("source_ohms", inp.source_ohms)]
     if inp.dc_v:
-        out.append(f"dc_v = {inp.dc_v!r}")
+        out.append(_kv("dc_v", inp.dc_v))
     if getattr(inp, "dc_step_v", None) is not None:
-        out.append(f"dc_step_v = {inp.dc_step_v!r}")
+        out.append(_kv("dc_step_v", inp.dc_step_v))
     for t in inp.tones:
-        out += ["[[input.tone]]", f"freq_hz = {t.freq_hz!r}", f"vpk = {t.vpk!r}"]
+        out += ["[[input.tone]]", _kv("freq_hz", t.freq_hz), _kv("vpk", t.vpk)]
     out += ["", "[supply]", f"rails_v = {_toml_value(list(req.supply.rails_v))}"]
     if req.supply.single:
-        out.append(f"reference_v = {req.supply.reference_v!r}")
+        out.append(_kv("reference_v", req.supply.reference_v))
     out.append("")
     models = {st.model for st in chain.stages}
     shared = len(models) == 1
     if shared:
         out += _amplifier_lines(chain.stages[0].model, "[amplifier]") + [""]
-    out += ["[environment]", f"temperature_c = {req.environment.temperature_c!r}", ""]
+    out += ["[environment]", _kv("temperature_c", req.environment.temperature_c), ""]
     if req.noise.band_hz or req.noise.max_output_vrms:
         out += ["[noise]"]
         if req.noise.band_hz:
             out.append(f"band_hz = {_toml_value(list(req.noise.band_hz))}")
         if req.noise.max_output_vrms:
-            out.append(f"max_output_vrms = {req.noise.max_output_vrms!r}")
+            out.append(_kv("max_output_vrms", req.noise.max_output_vrms))
         out.append("")
     out += converter_lines(getattr(req, "converter", None))
     tol = getattr(req, "tolerance", None)
     if tol is not None:
         spreads = resolve_spreads(req)
         out += ["[tolerance]", "# the plan's production spreads, written out for the audit's yield",
-                f"resistor_pct = {spreads.resistor_pct!r}",
-                f"capacitor_pct = {spreads.capacitor_pct!r}",
+                _kv("resistor_pct", spreads.resistor_pct),
+                _kv("capacitor_pct", spreads.capacitor_pct),
                 f"distribution = {_toml_value(spreads.distribution)}",
-                f"gbw_spread_pct = {spreads.gbw_spread_pct!r}", f"samples = {tol.samples}",
-                f"seed = {tol.seed}", f"min_yield = {tol.min_yield!r}", ""]
+                _kv("gbw_spread_pct", spreads.gbw_spread_pct), f"samples = {tol.samples}",
+                f"seed = {tol.seed}", _kv("min_yield", tol.min_yield), ""]
     for st in chain.stages:
         out += ["[[stage]]", f"topology = {_toml_value(st.topology)}",
-                "parts = { " + ", ".join(f"{n} = {_toml_value(format_value(v, significant=6))}"
-                                          for n, v in st.components) + " }"]
+                *_parts_line(st.components)]
         if getattr(st, "dc_block", None) is not None:
             out += _dc_block_lines(st.dc_block)
         if not shared:
@@ -115,11 +145,11 @@ def chain_toml(chain: Chain, req: Requirement, *, title: str) -> str:
     return "\n".join(out)
 
 
-def _dc_block_lines(block) -> list[str]:
+def _dc_block_lines(block: DcBlock) -> list[str]:
     """A stage's `dc_block` (its series C and shunt R to the reference) for the audit file."""
-    parts = [f"C = {_toml_value(format_value(block.c_farads, significant=6))}"]
+    parts = [f"C = {_toml_value(format_exact(block.c_farads))}"]
     if block.r_ohms is not None:
-        parts.append(f"R = {_toml_value(format_value(block.r_ohms, significant=6))}")
+        parts.append(f"R = {_toml_value(format_exact(block.r_ohms))}")
     return ["# DC block at the stage input, added by the planner",
             "dc_block = { " + ", ".join(parts) + " }"]
 

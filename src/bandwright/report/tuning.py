@@ -10,7 +10,7 @@ import html
 from typing import TYPE_CHECKING, Any
 
 from bandwright.circuits.elements import Element
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_exact, format_value
 from bandwright.report.subject import is_plan
 
 if TYPE_CHECKING:
@@ -165,8 +165,7 @@ def toml_with_trims(text: str, plan: TuningPlan) -> str:
     by_stage: dict[int, list[str]] = {}
     for s in plan.steps:
         by_stage.setdefault(s.stage, []).append(
-            f'{s.trims} = ["{format_value(s.fixed_ohms, significant=6)}", '
-            f'"{format_value(s.trimmer_ohms, significant=6)}"]')
+            f'{s.trims} = ["{format_exact(s.fixed_ohms)}", "{format_exact(s.trimmer_ohms)}"]')
     out, stage = [], 0
     for line in text.splitlines():
         out.append(line)
