@@ -49,7 +49,7 @@ def test_plan_out_chain_toml_audits_to_the_same_figures(scenario_cli_out):
     for p, q in zip(planned["stages"], audited["stages"]):
         assert p["topology"] == q["topology"] and p["components"] == q["components"]
         for k in ("f0_hz", "q", "gain"):
-            assert q["actual"][k] == pytest.approx(p["actual"][k], rel=1e-9)
+            assert q["built"][k] == pytest.approx(p["built"][k], rel=1e-9)
     assert planned["noise"]["integrated_vrms"] == pytest.approx(
         audited["noise"]["integrated_vrms"], rel=1e-9)
 

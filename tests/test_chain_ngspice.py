@@ -505,7 +505,7 @@ def _assert_close(a, b, what) -> None:
 def _assert_same_figures(plan_doc: dict, audit_doc: dict, *,
                          skip_ids: tuple[str, ...] = PLAN_ONLY_CHECKS) -> None:
     """Response, stage figures and checks of two JSON objects: check ids, stages, nets and
-    statuses equal; response, each stage's actual f0, Q and gain, check values and limits
+    statuses equal; response, each stage's built f0, Q and gain, check values and limits
     within 1e-6 relative."""
     pr, ar = plan_doc["response"], audit_doc["response"]
     np.testing.assert_allclose(ar["freq_hz"], pr["freq_hz"], rtol=1e-9)
@@ -517,8 +517,8 @@ def _assert_same_figures(plan_doc: dict, audit_doc: dict, *,
         [s["topology"] for s in plan_doc["stages"]]
     for a, b in zip(audit_doc["stages"], plan_doc["stages"]):
         for field in ("f0_hz", "q", "gain"):
-            _assert_close(a["actual"][field], b["actual"][field],
-                          (b["position"], b["topology"], "actual", field))
+            _assert_close(a["built"][field], b["built"][field],
+                          (b["position"], b["topology"], "built", field))
     plan_checks = [c for c in plan_doc["checks"] if c["id"] not in skip_ids]
     audit_checks = [c for c in audit_doc["checks"] if c["id"] not in skip_ids]
     assert [_check_key(c) for c in audit_checks] == [_check_key(c) for c in plan_checks]

@@ -25,10 +25,12 @@ def test_json_is_exactly_one_object_with_design_keys():
     for key in ("tool", "prototype", "stages", "checks", "response", "nodes", "noise"):
         assert key in doc
     assert doc["tool"]["name"] == "bandwright"
-    assert set(doc["prototype"]) >= {"family", "order", "ripple_db"}
+    assert set(doc["prototype"]) >= {"family", "order", "design_loss_db", "path"}
     st = doc["stages"][0]
-    assert set(st) >= {"position", "kind", "f0_hz", "q", "gain", "topology", "components",
-                       "nets", "actual"}
+    assert set(st) >= {"position", "kind", "target", "topology", "components", "nets",
+                       "ideal_parts", "built"}
+    for figures in ("target", "ideal_parts", "built"):
+        assert set(st[figures]) == {"f0_hz", "q", "gain"}
     assert [s["position"] for s in doc["stages"]] == list(range(1, len(doc["stages"]) + 1))
     for c in doc["checks"]:
         assert set(c) >= {"id", "stage", "net", "status", "value", "limit", "unit", "message"}
