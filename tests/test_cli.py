@@ -7,7 +7,7 @@ import math
 
 import pytest
 
-from conftest import SCENARIOS, exit_code_of, run_cli
+from conftest import SCENARIOS, exit_code_of, run_cli, scenario_cli_json
 
 SCENARIO = SCENARIOS / "ultrasonic_ranging.toml"
 
@@ -20,7 +20,7 @@ def test_plan_prints_family_order_and_sections():
 
 
 def test_json_is_exactly_one_object_with_design_keys():
-    r = run_cli("plan", SCENARIO, "--json")
+    r = scenario_cli_json(SCENARIO.stem)  # `plan SCENARIO --json`, run once per session
     doc = json.loads(r.stdout)  # raises on anything but exactly one JSON document
     for key in ("tool", "prototype", "stages", "checks", "response", "nodes", "noise"):
         assert key in doc
@@ -38,7 +38,7 @@ def test_json_is_exactly_one_object_with_design_keys():
 
 def test_response_grid_meets_design_density():
     """docs/design.md: ≥ 100 points a decade, ≥ 50 inside the passband."""
-    doc = json.loads(run_cli("plan", SCENARIO, "--json").stdout)
+    doc = json.loads(scenario_cli_json(SCENARIO.stem).stdout)
     f = doc["response"]["freq_hz"]
     decades = math.log10(f[-1] / f[0])
     assert len(f) >= 100 * decades
