@@ -10,6 +10,8 @@ import pytest
 from conftest import SCENARIOS, exit_code_of, run_cli, scenario_cli_json
 
 SCENARIO = SCENARIOS / "ultrasonic_ranging.toml"
+# The cheapest bundled scenario, for tests of the command's plumbing rather than of a plan.
+QUICK = SCENARIOS / "lockin_mains.toml"
 
 
 def test_plan_prints_family_order_and_sections():
@@ -95,7 +97,7 @@ def test_out_refuses_non_empty_folder_without_force(tmp_path):
 def test_out_into_existing_empty_folder(tmp_path):
     out = tmp_path / "empty"
     out.mkdir()
-    r = run_cli("plan", SCENARIO, "--out", out)
+    r = run_cli("plan", QUICK, "--out", out)
     assert r.returncode == exit_code_of(json.loads((out / "plan.json").read_text()))
     assert [p.name for p in tmp_path.iterdir()] == ["empty"]  # no temporary left behind
 
@@ -106,7 +108,7 @@ def test_stdout_on_a_full_disk_is_one_line_and_exit_2(tmp_path):
     import sys
     for extra in ([], ["--json"]):
         with open("/dev/full", "w") as full:
-            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(SCENARIO),
+            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(QUICK),
                                 *extra], stdout=full, stderr=subprocess.PIPE, text=True)
         assert r.returncode == 2, r.stderr
         assert r.stderr.strip().splitlines() == [
@@ -123,7 +125,7 @@ def test_closed_stdout_pipe_exits_quietly_with_141(tmp_path):
         read, write = os.pipe()
         os.close(read)
         try:
-            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(SCENARIO),
+            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(QUICK),
                                 *extra], stdout=write, stderr=subprocess.PIPE, text=True)
         finally:
             os.close(write)
