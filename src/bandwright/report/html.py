@@ -20,7 +20,7 @@ from bandwright import __version__
 from bandwright.analysis.montecarlo import YieldResult
 from bandwright.checks.base import Check, worst_status
 from bandwright.parts.notation import format_hz, format_value
-from bandwright.report import converter_view, yield_text
+from bandwright.report import converter_view, words, yield_text
 from bandwright.report.bom import bom_for
 from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
 from bandwright.report.svg import svg_inline
@@ -33,7 +33,6 @@ __all__ = ["html_report", "SECTION_IDS", "svg_inline", "verdict_text"]
 
 SECTION_IDS = ("summary", "candidates", "chain", "stages", "levels", "checks", "yield",
                "plots", "noise", "bom", "time")
-_STATUS_WORD = {"pass": "pass", "warn": "WARN", "fail": "FAIL"}
 
 _CSS = """
 :root { --ink: #1d2733; --muted: #5b6673; --line: #d5dbe1; --band: #f3f5f7;
@@ -145,7 +144,7 @@ def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], *,
 
 
 def _status(s: str) -> str:
-    return f'<span class="status {s}">{_STATUS_WORD[s]}</span>'
+    return f'<span class="status {s}">{words.STATUS_WORD[s]}</span>'
 
 
 def _db(x: float) -> str:
@@ -208,7 +207,7 @@ def _summary(s: Subject) -> str:
     if s.kind == "plan":
         p = s.source
         c = p.chosen.candidate
-        out.append(f"<p>Chosen: <b>{_e(c.family)} {_e(c.path)}</b>, order {c.order} "
+        out.append(f"<p>Chosen: <b>{_e(c.family)} {_e(words.path_label(c.path))}</b>, order {c.order} "
                    f"({_e(c.note)}) — {_e(p.why)}.</p>")
     else:
         out.append(f"<p>Audit of the chain in <code>{_e(s.path)}</code>.</p>")
@@ -247,11 +246,10 @@ def _candidates(s: Subject) -> str:
         margin = f"{an.worst_margin_db:+.1f} dB" if an else "—"
         noise = f"{an.noise.integrated_vrms * 1e6:.3g} µV" if an else "—"
         dr = f"{an.dynamic_range_db:.1f} dB" if an else "—"
-        state = ("cannot build" if not d.buildable else
-                 f"{d.failures} failing" if d.failures else "meets all")
+        state = words.candidate_state(d.buildable, d.failures)
         y = getattr(d, "yield_result", None)
         yv = y.yield_fraction if isinstance(y, YieldResult) else None
-        rows.append([("→ " if i == 0 else "") + str(i + 1), _e(c.family), _e(c.path),
+        rows.append([("→ " if i == 0 else "") + str(i + 1), _e(c.family), _e(words.path_label(c.path)),
                      str(c.order), str(len(c.sections)),
                      str(d.opamps) if d.buildable else "—", f"{c.highest_q:.3g}", _e(margin),
                      _e(noise), _e(dr), "—" if yv is None else f"{100 * yv:.1f} %",
@@ -295,8 +293,11 @@ def _chain(s: Subject, schematics: dict[str, bytes]) -> str:
         ops = sum(1 for e in st.elements if e.kind == "opamp")
         rows.append([str(st.position), _e(st.kind), _e(st.topology), _e(f0), _e(q),
                      _e(f"{_db(tg.gain)} → {_db(b.gain)}"), str(ops)])
-    out.append(_table(["#", "kind", "topology", "f0 asked → built", "Q asked → built",
-                       "gain dB asked → built", "op-amps"], rows, num_cols=(0, 3, 4, 5, 6)))
+    first = words.TARGET if s.kind == "plan" else words.AUDIT_IDEAL
+    out.append(_table(["#", "kind", "topology", f"f0 {first} → built", f"Q {first} → built",
+                       f"gain dB {first} → built", "op-amps"], rows, num_cols=(0, 3, 4, 5, 6)))
+    if s.kind != "plan":
+        out.append(f'<p class="note">{_e(words.AUDIT_IDEAL_NOTE)}.</p>')
     if s.kind == "plan" and s.source.chosen.ordering is not None:
         o = s.source.chosen.ordering
         out.append(f'<p class="note">{_e(yield_text.ordering_sentence(o))}</p>')
@@ -318,10 +319,13 @@ def _stages(s: Subject, schematics: dict[str, bytes]) -> str:
         if svg is not None:
             out.append(f'<figure class="schematic">{svg_inline(svg, f"st{st.position}")}'
                        "</figure>")
-        figs = [("target", st.target.f0_hz, st.target.q, st.target.gain)]
+        # The target's gain takes the built stage's sign, as in the JSON.
+        sign = -1.0 if st.built.gain < 0 else 1.0
+        first = words.TARGET if s.kind == "plan" else words.AUDIT_IDEAL
+        figs = [(first, st.target.f0_hz, st.target.q, sign * abs(st.target.gain))]
         if st.ideal is not None:
-            figs.append(("exact parts", st.ideal.f0_hz, st.ideal.q, st.ideal.gain))
-        figs.append(("as built", st.built.f0_hz, st.built.q, st.built.gain))
+            figs.append((words.IDEAL_PARTS, st.ideal.f0_hz, st.ideal.q, st.ideal.gain))
+        figs.append((words.BUILT, st.built.f0_hz, st.built.q, st.built.gain))
         rows = [[_e(name), "—" if st.kind == "gain" else _e(format_hz(f0)),
                  "—" if st.kind == "gain" else f"{q:.4g}", f"{g:.4g}", _e(_db(g))]
                 for name, f0, q, g in figs]
@@ -374,12 +378,10 @@ def _checks(s: Subject) -> str:
         where = k.net or (f"stage {k.stage}" if k.stage else "chain")
         rows.append([_e(k.id), _e(where), _status(k.status), _fmt(k.value, k.unit),
                      _fmt(k.limit, k.unit), _e(k.message)])
-    fails = sum(k.status == "fail" for k in s.checks)
-    warns = sum(k.status == "warn" for k in s.checks)
     return ('<section id="checks"><h2>Checks</h2>'
             + _table(["check", "where", "verdict", "value", "limit", "reason"], rows,
                      num_cols=(3, 4))
-            + f"<p>{len(s.checks)} checks: {fails} failed, {warns} warnings.</p></section>")
+            + f"<p>{_e(words.checks_sentence(s.checks))}</p></section>")
 
 
 def _yield(s: Subject) -> str:

@@ -10,7 +10,7 @@ from rich.console import Console
 
 from bandwright.parts.notation import format_hz, format_value
 from bandwright.report import converter_view
-from bandwright.report import yield_text
+from bandwright.report import words, yield_text
 from bandwright.report.console_text import row as _row
 from bandwright.report.console_text import say as _say
 from bandwright.report.console_text import table as _table
@@ -27,7 +27,6 @@ if TYPE_CHECKING:
 
 __all__ = ["render_plan", "render_audit"]
 
-_VERDICT = {"pass": "ok", "warn": "WARN", "fail": "FAIL"}
 
 
 def _db(x: float) -> str:
@@ -58,8 +57,8 @@ def render_plan(p: Plan, console: Console) -> None:
     """Print the plan to `console` (fits 100 columns; readable without colour)."""
     _say(console, f"bandwright plan — {p.requirement.path}", style="bold")
     _requirement(p.requirement, p.model, console)
-    cand = _table("Candidates (best first)", "#", "family path order", "sects", "amps",
-                  "margin", "noise", "DR", "yield", "verdict")
+    cand = _table("Candidates (best first)", "#", "family", "path", "order", "sects",
+                  "op-amps", "margin", "noise", "DR", "yield", "state")
     for i, d in enumerate(p.designs):
         c, an = d.candidate, d.analyses
         margin = f"{an.worst_margin_db:+.1f}" if an else "—"
@@ -68,17 +67,16 @@ def render_plan(p: Plan, console: Console) -> None:
         dr = f"{an.dynamic_range_db:.1f}" if an else "—"
         y = getattr(d, "yield_result", None)
         share = f"{100 * y.yield_fraction:.1f}" if y is not None else "—"
-        state = ("no circuit" if not d.buildable else
-                 f"{d.failures} fail" if d.failures else "ok")
-        _row(cand, ("→" if i == 0 else "") + str(i + 1), f"{c.family} {c.path} {c.order}",
-                     str(len(c.sections)), str(d.opamps) if d.buildable else "—", margin, noise,
+        state = words.candidate_state(d.buildable, d.failures)
+        _row(cand, ("→" if i == 0 else "") + str(i + 1), c.family, words.path_label(c.path),
+                     str(c.order), str(len(c.sections)), str(d.opamps) if d.buildable else "—", margin, noise,
                      dr, share, state)
     _say(console, cand)
-    _say(console, "sects: sections; amps: op-amps; margin: worst node headroom, dB; noise: output "
+    _say(console, "sects: sections; margin: worst node headroom, dB; noise: output "
                   "noise over the noise band, µV rms; DR: dynamic range, dB; yield: share of Monte "
                   "Carlo boards that pass, % (not run for a candidate that fails other checks)")
     d = p.chosen
-    _say(console, f"Chosen: {d.candidate.family} {d.candidate.path}, order {d.candidate.order} "
+    _say(console, f"Chosen: {d.candidate.family} {words.path_label(d.candidate.path)}, order {d.candidate.order} "
                   f"({d.candidate.note}) — {p.why}.")
     if d.chain is None:
         _unbuilt(d, console)
@@ -101,9 +99,7 @@ def render_audit(a: Audit, console: Console) -> None:
     """Print an audit to `console`."""
     _say(console, f"bandwright audit — {a.path}", style="bold")
     _requirement(a.requirement, a.chain.stages[0].model, console)
-    _chain(a.chain, a.analyses, console, first="ideal")
-    _say(console, "ideal: the parts as given with an ideal op-amp; built: with this op-amp "
-                  "(finite GBW), the first stage as the source drives it")
+    _chain(a.chain, a.analyses, console, first=words.AUDIT_IDEAL)
     _tuning(a, console)
     from bandwright.report.time_view import render_time
     render_time(a.analyses, console)
@@ -165,11 +161,14 @@ def _unbuilt(d: Design, console: Console) -> None:
     _say(console, t)
 
 
-def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = "asked") -> None:
+def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.TARGET) -> None:
     """The chain table, stage details, node levels and noise. `first` names the left-hand
-    figures: "asked" in a plan, "ideal" (the parts with an ideal op-amp) in an audit."""
+    figures: "target" in a plan, "ideal" (the parts with an ideal op-amp) in an audit."""
     t = _table("Chain, input to output", "#", "kind", "topology", f"f0 {first}→built",
                f"Q {first}→built", f"gain dB {first}→built")
+    if first == words.AUDIT_IDEAL:
+        t.caption = words.AUDIT_IDEAL_NOTE
+        t.caption_justify = "left"
     for st in chain.stages:
         tg, b = st.target, st.built
         f0 = "—" if st.kind == "gain" else f"{format_hz(tg.f0_hz)} → {format_hz(b.f0_hz)}"
@@ -181,9 +180,10 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = "asked"
                           for n, v in st.components) or "no parts (a unity-gain follower)"
         _say(console, f"Stage {st.position} {st.topology}: {parts}", style="bold")
         if st.ideal is not None and st.kind != "gain":
-            _say(console, f"  figures: asked f0 {format_hz(st.target.f0_hz)}, Q {st.target.q:.4g}; "
-                          f"exact parts f0 {format_hz(st.ideal.f0_hz)}, Q {st.ideal.q:.4g}; "
-                          f"series parts f0 {format_hz(st.built.f0_hz)}, Q {st.built.q:.4g} "
+            _say(console, f"  figures: {words.TARGET} f0 {format_hz(st.target.f0_hz)}, "
+                          f"Q {st.target.q:.4g}; {words.IDEAL_PARTS} (unrounded) f0 "
+                          f"{format_hz(st.ideal.f0_hz)}, Q {st.ideal.q:.4g}; {words.BUILT} "
+                          f"(series parts) f0 {format_hz(st.built.f0_hz)}, Q {st.built.q:.4g} "
                           f"(op-amp's GBW included)")
         if st.reason:
             _say(console, f"  why: {st.reason}")
@@ -228,12 +228,10 @@ def _checks(checks: Sequence[Check], console: Console) -> None:
                wrap=("reason",))
     for k in checks:
         where = k.net or (f"stage {k.stage}" if k.stage else "chain")
-        _row(t, k.id, where, _VERDICT[k.status], _fmt(k.value, k.unit), _fmt(k.limit, k.unit),
+        _row(t, k.id, where, words.STATUS_WORD[k.status], _fmt(k.value, k.unit), _fmt(k.limit, k.unit),
                   k.message)
     _say(console, t)
-    fails = sum(k.status == "fail" for k in checks)
-    warns = sum(k.status == "warn" for k in checks)
-    _say(console, f"{len(checks)} checks: {fails} failed, {warns} warnings.")
+    _say(console, words.checks_sentence(checks))
 
 
 _SHOWN_UNIT = {"ohm": "Ω", "V/us": "V/µs", "Hz": "Hz", "Vrms": "V", "Vpk": "V"}
