@@ -102,7 +102,7 @@ def test_loaded_highpass_builds_at_a_higher_level_and_holds_in_ngspice(loaded_hi
     wideband class's 500 Ω minimum load over the band and at the tone, and the mask."""
     req, p = loaded_highpass
     d = p.chosen
-    assert (d.candidate.family, d.candidate.path) == ("butterworth", "wideband")
+    assert (d.candidate.family, d.candidate.path) == ("butterworth", "hp_lp")
     assert any(a.level > 1.0 for a in d.assignments)
     deck = _deck(d.chain, req)
     text = with_control(deck, [WRDATA_SETUP, "ac dec 200 1000 200000",

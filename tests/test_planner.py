@@ -117,7 +117,7 @@ def test_every_candidate_meets_its_mask(f0, frac, amax, lo_ratio, hi_ratio, a_lo
         g = 20 * np.log10(np.abs(h))
         # A bandpass prototype peaks at exactly 0 dB (|H_bp(jw)| = |H_lp(jW)|); the wideband
         # cascade of two skirts is normalised to its passband peak, as the planner does.
-        g = g + pb.gain_db - (g[: band.size].max() if cand.path == "wideband" else 0.0)
+        g = g + pb.gain_db - (g[: band.size].max() if cand.path == "hp_lp" else 0.0)
         bad = _mask_failures(band, g[: band.size], g[band.size:], req)
         assert not bad, (cand.path, cand.family, cand.order, bad)
 

@@ -1,4 +1,5 @@
-"""Candidate section sets for a requirement: family × order × path (bandpass or wideband)."""
+"""Candidate section sets for a requirement: family × order × path (bandpass, or
+highpass + lowpass: ``hp_lp``)."""
 
 from __future__ import annotations
 
@@ -24,7 +25,14 @@ MAX_ORDER = 20
 # for rounded parts and finite GBW, which the built chain's mask check then judges.
 LOSS_SHARE = 0.7
 
-Path = Literal["bandpass", "wideband"]
+Path = Literal["bandpass", "hp_lp"]
+# The paths as the reports write them (the JSON and chain files keep the keys).
+PATH_LABELS: dict[str, str] = {"bandpass": "bandpass", "hp_lp": "highpass + lowpass"}
+
+
+def path_label(path: str) -> str:
+    """A candidate path as text: "bandpass" or "highpass + lowpass"."""
+    return PATH_LABELS.get(path, path)
 
 
 @dataclass(frozen=True, slots=True)
@@ -33,11 +41,12 @@ class Candidate:
 
     Attributes
     ----------
-    path : {"bandpass", "wideband"}
+    path : {"bandpass", "hp_lp"}
+        "hp_lp" is the highpass + lowpass path (called "wideband" before).
     family : str
     order : int
         Lowpass-prototype order (bandpass path: the bandpass has 2·order poles);
-        wideband: highpass order + lowpass order.
+        hp_lp: highpass order + lowpass order.
     ripple_db : float
         Chebyshev ripple, or the Butterworth edge loss, of the prototype(s).
     sections : tuple of Section
@@ -106,7 +115,7 @@ def _decider(req: Requirement, family: str, omegas, order: int, loss_db: float) 
 
 def _side_order(family: str, omegas: list[float], losses: list[float], loss_db: float,
                 fallback: int | None) -> tuple[int, bool]:
-    """Order of one side of the wideband path (even: every section a biquad), and whether
+    """Order of one side of the highpass + lowpass path (even: every section a biquad), and whether
     it was capped at MAX_ORDER."""
     if fallback is not None:
         n = fallback
@@ -180,5 +189,5 @@ def _wideband_candidate(req: Requirement, family: str, order: int | None) -> Can
             f"{pb.max_loss_db:g} dB allowed")
     if cap_hp or cap_lp:
         note += f"; capped at the largest supported order, {MAX_ORDER} a side"
-    return Candidate(path="wideband", family=family, order=n_hp + n_lp, ripple_db=a_db,
+    return Candidate(path="hp_lp", family=family, order=n_hp + n_lp, ripple_db=a_db,
                      sections=secs, note=note)

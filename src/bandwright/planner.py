@@ -19,7 +19,7 @@ from bandwright.analysis.grid import noise_grid, passband_grid
 from bandwright.advice.tolerance import tighter_offer
 from bandwright.analysis.montecarlo import YieldResult, monte_carlo, resolve_spreads
 from bandwright.analysis.montecarlo.tuned import TuningResult, tuning_for
-from bandwright.candidates import Candidate, make_candidates
+from bandwright.candidates import Candidate, make_candidates, path_label
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.graph import attach_converter
 from bandwright.chain.stage import with_parts
@@ -274,7 +274,7 @@ def _why(designs: list[Design]) -> str:
     if len(designs) == 1:
         return "the only candidate for the family and order asked"
     nxt = designs[1]
-    name = f"{nxt.candidate.family} {nxt.candidate.path}"
+    name = f"{nxt.candidate.family} {path_label(nxt.candidate.path)}"
     if best.buildable != nxt.buildable:
         return f"the {name} candidate cannot be built with this op-amp"
     if best.failures != nxt.failures:

@@ -17,7 +17,8 @@ from bandwright.planner import plan
 from bandwright.report.files import audit_files, plan_files
 from bandwright.report.html import SECTION_IDS, html_report
 from bandwright.report.json_out import audit_to_dict, dumps, plan_to_dict
-from bandwright.report.terminal import fmt_hz, render_audit
+from bandwright.parts.notation import format_hz as fmt_hz
+from bandwright.report.terminal import render_audit
 from bandwright.inputs.loader import spec_from_dict
 
 from report_cases import SCENARIO_NAMES, case, chromium_render, terminal_text

@@ -3,7 +3,8 @@
 A static check: every module under src/bandwright is parsed with `ast` (nothing is imported),
 its module-level `import`/`from ... import` statements (also those under a top-level `if`/`try`,
 but not under `if TYPE_CHECKING:`) become edges, and a depth-first search looks for a back edge.
-Imports inside functions are deferred on purpose and are not edges here.
+Imports inside functions are deferred on purpose and are not edges of the package graph; within
+report/ they are (a view never reaches back into the renderer that includes it).
 """
 
 from __future__ import annotations
@@ -46,11 +47,21 @@ def _top_level_imports(body: list[ast.stmt]) -> list[ast.Import | ast.ImportFrom
     return found
 
 
-def _edges(name: str, path: Path, modules: dict[str, Path]) -> set[str]:
+def _all_imports(tree: ast.Module) -> list[ast.Import | ast.ImportFrom]:
+    """Every import of the module, also those inside functions (not under TYPE_CHECKING)."""
+    skipped = {id(n) for node in ast.walk(tree)
+               if isinstance(node, ast.If) and _is_type_checking(node.test)
+               for n in ast.walk(node)}
+    return [n for n in ast.walk(tree)
+            if isinstance(n, (ast.Import, ast.ImportFrom)) and id(n) not in skipped]
+
+
+def _edges(name: str, path: Path, modules: dict[str, Path], *,
+           deferred: bool = False) -> set[str]:
     tree = ast.parse(path.read_text(encoding="utf-8"), filename=str(path))
     is_package = path.name == "__init__.py"
     targets: set[str] = set()
-    for node in _top_level_imports(tree.body):
+    for node in (_all_imports(tree) if deferred else _top_level_imports(tree.body)):
         if isinstance(node, ast.Import):
             targets |= {alias.name for alias in node.names}
             continue
@@ -67,9 +78,10 @@ def _edges(name: str, path: Path, modules: dict[str, Path]) -> set[str]:
     return {t for t in targets if t in modules and t != name and not name.startswith(t + ".")}
 
 
-def _graph() -> dict[str, set[str]]:
+def _graph(*, deferred: bool = False) -> dict[str, set[str]]:
     modules = _modules()
-    return {name: _edges(name, path, modules) for name, path in modules.items()}
+    return {name: _edges(name, path, modules, deferred=deferred)
+            for name, path in modules.items()}
 
 
 def _find_cycle(graph: dict[str, set[str]]) -> list[str] | None:
@@ -103,6 +115,17 @@ def test_the_graph_sees_the_package():
 def test_no_import_cycle_among_modules():
     cycle = _find_cycle(_graph())
     assert cycle is None, "module-level import cycle: " + " -> ".join(cycle)
+
+
+def test_no_import_cycle_in_the_report_even_deferred():
+    """Within report/, an import inside a function is an edge too: a view never reaches back
+    into the renderer that includes it."""
+    graph = _graph(deferred=True)
+    report = {k: {t for t in v if t.startswith("bandwright.report")}
+              for k, v in graph.items() if k.startswith("bandwright.report")}
+    cycle = _find_cycle(report)
+    assert cycle is None, "import cycle in report/ (deferred imports included): " + \
+        " -> ".join(cycle)
 
 
 @pytest.mark.parametrize("graph, has_cycle", [

@@ -8,7 +8,7 @@ import math
 
 import numpy as np
 
-from bandwright.candidates import MAX_ORDER, Candidate
+from bandwright.candidates import MAX_ORDER, Candidate, path_label
 from bandwright.checks.base import Check
 from bandwright.prototype import bandpass_omega, order_for_point
 from bandwright.inputs.requirement import Requirement
@@ -102,7 +102,7 @@ def order_beyond_reach(cand: Candidate, req: Requirement) -> Check:
     that point would have to move.
     """
     n = len(cand.sections)
-    head = (f"{n} sections ({cand.family} {cand.path}, order {cand.order}): the mask needs more "
+    head = (f"{n} sections ({cand.family} {path_label(cand.path)}, order {cand.order}): the mask needs more "
             f"than the largest order, {MAX_ORDER}")
     need = _needed_order(cand, req)
     if need is None or cand.note.startswith("order given"):

@@ -34,7 +34,8 @@ import re
 from decimal import Decimal, InvalidOperation
 from numbers import Real
 
-__all__ = ["parse_value", "format_value", "format_exact", "format_spice", "format_hz"]
+__all__ = ["parse_value", "format_value", "format_spice", "format_exact", "format_hz", "format_si",
+           "format_hz_range", "format_pct", "format_fixed", "plural"]
 
 _PREFIX_EXPONENT: dict[str, int] = {
     "f": -15,
@@ -253,11 +254,100 @@ def format_hz(value_hz: float, *, significant: int = 4) -> str:
     value_hz = float(value_hz)
     if not math.isfinite(value_hz):
         return f"{value_hz} Hz"
-    text = _engineering(value_hz, significant, {**_PRINT_PREFIXES, -6: "µ"})
+    return format_si(value_hz, "Hz", significant=significant)
+
+
+_PEOPLE_PREFIXES: dict[int, str] = {**_PRINT_PREFIXES, -6: "µ"}
+
+
+def format_si(value: float, unit: str, *, significant: int = 3) -> str:
+    """Print a figure for people: the number, a space, the SI prefix and the unit.
+
+    The one engineering formatter of the reports (terminal, HTML, plots, messages); JSON
+    keeps plain SI floats. Units that carry a qualifier take the prefix in front:
+    "2.28 Vpk", "5 mV rms", "185 µV".
+
+    Parameters
+    ----------
+    value : float
+    unit : str
+        "V", "Vpk", "V rms", "Ω", "F", "Hz", "V/µs", "A"...
+    significant : int, optional
+        Significant digits kept (3 by default).
+
+    Returns
+    -------
+    str
+        "20.2 MHz", "185 µV", "11.5 kΩ", "0 V" (never "-0"); a value outside femto … tera
+        prints as "1.5e-18 V"; a value that is not finite as itself ("inf Hz").
+
+    Examples
+    --------
+    >>> format_si(1.15e4, "Ω"), format_si(4.681e-5, "V rms"), format_si(5e-3, "V rms")
+    ('11.5 kΩ', '46.8 µV rms', '5 mV rms')
+    """
+    value = float(value)
+    if not math.isfinite(value):
+        return f"{value} {unit}".strip()
+    text = _engineering(value, significant, _PEOPLE_PREFIXES)
+    if text.startswith("-") and text.strip("-0.") == "":
+        text = "0"
     if "e" in text:
-        return f"{text} Hz"
+        return f"{text} {unit}".strip()
     number = text.rstrip("fpnµmkMGT")
-    return f"{number} {text[len(number):]}Hz"
+    return f"{number} {text[len(number):]}{unit}".rstrip()
+
+
+def format_hz_range(low_hz: float, high_hz: float, *, significant: int = 4) -> str:
+    """Print a frequency range: "37.11–43.11 kHz" when both ends share a prefix, else
+    "995.5 Hz–1.005 kHz".
+
+    Examples
+    --------
+    >>> format_hz_range(37.11e3, 43.11e3), format_hz_range(995.5, 1005)
+    ('37.11–43.11 kHz', '995.5 Hz–1.005 kHz')
+    """
+    lo, hi = format_hz(low_hz, significant=significant), format_hz(high_hz,
+                                                                  significant=significant)
+    lo_num, _, lo_unit = lo.partition(" ")
+    hi_num, _, hi_unit = hi.partition(" ")
+    if lo_unit == hi_unit and "e" not in lo_num + hi_num:
+        return f"{lo_num}–{hi_num} {hi_unit}"
+    return f"{lo}–{hi}"
+
+
+def format_fixed(value: float, decimals: int, *, sign: bool = False) -> str:
+    """A figure with a fixed number of decimals that never prints "-0.00".
+
+    Examples
+    --------
+    >>> format_fixed(-0.0001, 2, sign=True), format_fixed(-1.234, 1)
+    ('+0.00', '-1.2')
+    """
+    value = round(float(value), decimals) + 0.0  # + 0.0 turns -0.0 into 0.0
+    return f"{value:{'+' if sign else ''}.{decimals}f}"
+
+
+def format_pct(fraction: float, *, decimals: int = 1) -> str:
+    """A share as a percentage: 0.9775 prints "97.8 %" (never "0.9775 share").
+
+    Examples
+    --------
+    >>> format_pct(0.9775), format_pct(0.5, decimals=0)
+    ('97.8 %', '50 %')
+    """
+    return f"{format_fixed(100 * fraction, decimals)} %"
+
+
+def plural(count: int, noun: str, plural_noun: str | None = None) -> str:
+    """A count and its noun, singular or plural: "1 part", "2 parts", "1 warning".
+
+    Examples
+    --------
+    >>> plural(1, "part"), plural(3, "warning"), plural(2, "stage", "stages")
+    ('1 part', '3 warnings', '2 stages')
+    """
+    return f"{count} {noun if count == 1 else (plural_noun or noun + 's')}"
 
 
 def format_spice(value: float, *, significant: int = 6) -> str:

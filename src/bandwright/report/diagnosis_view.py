@@ -9,7 +9,11 @@ from typing import Any
 
 from rich.console import Console
 
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_value
+from bandwright.report.console_text import row as _row
+from bandwright.report.console_text import say as _say
+from bandwright.report.console_text import table as _table
+from bandwright.report.svg import svg_inline
 
 __all__ = ["diagnosis_dict", "render_diagnosis", "diagnosis_html"]
 
@@ -63,8 +67,7 @@ def _value(part: str, value: float | None) -> str:
 
 
 def _fhz(f: float) -> str:
-    from bandwright.parts.notation import format_hz as fmt_hz
-    return fmt_hz(f) if f > 0 else "—"
+    return format_hz(f) if f > 0 else "—"
 
 
 def _verdict(ok: bool | None) -> str:
@@ -98,7 +101,6 @@ def render_diagnosis(a, console: Console) -> None:
     d = getattr(a, "diagnosis", None)
     if d is None:
         return
-    from bandwright.report.terminal import _row, _say, _table
     _say(console, f"Measured sweep {d.sweep.path}: {d.sweep.freq_hz.size} points, "
                   f"{_fhz(d.sweep.freq_hz[0])} to {_fhz(d.sweep.freq_hz[-1])}"
                   f"{', gain and phase' if d.sweep.phase_deg is not None else ', gain only'}",
@@ -134,7 +136,6 @@ def diagnosis_html(a, plots: dict | None) -> str:
     d = getattr(a, "diagnosis", None)
     if d is None:
         return ""
-    from bandwright.report.html import svg_inline
     e = html.escape
     status = "fail" if d.unexplained or d.mask_pass is False else "pass"
     out = ['<section id="diagnosis"><h2>Measured sweep</h2>',

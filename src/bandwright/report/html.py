@@ -14,22 +14,25 @@ import csv
 import html
 import io
 import math
-import re
+from typing import TYPE_CHECKING, Sequence
 
 from bandwright import __version__
-from bandwright.checks.base import worst_status
-from bandwright.parts.notation import format_hz as fmt_hz
-from bandwright.parts.notation import format_value
-from bandwright.report import converter_view
+from bandwright.analysis.montecarlo import YieldResult
+from bandwright.checks.base import Check, worst_status
+from bandwright.parts.notation import format_hz, format_value
+from bandwright.report import converter_view, words, yield_text
 from bandwright.report.bom import bom_for
 from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
-from bandwright.report.terminal import ordering_built_text
+from bandwright.report.svg import svg_inline
+
+if TYPE_CHECKING:
+    from bandwright.audit import Audit
+    from bandwright.planner import Plan
 
 __all__ = ["html_report", "SECTION_IDS", "svg_inline", "verdict_text"]
 
 SECTION_IDS = ("summary", "candidates", "chain", "stages", "levels", "checks", "yield",
                "plots", "noise", "bom", "time")
-_STATUS_WORD = {"pass": "pass", "warn": "WARN", "fail": "FAIL"}
 
 _CSS = """
 :root { --ink: #1d2733; --muted: #5b6673; --line: #d5dbe1; --band: #f3f5f7;
@@ -97,11 +100,11 @@ _PLOT_CAPTIONS = {
 }
 
 
-def _e(text) -> str:
+def _e(text: object) -> str:
     return html.escape(str(text), quote=True)
 
 
-def verdict_text(checks) -> tuple[str, str]:
+def verdict_text(checks: Sequence[Check]) -> tuple[str, str]:
     """The verdict the summary shows.
 
     Parameters
@@ -125,30 +128,8 @@ def verdict_text(checks) -> tuple[str, str]:
     return status, f"all {len(checks)} checks pass"
 
 
-def svg_inline(svg: bytes, prefix: str) -> str:
-    """An SVG document as an element inside HTML: no XML prolog or DOCTYPE, and every id
-    prefixed so that several inline drawings cannot collide.
-
-    Parameters
-    ----------
-    svg : bytes
-    prefix : str
-        Letters, digits and "-" only.
-    """
-    text = svg.decode("utf-8")
-    text = re.sub(r"<\?xml[^>]*\?>\s*", "", text)
-    text = re.sub(r"<!DOCTYPE[^>]*>\s*", "", text)
-    text = re.sub(r"<!--.*?-->", "", text, flags=re.S)
-    ids = set(re.findall(r'\bid="([^"]+)"', text))
-    if ids:
-        pattern = re.compile(r'(\bid="|#)(' + "|".join(re.escape(i) for i in
-                                                      sorted(ids, key=len, reverse=True))
-                             + r')(?=["\)])')
-        text = pattern.sub(lambda m: f"{m.group(1)}{prefix}-{m.group(2)}", text)
-    return text
-
-
-def _table(headers, rows, *, num_cols=(), row_classes=None) -> str:
+def _table(headers: Sequence[str], rows: Sequence[Sequence[str]], *,
+           num_cols: Sequence[int] = (), row_classes: Sequence[str] | None = None) -> str:
     out = ["<table><thead><tr>"] + [f"<th>{_e(h)}</th>" for h in headers]
     out.append("</tr></thead><tbody>")
     for k, row in enumerate(rows):
@@ -163,7 +144,7 @@ def _table(headers, rows, *, num_cols=(), row_classes=None) -> str:
 
 
 def _status(s: str) -> str:
-    return f'<span class="status {s}">{_STATUS_WORD[s]}</span>'
+    return f'<span class="status {s}">{words.STATUS_WORD[s]}</span>'
 
 
 def _db(x: float) -> str:
@@ -171,7 +152,7 @@ def _db(x: float) -> str:
     return f"{round(20 * math.log10(abs(x)), 2) + 0.0:+.2f}" if x else "—"
 
 
-def _fmt(x, unit: str) -> str:
+def _fmt(x: float | None, unit: str) -> str:
     return "—" if x is None else _e(f"{x:.4g} {unit}".strip())
 
 
@@ -184,18 +165,18 @@ def _summary(s: Subject) -> str:
     inp = req.input
     rows = []
     if s.has_mask:
-        rows.append(("passband", f"{fmt_hz(pb.low_hz)} to {fmt_hz(pb.high_hz)} (centre "
-                                 f"{fmt_hz(pb.center_hz)}, width {fmt_hz(pb.bandwidth_hz)})"))
+        rows.append(("passband", f"{format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre "
+                                 f"{format_hz(pb.center_hz)}, width {format_hz(pb.bandwidth_hz)})"))
         rows.append(("passband gain", f"{pb.gain_db:g} dB ± {pb.gain_tolerance_db:g} dB; at "
                                       f"most {pb.max_loss_db:.4g} dB loss across the band"))
         for sp in req.stopband:
             rows.append(("stopband", f"at least {sp.min_loss_db:g} dB down at "
-                                     f"{fmt_hz(sp.freq_hz)}{converter_view.added_text(sp)}"))
+                                     f"{format_hz(sp.freq_hz)}{converter_view.added_text(sp)}"))
     else:
         rows.append(("mask", "none stated in the audit file: the response is not checked; "
-                             f"grids use its −3 dB band {fmt_hz(pb.low_hz)} to "
-                             f"{fmt_hz(pb.high_hz)}"))
-    tones = ", ".join(f"{t.vpk:g} Vpk at {fmt_hz(t.freq_hz)}" for t in inp.tones) or "none"
+                             f"grids use its −3 dB band {format_hz(pb.low_hz)} to "
+                             f"{format_hz(pb.high_hz)}"))
+    tones = ", ".join(f"{t.vpk:g} Vpk at {format_hz(t.freq_hz)}" for t in inp.tones) or "none"
     rows.append(("input", f"up to {inp.max_vpk:g} Vpk in band, from "
                           f"{format_value(inp.source_ohms, 'Ω')} source"))
     rows.append(("out-of-band tones", tones))
@@ -203,15 +184,15 @@ def _summary(s: Subject) -> str:
     if s.chain is not None:
         models = sorted({st.model.name for st in s.chain.stages})
         m = s.chain.stages[0].model
-        rows.append(("op-amp", f"'{', '.join(models)}': {fmt_hz(m.gbw_hz, significant=3)} GBW, "
+        rows.append(("op-amp", f"'{', '.join(models)}': {format_hz(m.gbw_hz, significant=3)} GBW, "
                                f"{m.slew_v_per_us:g} V/µs, {m.noise_v_per_rthz * 1e9:.3g} "
                                "nV/√Hz"))
     elif s.kind == "plan":
         m = s.source.model
-        rows.append(("op-amp", f"'{m.name}': {fmt_hz(m.gbw_hz, significant=3)} GBW"))
+        rows.append(("op-amp", f"'{m.name}': {format_hz(m.gbw_hz, significant=3)} GBW"))
     band = req.noise.band_hz
     conv = getattr(req, "converter", None)
-    rows.append(("noise band", f"{fmt_hz(band[0])} to {fmt_hz(band[1])}" if band
+    rows.append(("noise band", f"{format_hz(band[0])} to {format_hz(band[1])}" if band
                  else "up to fs/2, what the converter sees" if conv is not None
                  else "the passband"))
     if conv is not None:
@@ -226,7 +207,7 @@ def _summary(s: Subject) -> str:
     if s.kind == "plan":
         p = s.source
         c = p.chosen.candidate
-        out.append(f"<p>Chosen: <b>{_e(c.family)} {_e(c.path)}</b>, order {c.order} "
+        out.append(f"<p>Chosen: <b>{_e(c.family)} {_e(words.path_label(c.path))}</b>, order {c.order} "
                    f"({_e(c.note)}) — {_e(p.why)}.</p>")
     else:
         out.append(f"<p>Audit of the chain in <code>{_e(s.path)}</code>.</p>")
@@ -236,14 +217,14 @@ def _summary(s: Subject) -> str:
         nz = an.noise
         figs = [
             (f"{nz.integrated_vrms * 1e6:.4g} µV rms",
-             f"output noise, {fmt_hz(nz.band_hz[0])}–{fmt_hz(nz.band_hz[1])}"),
+             f"output noise, {format_hz(nz.band_hz[0])}–{format_hz(nz.band_hz[1])}"),
             (f"{an.snr_db:.1f} dB", "signal to noise at full input"),
             (f"{an.dynamic_range_db:.1f} dB", "dynamic range"),
             (f"{worst.margin_db:+.1f} dB", f"worst headroom margin ({worst.net})"),
             (f"{len(s.chain.stages)}", "stages"),
         ]
         y = s.yield_result
-        if y is not None and hasattr(y, "yield_fraction"):
+        if isinstance(y, YieldResult):
             figs.append((f"{100 * y.yield_fraction:.1f} %", f"yield, {y.samples} boards"))
         out.append('<div class="figures">' + "".join(
             f"<div><b>{_e(v)}</b><span>{_e(k)}</span></div>" for v, k in figs) + "</div>")
@@ -265,11 +246,10 @@ def _candidates(s: Subject) -> str:
         margin = f"{an.worst_margin_db:+.1f} dB" if an else "—"
         noise = f"{an.noise.integrated_vrms * 1e6:.3g} µV" if an else "—"
         dr = f"{an.dynamic_range_db:.1f} dB" if an else "—"
-        state = ("cannot build" if not d.buildable else
-                 f"{d.failures} failing" if d.failures else "meets all")
+        state = words.candidate_state(d.buildable, d.failures)
         y = getattr(d, "yield_result", None)
-        yv = getattr(y, "yield_fraction", None) if y is not None else None
-        rows.append([("→ " if i == 0 else "") + str(i + 1), _e(c.family), _e(c.path),
+        yv = y.yield_fraction if isinstance(y, YieldResult) else None
+        rows.append([("→ " if i == 0 else "") + str(i + 1), _e(c.family), _e(words.path_label(c.path)),
                      str(c.order), str(len(c.sections)),
                      str(d.opamps) if d.buildable else "—", f"{c.highest_q:.3g}", _e(margin),
                      _e(noise), _e(dr), "—" if yv is None else f"{100 * yv:.1f} %",
@@ -286,7 +266,7 @@ def _candidates(s: Subject) -> str:
     return "".join(out)
 
 
-def _chain(s: Subject, schematics: dict) -> str:
+def _chain(s: Subject, schematics: dict[str, bytes]) -> str:
     out = ['<section id="chain"><h2>Chain, input to output</h2>']
     if s.chain is None:
         d = s.source.chosen
@@ -295,7 +275,7 @@ def _chain(s: Subject, schematics: dict) -> str:
             sec = a.section
             why = "; ".join(f"{n}: {r}" for n, r in a.rejected) if a.realization is None \
                 else f"built as {a.realization.topology}"
-            rows.append([str(i + 1), _e(sec.kind), _e(fmt_hz(sec.f0_hz)), f"{sec.q:.4g}",
+            rows.append([str(i + 1), _e(sec.kind), _e(format_hz(sec.f0_hz)), f"{sec.q:.4g}",
                          f"{sec.gain:.3g}", _e(why)])
         out.append('<p>No circuit builds at least one section with this op-amp:</p>')
         out.append(_table(["#", "kind", "f0", "Q", "gain", "what stops it"], rows,
@@ -308,26 +288,26 @@ def _chain(s: Subject, schematics: dict) -> str:
     rows = []
     for st in s.chain.stages:
         tg, b = st.target, st.built
-        f0 = "—" if st.kind == "gain" else f"{fmt_hz(tg.f0_hz)} → {fmt_hz(b.f0_hz)}"
+        f0 = "—" if st.kind == "gain" else f"{format_hz(tg.f0_hz)} → {format_hz(b.f0_hz)}"
         q = "—" if st.kind == "gain" else f"{tg.q:.4g} → {b.q:.4g}"
         ops = sum(1 for e in st.elements if e.kind == "opamp")
         rows.append([str(st.position), _e(st.kind), _e(st.topology), _e(f0), _e(q),
                      _e(f"{_db(tg.gain)} → {_db(b.gain)}"), str(ops)])
-    out.append(_table(["#", "kind", "topology", "f0 asked → built", "Q asked → built",
-                       "gain dB asked → built", "op-amps"], rows, num_cols=(0, 3, 4, 5, 6)))
+    first = words.TARGET if s.kind == "plan" else words.AUDIT_IDEAL
+    out.append(_table(["#", "kind", "topology", f"f0 {first} → built", f"Q {first} → built",
+                       f"gain dB {first} → built", "op-amps"], rows, num_cols=(0, 3, 4, 5, 6)))
+    if s.kind != "plan":
+        out.append(f'<p class="note">{_e(words.AUDIT_IDEAL_NOTE)}.</p>')
     if s.kind == "plan" and s.source.chosen.ordering is not None:
         o = s.source.chosen.ordering
-        out.append(f'<p class="note">Section order ({_e(o.method)}): '
-                   f"{o.gain_over_generated_db:+.1f} dB of dynamic range over the order as "
-                   f"generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
-                   "(planning model, equal-maxima gains).</p>")
+        out.append(f'<p class="note">{_e(yield_text.ordering_sentence(o))}</p>')
         if math.isfinite(o.built_noise_vrms):
-            out.append(f'<p class="note">{_e(ordering_built_text(o))}</p>')
+            out.append(f'<p class="note">{_e(yield_text.ordering_built_text(o))}</p>')
     out.append("</section>")
     return "".join(out)
 
 
-def _stages(s: Subject, schematics: dict) -> str:
+def _stages(s: Subject, schematics: dict[str, bytes]) -> str:
     out = ['<section id="stages"><h2>Stages</h2>']
     if s.chain is None:
         out.append('<p class="note">No chain was built.</p></section>')
@@ -339,11 +319,14 @@ def _stages(s: Subject, schematics: dict) -> str:
         if svg is not None:
             out.append(f'<figure class="schematic">{svg_inline(svg, f"st{st.position}")}'
                        "</figure>")
-        figs = [("target", st.target.f0_hz, st.target.q, st.target.gain)]
+        # The target's gain takes the built stage's sign, as in the JSON.
+        sign = -1.0 if st.built.gain < 0 else 1.0
+        first = words.TARGET if s.kind == "plan" else words.AUDIT_IDEAL
+        figs = [(first, st.target.f0_hz, st.target.q, sign * abs(st.target.gain))]
         if st.ideal is not None:
-            figs.append(("exact parts", st.ideal.f0_hz, st.ideal.q, st.ideal.gain))
-        figs.append(("as built", st.built.f0_hz, st.built.q, st.built.gain))
-        rows = [[_e(name), "—" if st.kind == "gain" else _e(fmt_hz(f0)),
+            figs.append((words.IDEAL_PARTS, st.ideal.f0_hz, st.ideal.q, st.ideal.gain))
+        figs.append((words.BUILT, st.built.f0_hz, st.built.q, st.built.gain))
+        rows = [[_e(name), "—" if st.kind == "gain" else _e(format_hz(f0)),
                  "—" if st.kind == "gain" else f"{q:.4g}", f"{g:.4g}", _e(_db(g))]
                 for name, f0, q, g in figs]
         out.append(_table(["", "f0", "Q", "gain (V/V)", "gain (dB)"], rows,
@@ -395,50 +378,37 @@ def _checks(s: Subject) -> str:
         where = k.net or (f"stage {k.stage}" if k.stage else "chain")
         rows.append([_e(k.id), _e(where), _status(k.status), _fmt(k.value, k.unit),
                      _fmt(k.limit, k.unit), _e(k.message)])
-    fails = sum(k.status == "fail" for k in s.checks)
-    warns = sum(k.status == "warn" for k in s.checks)
     return ('<section id="checks"><h2>Checks</h2>'
             + _table(["check", "where", "verdict", "value", "limit", "reason"], rows,
                      num_cols=(3, 4))
-            + f"<p>{len(s.checks)} checks: {fails} failed, {warns} warnings.</p></section>")
+            + f"<p>{_e(words.checks_sentence(s.checks))}</p></section>")
 
 
 def _yield(s: Subject) -> str:
     """The Monte Carlo result, when the plan ran one (the same figures as the terminal)."""
     y = s.yield_result
     out = ['<section id="yield"><h2>Tolerance yield</h2>']
-    if y is None or not hasattr(y, "yield_fraction"):
+    if not isinstance(y, YieldResult):
         out.append('<p class="note">No Monte Carlo run for this report.</p></section>')
         return "".join(out)
-    sp = y.spreads
-    lo, hi = y.interval
-    three_sigma = " (3σ)" if sp.distribution == "gaussian" else ""
-    out.append(
-        f"<p><b>{100 * y.yield_fraction:.1f} %</b> of {y.samples} boards meet the mask and "
-        f"headroom (95 % interval {100 * lo:.1f}–{100 * hi:.1f} %, Wilson; target "
-        f"{100 * y.min_yield:.0f} %). Resistors ±{sp.resistor_pct:g} % "
-        f"({_e(sp.resistor_source)}), capacitors ±{sp.capacitor_pct:g} % "
-        f"({_e(sp.capacitor_source)}), op-amp GBW ±{sp.gbw_spread_pct:g} %, "
-        f"{_e(sp.distribution)}{three_sigma}, seed {y.seed}.</p>")
-    fails = ", ".join(f"{k} {v}" for k, v in y.fail_counts.items() if v)
-    if fails:
-        out.append(f"<p>Failing boards by reason: {_e(fails)}.</p>")
+    out.append(f"<p>{_e(yield_text.summary_sentence(y))}</p>")
+    failing = yield_text.failing_sentence(y)
+    if failing:
+        out.append(f"<p>{_e(failing)}</p>")
     if y.drivers:
-        rows = [[str(d.stage), _e(d.part), f"{100 * d.index:.0f} %",
-                 f"{100 * d.worst_fail_rate:.0f} %", _e(d.worst_side)] for d in y.drivers[:8]]
-        out.append(_table(["stage", "part", "share of the worst excess it explains alone",
-                           "boards failing in its worst tenth", "that tenth"], rows,
-                          num_cols=(0, 2, 3)))
-    if not y.nominal_passes:
-        out.append("<p>The chain fails with nominal parts: tighter parts cannot fix that.</p>")
-    elif y.offer is not None:
-        out.append(f"<p>Tighter parts: {_e(y.offer.message)}.</p>")
+        rows = [[_e(c) for c in r] for r in yield_text.driver_rows(y)]
+        out.append("<h3>Parts that decide the yield</h3>")
+        out.append(_table(yield_text.DRIVER_HEAD, rows, num_cols=(0, 2, 3)))
+        out.append(f'<p class="note">{_e(yield_text.DRIVER_NOTE)}</p>')
+    advice = yield_text.advice_sentence(y)
+    if advice:
+        out.append(f"<p>{_e(advice)}</p>")
     out.append('<p class="note">The envelope plot is in <a href="#plot-yield">Plots</a>.</p>'
                "</section>")
     return "".join(out)
 
 
-def _plots(plots: dict) -> str:
+def _plots(plots: dict[str, bytes]) -> str:
     out = ['<section id="plots"><h2>Plots</h2>']
     if not plots:
         out.append('<p class="note">No plots: no chain was built.</p>')
@@ -464,10 +434,10 @@ def _noise(s: Subject) -> str:
     nz = an.noise
     out.append(
         f"<p>Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over "
-        f"{_e(fmt_hz(nz.band_hz[0]))}–{_e(fmt_hz(nz.band_hz[1]))}; SNR at full input "
+        f"{_e(format_hz(nz.band_hz[0]))}–{_e(format_hz(nz.band_hz[1]))}; SNR at full input "
         f"{an.snr_db:.1f} dB; dynamic range {an.dynamic_range_db:.1f} dB (input could grow "
         f"{an.worst_margin_db:+.1f} dB before the first net clips).</p>")
-    wide = converter_view.noise_band_text(nz, fmt_hz)
+    wide = converter_view.noise_band_text(nz, format_hz)
     if wide:
         out.append(f"<p>{_e(wide)}.</p>")
     total2 = nz.integrated_vrms ** 2
@@ -485,7 +455,7 @@ def _noise(s: Subject) -> str:
     return "".join(out)
 
 
-def _converter(s: Subject, plots: dict) -> str:
+def _converter(s: Subject, plots: dict[str, bytes]) -> str:
     """The converter section, when the chain drives one (``report.converter_view``)."""
     an = s.analyses
     if an is None or getattr(an, "converter", None) is None:
@@ -509,24 +479,25 @@ def _bom(bom_text: str | None) -> str:
     return "".join(out)
 
 
-def _tuning_section(obj) -> str:
+def _tuning_section(obj: Plan | Audit) -> str:
     from bandwright.report.tuning import tuning_html, tuning_of
     return tuning_html(tuning_of(obj))
 
 
-def _diagnosis_section(s, plots) -> str:
+def _diagnosis_section(s: Subject, plots: dict[str, bytes]) -> str:
     from bandwright.report.diagnosis_view import diagnosis_html
     return diagnosis_html(s.source, plots)
 
 
-def _time_section(s, plots) -> str:
+def _time_section(s: Subject, plots: dict[str, bytes]) -> str:
     from bandwright.report.time_view import time_html
     svg = plots.get("timing.svg")
     return time_html(getattr(s.analyses, "time", None),
                      svg_inline(svg, "plot-timing") if svg is not None else None)
 
 
-def html_report(obj, *, plots: dict | None = None, schematics: dict | None = None,
+def html_report(obj: Plan | Audit, *, plots: dict[str, bytes] | None = None,
+                schematics: dict[str, bytes] | None = None,
                 bom_text: str | None = None) -> str:
     """The whole report as one HTML document.
 

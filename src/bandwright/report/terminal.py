@@ -3,77 +3,62 @@
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING, Sequence
 
 import numpy as np
-from rich import box
 from rich.console import Console
-from rich.table import Table
-from rich.text import Text
 
 from bandwright.parts.notation import format_hz, format_value
 from bandwright.report import converter_view
+from bandwright.report import words, yield_text
+from bandwright.report.console_text import row as _row
+from bandwright.report.console_text import say as _say
+from bandwright.report.console_text import table as _table
 
-__all__ = ["render_plan", "render_audit", "fmt_hz", "ordering_built_text"]
+if TYPE_CHECKING:
+    from bandwright.analysis import Analyses
+    from bandwright.analysis.montecarlo import YieldResult
+    from bandwright.audit import Audit
+    from bandwright.chain.graph import Chain
+    from bandwright.checks.base import Check
+    from bandwright.inputs.requirement import Requirement
+    from bandwright.parts.opamp import OpAmp
+    from bandwright.planner import Design, Plan
 
-_VERDICT = {"pass": "ok", "warn": "WARN", "fail": "FAIL"}
+__all__ = ["render_plan", "render_audit"]
 
-
-def _say(console: Console, *objects, **kwargs) -> None:
-    """Print without markup: requirement text and messages may hold brackets ("[tolerance]")."""
-    console.print(*objects, markup=False, **kwargs)
-
-
-def _row(table: Table, *cells: str) -> None:
-    """Add a row whose cells are plain text, never markup."""
-    table.add_row(*(Text(c) for c in cells))
-
-
-# The package's one Hz formatter, under the name the renderers import it by.
-fmt_hz = format_hz
 
 
 def _db(x: float) -> str:
     return f"{20 * math.log10(abs(x)):+.2f}" if x else "—"
 
 
-def _table(title: str, *cols: str, wrap: tuple[str, ...] = ()) -> Table:
-    """A plain table; only the columns named in `wrap` may fold, the others never break."""
-    t = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left", title_style="bold",
-              pad_edge=False, padding=(0, 1))
-    for c in cols:
-        if c in wrap:
-            t.add_column(c, overflow="fold", ratio=1)
-        else:
-            t.add_column(c, no_wrap=True)
-    return t
-
-
-def _requirement(req, model, console: Console) -> None:
+def _requirement(req: Requirement, model: OpAmp, console: Console) -> None:
     pb = req.passband
     _say(console, 
-        f"Band: {fmt_hz(pb.low_hz)} to {fmt_hz(pb.high_hz)} (centre {fmt_hz(pb.center_hz)}, width "
-        f"{fmt_hz(pb.bandwidth_hz)}, {pb.bandwidth_hz / pb.center_hz:.3g} of centre); gain "
+        f"Band: {format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre {format_hz(pb.center_hz)}, width "
+        f"{format_hz(pb.bandwidth_hz)}, {pb.bandwidth_hz / pb.center_hz:.3g} of centre); gain "
         f"{pb.gain_db:g} dB ± {pb.gain_tolerance_db:g}; at most {pb.max_loss_db:.4g} dB loss in band")
     for sp in req.stopband:
-        _say(console, f"Stop: at least {sp.min_loss_db:g} dB down at {fmt_hz(sp.freq_hz)}"
+        _say(console, f"Stop: at least {sp.min_loss_db:g} dB down at {format_hz(sp.freq_hz)}"
                       f"{converter_view.added_text(sp)}")
     inp = req.input
-    tones = ", ".join(f"{t.vpk:g} Vpk at {fmt_hz(t.freq_hz)}" for t in inp.tones) or "none"
+    tones = ", ".join(f"{t.vpk:g} Vpk at {format_hz(t.freq_hz)}" for t in inp.tones) or "none"
     _say(console, f"Input: up to {inp.max_vpk:g} Vpk in band from {format_value(inp.source_ohms, 'Ω')}"
                   f"; tones: {tones}")
     _say(console, f"Rails {req.supply.rails_v[0]:g} / {req.supply.rails_v[1]:+g} V; op-amp "
-                  f"'{model.name}': {fmt_hz(model.gbw_hz, significant=3)} GBW, {model.slew_v_per_us:g} V/µs, "
+                  f"'{model.name}': {format_hz(model.gbw_hz, significant=3)} GBW, {model.slew_v_per_us:g} V/µs, "
                   f"{model.noise_v_per_rthz * 1e9:.3g} nV/√Hz; {req.environment.temperature_c:g} °C")
     if getattr(req, "converter", None) is not None:
         _say(console, "Converter: " + converter_view.requirement_text(req.converter))
 
 
-def render_plan(p, console: Console) -> None:
+def render_plan(p: Plan, console: Console) -> None:
     """Print the plan to `console` (fits 100 columns; readable without colour)."""
     _say(console, f"bandwright plan — {p.requirement.path}", style="bold")
     _requirement(p.requirement, p.model, console)
-    cand = _table("Candidates (best first)", "#", "family path order", "sects", "amps",
-                  "margin", "noise", "DR", "yield", "verdict")
+    cand = _table("Candidates (best first)", "#", "family", "path", "order", "sects",
+                  "op-amps", "margin", "noise", "DR", "yield", "state")
     for i, d in enumerate(p.designs):
         c, an = d.candidate, d.analyses
         margin = f"{an.worst_margin_db:+.1f}" if an else "—"
@@ -82,29 +67,25 @@ def render_plan(p, console: Console) -> None:
         dr = f"{an.dynamic_range_db:.1f}" if an else "—"
         y = getattr(d, "yield_result", None)
         share = f"{100 * y.yield_fraction:.1f}" if y is not None else "—"
-        state = ("no circuit" if not d.buildable else
-                 f"{d.failures} fail" if d.failures else "ok")
-        _row(cand, ("→" if i == 0 else "") + str(i + 1), f"{c.family} {c.path} {c.order}",
-                     str(len(c.sections)), str(d.opamps) if d.buildable else "—", margin, noise,
+        state = words.candidate_state(d.buildable, d.failures)
+        _row(cand, ("→" if i == 0 else "") + str(i + 1), c.family, words.path_label(c.path),
+                     str(c.order), str(len(c.sections)), str(d.opamps) if d.buildable else "—", margin, noise,
                      dr, share, state)
     _say(console, cand)
-    _say(console, "sects: sections; amps: op-amps; margin: worst node headroom, dB; noise: output "
+    _say(console, "sects: sections; margin: worst node headroom, dB; noise: output "
                   "noise over the noise band, µV rms; DR: dynamic range, dB; yield: share of Monte "
                   "Carlo boards that pass, % (not run for a candidate that fails other checks)")
     d = p.chosen
-    _say(console, f"Chosen: {d.candidate.family} {d.candidate.path}, order {d.candidate.order} "
+    _say(console, f"Chosen: {d.candidate.family} {words.path_label(d.candidate.path)}, order {d.candidate.order} "
                   f"({d.candidate.note}) — {p.why}.")
     if d.chain is None:
         _unbuilt(d, console)
     else:
         _chain(d.chain, d.analyses, console)
         o = d.ordering
-        _say(console, 
-            f"Section order ({o.method}): {o.gain_over_generated_db:+.1f} dB of dynamic range over "
-            f"the order as generated, {o.gain_over_increasing_q_db:+.1f} dB over increasing Q "
-            f"(planning model, equal-maxima gains).")
+        _say(console, yield_text.ordering_sentence(o))
         if math.isfinite(o.built_noise_vrms):
-            _say(console, ordering_built_text(o))
+            _say(console, yield_text.ordering_built_text(o))
     if getattr(d, "yield_result", None) is not None:
         _yield(d.yield_result, console)
     _tuning(p, console)
@@ -114,13 +95,11 @@ def render_plan(p, console: Console) -> None:
     _checks(d.checks, console)
 
 
-def render_audit(a, console: Console) -> None:
+def render_audit(a: Audit, console: Console) -> None:
     """Print an audit to `console`."""
     _say(console, f"bandwright audit — {a.path}", style="bold")
     _requirement(a.requirement, a.chain.stages[0].model, console)
-    _chain(a.chain, a.analyses, console, first="ideal")
-    _say(console, "ideal: the parts as given with an ideal op-amp; built: with this op-amp "
-                  "(finite GBW), the first stage as the source drives it")
+    _chain(a.chain, a.analyses, console, first=words.AUDIT_IDEAL)
     _tuning(a, console)
     from bandwright.report.time_view import render_time
     render_time(a.analyses, console)
@@ -129,7 +108,7 @@ def render_audit(a, console: Console) -> None:
     render_diagnosis(a, console)
 
 
-def _tuning(obj, console: Console) -> None:
+def _tuning(obj: Plan | Audit, console: Console) -> None:
     """The tuning procedure as numbered steps (``report.tuning``), when there is one."""
     from bandwright.report.tuning import tuning_of, tuning_terminal
     lines = tuning_terminal(tuning_of(obj))
@@ -139,32 +118,22 @@ def _tuning(obj, console: Console) -> None:
             _say(console, "  " + line)
 
 
-def _yield(y, console: Console) -> None:
-    """The Monte Carlo paragraph and the worst part of each stage (figures from the result)."""
-    sp = y.spreads
-    lo, hi = y.interval
-    _say(console, 
-        f"Yield: {100 * y.yield_fraction:.1f} % of {y.samples} boards meet the "
-        f"mask and headroom (95 % interval {100 * lo:.1f}–{100 * hi:.1f} %, Wilson; target "
-        f"{100 * y.min_yield:.0f} %). Resistors ±{sp.resistor_pct:g} % ({sp.resistor_source}), "
-        f"capacitors ±{sp.capacitor_pct:g} % ({sp.capacitor_source}), op-amp GBW "
-        f"±{sp.gbw_spread_pct:g} %, {sp.distribution}{' (3σ)' if sp.distribution == 'gaussian' else ''}, "
-        f"seed {y.seed}.")
-    fails = ", ".join(f"{k} {v}" for k, v in y.fail_counts.items() if v)
-    if fails:
-        _say(console, f"  Failing boards by reason: {fails}; the nominal board keeps "
-                      f"{y.nominal_margin_db:.3g} dB to the requirement.")
+def _yield(y: YieldResult, console: Console) -> None:
+    """The Monte Carlo paragraph, the parts that decide it and the most sensitive part of
+    each stage (sentences from ``report.yield_text``, shared with the HTML)."""
+    _say(console, "Yield: " + yield_text.summary_sentence(y))
+    failing = yield_text.failing_sentence(y)
+    if failing:
+        _say(console, "  " + failing)
     if y.drivers:
-        _say(console, "  Parts that decide it (share of the worst excess they explain alone): "
-                      + "; ".join(f"{p.part} of stage {p.stage} {100 * p.index:.0f} % "
-                                  f"({100 * p.worst_fail_rate:.0f} % fail when {p.worst_side})"
-                                  for p in y.drivers[:4]) + ".")
-    if not y.nominal_passes:
-        _say(console, "  The chain fails with nominal parts: tighter parts cannot fix that.")
-    elif y.offer is not None:
-        text = y.offer.message
-        _say(console, f"  Tighter parts: {text}." if y.offer.reaches else
-                      f"  {text[:1].upper()}{text[1:]}.")
+        t = _table("Parts that decide the yield", *yield_text.DRIVER_HEAD)
+        for r in yield_text.driver_rows(y):
+            _row(t, *r)
+        _say(console, t)
+        _say(console, yield_text.DRIVER_NOTE)
+    advice = yield_text.advice_sentence(y)
+    if advice:
+        _say(console, "  " + advice)
     if y.sensitivities:
         t = _table("Sensitivity S = d ln y / d ln x, most sensitive part per stage", "#",
                    "topology", "part", "S f0", "S Q", "S gain", "S f0 (GBW)", "S Q (GBW)")
@@ -181,25 +150,28 @@ def _s(x: float) -> str:
     return "—" if x != x else ("0" if abs(x) < 1e-6 else f"{x:+.3g}")
 
 
-def _unbuilt(d, console: Console) -> None:
+def _unbuilt(d: Design, console: Console) -> None:
     t = _table("Sections (no circuit found for at least one)", "#", "kind", "f0", "Q", "gain",
                "what stops it", wrap=("what stops it",))
     for i, a in enumerate(d.assignments):
         s = a.section
         why = "; ".join(f"{n}: {r}" for n, r in a.rejected) if a.realization is None else \
             f"built as {a.realization.topology}"
-        _row(t, str(i + 1), s.kind, fmt_hz(s.f0_hz), f"{s.q:.4g}", f"{s.gain:.3g}", why)
+        _row(t, str(i + 1), s.kind, format_hz(s.f0_hz), f"{s.q:.4g}", f"{s.gain:.3g}", why)
     _say(console, t)
 
 
-def _chain(chain, an, console: Console, *, first: str = "asked") -> None:
+def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.TARGET) -> None:
     """The chain table, stage details, node levels and noise. `first` names the left-hand
-    figures: "asked" in a plan, "ideal" (the parts with an ideal op-amp) in an audit."""
+    figures: "target" in a plan, "ideal" (the parts with an ideal op-amp) in an audit."""
     t = _table("Chain, input to output", "#", "kind", "topology", f"f0 {first}→built",
                f"Q {first}→built", f"gain dB {first}→built")
+    if first == words.AUDIT_IDEAL:
+        t.caption = words.AUDIT_IDEAL_NOTE
+        t.caption_justify = "left"
     for st in chain.stages:
         tg, b = st.target, st.built
-        f0 = "—" if st.kind == "gain" else f"{fmt_hz(tg.f0_hz)} → {fmt_hz(b.f0_hz)}"
+        f0 = "—" if st.kind == "gain" else f"{format_hz(tg.f0_hz)} → {format_hz(b.f0_hz)}"
         q = "—" if st.kind == "gain" else f"{tg.q:.4g} → {b.q:.4g}"
         _row(t, str(st.position), st.kind, st.topology, f0, q, f"{_db(tg.gain)} → {_db(b.gain)}")
     _say(console, t)
@@ -208,9 +180,10 @@ def _chain(chain, an, console: Console, *, first: str = "asked") -> None:
                           for n, v in st.components) or "no parts (a unity-gain follower)"
         _say(console, f"Stage {st.position} {st.topology}: {parts}", style="bold")
         if st.ideal is not None and st.kind != "gain":
-            _say(console, f"  figures: asked f0 {fmt_hz(st.target.f0_hz)}, Q {st.target.q:.4g}; "
-                          f"exact parts f0 {fmt_hz(st.ideal.f0_hz)}, Q {st.ideal.q:.4g}; "
-                          f"series parts f0 {fmt_hz(st.built.f0_hz)}, Q {st.built.q:.4g} "
+            _say(console, f"  figures: {words.TARGET} f0 {format_hz(st.target.f0_hz)}, "
+                          f"Q {st.target.q:.4g}; {words.IDEAL_PARTS} (unrounded) f0 "
+                          f"{format_hz(st.ideal.f0_hz)}, Q {st.ideal.q:.4g}; {words.BUILT} "
+                          f"(series parts) f0 {format_hz(st.built.f0_hz)}, Q {st.built.q:.4g} "
                           f"(op-amp's GBW included)")
         if st.reason:
             _say(console, f"  why: {st.reason}")
@@ -235,14 +208,14 @@ def _chain(chain, an, console: Console, *, first: str = "asked") -> None:
     nz = an.noise
     centre = int(np.argmin(np.abs(np.log(nz.freq_hz / math.sqrt(nz.band_hz[0] * nz.band_hz[1])))))
     _say(console, 
-        f"Input-referred noise at {fmt_hz(nz.freq_hz[centre])}: "
+        f"Input-referred noise at {format_hz(nz.freq_hz[centre])}: "
         f"{nz.input_referred_v_per_rthz[centre] * 1e9:.3g} nV/√Hz (source open-circuit voltage)")
     _say(console, 
-        f"Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over {fmt_hz(nz.band_hz[0])}–"
-        f"{fmt_hz(nz.band_hz[1])}; SNR at full input {an.snr_db:.1f} dB; dynamic range "
+        f"Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over {format_hz(nz.band_hz[0])}–"
+        f"{format_hz(nz.band_hz[1])}; SNR at full input {an.snr_db:.1f} dB; dynamic range "
         f"{an.dynamic_range_db:.1f} dB (input could grow {an.worst_margin_db:+.1f} dB "
         f"before the first net clips)")
-    wide = converter_view.noise_band_text(nz, fmt_hz)
+    wide = converter_view.noise_band_text(nz, format_hz)
     if wide:
         _say(console, wide)
     top = _table("Largest noise sources at the output", "source", "µV rms", "share of power")
@@ -255,17 +228,15 @@ def _chain(chain, an, console: Console, *, first: str = "asked") -> None:
             _say(console, block)
 
 
-def _checks(checks, console: Console) -> None:
+def _checks(checks: Sequence[Check], console: Console) -> None:
     t = _table("Checks", "check", "where", "verdict", "value", "limit", "reason",
                wrap=("reason",))
     for k in checks:
         where = k.net or (f"stage {k.stage}" if k.stage else "chain")
-        _row(t, k.id, where, _VERDICT[k.status], _fmt(k.value, k.unit), _fmt(k.limit, k.unit),
+        _row(t, k.id, where, words.STATUS_WORD[k.status], _fmt(k.value, k.unit), _fmt(k.limit, k.unit),
                   k.message)
     _say(console, t)
-    fails = sum(k.status == "fail" for k in checks)
-    warns = sum(k.status == "warn" for k in checks)
-    _say(console, f"{len(checks)} checks: {fails} failed, {warns} warnings.")
+    _say(console, words.checks_sentence(checks))
 
 
 _SHOWN_UNIT = {"ohm": "Ω", "V/us": "V/µs", "Hz": "Hz", "Vrms": "V", "Vpk": "V"}
@@ -277,12 +248,3 @@ def _fmt(x: float | None, unit: str) -> str:
     if unit in ("ohm", "Hz", "Vrms", "Vpk"):
         return format_value(x, _SHOWN_UNIT[unit])
     return f"{x:.4g} {_SHOWN_UNIT.get(unit, unit)}".strip()
-
-
-def ordering_built_text(o) -> str:
-    """The ordering's figures for the chain as built, beside the planning model's."""
-    return (f"As built: {o.built_noise_vrms * 1e6:.3g} µV rms of output noise from the stages' "
-            f"own transfers and noise (planning model: {o.noise_vrms * 1e6:.3g} µV); "
-            f"{o.built_gain_over_generated_db:+.1f} dB of dynamic range over the same built "
-            f"stages (parts and gains as built) in the order as generated, "
-            f"{o.built_gain_over_increasing_q_db:+.1f} dB over increasing Q; {o.placement}.")

@@ -1,0 +1,43 @@
+"""The words the reports use for each state, written once (terminal, HTML, user guide; the
+JSON keeps the same words in lower case or as keys):
+
+- a check's status: ``pass`` / ``WARN`` / ``FAIL`` (JSON ``pass`` / ``warn`` / ``fail``);
+- a candidate's state: ``meets all`` / ``N failing`` / ``no circuit``;
+- a stage's figures: ``target`` / ``ideal parts`` / ``built`` (JSON ``target`` (the stage's
+  top-level ``f0_hz``, ``q``, ``gain``) / ``ideal_parts`` / ``built``); in an audit the
+  target is what the parts give with an ideal op-amp, and is called ``ideal``;
+- the candidate paths: ``bandpass`` and ``highpass + lowpass`` (JSON ``hp_lp``).
+"""
+
+from __future__ import annotations
+
+from typing import Any, Sequence
+
+from bandwright.candidates import path_label
+from bandwright.parts.notation import plural
+
+__all__ = ["STATUS_WORD", "candidate_state", "path_label", "checks_sentence",
+           "TARGET", "IDEAL_PARTS", "BUILT", "AUDIT_IDEAL", "AUDIT_IDEAL_NOTE"]
+
+STATUS_WORD = {"pass": "pass", "warn": "WARN", "fail": "FAIL"}
+
+TARGET, IDEAL_PARTS, BUILT = "target", "ideal parts", "built"
+AUDIT_IDEAL = "ideal"
+AUDIT_IDEAL_NOTE = ("ideal: the parts as given with an ideal op-amp (no GBW limit, no "
+                    "source resistance); built: with this op-amp, the first stage driven by "
+                    "the source")
+
+
+
+def candidate_state(buildable: bool, failures: int) -> str:
+    """"no circuit", "2 failing" or "meets all"."""
+    if not buildable:
+        return "no circuit"
+    return f"{failures} failing" if failures else "meets all"
+
+
+def checks_sentence(checks: Sequence[Any]) -> str:
+    """"14 checks: 12 pass, 1 WARN, 1 FAIL." (the same line in terminal and HTML)."""
+    n = {s: sum(k.status == s for k in checks) for s in STATUS_WORD}
+    return (f"{plural(len(checks), 'check')}: {n['pass']} pass, {n['warn']} WARN, "
+            f"{n['fail']} FAIL.")
