@@ -111,9 +111,49 @@ class Topology(Protocol):
 
     def design(self, section: Section, *, c_farads: float) -> dict[str, float]: ...
 
-    def elements(self, components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]: ...
+    def elements(self, components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
+        """The element list of a designed section (shared by every topology module).
 
-    def limits(self, section: Section, model: OpAmp) -> Limits: ...
+        Parameters
+        ----------
+        components : mapping of str to float
+            Values of ``PARTS``, ohms or farads (as ``design`` gives them); the parts of
+            ``OPTIONAL_PARTS`` may be absent (a module's docstring says which, and whether
+            ``math.inf`` also means not fitted).
+        model : OpAmp
+            The op-amp; a topology with several amplifiers uses it for each.
+
+        Returns
+        -------
+        tuple of Element
+            The passive parts and op-amps on the topology's ``NETS``, ground "0".
+
+        Raises
+        ------
+        ValueError
+            If a needed part is missing or a part is unknown (modules that check).
+        """
+
+    def limits(self, section: Section, model: OpAmp) -> Limits:
+        """What this topology can do for `section` with op-amp `model`.
+
+        Parameters
+        ----------
+        section : Section
+            A section of the topology's ``KIND``.
+        model : OpAmp
+            The op-amp (every amplifier of the topology).
+
+        Returns
+        -------
+        Limits
+            Feasibility with its reasons, the GBW needed, spread, Q sensitivity, noise gain
+            and number of op-amps; each module's docstring says when it is infeasible.
+
+        Notes
+        -----
+        Keyword options by kind: ``BandpassTopology.limits``, ``GainStageTopology.limits``.
+        """
 
 
 class BandpassTopology(Topology, Protocol):
@@ -127,7 +167,30 @@ class BandpassTopology(Topology, Protocol):
 
     def limits(self, section: Section, model: OpAmp, *, r_tolerance: float = ...,
                c_tolerance: float | None = None, max_spread: float = ...,
-               accept_gain_shortfall: bool = False) -> Limits: ...
+               accept_gain_shortfall: bool = False) -> Limits:
+        """What this bandpass topology can do for `section` with op-amp `model`.
+
+        Parameters
+        ----------
+        section : Section
+            A bandpass section.
+        model : OpAmp
+            The op-amp (every amplifier of the topology).
+        r_tolerance : float
+            Relative resistor tolerance for the Q-shift criterion (0.01 = 1 %).
+        c_tolerance : float or None
+            Relative capacitor tolerance (None: the same as `r_tolerance`).
+        max_spread : float
+            Largest resistor spread accepted.
+        accept_gain_shortfall : bool
+            When True, a |gain| above the topology's natural gain is a note (the design
+            gives the natural gain and a gain stage makes up the rest) instead of a failure.
+
+        Returns
+        -------
+        Limits
+            As ``Topology.limits``; each module's docstring says when it is infeasible.
+        """
 
 
 class GainStageTopology(Topology, Protocol):
@@ -135,4 +198,21 @@ class GainStageTopology(Topology, Protocol):
     (`max_freq_hz`; None: its own default)."""
 
     def limits(self, section: Section, model: OpAmp, *,
-               max_freq_hz: float | None = None) -> Limits: ...
+               max_freq_hz: float | None = None) -> Limits:
+        """What this gain stage needs and offers.
+
+        Parameters
+        ----------
+        section : Section
+            The gain section.
+        model : OpAmp
+            The op-amp.
+        max_freq_hz : float, optional
+            Highest signal frequency, Hz. A gain section carries no frequency, so without it
+            ``gbw_needed_hz`` is 0 (nothing can be said) and a reason says so.
+
+        Returns
+        -------
+        Limits
+            As ``Topology.limits``; each module's docstring says when it is infeasible.
+        """

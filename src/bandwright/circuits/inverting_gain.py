@@ -144,21 +144,9 @@ def design(section: Section, *, c_farads: float | None = None) -> dict[str, floa
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
     """Element list of the stage.
 
-    Parameters
-    ----------
-    components : mapping of str to float
-        Rin, Rf (ohms).
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.elements``.
 
-    Returns
-    -------
-    tuple of Element
-
-    Raises
-    ------
-    ValueError
-        If a part is missing or unknown.
+    Parts Rin, Rf (ohms), both needed.
     """
     _check_parts(components)
     return (
@@ -176,22 +164,11 @@ def _summary(parts: Mapping[str, float]) -> str:
 def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) -> Limits:
     """What this stage needs and offers.
 
-    Parameters
-    ----------
-    section : Section
-        The gain section.
-    model : OpAmp
-        The op-amp model.
-    max_freq_hz : float, optional
-        Highest signal frequency, Hz. A gain section carries no frequency, so without it
-        ``gbw_needed_hz`` is 0 (nothing can be said) and a reason says so.
+    Parameters and return as ``circuits.base.GainStageTopology.limits``.
 
-    Returns
-    -------
-    Limits
-        Infeasible for a zero gain, a resistor ratio above ``MAX_SPREAD`` or, with
-        `max_freq_hz`, too little GBW. ``noise_gain`` is 1 + |gain| -- one more than the
-        non-inverting stage of the same |gain| -- and ``q_sensitivity`` 0 (no Q).
+    Infeasible for a zero gain, a resistor ratio above ``MAX_SPREAD`` or, with
+    `max_freq_hz`, too little GBW. ``noise_gain`` is 1 + |gain| -- one more than the non-
+    inverting stage of the same |gain| -- and ``q_sensitivity`` 0 (no Q).
     """
     return common.gain_stage_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
                                     noise_gain=noise_gain, summary=_summary,

@@ -132,21 +132,9 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
     """Element list of the section.
 
-    Parameters
-    ----------
-    components : mapping of str to float
-        C1, C2, C3 (farads), R1, R2 (ohms).
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.elements``.
 
-    Returns
-    -------
-    tuple of Element
-
-    Raises
-    ------
-    ValueError
-        If a part is missing or unknown.
+    Parts C1, C2, C3 (farads), R1, R2 (ohms), all needed.
     """
     common.check_exact_parts(NAME, PARTS, components)
     return (
@@ -166,22 +154,14 @@ def _summary(parts: Mapping[str, float], fig: Figures) -> str:
 
 
 def limits(section: Section, model: OpAmp) -> Limits:
-    """What this topology needs and offers for one section.
+    """What this topology needs and offers for one highpass section.
 
-    Parameters
-    ----------
-    section : Section
-        The highpass section.
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.limits``.
 
-    Returns
-    -------
-    Limits
-        Infeasible for a spread (R2/R1 = Q^2 (2K+1)^2 / K) above
-        ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
-        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._filter_and_gain``).
-        The noise gain rises to 1 + K above f0, so a wideband op-amp noise floor passes.
+    Infeasible for a spread (R2/R1 = Q^2 (2K+1)^2 / K) above ``MAX_SPREAD``, or too little
+    GBW. ``gbw_needed_hz`` keeps the first-order finite-GBW shifts of f0 and Q within 10 %
+    (derived, ``circuits._filter_and_gain``). The noise gain rises to 1 + K above f0, so a
+    wideband op-amp noise floor passes.
     """
     return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
                                 ideal_figures=ideal_figures,

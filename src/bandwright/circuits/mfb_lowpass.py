@@ -189,21 +189,9 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
     """Element list of the section.
 
-    Parameters
-    ----------
-    components : mapping of str to float
-        R1, R2, R3 (ohms), C1, C2 (farads).
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.elements``.
 
-    Returns
-    -------
-    tuple of Element
-
-    Raises
-    ------
-    ValueError
-        If a part is missing or unknown.
+    Parts R1, R2, R3 (ohms), C1, C2 (farads), all needed.
     """
     common.check_exact_parts(NAME, PARTS, components)
     return (
@@ -222,21 +210,13 @@ def _summary(parts: Mapping[str, float], fig: Figures) -> str:
 
 
 def limits(section: Section, model: OpAmp) -> Limits:
-    """What this topology needs and offers for one section.
+    """What this topology needs and offers for one lowpass section.
 
-    Parameters
-    ----------
-    section : Section
-        The lowpass section.
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.limits``.
 
-    Returns
-    -------
-    Limits
-        Infeasible for a spread (C1/C2 = 4 Q^2 (1 + K), or the resistors)
-        above ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
-        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._filter_and_gain``).
+    Infeasible for a spread (C1/C2 = 4 Q^2 (1 + K), or the resistors) above ``MAX_SPREAD``,
+    or too little GBW. ``gbw_needed_hz`` keeps the first-order finite-GBW shifts of f0 and Q
+    within 10 % (derived, ``circuits._filter_and_gain``).
     """
     return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
                                 ideal_figures=ideal_figures,

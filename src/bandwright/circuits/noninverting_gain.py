@@ -160,21 +160,10 @@ def design(section: Section, *, c_farads: float | None = None) -> dict[str, floa
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
     """Element list of the stage (see the module docstring for the three forms).
 
-    Parameters
-    ----------
-    components : mapping of str to float
-        A subset of PARTS: pairs Rf/Rg and Ra/Rb each fitted whole or not at all.
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.elements``.
 
-    Returns
-    -------
-    tuple of Element
-
-    Raises
-    ------
-    ValueError
-        If a pair is half fitted or a part is unknown.
+    Parts: a subset of PARTS, pairs Rf/Rg and Ra/Rb each fitted whole or not at all (a half-
+    fitted pair is a ValueError).
     """
     has_fb, has_div = _pairs(components)
     out: list[Element] = []
@@ -199,22 +188,11 @@ def _form(parts: Mapping[str, float]) -> str:
 def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) -> Limits:
     """What this stage needs and offers.
 
-    Parameters
-    ----------
-    section : Section
-        The gain section.
-    model : OpAmp
-        The op-amp model.
-    max_freq_hz : float, optional
-        Highest signal frequency, Hz. A gain section carries no frequency, so without it
-        ``gbw_needed_hz`` is 0 (nothing can be said) and a reason says so.
+    Parameters and return as ``circuits.base.GainStageTopology.limits``.
 
-    Returns
-    -------
-    Limits
-        Infeasible for a zero gain, a resistor ratio above ``MAX_SPREAD`` or, with
-        `max_freq_hz`, too little GBW (``gbw_needed_for_hz``). ``noise_gain`` is 1 + Rf/Rg,
-        ``q_sensitivity`` 0 (no Q).
+    Infeasible for a zero gain, a resistor ratio above ``MAX_SPREAD`` or, with
+    `max_freq_hz`, too little GBW (``gbw_needed_for_hz``). ``noise_gain`` is 1 + Rf/Rg,
+    ``q_sensitivity`` 0 (no Q).
     """
     return common.gain_stage_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
                                     noise_gain=noise_gain, summary=_form,

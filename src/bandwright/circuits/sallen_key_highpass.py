@@ -141,21 +141,9 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
     """Element list of the section.
 
-    Parameters
-    ----------
-    components : mapping of str to float
-        C1, C2, R1, R2 and optionally both of Rf, Rg.
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.elements``.
 
-    Returns
-    -------
-    tuple of Element
-
-    Raises
-    ------
-    ValueError
-        If only one of Rf, Rg is given, or a part is not in PARTS.
+    Parts C1, C2, R1, R2 and optionally both of Rf, Rg; only one of Rf, Rg is a ValueError.
     """
     common.check_known_parts(NAME, PARTS, components)
     has_gain = common.pair_fitted(NAME, components, "Rf", "Rg")
@@ -175,21 +163,13 @@ def _summary(parts: Mapping[str, float], fig: Figures) -> str:
 
 
 def limits(section: Section, model: OpAmp) -> Limits:
-    """What this topology needs and offers for one section.
+    """What this topology needs and offers for one highpass section.
 
-    Parameters
-    ----------
-    section : Section
-        The highpass section.
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.limits``.
 
-    Returns
-    -------
-    Limits
-        Infeasible for |gain| < 1, a spread (R2/R1 = 4 Q^2 at unity gain) above
-        ``MAX_SPREAD``, or too little GBW. ``gbw_needed_hz`` keeps the first-order
-        finite-GBW shifts of f0 and Q within 10 % (derived, ``circuits._filter_and_gain``).
+    Infeasible for |gain| < 1, a spread (R2/R1 = 4 Q^2 at unity gain) above ``MAX_SPREAD``,
+    or too little GBW. ``gbw_needed_hz`` keeps the first-order finite-GBW shifts of f0 and Q
+    within 10 % (derived, ``circuits._filter_and_gain``).
     """
     return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
                                 ideal_figures=ideal_figures,

@@ -207,21 +207,9 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
     """Element list of the section.
 
-    Parameters
-    ----------
-    components : mapping of str to float
-        R1, R2, C1, C2 and optionally both of Rf, Rg.
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.elements``.
 
-    Returns
-    -------
-    tuple of Element
-
-    Raises
-    ------
-    ValueError
-        If only one of Rf, Rg is given, or a part is not in PARTS.
+    Parts R1, R2, C1, C2 and optionally both of Rf, Rg; only one of Rf, Rg is a ValueError.
     """
     common.check_known_parts(NAME, PARTS, components)
     has_gain = common.pair_fitted(NAME, components, "Rf", "Rg")
@@ -241,24 +229,16 @@ def _summary(parts: Mapping[str, float], fig: Figures) -> str:
 
 
 def limits(section: Section, model: OpAmp) -> Limits:
-    """What this topology needs and offers for one section.
+    """What this topology needs and offers for one lowpass section.
 
-    Parameters
-    ----------
-    section : Section
-        The lowpass section.
-    model : OpAmp
-        The op-amp model.
+    Parameters and return as ``circuits.base.Topology.limits``.
 
-    Returns
-    -------
-    Limits
-        Infeasible for |gain| < 1, a spread above ``MAX_SPREAD`` or too little
-        GBW. ``gbw_needed_hz`` keeps the first-order finite-GBW shifts of f0 and Q within
-        10 % (derived, see ``circuits._filter_and_gain``; at unity gain it is 10 Q f0, a tenth
-        of the common-practice 100 Q f0 that assumes no predistortion). ``spread`` is the
-        larger of C1/C2 (the resistors are equal) and Rf/Rg. ``noise_gain`` is |NG(j w0)|,
-        1 + 2 Q^2 at unity gain: far above K near f0.
+    Infeasible for |gain| < 1, a spread above ``MAX_SPREAD`` or too little GBW.
+    ``gbw_needed_hz`` keeps the first-order finite-GBW shifts of f0 and Q within 10 %
+    (derived, see ``circuits._filter_and_gain``; at unity gain it is 10 Q f0, a tenth of the
+    common-practice 100 Q f0 that assumes no predistortion). ``spread`` is the larger of
+    C1/C2 (the resistors are equal) and Rf/Rg. ``noise_gain`` is |NG(j w0)|, 1 + 2 Q^2 at
+    unity gain: far above K near f0.
     """
     return common.filter_limits(section, model, kind=KIND, opamps=OPAMPS, design=design,
                                 ideal_figures=ideal_figures,

@@ -125,17 +125,10 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
     """The element list of the section (all three op-amps use `model`).
 
-    Parameters
-    ----------
-    components : mapping of str to float
-        Values of ``PARTS`` (R1b may be absent or ``math.inf``: not fitted).
-    model : OpAmp
-        The op-amp.
+    Parameters and return as ``circuits.base.Topology.elements``.
 
-    Returns
-    -------
-    tuple of Element
-        Nets "in", "p", "m", "highpass", "i1", "out", "i2", "lowpass" and ground "0".
+    R1b may be absent or ``math.inf`` (not fitted). Nets "in", "p", "m", "highpass", "i1",
+    "out", "i2", "lowpass" and ground "0".
     """
     c = components
     return (*common.input_divider(c, "p"),
@@ -238,29 +231,14 @@ def limits(section: Section, model: OpAmp, *,
            r_tolerance: float = common.DEFAULT_TOLERANCE, c_tolerance: float | None = None,
            max_spread: float = common.MAX_SPREAD,
            accept_gain_shortfall: bool = False) -> Limits:
-    """What this topology can do for `section` with op-amp `model`.
+    """What this topology can do for `section` with op-amp `model` (all three amplifiers).
 
-    Parameters
-    ----------
-    section : Section
-        A bandpass section.
-    model : OpAmp
-        The op-amp (all three amplifiers).
-    r_tolerance : float
-        Relative resistor tolerance for the Q-shift criterion (0.01 = 1 %).
-    c_tolerance : float or None
-        Relative capacitor tolerance (None: the same as `r_tolerance`).
-    max_spread : float
-        Largest resistor spread accepted.
-    accept_gain_shortfall : bool
-        When True, |gain| above 2Q - 1 is a note (the design gives 2Q - 1 and a gain
-        stage makes up the rest) instead of a failure.
+    Parameters and return as ``circuits.base.BandpassTopology.limits``.
 
-    Returns
-    -------
-    Limits
-        Infeasible when Q <= 1/2, the op-amp GBW is below ``gbw_needed_hz``, the gain is
-        out of reach (unless accepted) or the spread exceeds `max_spread`.
+    `accept_gain_shortfall`: |gain| above 2Q - 1 is a note (the design gives 2Q - 1 and a
+    gain stage makes up the rest) instead of a failure. Infeasible when Q <= 1/2, the op-amp
+    GBW is below ``gbw_needed_hz``, the gain is out of reach (unless accepted) or the
+    resistor spread exceeds `max_spread`.
     """
     return common.topology_limits(
         section, model, opamps=OPAMPS, design=design, gbw_needed_hz=gbw_needed_hz,

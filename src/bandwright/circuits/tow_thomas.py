@@ -92,17 +92,10 @@ def design(section: Section, *, c_farads: float) -> dict[str, float]:
 def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ...]:
     """The element list of the section (all three op-amps use `model`).
 
-    Parameters
-    ----------
-    components : mapping of str to float
-        Values of ``PARTS``.
-    model : OpAmp
-        The op-amp.
+    Parameters and return as ``circuits.base.Topology.elements``.
 
-    Returns
-    -------
-    tuple of Element
-        Nets "in", "s1", "out", "s2", "lowpass", "s3", "inverter" and ground "0".
+    Every part is needed. Nets "in", "s1", "out", "s2", "lowpass", "s3", "inverter" and
+    ground "0".
     """
     c = components
     return (resistor("Rin", "in", "s1", c["Rin"]),
@@ -204,28 +197,13 @@ def limits(section: Section, model: OpAmp, *,
            r_tolerance: float = common.DEFAULT_TOLERANCE, c_tolerance: float | None = None,
            max_spread: float = common.MAX_SPREAD,
            accept_gain_shortfall: bool = False) -> Limits:
-    """What this topology can do for `section` with op-amp `model`.
+    """What this topology can do for `section` with op-amp `model` (all three amplifiers).
 
-    Parameters
-    ----------
-    section : Section
-        A bandpass section.
-    model : OpAmp
-        The op-amp (all three amplifiers).
-    r_tolerance : float
-        Relative resistor tolerance for the Q-shift criterion (0.01 = 1 %).
-    c_tolerance : float or None
-        Relative capacitor tolerance (None: the same as `r_tolerance`).
-    max_spread : float
-        Largest resistor spread accepted (Q and Q/|H0| over 1).
-    accept_gain_shortfall : bool
-        Accepted for a uniform interface; the gain has no limit here.
+    Parameters and return as ``circuits.base.BandpassTopology.limits``.
 
-    Returns
-    -------
-    Limits
-        Infeasible when the op-amp GBW is below ``gbw_needed_hz`` or the spread exceeds
-        `max_spread`.
+    The resistor spread is Q and Q/|H0| over 1. `accept_gain_shortfall` is accepted for a
+    uniform interface: the gain has no limit here. Infeasible when the op-amp GBW is below
+    ``gbw_needed_hz`` or the spread exceeds `max_spread`.
     """
     return common.topology_limits(
         section, model, opamps=OPAMPS, design=design, gbw_needed_hz=gbw_needed_hz,
