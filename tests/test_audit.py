@@ -11,7 +11,7 @@ import pytest
 from bandwright.audit import audit
 from bandwright.errors import SpecError
 
-from conftest import SCENARIOS, exit_code_of, run_cli
+from conftest import exit_code_of, run_cli
 
 CHAIN = """
 [input]
@@ -33,10 +33,9 @@ parts = { R1 = "10k", R2 = "10k", R3 = "4k99", C1 = "10n", C2 = "1n" }
 
 
 @pytest.mark.slow
-def test_plan_out_chain_toml_audits_to_the_same_figures(tmp_path):
+def test_plan_out_chain_toml_audits_to_the_same_figures(scenario_cli_out):
     """docs/design.md: `bandwright audit DIR/chain.toml` reproduces the plan's figures."""
-    out = tmp_path / "o"
-    r = run_cli("plan", SCENARIOS / "audio_band.toml", "--out", out, "--json")
+    r, out = scenario_cli_out("audio_band")  # `plan SPEC --out DIR --json`, once a session
     planned = json.loads(r.stdout)
     assert r.returncode == exit_code_of(planned), r.stderr
     a = run_cli("audit", out / "chain.toml", "--json")
@@ -50,7 +49,7 @@ def test_plan_out_chain_toml_audits_to_the_same_figures(tmp_path):
     for p, q in zip(planned["stages"], audited["stages"]):
         assert p["topology"] == q["topology"] and p["components"] == q["components"]
         for k in ("f0_hz", "q", "gain"):
-            assert q["actual"][k] == pytest.approx(p["actual"][k], rel=1e-9)
+            assert q["built"][k] == pytest.approx(p["built"][k], rel=1e-9)
     assert planned["noise"]["integrated_vrms"] == pytest.approx(
         audited["noise"]["integrated_vrms"], rel=1e-9)
 
@@ -94,13 +93,12 @@ def test_bad_chain_file_names_stage_and_part(name, text, key, word, tmp_path):
     assert not (tmp_path / "o").exists()
 
 
-def test_bom_lists_every_part_once_with_the_yield_tolerances(tmp_path):
+def test_bom_lists_every_part_once_with_the_yield_tolerances(scenario_cli_out):
     """bom.csv: every element of the chain appears once under its designator, quantities add
     up to the element count, and the tolerances are those the yield was computed for (the
     scenario's [tolerance]: 0.1 % resistors, 1 % capacitors)."""
     import csv
-    out = tmp_path / "o"
-    r = run_cli("plan", SCENARIOS / "lockin_mains.toml", "--out", out)
+    r, out = scenario_cli_out("lockin_mains")  # `plan SPEC --json --out DIR`, once a session
     assert r.returncode == 0, r.stderr
     rows = list(csv.DictReader((out / "bom.csv").read_text().splitlines()))
     refs = [d for row in rows for d in row["designators"].split()]

@@ -43,7 +43,7 @@ from bandwright.report.tuning import design_settings, set_trimmers
 from bandwright.inputs import spec_from_dict
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from conftest import exit_code_of  # noqa: E402
+from conftest import exit_code_of, planned_scenario, scenario_case  # noqa: E402
 from spice_tools import (run_ngspice_ac, run_ngspice_ac_lin, run_ngspice_ac_points,  # noqa: E402
                          run_ngspice_noise)
 
@@ -133,8 +133,11 @@ def requirement(name: str):
 
 @functools.lru_cache(maxsize=None)
 def planned(name: str):
-    """The plan of case `name` (planned once per test session: a plan is frozen data)."""
-    p = plan(requirement(name))
+    """The plan of case `name` (planned once per test session: a plan is frozen data; an
+    unchanged bundled scenario's is the session's shared one, tests/conftest.py)."""
+    scenario, changes = CASES[name]
+    p = planned_scenario(scenario) if scenario is not None and not changes \
+        else plan(requirement(name))
     assert p.chosen.chain is not None, f"{name}: no buildable chain: {p.chosen.checks}"
     return p
 
@@ -142,6 +145,9 @@ def planned(name: str):
 @functools.lru_cache(maxsize=None)
 def out_files(name: str) -> dict[str, bytes]:
     """The --out files of case `name`, the plan's JSON included."""
+    scenario, changes = CASES[name]
+    if scenario is not None and not changes:
+        return scenario_case(scenario).files
     p = planned(name)
     return plan_files(p, dumps(plan_to_dict(p)))
 
@@ -499,7 +505,7 @@ def _assert_close(a, b, what) -> None:
 def _assert_same_figures(plan_doc: dict, audit_doc: dict, *,
                          skip_ids: tuple[str, ...] = PLAN_ONLY_CHECKS) -> None:
     """Response, stage figures and checks of two JSON objects: check ids, stages, nets and
-    statuses equal; response, each stage's actual f0, Q and gain, check values and limits
+    statuses equal; response, each stage's built f0, Q and gain, check values and limits
     within 1e-6 relative."""
     pr, ar = plan_doc["response"], audit_doc["response"]
     np.testing.assert_allclose(ar["freq_hz"], pr["freq_hz"], rtol=1e-9)
@@ -511,8 +517,8 @@ def _assert_same_figures(plan_doc: dict, audit_doc: dict, *,
         [s["topology"] for s in plan_doc["stages"]]
     for a, b in zip(audit_doc["stages"], plan_doc["stages"]):
         for field in ("f0_hz", "q", "gain"):
-            _assert_close(a["actual"][field], b["actual"][field],
-                          (b["position"], b["topology"], "actual", field))
+            _assert_close(a["built"][field], b["built"][field],
+                          (b["position"], b["topology"], "built", field))
     plan_checks = [c for c in plan_doc["checks"] if c["id"] not in skip_ids]
     audit_checks = [c for c in audit_doc["checks"] if c["id"] not in skip_ids]
     assert [_check_key(c) for c in audit_checks] == [_check_key(c) for c in plan_checks]
@@ -552,13 +558,11 @@ def test_audit_of_written_chain_reproduces_the_plan(name, tmp_path):
         [s["components"] for s in plan_doc["stages"]]
 
 
-def test_cli_plan_out_then_audit(tmp_path):
+def test_cli_plan_out_then_audit(scenario_cli_out):
     """The same round trip as a user runs it: ``bandwright plan SPEC --json --out DIR`` and
-    ``bandwright audit DIR/chain.toml --json`` (scenario lockin_mains)."""
-    out = tmp_path / "out"
-    rp = subprocess.run([sys.executable, "-m", "bandwright", "plan",
-                         str(SCENARIOS / "lockin_mains.toml"), "--json", "--out", str(out)],
-                        capture_output=True, text=True)
+    ``bandwright audit DIR/chain.toml --json`` (scenario lockin_mains; the plan command is
+    the session's shared run, tests/conftest.py)."""
+    rp, out = scenario_cli_out("lockin_mains")
     plan_doc = json.loads(rp.stdout)
     assert rp.returncode == exit_code_of(plan_doc), rp.stderr
     assert json.loads((out / "plan.json").read_text()) == plan_doc

@@ -7,9 +7,11 @@ import math
 
 import pytest
 
-from conftest import SCENARIOS, exit_code_of, run_cli
+from conftest import SCENARIOS, exit_code_of, run_cli, scenario_cli_json
 
 SCENARIO = SCENARIOS / "ultrasonic_ranging.toml"
+# The cheapest bundled scenario, for tests of the command's plumbing rather than of a plan.
+QUICK = SCENARIOS / "lockin_mains.toml"
 
 
 def test_plan_prints_family_order_and_sections():
@@ -20,15 +22,17 @@ def test_plan_prints_family_order_and_sections():
 
 
 def test_json_is_exactly_one_object_with_design_keys():
-    r = run_cli("plan", SCENARIO, "--json")
+    r = scenario_cli_json(SCENARIO.stem)  # `plan SCENARIO --json`, run once per session
     doc = json.loads(r.stdout)  # raises on anything but exactly one JSON document
     for key in ("tool", "prototype", "stages", "checks", "response", "nodes", "noise"):
         assert key in doc
     assert doc["tool"]["name"] == "bandwright"
-    assert set(doc["prototype"]) >= {"family", "order", "ripple_db"}
+    assert set(doc["prototype"]) >= {"family", "order", "design_loss_db", "path"}
     st = doc["stages"][0]
-    assert set(st) >= {"position", "kind", "f0_hz", "q", "gain", "topology", "components",
-                       "nets", "actual"}
+    assert set(st) >= {"position", "kind", "target", "topology", "components", "nets",
+                       "ideal_parts", "built"}
+    for figures in ("target", "ideal_parts", "built"):
+        assert set(st[figures]) == {"f0_hz", "q", "gain"}
     assert [s["position"] for s in doc["stages"]] == list(range(1, len(doc["stages"]) + 1))
     for c in doc["checks"]:
         assert set(c) >= {"id", "stage", "net", "status", "value", "limit", "unit", "message"}
@@ -36,7 +40,7 @@ def test_json_is_exactly_one_object_with_design_keys():
 
 def test_response_grid_meets_design_density():
     """docs/design.md: ≥ 100 points a decade, ≥ 50 inside the passband."""
-    doc = json.loads(run_cli("plan", SCENARIO, "--json").stdout)
+    doc = json.loads(scenario_cli_json(SCENARIO.stem).stdout)
     f = doc["response"]["freq_hz"]
     decades = math.log10(f[-1] / f[0])
     assert len(f) >= 100 * decades
@@ -93,7 +97,7 @@ def test_out_refuses_non_empty_folder_without_force(tmp_path):
 def test_out_into_existing_empty_folder(tmp_path):
     out = tmp_path / "empty"
     out.mkdir()
-    r = run_cli("plan", SCENARIO, "--out", out)
+    r = run_cli("plan", QUICK, "--out", out)
     assert r.returncode == exit_code_of(json.loads((out / "plan.json").read_text()))
     assert [p.name for p in tmp_path.iterdir()] == ["empty"]  # no temporary left behind
 
@@ -104,7 +108,7 @@ def test_stdout_on_a_full_disk_is_one_line_and_exit_2(tmp_path):
     import sys
     for extra in ([], ["--json"]):
         with open("/dev/full", "w") as full:
-            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(SCENARIO),
+            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(QUICK),
                                 *extra], stdout=full, stderr=subprocess.PIPE, text=True)
         assert r.returncode == 2, r.stderr
         assert r.stderr.strip().splitlines() == [
@@ -121,7 +125,7 @@ def test_closed_stdout_pipe_exits_quietly_with_141(tmp_path):
         read, write = os.pipe()
         os.close(read)
         try:
-            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(SCENARIO),
+            r = subprocess.run([sys.executable, "-m", "bandwright", "plan", str(QUICK),
                                 *extra], stdout=write, stderr=subprocess.PIPE, text=True)
         finally:
             os.close(write)

@@ -169,6 +169,7 @@ def test_special_folders_are_refused_with_and_without_force(where, tmp_path, mon
     assert _snapshot(tmp_path) == before
 
 
+@pytest.mark.slow
 def test_cli_force_never_touches_the_input_or_planted_files(tmp_path, spec):
     """The issue's cases through the real command: the input's folder, a folder of the
     user's, and the folder a chain file came from."""

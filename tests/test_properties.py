@@ -19,6 +19,7 @@ import math
 import os
 from unittest import mock
 
+import pytest
 import numpy as np
 from hypothesis import HealthCheck, given, settings, strategies as st
 
@@ -240,6 +241,7 @@ def requirements(draw):
     return doc
 
 
+@pytest.mark.slow
 @_settings(10)
 @given(requirements())
 def test_plan_whose_mask_passes_meets_it_when_recomputed(doc):

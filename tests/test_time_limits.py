@@ -57,6 +57,9 @@ SCENARIOS = __import__("pathlib").Path(__file__).resolve().parents[1] / "scenari
 
 
 def _scenario(name: str, **input_changes):
+    if not input_changes:  # the unchanged scenario: the session's shared plan (conftest.py)
+        from conftest import planned_scenario
+        return planned_scenario(name)
     import tomllib
     doc = tomllib.loads((SCENARIOS / f"{name}.toml").read_text())
     doc["input"].update(input_changes)

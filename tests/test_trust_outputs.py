@@ -21,7 +21,7 @@ import bandwright
 from bandwright import cli
 from bandwright.report.outdir import write_out_dir
 
-from conftest import SCENARIOS, exit_code_of, run_cli
+from conftest import SCENARIOS, exit_code_of, run_cli, scenario_cli_json
 
 # Two scenarios with a Monte Carlo yield (seeded by [tolerance] seed, default 1).
 SAME_TWICE = ["tone_detector.toml", "machine_vibration.toml"]
@@ -29,7 +29,8 @@ SAME_TWICE = ["tone_detector.toml", "machine_vibration.toml"]
 
 @pytest.mark.parametrize("name", SAME_TWICE)
 def test_same_input_gives_byte_identical_json_in_two_processes(name):
-    first = run_cli("plan", SCENARIOS / name, "--json")
+    # The first process is the session's shared `plan SPEC --json` run (tests/conftest.py).
+    first = scenario_cli_json(name.removesuffix(".toml"))
     second = run_cli("plan", SCENARIOS / name, "--json")
     assert first.returncode == second.returncode
     assert first.stdout == second.stdout

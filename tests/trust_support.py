@@ -106,10 +106,10 @@ def missing_figures(doc: dict) -> list[str]:
         out.append("noise.integrated_vrms")
     for i, st in enumerate(doc["stages"]):
         for k in _STAGE:
-            if st["kind"] != "gain" and st[k] is None:
-                out.append(f"stages[{i}].{k}")
-            if st["kind"] != "gain" and st["actual"][k] is None:
-                out.append(f"stages[{i}].actual.{k}")
+            if st["kind"] != "gain" and st["target"][k] is None:
+                out.append(f"stages[{i}].target.{k}")
+            if st["kind"] != "gain" and st["built"][k] is None:
+                out.append(f"stages[{i}].built.{k}")
         out += [f"stages[{i}].components.{n}" for n, v in st["components"].items() if v is None]
     for i, n in enumerate(doc["nodes"]):
         out += [f"nodes[{i}].{k}" for k in _NODE if n[k] is None]

@@ -17,6 +17,9 @@ from bandwright.analysis.tuning import plan_from_trims
 from bandwright.analysis.montecarlo import YieldResult
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.graph import attach_converter
+from bandwright.chain.blocking import block_corner_hz, corner_grid
+from bandwright.chain.stage import with_block
+from bandwright.circuits.dc_block import DcBlock
 from bandwright.checks import all_checks
 from bandwright.checks.base import Check
 from bandwright.checks.yield_check import yield_checks
@@ -94,6 +97,23 @@ def _build_stage(path: str, position: int, topo, parts, model, key: str,
                  reason="as given in the audit file")
 
 
+def _given_blocks(chain: Chain, req: Requirement, blocks: dict) -> Chain:
+    """`chain` with the DC blocks the file gives (`dc_block` of a stage), their corners read
+    as a plan reads them (``chain.blocking.block_corner_hz``)."""
+    if not blocks:
+        return chain
+    grid = corner_grid(req.passband.low_hz, req.passband.high_hz)
+    stages = []
+    for st in chain.stages:
+        if st.position in blocks:
+            c, r = blocks[st.position]
+            corner = block_corner_hz(st.elements, c, r, grid)
+            st = with_block(st, DcBlock(c_farads=c, r_ohms=r, net="in", corner_hz=corner,
+                                        reason="as given in the audit file"))
+        stages.append(st)
+    return build_chain(stages, source_ohms=chain.source_ohms)
+
+
 def _passband_from_response(chain: Chain) -> Passband:
     """The -3 dB band around the built response's peak (for grids only, no mask)."""
     from bandwright.analysis.levels import net_transfers
@@ -155,6 +175,7 @@ def audit(path: str | Path, *, measured: str | Path | None = None,
                           amplifier=common["amplifier"], environment=common["environment"],
                           noise=common["noise"], tolerance=common["tolerance"],
                           converter=common.get("converter"))
+    chain = _given_blocks(chain, req, common.get("dc_blocks", {}))
     chain = attach_converter(chain, req.converter)
     an = analyse(chain, req, with_mask=has_mask)
     checks = tuple(all_checks(chain, an, req))

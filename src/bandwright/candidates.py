@@ -115,7 +115,7 @@ def _decider(req: Requirement, family: str, omegas, order: int, loss_db: float) 
 
 def _side_order(family: str, omegas: list[float], losses: list[float], loss_db: float,
                 fallback: int | None) -> tuple[int, bool]:
-    """Order of one side of the wideband path (even: every section a biquad), and whether
+    """Order of one side of the highpass + lowpass path (even: every section a biquad), and whether
     it was capped at MAX_ORDER."""
     if fallback is not None:
         n = fallback

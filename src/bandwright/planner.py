@@ -23,6 +23,7 @@ from bandwright.candidates import Candidate, make_candidates, path_label
 from bandwright.chain import Chain, Stage, build_chain
 from bandwright.chain.graph import attach_converter
 from bandwright.chain.stage import with_parts
+from bandwright.chain.blocking import place_dc_blocks
 from bandwright.analysis.mask import trim_judge
 from bandwright.chain.graph import net_transfers
 from bandwright.chain import trim
@@ -713,7 +714,9 @@ def _build_and_trim(assignments: list[Assignment], req: Requirement, model: OpAm
             changed = True
         if not changed:
             break
-    return chain
+    # DC blocks go in after the trim (the trim rounds the sections, the block stays out of
+    # their figures); the analyses that follow see them in the stages' element lists.
+    return place_dc_blocks(chain, req)
 
 
 def _trim_breaks_gbw_rule(before: Stage, after: Stage) -> bool:

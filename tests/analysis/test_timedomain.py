@@ -35,6 +35,7 @@ from bandwright.report.spice import spice_deck
 
 import tomllib
 
+from conftest import planned_scenario  # noqa: E402
 from ngspice_runner import WRDATA_SETUP, ngspice_available, read_wrdata, run_ngspice
 from spice_tools import run_ngspice_ac_lin, with_control
 
@@ -44,6 +45,9 @@ needs_ngspice = pytest.mark.skipif(not ngspice_available(), reason="ngspice not 
 
 @functools.lru_cache(maxsize=None)
 def planned(name: str, **changes):
+    if not changes:  # the unchanged scenario: the session's shared plan (tests/conftest.py)
+        p = planned_scenario(name)
+        return p.requirement, p.chosen
     doc = tomllib.loads((SCENARIOS / f"{name}.toml").read_text())
     for table, values in changes.items():
         doc.setdefault(table, {}).update(dict(values))

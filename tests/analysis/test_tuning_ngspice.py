@@ -30,11 +30,10 @@ from bandwright.analysis.montecarlo.sampling import (resolve_spreads, sample_col
 from bandwright.analysis.sensitivity import stage_sensitivity
 from bandwright.chain.graph import build_chain, flatten
 from bandwright.circuits.elements import Element
-from bandwright.inputs.loader import load_spec
-from bandwright.planner import plan
 from bandwright.report.spice import spice_deck
 from bandwright.report.tuning import trimmed_elements
 
+from conftest import planned_scenario  # noqa: E402
 from ngspice_runner import ngspice_available  # noqa: E402
 from spice_tools import run_ngspice_ac_lin  # noqa: E402
 
@@ -49,8 +48,9 @@ SWEEP = (9600.0, 10400.0, 1601)   # 0.5 Hz steps over every stage's tuning range
 
 @functools.lru_cache(maxsize=None)
 def tuned_plan():
-    req = load_spec(SCENARIO)
-    p = plan(req)
+    # The session's shared plan of the scenario (tests/conftest.py): load_spec(SCENARIO).
+    p = planned_scenario(SCENARIO.stem)
+    req = p.requirement
     assert p.chosen.tuning is not None
     return req, p.chosen.chain, p.chosen.tuning
 

@@ -72,3 +72,25 @@ def test_built_mfb_lands_near_target_with_series_parts(q, gbw):
     assert r.ideal.f0_hz == pytest.approx(sec.f0_hz, rel=1e-5)
     assert r.ideal.q == pytest.approx(sec.q, rel=1e-5)
     assert figure_error(r.built, sec) < 1e-3
+
+
+def test_optional_natural_gain_members_as_the_protocol_documents():
+    """``circuits.base.Topology``, "Optional members": a topology has at most one of
+    ``natural_gain`` (callable of Q) and ``NATURAL_GAIN`` (a number); the bandpass ceilings
+    are the published ones (MFB 2Q², Sallen-Key 3Q - 1, state-variable 2Q - 1: the
+    modules' own docstrings name the sources), checked here at Q = 5."""
+    from bandwright.circuits import TOPOLOGY_NAMES, topology
+    from bandwright.circuits.assign import _natural_gain
+
+    for name in TOPOLOGY_NAMES:
+        topo = topology(name)
+        has_fn, has_const = hasattr(topo, "natural_gain"), hasattr(topo, "NATURAL_GAIN")
+        assert not (has_fn and has_const), name
+        if has_fn:
+            assert callable(topo.natural_gain), name
+        if has_const:
+            assert isinstance(topo.NATURAL_GAIN, float), name
+    expected = {"mfb_bandpass": 50.0, "sallen_key_bandpass": 14.0, "state_variable": 9.0,
+                "dual_amp_bandpass": 2.0, "tow_thomas": float("inf")}
+    for name, ceiling in expected.items():
+        assert _natural_gain(topology(name), 5.0) == pytest.approx(ceiling), name

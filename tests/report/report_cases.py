@@ -1,83 +1,36 @@
 """Every bundled scenario planned once per test session, with its --out files and its
-terminal report (shared by test_plots.py and test_html.py).
+terminal report (shared by test_plots.py and test_html.py, and with every other test
+through tests/conftest.py, which holds the cache).
 
-Planning a scenario takes seconds, so the scenarios are planned in parallel worker
-processes (one per core) and kept for the session. Warnings raised while the report files
-are drawn are recorded, not lost: the tests assert there are none.
+Planning a scenario takes seconds, so the scenarios not planned yet are planned in
+parallel worker processes (one per core) and kept for the session. Warnings raised while
+the report files are drawn are recorded, not lost: the tests assert there are none.
 """
 
 from __future__ import annotations
 
-import io
-import os
 import shutil
 import subprocess
 import tempfile
-import warnings
-from concurrent.futures import ProcessPoolExecutor
-from dataclasses import dataclass
-from functools import lru_cache
 from pathlib import Path
 
-from rich.console import Console
-
-from bandwright.planner import plan
-from bandwright.report.files import plan_files
-from bandwright.report.json_out import dumps, plan_to_dict
-from bandwright.report.terminal import render_plan
-from bandwright.inputs.loader import load_spec
+from conftest import SCENARIOS as _SCENARIO_DIR
+from conftest import ScenarioCase as Case  # noqa: F401  (the name the tests know)
+from conftest import scenario_case, scenario_cases, terminal_text  # noqa: F401
 
 ROOT = Path(__file__).resolve().parents[2]
-SCENARIOS = tuple(sorted((ROOT / "scenarios").glob("*.toml")))
+SCENARIOS = tuple(sorted(_SCENARIO_DIR.glob("*.toml")))
 SCENARIO_NAMES = tuple(p.stem for p in SCENARIOS)
 
 
-@dataclass(frozen=True)
-class Case:
-    """One planned scenario and what the report writers made of it."""
-
-    name: str
-    plan: object
-    json_text: str
-    files: dict
-    terminal_text: str
-    warnings: tuple
-
-
-def terminal_text(render, obj) -> str:
-    """The terminal report as plain text, wide enough that no cell is folded."""
-    buf = io.StringIO()
-    console = Console(file=buf, width=220, no_color=True, force_terminal=False,
-                      color_system=None, legacy_windows=False)
-    render(obj, console)
-    return buf.getvalue()
-
-
-def run_scenario(path: Path) -> Case:
-    """Plan one scenario and write its report files (in memory)."""
-    p = plan(load_spec(path))
-    json_text = dumps(plan_to_dict(p))
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        files = plan_files(p, json_text)
-    return Case(name=path.stem, plan=p, json_text=json_text, files=files,
-                terminal_text=terminal_text(render_plan, p),
-                warnings=tuple(f"{w.category.__name__}: {w.message} ({w.filename}:{w.lineno})"
-                               for w in caught))
-
-
-@lru_cache(maxsize=None)
 def all_cases() -> dict:
-    """Name → Case for every scenario, planned in parallel."""
-    workers = max(1, min(len(SCENARIOS), os.cpu_count() or 1))
-    if workers == 1:
-        return {p.stem: run_scenario(p) for p in SCENARIOS}
-    with ProcessPoolExecutor(max_workers=workers) as pool:
-        return {c.name: c for c in pool.map(run_scenario, SCENARIOS)}
+    """Name → Case for every scenario, planned in parallel (once per session)."""
+    return scenario_cases(SCENARIO_NAMES)
 
 
 def case(name: str) -> Case:
-    return all_cases()[name]
+    all_cases()
+    return scenario_case(name)
 
 
 def chromium() -> str | None:

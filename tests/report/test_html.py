@@ -95,7 +95,7 @@ def _same_figures(doc: dict) -> list[tuple[str, str]]:
     figures = [("output noise", f"{doc['noise']['integrated_vrms'] * 1e6:.4g} µV rms")]
     for st in doc["stages"]:
         if st["kind"] != "gain":
-            figures.append((f"stage {st['position']} built f0", fmt_hz(st["actual"]["f0_hz"])))
+            figures.append((f"stage {st['position']} built f0", fmt_hz(st["built"]["f0_hz"])))
     worst = min(n["margin_db"] for n in doc["nodes"])
     figures.append(("worst headroom margin", f"{worst:+.1f} dB"))
     for n in doc["nodes"]:

@@ -1,5 +1,6 @@
 """Plots and schematics of every bundled scenario: made without warnings, of the size and
-content promised, and drawn from the analyses and element lists they claim to show."""
+content promised, and drawn from the analyses and element lists they claim to show (the
+schematic layout itself: tests/report/test_schematic_layout.py)."""
 
 from __future__ import annotations
 
@@ -13,14 +14,9 @@ import pytest
 import scipy.signal
 from PIL import Image
 
-from bandwright.circuits import TOPOLOGY_NAMES, topology
-from bandwright.circuits.elements import GROUND
-from bandwright.parts.catalogue import DEFAULT_ARCHETYPE, archetype
 from bandwright.parts.notation import format_value
 from bandwright.report import plots
-from bandwright.report.schematic import layout, opamp_pins
 from bandwright.report.subject import subject_of
-from bandwright.sections.section import Section
 
 from report_cases import SCENARIO_NAMES, case
 
@@ -195,119 +191,3 @@ def test_no_yield_plot_without_a_monte_carlo_result(lockin):
     p, _ = lockin
     s = replace(subject_of(p), yield_result=None)
     assert "yield" not in plots.plot_figures(s)
-
-
-# --------------------------------------------------------------------------- layout
-
-
-def _variants(name: str):
-    topo = topology(name)
-    kind = topo.KIND
-    if kind == "gain":
-        gains = (1.0, 4.0, 0.5) if name.startswith("non") else (1.0, 4.0)
-        return [Section(kind="gain", f0_hz=0.0, q=0.0, gain=g) for g in gains]
-    if kind == "bandpass":
-        return [Section(kind=kind, f0_hz=1e3, q=5.0, gain=2.0),
-                Section(kind=kind, f0_hz=1e3, q=20.0, gain=1.0)]
-    return [Section(kind=kind, f0_hz=1e3, q=0.7, gain=1.0),
-            Section(kind=kind, f0_hz=1e3, q=0.7, gain=2.0)]
-
-
-def _element_lists():
-    model = archetype(DEFAULT_ARCHETYPE)
-    out = []
-    for name in TOPOLOGY_NAMES:
-        topo = topology(name)
-        for k, sec in enumerate(_variants(name)):
-            try:
-                parts = topo.design(sec, c_farads=10e-9)
-            except ValueError:
-                continue
-            parts = {n: v for n, v in parts.items() if v is not None and math.isfinite(v)}
-            out.append(pytest.param(tuple(topo.elements(parts, model)), id=f"{name}-{k}"))
-    return out
-
-
-class _Groups:
-    """Union-find over drawing points (rounded to 1e-6 units)."""
-
-    def __init__(self):
-        self.parent = {}
-
-    def key(self, p):
-        return (round(p[0], 6), round(p[1], 6))
-
-    def find(self, p):
-        k = self.key(p)
-        self.parent.setdefault(k, k)
-        while self.parent[k] != k:
-            self.parent[k] = self.parent[self.parent[k]]
-            k = self.parent[k]
-        return k
-
-    def union(self, a, b):
-        self.parent[self.find(a)] = self.find(b)
-
-
-def _on_segment(p, a, b) -> bool:
-    (x, y), (x1, y1), (x2, y2) = p, a, b
-    if abs(x1 - x2) < 1e-9:
-        return abs(x - x1) < 1e-9 and min(y1, y2) - 1e-9 <= y <= max(y1, y2) + 1e-9
-    return abs(y - y1) < 1e-9 and min(x1, x2) - 1e-9 <= x <= max(x1, x2) + 1e-9
-
-
-@pytest.mark.parametrize("elements", _element_lists())
-def test_layout_connects_exactly_the_element_list(elements):
-    """Rebuild the netlist from the drawing's geometry: wires join every wire or part end
-    that lies on them (a crossing without an end there joins nothing); each terminal must
-    land in the group of its net, and different nets in different groups."""
-    lay = layout(elements)
-    g = _Groups()
-    terminals = []  # (element index, net, point)
-    for i, p1, p2 in lay.parts:
-        e = elements[i]
-        if i in lay.grounded:
-            net = e.nets[0] if e.nets[1] == GROUND else e.nets[1]
-            terminals += [(i, net, p1), (i, GROUND, p2)]
-        else:
-            terminals += [(i, e.nets[0], p1), (i, e.nets[1], p2)]
-    for i, out_pt, flip in lay.opamps:
-        pins = opamp_pins(out_pt, flip)
-        plus, minus, out = elements[i].nets
-        terminals += [(i, plus, pins["plus"]), (i, minus, pins["minus"]), (i, out, pins["out"])]
-    ground_pts = list(lay.grounds) + [t[2] for t in terminals if t[1] == GROUND]
-    ends = [p for w in lay.wires for p in w] + [t[2] for t in terminals] + [lay.terminal_in]
-    if lay.terminal_out is not None:
-        ends.append(lay.terminal_out)
-    for a, b in lay.wires:
-        on = [p for p in ends if _on_segment(p, a, b)]
-        for p in on:
-            g.union(p, a)
-    for p in ground_pts[1:]:
-        g.union(p, ground_pts[0])
-    groups: dict[str, set] = {}
-    for _, net, p in terminals:
-        groups.setdefault(net, set()).add(g.find(p))
-    for net, found in groups.items():
-        assert len(found) == 1, f"net {net} drawn as {len(found)} separate pieces"
-    owners: dict = {}
-    for net, found in groups.items():
-        (root,) = found
-        assert root not in owners, f"nets {owners.get(root)} and {net} drawn joined"
-        owners[root] = net
-    # Terminals at the chain input and output sit on those nets.
-    assert g.find(lay.terminal_in) == next(iter(groups["in"]))
-    if lay.terminal_out is not None:
-        assert g.find(lay.terminal_out) == next(iter(groups["out"]))
-    # Every part is drawn, each once.
-    drawn = sorted(i for i, _, _ in lay.parts) + sorted(i for i, _, _ in lay.opamps)
-    assert sorted(drawn) == list(range(len(elements)))
-
-
-@pytest.mark.parametrize("elements", _element_lists())
-def test_single_amplifier_layouts_have_no_crossings(elements):
-    """One op-amp: the column search finds a drawing with no crossing and no wire through an
-    op-amp; with several, at most one crossing (none through an op-amp)."""
-    lay = layout(elements)
-    amps = sum(e.kind == "opamp" for e in elements)
-    assert lay.crossings <= (0 if amps == 1 else 1)

@@ -2,16 +2,17 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from bandwright.circuits import topology
 from bandwright.circuits.base import Figures
+from bandwright.circuits.dc_block import DcBlock, blocked
 from bandwright.circuits.figures import section_figures
 from bandwright.circuits.elements import Element, opamp_output_nets
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
-__all__ = ["Stage", "stage_output_nets", "with_parts"]
+__all__ = ["Stage", "stage_output_nets", "with_parts", "with_block"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -38,6 +39,9 @@ class Stage:
     reason : str
         Why this topology (planned) or "as given" (audited).
     rejected : tuple of (topology, reason)
+    dc_block : DcBlock or None
+        A DC block at its input (``circuits.dc_block``); its parts are in `elements`, not
+        in `components`, and `built` is the section's figures without it.
     """
 
     position: int
@@ -50,6 +54,7 @@ class Stage:
     ideal: Figures | None = None
     reason: str = ""
     rejected: tuple[tuple[str, str], ...] = ()
+    dc_block: DcBlock | None = None
 
     @property
     def kind(self) -> str:
@@ -79,6 +84,15 @@ def with_parts(stage: Stage, components: dict[str, float], *, source_ohms: float
     order = [n for n in topo.PARTS if n in components]
     return Stage(position=stage.position, topology=stage.topology, target=stage.target,
                  components=tuple((n, float(components[n])) for n in order),
-                 elements=elements, model=stage.model, built=built, ideal=stage.ideal,
+                 elements=blocked(elements, stage.dc_block), model=stage.model, built=built,
+                 ideal=stage.ideal,
                  reason=stage.reason + (f"; {note}" if note and note not in stage.reason else ""),
-                 rejected=stage.rejected)
+                 rejected=stage.rejected, dc_block=stage.dc_block)
+
+
+def with_block(stage: Stage, block: DcBlock | None) -> Stage:
+    """The same stage with `block` (None: none) at its input; its figures stay the
+    section's own."""
+    bare = stage.elements if stage.dc_block is None else \
+        tuple(topology(stage.topology).elements(dict(stage.components), stage.model))
+    return replace(stage, elements=blocked(tuple(bare), block), dc_block=block)

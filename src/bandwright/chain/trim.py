@@ -100,7 +100,7 @@ def _trimmed_transfers(chain: Chain, index: int, f: np.ndarray, grid: np.ndarray
     before = np.ones(f.shape, dtype=complex) if inp == CHAIN_INPUT else now[inp]
     locals_ = stage_output_nets(st)
     nums, den = transfer_polynomials_many(st.elements, out_nets=locals_, source_ohms=rs,
-                                          values=grid)
+                                          values=grid, method="auto")
     s = 2j * np.pi * f
     d = npoly.polyval(s, den.T, tensor=True)
     mine = _stage_nets(chain, st)
@@ -170,7 +170,7 @@ def trim_stage(chain: Chain, index: int, *, freq_hz: np.ndarray, judge: Judge,
     else:
         rs = chain.source_ohms if chain.input_of(st) == CHAIN_INPUT else 0.0
         f0, _, _ = section_figures_batch(st.elements, kind=st.kind, near_hz=st.target.f0_hz,
-                                         values=grid, source_ohms=rs)
+                                         values=grid, source_ohms=rs, method="auto")
         shift = f0 / st.built.f0_hz - 1.0
     small = np.abs(np.nan_to_num(shift, nan=np.inf)) <= share
     order = np.lexsort((score, violation))          # violation first, then the passband

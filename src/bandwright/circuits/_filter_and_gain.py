@@ -1,4 +1,4 @@
-"""Helpers of the lowpass, highpass and gain-stage topologies (wideband path, make-up gain).
+"""Helpers of the lowpass, highpass and gain-stage topologies (highpass + lowpass path, make-up gain).
 
 Private helpers for ``sallen_key_lowpass``, ``mfb_lowpass``, ``sallen_key_highpass``,
 ``mfb_highpass``, ``noninverting_gain`` and ``inverting_gain``: the gain-resistor rule,

@@ -78,6 +78,19 @@ class Topology(Protocol):
         True when its passband gain is -|gain|; the chain's gains are magnitudes, so every
         caller gives a section the sign this flag says (docs/design.md).
 
+    Optional members
+    ----------------
+    Not declared below, since only some topologies have them; callers read them with a
+    default (``circuits.assign._natural_gain``):
+
+    natural_gain : callable (q: float) -> float
+        The largest |centre gain| the topology reaches at Q `q` (the bandpass topologies
+        whose ceiling grows with Q: multiple-feedback, Sallen-Key, state-variable).
+    NATURAL_GAIN : float
+        That ceiling when it does not depend on Q (the dual-amplifier bandpass).
+    Neither: no ceiling (infinite), as for Tow-Thomas, the lowpass, highpass and gain
+    stages. A topology has at most one of the two; ``natural_gain`` wins if both exist.
+
     Notes
     -----
     ``limits`` takes keyword options by kind, each with a default so a bare

@@ -44,7 +44,8 @@ import numpy as np
 
 from bandwright.circuits.elements import GROUND, SUPPLY_NET, Element
 
-__all__ = ["Expansion", "expansion", "structure_key", "expanded_polynomials"]
+__all__ = ["Expansion", "expansion", "structure_key", "expanded_polynomials", "expandable",
+           "expanded_split", "expanded_polynomials_many"]
 
 # Variables past this count would make 2^n determinants at derivation: no topology has so many.
 _MAX_VARIABLES = 20
@@ -165,13 +166,22 @@ def _moebius(f_const: np.ndarray, stamps: np.ndarray) -> tuple[np.ndarray, np.nd
 
 
 @lru_cache(maxsize=256)
+def _den_for_key(key: tuple) -> tuple[np.ndarray, np.ndarray]:
+    """det(Y)'s expansion: it does not depend on the net read, so the nets of one stage
+    share it (`key` has the input net in the out_net slot)."""
+    f, u, _, _, _, _ = _stamps(key)
+    return _moebius(f, u)
+
+
+@lru_cache(maxsize=256)
 def _expansion_for_key(key: tuple) -> Expansion:
     f, u, capacitive, rhs_const, rhs_var, k_out = _stamps(key)
     n = u.shape[0]
     if n > _MAX_VARIABLES:
         raise ValueError(f"{n} variables are too many to expand")
     cap = np.array(capacitive, dtype=bool)
-    den_masks, den_coefs = _moebius(f, u)
+    elems, _, input_net, norton = key
+    den_masks, den_coefs = _den_for_key((elems, input_net, input_net, norton))
     f_num, u_num = f.copy(), u.copy()
     f_num[:, k_out] = rhs_const
     u_num[:, :, k_out] = rhs_var
@@ -198,7 +208,9 @@ def variable_values(elements: Sequence[Element], *, values: np.ndarray | None,
     if values is None:
         v = np.array([[e.value for e in passives]], dtype=float)
     else:
-        v = np.asarray(values, dtype=float).reshape(-1, len(passives))
+        v = np.asarray(values, dtype=float)
+        # (S, P) as given; a bare (P,) row is one sample. P may be 0 (a buffer stage).
+        v = v.reshape(v.shape[0] if v.ndim == 2 else -1, len(passives))
     is_r = np.array([e.kind == "R" for e in passives], dtype=bool)
     cols = [np.where(is_r, 1.0 / v, v)]
     s_count = v.shape[0]
@@ -218,27 +230,108 @@ def variable_values(elements: Sequence[Element], *, values: np.ndarray | None,
     return np.concatenate(cols, axis=1)
 
 
+def variable_count(elements: Sequence[Element], *, source_ohms: float) -> int:
+    """Number of expansion variables of an element list (``variable_values`` columns)."""
+    return (sum(1 for e in elements if e.kind in ("R", "C")) + int(source_ohms > 0)
+            + 2 * sum(1 for e in elements
+                      if e.kind == "opamp" and math.isfinite(e.model.gbw_hz)))
+
+
+def expandable(elements: Sequence[Element], *, source_ohms: float) -> bool:
+    """Whether the wiring is small enough to expand (else callers take the det path)."""
+    return variable_count(elements, source_ohms=source_ohms) <= _MAX_VARIABLES
+
+
+def _monomials(masks: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """prod over each monomial's variables, (S, m), in variable order."""
+    return np.prod(np.where(masks[None, :, :], x[:, None, :], 1.0), axis=-1)
+
+
+def _monomials_fast(masks: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """``_monomials`` as one matrix multiply: each monomial is its product at a reference
+    point x_ref (the batch's geometric mean, one product per monomial) times
+    exp(sum of log(x / x_ref)) over its variables. The logs are small (a tolerance spread),
+    so the result is within a few ulp of the direct product."""
+    if x.shape[0] < 8 or not (np.all(x > 0) and np.all(np.isfinite(x))):
+        return _monomials(masks, x)
+    log_x = np.log(x)
+    log_ref = np.mean(log_x, axis=0)
+    ref = np.exp(log_ref)
+    nominal = np.prod(np.where(masks, ref[None, :], 1.0), axis=-1)          # (m,)
+    return nominal * np.exp((log_x - log_ref) @ masks.T.astype(float))
+
+
+def _weights(coefs: np.ndarray, powers: np.ndarray, degree: int) -> np.ndarray:
+    weights = np.zeros((coefs.shape[0], degree + 1))
+    weights[np.arange(coefs.shape[0]), powers] = coefs
+    return weights
+
+
 def _evaluate(masks: np.ndarray, coefs: np.ndarray, powers: np.ndarray, degree: int,
-              x: np.ndarray) -> np.ndarray:
+              x: np.ndarray, fast: bool = False) -> np.ndarray:
     """Coefficients in ascending powers of s, (S, degree + 1)."""
-    mono = np.prod(np.where(masks[None, :, :], x[:, None, :], 1.0), axis=-1)   # (S, m)
-    weights = np.zeros((masks.shape[0], degree + 1))
-    weights[np.arange(masks.shape[0]), powers] = coefs
-    return mono @ weights
+    mono = (_monomials_fast if fast else _monomials)(masks, x)
+    return mono @ _weights(coefs, powers, degree)
 
 
 def expanded_polynomials(elements: Sequence[Element], *, out_net: str = "out",
                          input_net: str = "in", source_ohms: float = 0.0,
                          values: np.ndarray | None = None,
-                         gbw_scale: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+                         gbw_scale: np.ndarray | None = None, fast: bool = False
+                         ) -> tuple[np.ndarray, np.ndarray]:
     """Numerator and denominator of the transfer to `out_net`, ascending powers of s.
 
     Same transfer as ``figures.transfer_polynomials`` (open-circuit source voltage to
     `out_net`), unnormalised: num = det(Y_out), den = det(Y) as the expansions give them.
-    Shapes (S, d + 1), S = 1 without `values`.
+    Shapes (S, d + 1), S = 1 without `values`. `fast`: monomials by one matrix multiply of
+    logs about the batch's mean (``_monomials_fast``), equal to rounding.
     """
+    nums, den = expanded_polynomials_many(elements, out_nets=(out_net,), input_net=input_net,
+                                          source_ohms=source_ohms, values=values,
+                                          gbw_scale=gbw_scale, fast=fast)
+    return nums[0], den
+
+
+def expanded_polynomials_many(elements: Sequence[Element], *, out_nets: Sequence[str],
+                              input_net: str = "in", source_ohms: float = 0.0,
+                              values: np.ndarray | None = None,
+                              gbw_scale: np.ndarray | None = None, fast: bool = False
+                              ) -> tuple[list[np.ndarray], np.ndarray]:
+    """``expanded_polynomials`` to several nets: the numerators (S, d + 1) per net and the
+    one denominator, evaluated once."""
+    x = variable_values(elements, values=values, source_ohms=source_ohms, gbw_scale=gbw_scale)
+    nums, den = [], None
+    for net in out_nets:
+        exp = expansion(elements, out_net=net, input_net=input_net, source_ohms=source_ohms)
+        if den is None:
+            den = _evaluate(exp.den_masks, exp.den_coefs, exp.den_powers, exp.degree, x, fast)
+        nums.append(_evaluate(exp.num_masks, exp.num_coefs, exp.num_powers, exp.degree, x,
+                              fast))
+    return nums, den
+
+
+def _split(masks: np.ndarray, coefs: np.ndarray, powers: np.ndarray, degree: int,
+           x: np.ndarray, var: int) -> tuple[np.ndarray, np.ndarray]:
+    """(a, b) with poly = a + x_var b: the monomials without and with variable `var`, the
+    latter without its factor x_var (the expansion is multilinear)."""
+    has = masks[:, var]
+    rest = masks.copy()
+    rest[:, var] = False
+    mono = _monomials_fast(rest, x)
+    w = _weights(coefs, powers, degree)
+    return mono[:, ~has] @ w[~has], mono[:, has] @ w[has]
+
+
+def expanded_split(elements: Sequence[Element], *, var: int, out_net: str = "out",
+                   input_net: str = "in", source_ohms: float = 0.0,
+                   values: np.ndarray | None = None, gbw_scale: np.ndarray | None = None
+                   ) -> tuple[tuple[np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray]]:
+    """``expanded_polynomials`` as affine functions of one variable: ((num_a, num_b),
+    (den_a, den_b)) with num = num_a + x num_b, x the variable `var` of ``variable_values``
+    (1/R for a resistor, C for a capacitor). Evaluated once, the polynomials for any value
+    of that part are two multiply-adds: what a trim's root search needs ([2]_)."""
     exp = expansion(elements, out_net=out_net, input_net=input_net, source_ohms=source_ohms)
     x = variable_values(elements, values=values, source_ohms=source_ohms, gbw_scale=gbw_scale)
-    den = _evaluate(exp.den_masks, exp.den_coefs, exp.den_powers, exp.degree, x)
-    num = _evaluate(exp.num_masks, exp.num_coefs, exp.num_powers, exp.degree, x)
+    den = _split(exp.den_masks, exp.den_coefs, exp.den_powers, exp.degree, x, var)
+    num = _split(exp.num_masks, exp.num_coefs, exp.num_powers, exp.degree, x, var)
     return num, den

@@ -38,19 +38,21 @@ References
 from __future__ import annotations
 
 import math
-from typing import Sequence
+from typing import Callable, Sequence
 
 import numpy as np
 from numpy.polynomial import polynomial as npoly
 
 from bandwright.circuits.base import Figures
-from bandwright.circuits.elements import Element
-from bandwright.circuits.expansion import expanded_polynomials
+from bandwright.circuits.elements import GROUND, Element
+from bandwright.circuits.expansion import (expandable, expanded_polynomials,
+                                           expanded_polynomials_many, expanded_split)
 from bandwright.circuits.nodal import mna_system
 from bandwright.vocabulary import StageKind
 
 __all__ = ["transfer_polynomials", "transfer_polynomials_many", "polynomial_degree",
-           "section_figures", "section_figures_batch"]
+           "section_figures", "section_figures_batch", "figures_from_scaled",
+           "part_sweep_figures"]
 
 # Coefficients below this fraction of the largest one (in sigma = s/w_c) are rounding
 # noise of the FFT interpolation: a genuine coefficient that small would stand for a pole
@@ -140,15 +142,17 @@ def _scaled_polynomials(elements: Sequence[Element], *, out_net: str, input_net:
 
 def _scaled_expanded(elements: Sequence[Element], *, out_net: str, input_net: str,
                      source_ohms: float, values: np.ndarray | None,
-                     gbw_scale: np.ndarray | None = None
+                     gbw_scale: np.ndarray | None = None, fast: bool = False
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``_scaled_polynomials`` from the cached monomial expansion (``circuits.expansion``)
-    instead of determinants: the same scaling to sigma = s / w_c and normalisation."""
+    instead of determinants: the same scaling to sigma = s / w_c and normalisation.
+    `fast`: see ``expansion.expanded_polynomials``."""
     nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
     if gbw_scale is not None and values is None:
         values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
     num, den = expanded_polynomials(elements, out_net=out_net, input_net=input_net,
-                                    source_ohms=source_ohms, values=values, gbw_scale=gbw_scale)
+                                    source_ohms=source_ohms, values=values, gbw_scale=gbw_scale,
+                                    fast=fast)
     if values is None:
         v = nominal
         num, den = num[0], den[0]
@@ -159,6 +163,17 @@ def _scaled_expanded(elements: Sequence[Element], *, out_net: str, input_net: st
     num, den = num * powers, den * powers
     norm = np.max(np.abs(den), axis=-1, keepdims=True)
     return num / norm, den / norm, w_c
+
+
+def _scaled_auto(elements: Sequence[Element], *, source_ohms: float, **kw
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The expansion where the wiring can be expanded, the determinants otherwise."""
+    if expandable(elements, source_ohms=source_ohms):
+        return _scaled_expanded(elements, source_ohms=source_ohms, fast=True, **kw)
+    return _scaled_polynomials(elements, source_ohms=source_ohms, **kw)
+
+
+_METHODS = {"det": _scaled_polynomials, "expansion": _scaled_expanded, "auto": _scaled_auto}
 
 
 def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
@@ -215,7 +230,7 @@ def transfer_polynomials(elements: Sequence[Element], *, out_net: str = "out",
 def transfer_polynomials_many(elements: Sequence[Element], *, out_nets: Sequence[str],
                               input_net: str = "in", source_ohms: float = 0.0,
                               values: np.ndarray | None = None,
-                              gbw_scale: np.ndarray | None = None
+                              gbw_scale: np.ndarray | None = None, method: str = "det"
                               ) -> tuple[np.ndarray, np.ndarray]:
     """Numerators of the transfers to several nets, over their one shared denominator.
 
@@ -255,7 +270,16 @@ def transfer_polynomials_many(elements: Sequence[Element], *, out_nets: Sequence
     net, where ``transfer_polynomials`` takes one determinant per net. The DFT then
     interpolates the coefficients exactly as there ([2]_). Matches
     ``transfer_polynomials`` net by net to rounding (tested).
+
+    ``method="auto"`` takes the polynomials from the cached monomial expansion of each net
+    (``circuits.expansion``) where the wiring can be expanded, the determinants otherwise;
+    the same normalisation, equal to rounding (tests/circuits/test_expansion.py).
     """
+    if method not in ("det", "auto"):
+        raise ValueError(f"unknown method {method!r}")
+    if method == "auto" and expandable(elements, source_ohms=source_ohms):
+        return _expanded_many(elements, out_nets=out_nets, input_net=input_net,
+                              source_ohms=source_ohms, values=values, gbw_scale=gbw_scale)
     if gbw_scale is not None and values is None:
         nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
         values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
@@ -290,6 +314,28 @@ def transfer_polynomials_many(elements: Sequence[Element], *, out_nets: Sequence
     nums = np.stack([(np.fft.fft(det * z[..., k] * col[..., k, None], axis=-1) / n_points
                       / norm).real * powers for k in ks])
     return nums, (den / norm).real * powers
+
+
+def _expanded_many(elements: Sequence[Element], *, out_nets: Sequence[str], input_net: str,
+                   source_ohms: float, values: np.ndarray | None,
+                   gbw_scale: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+    """``transfer_polynomials_many`` from the expansions: one per net, one shared den."""
+    nominal = np.array([e.value for e in elements if e.kind in ("R", "C")], dtype=float)
+    if gbw_scale is not None and values is None:
+        values = np.broadcast_to(nominal, (np.shape(gbw_scale)[0], nominal.size))
+    if any(n == GROUND for n in out_nets):
+        raise ValueError("an output net cannot be ground")
+    nums, den = expanded_polynomials_many(elements, out_nets=out_nets, input_net=input_net,
+                                          source_ohms=source_ohms, values=values,
+                                          gbw_scale=gbw_scale, fast=True)
+    v = nominal if values is None else np.asarray(values, dtype=float)
+    w_c = _scale_rad_s(elements, v)
+    norm = np.max(np.abs(den * w_c[..., None] ** np.arange(den.shape[-1])), axis=-1,
+                  keepdims=True)
+    out_nums, out_den = np.stack(nums) / norm, den / norm
+    if values is None:
+        return out_nums[:, 0], out_den[0]
+    return out_nums, out_den
 
 
 def _trim(coefs: np.ndarray) -> np.ndarray:
@@ -456,21 +502,110 @@ def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_
     sample; the figures are the same to rounding (tested). ``method="expansion"`` takes the
     polynomials from the wiring's cached monomial expansion (``circuits.expansion``), a
     product and a matrix multiply per batch, instead of determinants on a circle; the
-    figures agree to rounding (tests/circuits/test_expansion.py).
+    figures agree to rounding (tests/circuits/test_expansion.py). ``method="auto"`` takes
+    the expansion where the wiring can be expanded (``circuits.expansion.expandable``) and
+    the determinants otherwise, and solves a quadratic denominator in closed form.
     """
-    if method not in ("det", "expansion"):
+    if method not in _METHODS:
         raise ValueError(f"unknown method {method!r}")
-    poly = _scaled_expanded if method == "expansion" else _scaled_polynomials
-    num, den, w_c = poly(elements, out_net=out_net, input_net=input_net,
-                                        source_ohms=source_ohms, values=values,
-                                        gbw_scale=gbw_scale)
+    num, den, w_c = _METHODS[method](elements, out_net=out_net, input_net=input_net,
+                                     source_ohms=source_ohms, values=values,
+                                     gbw_scale=gbw_scale)
+    return figures_from_scaled(num, den, w_c, kind=kind, near_hz=near_hz,
+                               closed_form=method == "auto")
+
+
+def _quadratic_roots(coefs: np.ndarray) -> np.ndarray:
+    """Roots (S, 2) of c0 + c1 x + c2 x^2 in closed form, the larger-magnitude one first
+    computed without cancellation (Numerical Recipes, 3rd ed., §5.6 [mem])."""
+    c0, c1, c2 = coefs[:, 0].astype(complex), coefs[:, 1].astype(complex), coefs[:, 2]
+    root = np.sqrt(c1 * c1 - 4 * c2 * c0)
+    # q = -(c1 + sgn(c1) sqrt(disc)) / 2, the sign taken so that no cancellation occurs.
+    sgn = np.where((np.conj(c1) * root).real >= 0, 1.0, -1.0)
+    q = -0.5 * (c1 + sgn * root)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.stack([q / c2, c0 / q], axis=1)
+
+
+# Aberth iterations from given starting roots, and the relative step below which a root
+# counts as converged: convergence is cubic, so the root after a step of 1e-11 is exact to
+# rounding, as the companion eigenvalues are.
+_ABERTH_ITERATIONS = 8
+_ABERTH_TOL = 1e-11
+
+
+def _aberth_step(coefs: np.ndarray, z: np.ndarray, off: np.ndarray) -> np.ndarray:
+    """One Aberth correction (S, d) for roots `z` of ascending `coefs` (S, d + 1)."""
+    d = z.shape[-1]
+    p = np.broadcast_to(coefs[:, -1:], z.shape).astype(complex)
+    dp = np.zeros_like(z)
+    for m in range(d - 1, -1, -1):                       # Horner for p and p'
+        dp = dp * z + p
+        p = p * z + coefs[:, m:m + 1]
+    w = p / dp
+    diff = z[:, :, None] - z[:, None, :]
+    inv = (1.0 / np.where(off, diff, np.inf)).sum(axis=-1)
+    step = w / (1.0 - w * inv)
+    return np.where(np.isfinite(step), step, 0.0)
+
+
+def _polished_roots(coefs: np.ndarray, start: np.ndarray) -> np.ndarray:
+    """Roots (S, d) of ascending `coefs` (S, d + 1) by the Aberth–Ehrlich simultaneous
+    iteration from `start` (S, d), e.g. the roots of a nearby polynomial; samples that do
+    not converge get the companion eigenvalues (``_batch_roots``).
+
+    O. Aberth, "Iteration methods for finding all zeros of a polynomial simultaneously",
+    Math. Comp. 27(122), 1973 [mem]: z_i -= w_i / (1 - w_i sum_{j != i} 1/(z_i - z_j)),
+    w_i = p(z_i) / p'(z_i); cubic convergence to simple roots.
+    """
+    d = coefs.shape[-1] - 1
+    z = start.astype(complex).copy()
+    off = ~np.eye(d, dtype=bool)
+    rows = np.arange(z.shape[0])                          # samples still iterating
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        for _ in range(_ABERTH_ITERATIONS):
+            zr = z[rows]
+            step = _aberth_step(coefs[rows], zr, off)
+            zr = zr - step
+            z[rows] = zr
+            done = (np.all(np.abs(step) <= _ABERTH_TOL * np.abs(zr), axis=-1)
+                    & np.all(np.isfinite(zr), axis=-1))
+            rows = rows[~done]
+            if not rows.size:
+                break
+    if rows.size:
+        z[rows] = _batch_roots(coefs[rows])
+    return z
+
+
+def figures_from_scaled(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, kind: StageKind,
+                        near_hz: float, closed_form: bool = False
+                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """f0, Q and gain (S,) from scaled polynomials (S, d + 1) in sigma = s / w_c, as
+    ``section_figures_batch`` reads them. `closed_form`: a quadratic denominator's roots
+    by formula instead of eigenvalues (equal to rounding)."""
+    return _figures_and_poles(num, den, w_c, kind=kind, near_hz=near_hz,
+                              closed_form=closed_form)[:3]
+
+
+def _figures_and_poles(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, kind: StageKind,
+                       near_hz: float, closed_form: bool = False,
+                       start: np.ndarray | None = None
+                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray | None]:
+    """``figures_from_scaled`` and the poles (S, d) in s / w_c; `start`: approximate poles
+    in the same units, polished (``_polished_roots``) instead of eigenvalues."""
     num = num[..., : _batch_degree(num) + 1]
     den = den[..., : _batch_degree(den) + 1]
     s_count = den.shape[0]
     if kind == "gain":
         g = num[:, 0] / den[:, 0]
-        return np.zeros(s_count), np.zeros(s_count), g
-    poles = _batch_roots(den)                                   # (S, d), in s / w_c
+        return np.zeros(s_count), np.zeros(s_count), g, None
+    if closed_form and den.shape[-1] == 3:
+        poles = _quadratic_roots(den)
+    elif start is not None and start.shape == (s_count, den.shape[-1] - 1):
+        poles = _polished_roots(den, start)
+    else:
+        poles = _batch_roots(den)                               # (S, d), in s / w_c
     w_near = 2 * math.pi * near_hz / w_c                        # (S,)
     mag = np.abs(poles)
     upper = poles.imag > 1e-9 * np.maximum(mag, np.finfo(float).tiny)
@@ -499,4 +634,74 @@ def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_
         others = np.where(mask, -poles, 1.0)
         gain = np.real(num[:, -1] / den[:, -1] * np.prod(-extra, axis=1) / np.prod(others, axis=1))
     f0 = np.where(ok, w0 * w_c / (2 * math.pi), np.nan)
-    return f0, q, np.where(ok, gain, np.nan)
+    return f0, q, np.where(ok, gain, np.nan), poles
+
+
+def part_sweep_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
+                       values: np.ndarray, part: int, out_net: str = "out",
+                       input_net: str = "in", gbw_scale: np.ndarray | None = None,
+                       source_ohms: float = 0.0
+                       ) -> Callable[[np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """``section_figures_batch(method="auto")`` as a function of one part's value per
+    sample, every other part held at `values`: what a trim's root search calls many times.
+
+    Parameters
+    ----------
+    elements, kind, near_hz, out_net, input_net, gbw_scale, source_ohms
+        As ``section_figures_batch``.
+    values : ndarray, shape (S, P)
+        Part values; column `part` is ignored (copied: the caller's array is not changed).
+    part : int
+        Column (``passive_names`` order) of the part that varies.
+
+    Returns
+    -------
+    callable
+        ``f(value (S,)) -> (f0_hz, q, gain)``, each (S,).
+
+    Notes
+    -----
+    The expansion is multilinear in its variables ([1]_ of ``circuits.expansion``), so
+    num and den are ``a + x b`` in the part's variable x (1/R or C): the monomials are
+    evaluated once here and each call is two multiply-adds and the roots: in closed form for
+    a quadratic, else the previous call's poles polished by Aberth's iteration
+    (``_polished_roots``; eigenvalues on the first call). Wirings too large
+    to expand fall back to ``section_figures_batch`` per call (determinants).
+    """
+    vals = np.array(values, dtype=float)
+    is_r = [e.kind for e in elements if e.kind in ("R", "C")][part] == "R"
+    if not expandable(elements, source_ohms=source_ohms):
+        def by_det(value: np.ndarray):
+            vals[:, part] = value
+            return section_figures_batch(elements, kind=kind, near_hz=near_hz, values=vals,
+                                         out_net=out_net, input_net=input_net,
+                                         gbw_scale=gbw_scale, source_ohms=source_ohms,
+                                         method="auto")
+        return by_det
+    if gbw_scale is not None and vals.shape[0] != np.shape(gbw_scale)[0]:
+        raise ValueError("values and gbw_scale must have one row per sample")
+    (num_a, num_b), (den_a, den_b) = expanded_split(
+        elements, var=part, out_net=out_net, input_net=input_net, source_ohms=source_ohms,
+        values=vals, gbw_scale=gbw_scale)
+    k = np.arange(den_a.shape[-1])
+    # The poles of the previous call, rad/s: a root search moves the part a little per
+    # call, so they are close starting points for the next call's roots.
+    last = {"poles_rad_s": None}
+
+    def by_expansion(value: np.ndarray):
+        value = np.asarray(value, dtype=float)
+        vals[:, part] = value
+        x = (1.0 / value if is_r else value)[:, None]
+        num, den = num_a + x * num_b, den_a + x * den_b
+        w_c = _scale_rad_s(elements, vals)
+        powers = w_c[:, None] ** k
+        num, den = num * powers, den * powers
+        norm = np.max(np.abs(den), axis=-1, keepdims=True)
+        prev = last["poles_rad_s"]
+        f0, q, gain, poles = _figures_and_poles(
+            num / norm, den / norm, w_c, kind=kind, near_hz=near_hz, closed_form=True,
+            start=None if prev is None else prev / w_c[:, None])
+        if poles is not None:
+            last["poles_rad_s"] = np.where(np.isfinite(poles), poles, 1.0) * w_c[:, None]
+        return f0, q, gain
+    return by_expansion

@@ -44,6 +44,7 @@ from bandwright.circuits.elements import GROUND, SUPPLY_NET, Element
 
 __all__ = [
     "BOLTZMANN_J_PER_K",
+    "KELVIN_OFFSET",
     "MnaSystem",
     "NodalSolution",
     "NoiseResult",
@@ -61,7 +62,7 @@ __all__ = [
 ]
 
 BOLTZMANN_J_PER_K = 1.380649e-23  # exact since the 2019 SI redefinition
-_KELVIN_OFFSET = 273.15
+KELVIN_OFFSET = 273.15  # 0 °C in kelvin (SI): temperatures are given in °C
 
 
 def passive_names(elements: Sequence[Element]) -> tuple[str, ...]:
@@ -569,7 +570,7 @@ def noise(elements: Sequence[Element], freq_hz: np.ndarray, *, out_net: str = "o
     def gain_sq(k: int) -> np.ndarray:
         return np.abs(z_gnd[..., k]) ** 2  # k = -1 hits the appended ground zero
 
-    four_kt = 4 * BOLTZMANN_J_PER_K * (temperature_c + _KELVIN_OFFSET)
+    four_kt = 4 * BOLTZMANN_J_PER_K * (temperature_c + KELVIN_OFFSET)
     v = _check_values(elements, values)
     contributions: dict[str, np.ndarray] = {}
     passives = [e for e in elements if e.kind in ("R", "C")]

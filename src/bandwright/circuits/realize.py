@@ -17,7 +17,7 @@ import numpy as np
 from bandwright.circuits.base import Figures
 from bandwright.circuits.elements import Element
 from bandwright.circuits.figures import section_figures, section_figures_batch
-from bandwright.circuits.nodal import BOLTZMANN_J_PER_K, passive_names
+from bandwright.circuits.nodal import BOLTZMANN_J_PER_K, KELVIN_OFFSET, passive_names
 from bandwright.circuits.rules import edge_residuals
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.eseries import nearest, neighbours
@@ -39,10 +39,15 @@ _SEARCH_SWEEPS = 4
 _GAIN_DEADBAND = 1e-3
 # Gauss-Newton iterations for the exact resistors: quadratic convergence needs far fewer.
 _SOLVE_STEPS = 20
+# ±1 series step per part: the grid of a section too large for ±2 steps.
+_NARROW_NEIGHBOURS = 1
 _GRID_MAX = 729  # 3^6: every ±1 combination of a six-part section
 _WIDE_GRID_MAX = 625  # 5^4: every ±2 combination of a four-part section
 # Parts moved at once when a section is too large for one ±1 grid (3^5 = 243 points).
 _BLOCK = 5
+# Each capacitor's starts: its nearest series value and one step either side (the coarse
+# capacitor series leaves the resistors to absorb the rest).
+_CAP_NEIGHBOURS = 1
 # Best solved capacitor combinations that are rounded: which rounds best shows only after.
 _CAP_STARTS = 3
 # A rounded design this close (about 0.03 dB at the band edge) needs no second search.
@@ -62,7 +67,6 @@ _STEP_TOL = 1e-9
 _IMPROVEMENT_TOL = 1e-15
 # No resistor below this many times the op-amp's minimum load: any may hang on an output.
 _MIN_LOAD_FACTOR = 4
-_KELVIN_OFFSET = 273.15
 # The series grid search reads figures from the wiring's cached monomial expansion (one
 # product and one matrix multiply per batch). The continuous resistor solve stays on the
 # determinant path: several capacitor starts solve to errors at rounding level, and their
@@ -155,7 +159,7 @@ def impedance_target_ohms(model: OpAmp | None, windows: PartWindows,
     """
     if model is None or not model.noise_v_per_rthz > 0:
         return None
-    kt4 = 4 * BOLTZMANN_J_PER_K * (temperature_c + _KELVIN_OFFSET)
+    kt4 = 4 * BOLTZMANN_J_PER_K * (temperature_c + KELVIN_OFFSET)
     r = model.noise_v_per_rthz**2 / kt4
     if model.noise_a_per_rthz > 0:
         r = min(r, model.noise_v_per_rthz / model.noise_a_per_rthz)
@@ -315,8 +319,9 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
     names = passive_names(elements)
     current = {n: float(nearest(start[n], series_of(n))) for n in names}
     moving = [n for n in names if movable(n)]
-    steps = _NEIGHBOURS if (2 * _NEIGHBOURS + 1) ** len(moving) <= _WIDE_GRID_MAX else 1
-    blocks = [moving] if 3 ** len(moving) <= _GRID_MAX else \
+    steps = _NEIGHBOURS if (2 * _NEIGHBOURS + 1) ** len(moving) <= _WIDE_GRID_MAX \
+        else _NARROW_NEIGHBOURS
+    blocks = [moving] if (2 * _NARROW_NEIGHBOURS + 1) ** len(moving) <= _GRID_MAX else \
         [moving[i:i + _BLOCK] for i in range(0, len(moving), _BLOCK)]
     near = target.f0_hz if target.kind != "gain" else _GAIN_STAGE_NEAR_HZ
     best_err = math.inf
@@ -377,7 +382,7 @@ def round_to_series(topo: ModuleType, values: Mapping[str, float], target: Secti
                                                  source_ohms=source_ohms)
     # Capacitor combinations: each capacitor at its nearest series value or one step either
     # side; the resistors are solved again for each and the best start is rounded.
-    axes = [neighbours(values[n], c_series, count=1) if n.startswith("C")
+    axes = [neighbours(values[n], c_series, count=_CAP_NEIGHBOURS) if n.startswith("C")
             else np.array([values[n]]) for n in names]
     combos = np.stack([a.ravel() for a in np.meshgrid(*axes, indexing="ij")], axis=-1)
     solved, errs = solve_resistors(elements, combos, target, source_ohms)

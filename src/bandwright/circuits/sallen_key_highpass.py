@@ -16,10 +16,10 @@ Design
 Equal capacitors C1 = C2 = C (``c_farads``) and a resistor ratio r = R2/R1 with
 Q = sqrt(r) / (2 + r (1 - K)), solved as sqrt(r) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))):
 
-* K = 1 (the usual case in the wideband path): R2/R1 = 4 Q^2 (docs/methods.md,
+* K = 1 (the usual case in the highpass + lowpass path): R2/R1 = 4 Q^2 (docs/methods.md,
   "Lowpass/highpass");
 * K = 3 - 1/Q gives R1 = R2: the equal-component design (Sallen & Key 1955 [mem]), gain
-  tied to Q. Other K >= 1 are allowed; the wideband path normally runs this section at
+  tied to Q. Other K >= 1 are allowed; the highpass + lowpass path normally runs this section at
   unity gain and gives the rest of the gain to a gain stage.
 
 R1 = 1 / (w0 C sqrt(r)), R2 = sqrt(r) / (w0 C). |gain| below 1 is infeasible.

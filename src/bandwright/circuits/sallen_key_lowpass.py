@@ -16,10 +16,10 @@ Design
 Equal resistors R1 = R2 = R and a capacitor ratio m = C1/C2 that gives Q at gain K:
 Q = sqrt(m) / (2 + m (1 - K)), solved as sqrt(m) = 4Q / (1 + sqrt(1 + 8 Q^2 (K - 1))).
 
-* K = 1 (the usual case in the wideband path): m = 4 Q^2 (docs/methods.md, "Lowpass/highpass").
+* K = 1 (the usual case in the highpass + lowpass path): m = 4 Q^2 (docs/methods.md, "Lowpass/highpass").
 * K = 3 - 1/Q gives m = 1: the equal-component design (Sallen & Key 1955 [mem]), with the
   gain tied to Q. Any other K >= 1 is allowed; its Q sensitivity to Rf/Rg grows with K, so
-  the wideband path normally runs this section at unity gain and gives the rest of the
+  the highpass + lowpass path normally runs this section at unity gain and gives the rest of the
   gain to a gain stage.
 * |gain| below 1 is infeasible (``limits`` says why). The sign of a section's gain is
   ignored: the circuit does not invert (``INVERTING``), and the chain's gains are

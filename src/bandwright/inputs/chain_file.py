@@ -116,6 +116,35 @@ def _stage_trims(path: str, key: str, topo, table, parts: dict[str, float]
     return out
 
 
+def _stage_dc_block(path: str, key: str, table) -> tuple[float, float | None]:
+    """`dc_block = { C = "1u", R = "1M" }`: a series capacitor at the stage input and an
+    optional resistor from behind it to the reference (``circuits.dc_block``)."""
+    if not isinstance(table, dict):
+        raise SpecError(path, key, 'expected a table { C = "farads", R = "ohms" }', value=table)
+    for name in table:
+        if name not in ("C", "R"):
+            raise SpecError(path, f"{key}.{name}", "a DC block has parts C (series) and R "
+                            "(to the reference, optional)")
+    if "C" not in table:
+        raise SpecError(path, f"{key}.C", "missing: a DC block needs its series capacitor C")
+    out = {}
+    for name, raw in table.items():
+        k = f"{key}.{name}"
+        clash = _unit_clash(name, raw)
+        if clash:
+            raise SpecError(path, k, clash, value=raw)
+        try:
+            v = parse_value(raw)
+        except (ValueError, TypeError) as exc:
+            raise SpecError(path, k, str(exc), value=raw) from None
+        lo, hi = _R_RANGE if name == "R" else _C_RANGE
+        if not lo <= v <= hi:
+            raise SpecError(path, k, f"outside the plausible range {lo:g} … {hi:g} "
+                            f"{'Ω' if name == 'R' else 'F'}", value=raw)
+        out[name] = v
+    return out["C"], out.get("R")
+
+
 def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]:
     """Parse and validate an audit file; returns (requirement-or-None, common tables, stage
     specs (position, topology module, parts, amplifier choice))."""
@@ -140,9 +169,10 @@ def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]
                         f"{MAX_STAGES} (twice the sections a plan builds)")
     specs = []
     trims: dict[int, dict[str, tuple[float, float]]] = {}
+    blocks: dict[int, tuple[float, float | None]] = {}
     for i, t in enumerate(stage_tables):
         key = f"stage[{i}]"
-        st = TableReader(p, key, t, ("topology", "parts", "amplifier", "trim"))
+        st = TableReader(p, key, t, ("topology", "parts", "amplifier", "trim", "dc_block"))
         name = st.string("topology")
         if name is None:
             raise SpecError(p, f"{key}.topology", f"missing; one of {', '.join(TOPOLOGY_NAMES)}")
@@ -152,15 +182,20 @@ def load_chain(path: str | Path) -> tuple[Requirement | None, dict, list[tuple]]
                 f"; known: {', '.join(TOPOLOGY_NAMES)}"
             raise SpecError(p, f"{key}.topology", "unknown topology" + hint, value=name)
         topo = topology(name)
-        if not st.has("parts"):
-            raise SpecError(p, f"{key}.parts", f"missing; {name} needs {', '.join(topo.PARTS)}")
-        parts = _stage_parts(p, f"{key}.parts", topo, t["parts"])
+        required = [n for n in topo.PARTS if n not in topo.OPTIONAL_PARTS]
+        if not st.has("parts") and required:
+            raise SpecError(p, f"{key}.parts", f"missing; {name} needs {', '.join(required)}")
+        # A topology whose parts are all optional (a follower) may leave the table out.
+        parts = _stage_parts(p, f"{key}.parts", topo, t["parts"] if st.has("parts") else {})
         if st.has("trim"):
             trims[i + 1] = _stage_trims(p, f"{key}.trim", topo, t["trim"], parts)
+        if st.has("dc_block"):
+            blocks[i + 1] = _stage_dc_block(p, f"{key}.dc_block", t["dc_block"])
         amp = read_amplifier(p, f"{key}.amplifier", t["amplifier"]) if st.has("amplifier") \
             else None
         specs.append((i + 1, topo, parts, amp, key))
     common["trims"] = trims
+    common["dc_blocks"] = blocks
     common["tuning"] = read_tuning(TableReader(p, "tuning", doc.get("tuning", {}), TUNING_KEYS))
     common["tolerance"] = read_tolerance(TableReader(p, "tolerance", doc.get("tolerance", {}),
                                                      TOLERANCE_KEYS))

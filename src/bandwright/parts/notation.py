@@ -34,8 +34,8 @@ import re
 from decimal import Decimal, InvalidOperation
 from numbers import Real
 
-__all__ = ["parse_value", "format_value", "format_spice", "format_hz", "format_si",
-           "format_hz_range", "format_pct", "format_fixed", "format_sig", "plural"]
+__all__ = ["parse_value", "format_value", "format_spice", "format_exact", "format_hz",
+           "format_si", "format_hz_range", "format_pct", "format_fixed", "format_sig", "plural"]
 
 _PREFIX_EXPONENT: dict[str, int] = {
     "f": -15,
@@ -205,6 +205,26 @@ def format_value(value: float, unit: str = "", *, significant: int = 3) -> str:
     ('16.2k', '4.7nF', '1M', '220')
     """
     return _engineering(float(value), significant, _PRINT_PREFIXES) + unit
+
+
+def format_exact(value: float) -> str:
+    """A part value in engineering notation with the fewest digits (at least three) that
+    `parse_value` reads back as exactly `value`: "16.2k", "4.7n", "3.333333333333333k".
+
+    `parse_value` rounds the decimal text correctly, so 17 significant digits always read
+    back exactly; a value that is not finite or is negative raises ``ValueError`` (as
+    `format_value`).
+
+    Examples
+    --------
+    >>> format_exact(16200.0), format_exact(1.5e-09), format_exact(123456.789)
+    ('16.2k', '1.5n', '123.456789k')
+    """
+    for n in range(3, 18):
+        text = format_value(value, significant=n)
+        if parse_value(text) == value:
+            return text
+    return repr(float(value))  # pragma: no cover - 17 digits always read back exactly
 
 
 def format_hz(value_hz: float, *, significant: int = 4) -> str:

@@ -38,7 +38,7 @@ def diagnosis_dict(d) -> dict[str, Any]:
                "message": k.message} for k in d.mask_checks]
     return {
         "sweep": {"path": d.sweep.path, "points": int(d.sweep.freq_hz.size),
-                  "phase": d.sweep.phase_deg is not None},
+                  "has_phase": d.sweep.phase_deg is not None},
         "suspects": [{
             "stage": s.stage, "part": s.part, "change_pct": _num(s.change_pct),
             "confidence": _num(s.confidence),

@@ -5,11 +5,11 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+from importlib.metadata import version
 from pathlib import Path
 from typing import Any
 
 import numpy as np
-import scipy
 
 from bandwright import __version__
 from bandwright.chain.graph import Chain, global_net
@@ -41,7 +41,7 @@ def _requirement_hash(path: str) -> str | None:
 
 def _tool() -> dict[str, Any]:
     return {"name": "bandwright", "version": __version__, "numpy": np.__version__,
-            "scipy": scipy.__version__}
+            "scipy": version("scipy")}
 
 
 def _stage_dict(st, chain: Chain) -> dict[str, Any]:
@@ -51,21 +51,30 @@ def _stage_dict(st, chain: Chain) -> dict[str, Any]:
     return {
         "position": st.position,
         "kind": st.kind,
-        "f0_hz": num(st.target.f0_hz),
-        "q": num(st.target.q),
-        "gain": num(sign * abs(st.target.gain)),
+        "target": {"f0_hz": num(st.target.f0_hz), "q": num(st.target.q),
+                   "gain": num(sign * abs(st.target.gain))},
         "topology": st.topology,
         "components": {n: num(v) for n, v in st.components},
         "nets": {role: global_net(st, net, last=last, input_net=inp)
                  for role, net in st.nets.items()},
-        "actual": {"f0_hz": num(st.built.f0_hz), "q": num(st.built.q),
-                   "gain": num(st.built.gain)},
+        "built": {"f0_hz": num(st.built.f0_hz), "q": num(st.built.q),
+                  "gain": num(st.built.gain)},
         "ideal_parts": None if st.ideal is None else
         {"f0_hz": num(st.ideal.f0_hz), "q": num(st.ideal.q), "gain": num(st.ideal.gain)},
         "amplifier": st.model.name,
         "why": st.reason,
         "rejected": [{"topology": t, "reason": r} for t, r in st.rejected],
+        **_dc_block_dict(st),
     }
+
+
+def _dc_block_dict(st) -> dict[str, Any]:
+    """`dc_block` of a stage entry, only for a stage that has one (``circuits.dc_block``)."""
+    b = getattr(st, "dc_block", None)
+    if b is None:
+        return {}
+    return {"dc_block": {"c_farads": num(b.c_farads), "r_ohms": num(b.r_ohms),
+                         "corner_hz": num(b.corner_hz), "reason": b.reason}}
 
 
 def chain_dict(chain: Chain, an, checks) -> dict[str, Any]:
@@ -141,9 +150,9 @@ def _candidate_dict(d) -> dict[str, Any]:
     c = d.candidate
     an = d.analyses
     margin = an.worst_margin_db if an else None
-    return {"family": c.family, "path": c.path, "order": c.order, "sections": len(c.sections),
-            "highest_q": num(c.highest_q), "buildable": d.buildable, "opamps": d.opamps,
-            "failed_checks": d.failures, "worst_margin_db": num(margin),
+    return {"family": c.family, "path": c.path, "order": c.order, "section_count": len(c.sections),
+            "highest_q": num(c.highest_q), "buildable": d.buildable, "opamp_count": d.opamps,
+            "failed_check_count": d.failures, "worst_margin_db": num(margin),
             "noise_vrms": num(an.noise.integrated_vrms) if an else None,
             "dynamic_range_db": num(an.dynamic_range_db) if an else None,
             "yield": num(d.yield_result.yield_fraction) if d.yield_result is not None else None,
@@ -158,16 +167,18 @@ def plan_to_dict(p) -> dict[str, Any]:
         "tool": _tool(),
         "requirement": {"path": p.requirement.path,
                         "sha256": _requirement_hash(p.requirement.path)},
-        "prototype": {"family": c.family, "order": c.order, "ripple_db": num(c.ripple_db),
+        "prototype": {"family": c.family, "order": c.order, "design_loss_db": num(c.ripple_db),
                       "path": c.path},
         "why": p.why,
         "candidates": [_candidate_dict(x) for x in p.designs],
     }
     if d.chain is None:
         out.update({"stages": [{"position": i + 1, "kind": a.section.kind,
-                                "f0_hz": num(a.section.f0_hz), "q": num(a.section.q),
-                                "gain": num(a.section.gain), "topology": None,
-                                "components": None, "nets": None, "actual": None,
+                                "target": {"f0_hz": num(a.section.f0_hz),
+                                           "q": num(a.section.q),
+                                           "gain": num(a.section.gain)},
+                                "topology": None, "components": None, "nets": None,
+                                "built": None,
                                 "rejected": [{"topology": t, "reason": r} for t, r in a.rejected]}
                                for i, a in enumerate(d.assignments)],
                     "checks": _checks(d.checks), "response": None, "nodes": [],
@@ -175,13 +186,15 @@ def plan_to_dict(p) -> dict[str, Any]:
         return out
     out.update(chain_dict(d.chain, d.analyses, d.checks))
     o = d.ordering
-    out["ordering"] = {"method": o.method, "order_as_generated": [i + 1 for i in o.order],
-                       "gain_over_generated_db": num(o.gain_over_generated_db),
-                       "gain_over_increasing_q_db": num(o.gain_over_increasing_q_db),
+    # chosen_order: for each chain position, the 1-based number of its section as generated.
+    out["ordering"] = {"method": o.method, "chosen_order": [i + 1 for i in o.order],
+                       "dynamic_range_gain_db": num(o.gain_over_generated_db),
+                       "dynamic_range_gain_over_increasing_q_db":
+                           num(o.gain_over_increasing_q_db),
                        "model_noise_vrms": num(o.noise_vrms),
                        "built": {"noise_vrms": num(o.built_noise_vrms),
-                                 "gain_over_generated_db": num(o.built_gain_over_generated_db),
-                                 "gain_over_increasing_q_db":
+                                 "dynamic_range_gain_db": num(o.built_gain_over_generated_db),
+                                 "dynamic_range_gain_over_increasing_q_db":
                                      num(o.built_gain_over_increasing_q_db),
                                  "placement": o.placement}}
     y = getattr(d, "yield_result", None)
@@ -213,7 +226,7 @@ def yield_dict(y) -> dict[str, Any]:
         "failures": dict(y.fail_counts),
         "envelope": {"freq_hz": _nums(y.freq_hz), "percentiles": [1, 50, 99],
                      "gain_db": [_nums(row) for row in y.envelope_db]},
-        "top_parts": [{"stage": p.stage, "part": p.part, "index": num(p.index),
+        "top_parts": [{"stage": p.stage, "part": p.part, "first_order_index": num(p.index),
                        "worst_fail_rate": num(p.worst_fail_rate), "worst_side": p.worst_side}
                       for p in y.drivers],
         "explained": num(y.explained),

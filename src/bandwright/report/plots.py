@@ -25,6 +25,8 @@ from __future__ import annotations
 
 import io
 import math
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 from bandwright.report._mpl import quiet_matplotlib
 
@@ -41,6 +43,13 @@ from bandwright.analysis.levels import net_transfers
 from bandwright.parts.notation import format_hz as fmt_hz
 from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
 from bandwright.sections.split import cascade_response
+
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+
+    from bandwright.audit import Audit
+    from bandwright.diagnosis import Diagnosis
+    from bandwright.planner import Plan
 
 __all__ = ["plot_files", "plot_figures", "PLOT_NAMES", "DPI", "SIZE_PX", "source_label",
            "diagnosis_figure"]
@@ -63,7 +72,8 @@ INTERNAL_DASHES = (":", "-.", (0, (6, 2)), (0, (1, 3)))
 CONTRIBUTOR_COLOURS = ("#d0541f", "#2a7ab0", "#5b8c2a", "#9c4fa8", "#b8860b")
 
 
-def _figure(ncols: int = 1, width_ratios=None) -> tuple[Figure, list]:
+def _figure(ncols: int = 1,
+            width_ratios: Sequence[float] | None = None) -> tuple[Figure, list[Axes]]:
     fig = Figure(figsize=(SIZE_PX[0] / DPI, SIZE_PX[1] / DPI), dpi=DPI, layout="constrained")
     axes = fig.subplots(1, ncols, width_ratios=width_ratios, squeeze=False)[0]
     return fig, list(axes)
@@ -87,7 +97,7 @@ def _stage_colour(position: int) -> str:
     return STAGE_COLOURS[(position - 1) % len(STAGE_COLOURS)]
 
 
-def _log_freq_axis(ax, lo_hz: float, hi_hz: float) -> None:
+def _log_freq_axis(ax: Axes, lo_hz: float, hi_hz: float) -> None:
     """Log frequency axis with SI labels; within a decade or so, a few plain ticks."""
     ax.set_xscale("log")
     ax.set_xlim(lo_hz, hi_hz)
@@ -110,13 +120,13 @@ def _log_freq_axis(ax, lo_hz: float, hi_hz: float) -> None:
     ax.grid(True, which="minor", color="#ececec", linewidth=0.4)
 
 
-def _plain_log_y(ax, lo: float, hi: float) -> None:
+def _plain_log_y(ax: Axes, lo: float, hi: float) -> None:
     """Log y axis labelled with plain numbers (3, 4, 6 rather than powers of ten)."""
     ax.set_yscale("log")
     ax.set_ylim(lo, hi)
     fmt = matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}")
 
-    def some(v, _):
+    def some(v: float, _pos: int | None) -> str:
         m = v / 10 ** math.floor(math.log10(v) + 1e-12)
         keep = (2, 3, 5) if hi / lo < 30 else (2, 5)
         return f"{v:g}" if min(abs(m - k) for k in keep) < 1e-6 else ""
@@ -131,7 +141,7 @@ def _plain_log_y(ax, lo: float, hi: float) -> None:
 # --------------------------------------------------------------------------- response
 
 
-def _mask_patches(ax, s: Subject, x_lo: float, x_hi: float, y_lo: float, y_hi: float, *,
+def _mask_patches(ax: Axes, s: Subject, x_lo: float, x_hi: float, y_lo: float, y_hi: float, *,
                   label_points: bool = False) -> None:
     """Shade what the requirement forbids: below the passband floor, above its ceiling,
     and above each stopband limit from its point outward."""
@@ -155,7 +165,8 @@ def _mask_patches(ax, s: Subject, x_lo: float, x_hi: float, y_lo: float, y_hi: f
                                   edgecolor="none"))
 
 
-def _response_axes(ax, s: Subject, f, built_db, ideal_db, x_lo, x_hi, y_lo, y_hi, *,
+def _response_axes(ax: Axes, s: Subject, f: np.ndarray, built_db: np.ndarray,
+                   ideal_db: np.ndarray, x_lo: float, x_hi: float, y_lo: float, y_hi: float, *,
                    label_points: bool = False) -> None:
     if s.has_mask:
         _mask_patches(ax, s, x_lo, x_hi, y_lo, y_hi, label_points=label_points)
@@ -488,7 +499,7 @@ def _folds(s: Subject) -> Figure | None:
                label=f"peak at the converter {-c.margin_db:+.1f} dBFS")
     levels = [-c.margin_db, conv.alias_limit_dbfs]
 
-    def rms_dbfs(v):
+    def rms_dbfs(v: float) -> float:
         return 20 * math.log10(v * math.sqrt(2) / c.full_scale_vpk) if v > 0 else -300.0
 
     q_db, n_db = rms_dbfs(c.quantisation_vrms), rms_dbfs(c.chain_vrms)
@@ -531,7 +542,7 @@ _BUILDERS = {"response": _response, "levels": _levels, "noise": _noise, "yield":
              "poles": _poles, "folds": _folds}
 
 
-def plot_figures(obj) -> dict[str, Figure]:
+def plot_figures(obj: Plan | Audit | Subject) -> dict[str, Figure]:
     """Every plot that applies, as matplotlib Figures (name → Figure).
 
     Parameters
@@ -566,7 +577,7 @@ def plot_figures(obj) -> dict[str, Figure]:
 MEASURED = "#c0392b"
 
 
-def diagnosis_figure(d) -> Figure:
+def diagnosis_figure(d: Diagnosis) -> Figure:
     """The measured sweep over the chain as designed and as fitted, and the residual.
 
     Parameters
@@ -611,7 +622,7 @@ def diagnosis_figure(d) -> Figure:
     return fig
 
 
-def plot_files(obj) -> dict[str, bytes]:
+def plot_files(obj: Plan | Audit | Subject) -> dict[str, bytes]:
     """Every plot as PNG and SVG bytes: {"response.png": ..., "response.svg": ..., ...}.
 
     Parameters

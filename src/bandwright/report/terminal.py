@@ -189,6 +189,11 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
             _say(console, f"  why: {st.reason}")
         for name, why in st.rejected:
             _say(console, f"  not {name}: {why}")
+        if getattr(st, "dc_block", None) is not None:
+            b = st.dc_block
+            rb = "" if b.r_ohms is None else f", RB={format_value(b.r_ohms, 'Ω')} to the reference"
+            _say(console, f"  DC block: CB={format_value(b.c_farads, 'F')} in series{rb}: "
+                          f"{b.reason}")
     lv = _table("Node levels, worst case (signal anywhere in band + every tone)", "net", "stage",
                 "bias", "peak", "limit", "margin", "slew needed", "least load")
     for n in an.nodes:

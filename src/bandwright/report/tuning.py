@@ -7,10 +7,17 @@ every value comes from ``analysis.tuning.TuningPlan`` and
 from __future__ import annotations
 
 import html
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from bandwright.circuits.elements import Element
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_exact, format_value
+from bandwright.report.subject import is_plan
+
+if TYPE_CHECKING:
+    from bandwright.analysis.montecarlo.tuned import TuningResult
+    from bandwright.analysis.tuning import TuningPlan
+    from bandwright.audit import Audit
+    from bandwright.planner import Plan
 
 __all__ = ["tuning_dict", "procedure_lines", "tuning_terminal", "tuning_html",
            "trimmed_elements", "trimmer_comments", "bom_trimmer_rows", "tuning_of",
@@ -22,14 +29,12 @@ def _num(x: float) -> float | None:
     return float(x) if x is not None and math.isfinite(x) else None
 
 
-def tuning_of(obj) -> Any:
+def tuning_of(obj: Plan | Audit) -> TuningResult | None:
     """The TuningResult of a Plan (its chosen design) or an Audit, or None."""
-    if hasattr(obj, "designs"):
-        return getattr(obj.chosen, "tuning", None)
-    return getattr(obj, "tuning", None)
+    return obj.chosen.tuning if is_plan(obj) else obj.tuning
 
 
-def tuning_dict(t) -> dict[str, Any] | None:
+def tuning_dict(t: TuningResult | None) -> dict[str, Any] | None:
     """design.md's ``tuning{steps[]{...}, yield_untrimmed, yield_tuned}`` (plus a few keys of
     our own: each step's `trims`, `why`, and the tuned run's interval and failures)."""
     if t is None:
@@ -54,7 +59,7 @@ def tuning_dict(t) -> dict[str, Any] | None:
     }
 
 
-def procedure_lines(t) -> list[str]:
+def procedure_lines(t: TuningResult) -> list[str]:
     """The procedure as numbered steps, in the order they are set."""
     lines = []
     for i, s in enumerate(t.plan.steps, start=1):
@@ -67,7 +72,7 @@ def procedure_lines(t) -> list[str]:
     return lines
 
 
-def _summary(t) -> str:
+def _summary(t: TuningResult) -> str:
     ty = t.tuned
     lo, hi = ty.interval
     text = (f"Yield untrimmed {100 * t.yield_untrimmed:.1f} %, after tuning "
@@ -88,7 +93,7 @@ _ORDER_NOTE = ("Within a stage f0 is set first, then Q, then gain: each later tr
                "depend on the stages after it.")
 
 
-def tuning_terminal(t) -> list[str]:
+def tuning_terminal(t: TuningResult | None) -> list[str]:
     """Plain lines for the terminal report (the caller prints them)."""
     if t is None:
         return []
@@ -96,7 +101,7 @@ def tuning_terminal(t) -> list[str]:
             + [_ORDER_NOTE, _summary(t)])
 
 
-def tuning_html(t) -> str:
+def tuning_html(t: TuningResult | None) -> str:
     """An HTML section: the procedure as an ordered list."""
     if t is None:
         return ""
@@ -107,7 +112,7 @@ def tuning_html(t) -> str:
             f"<p>{html.escape(_ORDER_NOTE)}</p><p>{html.escape(_summary(t))}</p></section>")
 
 
-def trimmed_elements(elements: tuple[Element, ...], plan) -> tuple[Element, ...]:
+def trimmed_elements(elements: tuple[Element, ...], plan: TuningPlan) -> tuple[Element, ...]:
     """A flat chain element list with every trimmed part split into its fixed resistor and
     its trimmer at mid-travel (``<trims>_s<k>`` then ``<part>_s<k>``, in series)."""
     steps = {f"{s.trims}_s{s.stage}": s for s in plan.steps}
@@ -124,7 +129,7 @@ def trimmed_elements(elements: tuple[Element, ...], plan) -> tuple[Element, ...]
     return tuple(out)
 
 
-def trimmer_comments(deck: str, plan) -> str:
+def trimmer_comments(deck: str, plan: TuningPlan) -> str:
     """The deck with a comment above each trimmer: its end-to-end value and travel."""
     notes = {}
     for s in plan.steps:
@@ -144,7 +149,7 @@ def trimmer_comments(deck: str, plan) -> str:
     return "\n".join(out) + "\n"
 
 
-def bom_trimmer_rows(plan) -> list[list[str]]:
+def bom_trimmer_rows(plan: TuningPlan) -> list[list[str]]:
     """BOM rows (designators, part, value, series, tolerance, dielectric, quantity) for the
     trimmers, one row per value."""
     rows: dict[float, list[str]] = {}
@@ -154,14 +159,13 @@ def bom_trimmer_rows(plan) -> list[list[str]]:
              str(len(refs))] for v, refs in rows.items()]
 
 
-def toml_with_trims(text: str, plan) -> str:
+def toml_with_trims(text: str, plan: TuningPlan) -> str:
     """chain.toml with each trimmed stage's ``trim = { part = ["fixed", "trimmer"] }``
     after its parts (the audit reads it back)."""
     by_stage: dict[int, list[str]] = {}
     for s in plan.steps:
         by_stage.setdefault(s.stage, []).append(
-            f'{s.trims} = ["{format_value(s.fixed_ohms, significant=6)}", '
-            f'"{format_value(s.trimmer_ohms, significant=6)}"]')
+            f'{s.trims} = ["{format_exact(s.fixed_ohms)}", "{format_exact(s.trimmer_ohms)}"]')
     out, stage = [], 0
     for line in text.splitlines():
         out.append(line)
@@ -185,7 +189,7 @@ def set_trimmers(deck: str, ohms: dict[str, float]) -> str:
     return "\n".join(out) + "\n"
 
 
-def design_settings(plan) -> dict[str, float]:
+def design_settings(plan: TuningPlan) -> dict[str, float]:
     """Each trimmer at the setting that gives its part's designed value (the circuit the
     analyses describe)."""
     return {f"{s.part}_s{s.stage}": s.design_ohms - s.fixed_ohms for s in plan.steps}

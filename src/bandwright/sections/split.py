@@ -1,4 +1,4 @@
-"""Prototype poles → second-order sections (bandpass path and wideband path)."""
+"""Prototype poles → second-order sections (bandpass path and highpass + lowpass path)."""
 
 from __future__ import annotations
 

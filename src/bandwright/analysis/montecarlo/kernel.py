@@ -2,7 +2,7 @@
 to every op-amp output net on one frequency grid.
 
 Each stage is reduced to its transfer polynomials for the whole batch
-(``circuits.figures.transfer_polynomials_many``, one batched determinant per stage) and
+(``circuits.figures.transfer_polynomials_many``, from the cached monomial expansion) and
 evaluated as |H(jw)|^2 on every frequency of every sample in numpy; the chain's transfer to
 a net is the product along its path (the op-amp outputs are ideal sources, so stages do not
 load each other: ``analysis.levels.net_transfers``).
@@ -140,7 +140,8 @@ def stage_polynomials(chain: Chain, values: list[np.ndarray],
         rs = chain.source_ohms if chain.input_of(st) == CHAIN_INPUT else 0.0
         nets = tuple(stage_output_nets(st))   # "out" last: internal nets see the stage input
         nums, den = transfer_polynomials_many(st.elements, out_nets=nets, source_ohms=rs,
-                                              values=values[k], gbw_scale=gbw[k])
+                                              values=values[k], gbw_scale=gbw[k],
+                                              method="auto")
         out.append(StagePolynomials(nets=nets, nums=nums, den=den,
                                     w_rad_s=scale_rad_s(st.elements, values[k])))
     return out

@@ -7,7 +7,7 @@ A trimmed part's value on a board is its fixed resistor (drawn at the resistor t
 from the same random column the untrimmed part uses) plus the trimmer's setting. Each step
 is solved by the secant method in ln R, starting from the power law y ∝ R^S of the
 step's sensitivity; the figures are read from the stage's poles
-(``circuits.figures.section_figures_batch``): a second-order bandpass peaks at its pole
+(``circuits.figures.part_sweep_figures``): a second-order bandpass peaks at its pole
 frequency and its −3 dB width is f0/Q, which is what the technician reads.
 
 References
@@ -32,7 +32,7 @@ from bandwright.analysis.montecarlo.verdicts import REASONS, judge
 from bandwright.analysis.grid import response_grid
 from bandwright.analysis.tuning import TRIMMER_RESOLUTION, TrimStep, TuningPlan, plan_tuning
 from bandwright.chain.graph import CHAIN_INPUT, Chain
-from bandwright.circuits.figures import section_figures_batch
+from bandwright.circuits.figures import part_sweep_figures
 from bandwright.circuits.nodal import passive_names
 from bandwright.inputs.requirement import Requirement
 
@@ -82,12 +82,19 @@ class TunedYield:
     settings: tuple[np.ndarray, ...]
 
 
-def _figure(stage, chain: Chain, values: np.ndarray, gbw, adjusts: str) -> np.ndarray:
+def _figure_of(stage, chain: Chain, values: np.ndarray, gbw, col: int, adjusts: str):
+    """The step's reading as a function of the trimmed part's value (S,): the other parts
+    are fixed during a step, so the polynomials are evaluated once per step
+    (``circuits.figures.part_sweep_figures``)."""
     rs = chain.source_ohms if chain.input_of(stage) == CHAIN_INPUT else 0.0
-    f0, q, g = section_figures_batch(stage.elements, kind=stage.kind,
-                                     near_hz=stage.built.f0_hz, values=values,
-                                     gbw_scale=gbw, source_ohms=rs)
-    return {"f0": f0, "q": q, "gain": np.abs(g)}[adjusts]
+    figures = part_sweep_figures(stage.elements, kind=stage.kind, near_hz=stage.built.f0_hz,
+                                 values=values, part=col, gbw_scale=gbw, source_ohms=rs)
+    pick = {"f0": 0, "q": 1, "gain": 2}[adjusts]
+
+    def figure(value: np.ndarray) -> np.ndarray:
+        y = figures(value)[pick]
+        return np.abs(y) if adjusts == "gain" else y
+    return figure
 
 
 def _solve_step(stage, chain: Chain, values: np.ndarray, gbw, col: int, fixed: np.ndarray,
@@ -97,11 +104,12 @@ def _solve_step(stage, chain: Chain, values: np.ndarray, gbw, col: int, fixed: n
     t_ohms = step.trimmer_ohms
     lo, hi = np.log(fixed), np.log(fixed + t_ohms)
     ln_target = np.log(step.target)
+    figure = _figure_of(stage, chain, values, gbw, col, step.adjusts)
 
     def err(x: np.ndarray) -> np.ndarray:
         values[:, col] = np.exp(x)
         with np.errstate(divide="ignore", invalid="ignore"):
-            return np.log(_figure(stage, chain, values, gbw, step.adjusts)) - ln_target
+            return np.log(figure(values[:, col])) - ln_target
 
     x0 = np.log(fixed + t_ohms / 2)
     e0 = err(x0)

@@ -4,13 +4,15 @@ headroom, and by how much it misses or passes (the worst excess, dB).
 A board passes when every stage's denominator is Hurwitz (``analysis.stability``: |H|^2
 cannot tell a right-half-plane pole from its mirror), it meets the mask as
 ``analysis.mask.mask_margins`` reads it (the reader of the `mask` check) and every op-amp
-output keeps its worst-case peak inside its swing (``analysis.levels.node_levels``).
+output keeps its worst-case peak, around its nominal bias point, inside its swing
+(``analysis.levels.node_levels``).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
+from bandwright.analysis.bias import bias_points, chain_reference
 from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.analysis.mask import mask_margins
 from bandwright.analysis.montecarlo.kernel import (Grid, StagePolynomials, chain_mag_sq,
@@ -18,11 +20,33 @@ from bandwright.analysis.montecarlo.kernel import (Grid, StagePolynomials, chain
 from bandwright.chain.graph import CHAIN_OUTPUT, Chain
 from bandwright.inputs.requirement import Requirement
 
-__all__ = ["verdicts", "judge", "REASONS"]
+__all__ = ["verdicts", "judge", "REASONS", "bias_limits_vpk"]
 
 #: Failure reasons, in the order `yield.failures` lists them. An unstable board counts
 #: under "unstable" only: its steady-state readings mean nothing.
 REASONS = ("unstable", "passband loss", "passband gain", "stopband", "headroom")
+
+
+def bias_limits_vpk(chain: Chain, requirement: Requirement) -> dict[str, float]:
+    """Each output net's room around its nominal bias, Vpk: min((V+ - swing) - bias,
+    bias - (V- + swing)), the nominal headroom check's limit (``analysis.levels.node_levels``
+    with the bias points of ``analysis.bias``) on a single supply; on split rails the swing
+    around the reference, as before. The boards share the nominal bias: a part's
+    spread moves the bias far less than it moves the response."""
+    sup = requirement.supply
+    if not sup.single:
+        # Split rails keep the limit around the reference (their yields stay as they were;
+        # the nominal headroom check judges the bias there).
+        return {net: swing_limit_vpk(sup, chain.stage_of(net).model.swing_to_rail_v)
+                for net in chain.output_nets}
+    bias = bias_points(chain, requirement, chain_reference(chain, requirement))
+    lo, hi = sup.rails_v
+    out = {}
+    for net in chain.output_nets:
+        swing = chain.stage_of(net).model.swing_to_rail_v
+        b = bias.nets[net].dc_v if net in bias.nets else requirement.supply.reference_v
+        out[net] = min((hi - swing) - b, b - (lo + swing))
+    return out
 
 
 def verdicts(t2: dict[str, np.ndarray], chain: Chain, grid: Grid, requirement: Requirement,
@@ -57,15 +81,18 @@ def verdicts(t2: dict[str, np.ndarray], chain: Chain, grid: Grid, requirement: R
     n_pb = grid.passband.size
     tv = np.array([t.vpk for t in requirement.input.tones], dtype=float)
     head_x = np.full(n_boards, -np.inf)
+    limits = bias_limits_vpk(chain, requirement)
     for net in chain.output_nets:
         m2 = t2[net]
         # The chain output holds the whole grid, other nets only the level frequencies.
         lv = m2[:, grid.levels] if net == CHAIN_OUTPUT else m2
         mag = np.sqrt(lv)
         peak = requirement.input.max_vpk * mag[:, :n_pb].max(axis=1) + mag[:, n_pb:] @ tv
-        limit = swing_limit_vpk(requirement.supply, chain.stage_of(net).model.swing_to_rail_v)
+        limit = limits[net]
         with np.errstate(divide="ignore"):
-            head_x = np.maximum(head_x, 20 * np.log10(peak / limit))
+            # A bias beyond its swing limit leaves no room at all: an infinite excess.
+            x = 20 * np.log10(peak / limit) if limit > 0 else np.full(n_boards, np.inf)
+            head_x = np.maximum(head_x, x)
     excess = np.where(stable, np.maximum(m.excess_db, head_x), np.inf)
     free = {"passband loss": m.loss_ok, "passband gain": m.gain_ok, "stopband": m.stop_ok,
             "headroom": head_x <= 0.0}
