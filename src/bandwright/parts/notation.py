@@ -34,8 +34,8 @@ import re
 from decimal import Decimal, InvalidOperation
 from numbers import Real
 
-__all__ = ["parse_value", "format_value", "format_spice", "format_exact", "format_hz", "format_si",
-           "format_hz_range", "format_pct", "format_fixed", "plural"]
+__all__ = ["parse_value", "format_value", "format_spice", "format_exact", "format_hz",
+           "format_si", "format_hz_range", "format_pct", "format_fixed", "format_sig", "plural"]
 
 _PREFIX_EXPONENT: dict[str, int] = {
     "f": -15,
@@ -326,6 +326,27 @@ def format_fixed(value: float, decimals: int, *, sign: bool = False) -> str:
     """
     value = round(float(value), decimals) + 0.0  # + 0.0 turns -0.0 into 0.0
     return f"{value:{'+' if sign else ''}.{decimals}f}"
+
+
+def format_sig(value: float, significant: int = 4) -> str:
+    """A plain number with `significant` digits, without an exponent between 1e-4 and 1e7
+    and never "-0": 0.9775 prints "0.9775", 12345.6 "12350", -0.0001 at 2 digits "-0.0001".
+
+    Examples
+    --------
+    >>> format_sig(0.9775), format_sig(12345.6), format_sig(-1e-12, 2), format_sig(2e8)
+    ('0.9775', '12350', '-1e-12', '2e+08')
+    """
+    value = float(value)
+    if not math.isfinite(value) or value == 0:
+        return "0" if value == 0 else str(value)
+    if not 1e-4 <= abs(value) < 1e7:
+        return f"{value:.{significant}g}"
+    digits = significant - 1 - math.floor(math.log10(abs(float(f"{value:.{significant}g}"))))
+    text = f"{round(value, digits) + 0.0:.{max(digits, 0)}f}"
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return "0" if text in ("-0", "") else text
 
 
 def format_pct(fraction: float, *, decimals: int = 1) -> str:

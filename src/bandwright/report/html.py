@@ -152,10 +152,6 @@ def _db(x: float) -> str:
     return f"{round(20 * math.log10(abs(x)), 2) + 0.0:+.2f}" if x else "—"
 
 
-def _fmt(x: float | None, unit: str) -> str:
-    return "—" if x is None else _e(f"{x:.4g} {unit}".strip())
-
-
 # --------------------------------------------------------------------------- sections
 
 
@@ -376,8 +372,8 @@ def _checks(s: Subject) -> str:
     rows = []
     for k in s.checks:
         where = k.net or (f"stage {k.stage}" if k.stage else "chain")
-        rows.append([_e(k.id), _e(where), _status(k.status), _fmt(k.value, k.unit),
-                     _fmt(k.limit, k.unit), _e(k.message)])
+        rows.append([_e(k.id), _e(where), _status(k.status), _e(words.check_figure(k.value, k.unit)),
+                     _e(words.check_figure(k.limit, k.unit)), _e(k.message)])
     return ('<section id="checks"><h2>Checks</h2>'
             + _table(["check", "where", "verdict", "value", "limit", "reason"], rows,
                      num_cols=(3, 4))

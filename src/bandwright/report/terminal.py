@@ -233,18 +233,8 @@ def _checks(checks: Sequence[Check], console: Console) -> None:
                wrap=("reason",))
     for k in checks:
         where = k.net or (f"stage {k.stage}" if k.stage else "chain")
-        _row(t, k.id, where, words.STATUS_WORD[k.status], _fmt(k.value, k.unit), _fmt(k.limit, k.unit),
+        _row(t, k.id, where, words.STATUS_WORD[k.status], words.check_figure(k.value, k.unit),
+             words.check_figure(k.limit, k.unit),
                   k.message)
     _say(console, t)
     _say(console, words.checks_sentence(checks))
-
-
-_SHOWN_UNIT = {"ohm": "Ω", "V/us": "V/µs", "Hz": "Hz", "Vrms": "V", "Vpk": "V"}
-
-
-def _fmt(x: float | None, unit: str) -> str:
-    if x is None:
-        return "—"
-    if unit in ("ohm", "Hz", "Vrms", "Vpk"):
-        return format_value(x, _SHOWN_UNIT[unit])
-    return f"{x:.4g} {_SHOWN_UNIT.get(unit, unit)}".strip()

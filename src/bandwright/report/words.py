@@ -14,10 +14,10 @@ from __future__ import annotations
 from typing import Any, Sequence
 
 from bandwright.candidates import path_label
-from bandwright.parts.notation import plural
+from bandwright.parts.notation import format_hz, format_pct, format_si, format_sig, plural
 
 __all__ = ["STATUS_WORD", "candidate_state", "path_label", "checks_sentence",
-           "TARGET", "IDEAL_PARTS", "BUILT", "AUDIT_IDEAL", "AUDIT_IDEAL_NOTE"]
+           "check_figure", "TARGET", "IDEAL_PARTS", "BUILT", "AUDIT_IDEAL", "AUDIT_IDEAL_NOTE"]
 
 STATUS_WORD = {"pass": "pass", "warn": "WARN", "fail": "FAIL"}
 
@@ -41,3 +41,30 @@ def checks_sentence(checks: Sequence[Any]) -> str:
     n = {s: sum(k.status == s for k in checks) for s in STATUS_WORD}
     return (f"{plural(len(checks), 'check')}: {n['pass']} pass, {n['warn']} WARN, "
             f"{n['fail']} FAIL.")
+
+
+# A check's unit (as the JSON carries it) → how its value and limit read.
+_SI_UNIT = {"ohm": "Ω", "Vrms": "V rms", "Vpk": "Vpk", "V": "V"}
+_COUNTED = {"parts": "part", "poles": "pole", "sections": "section"}
+
+
+def check_figure(x: float | None, unit: str) -> str:
+    """A check's value or limit as the terminal and the HTML print it: "11.5 kΩ",
+    "46.8 µV rms", "20.2 MHz", "97.8 %", "1 part" (the JSON keeps the SI float)."""
+    if x is None:
+        return "—"
+    if unit == "Hz":
+        return format_hz(x)
+    if unit in _SI_UNIT:
+        return format_si(x, _SI_UNIT[unit])
+    if unit == "share":
+        return format_pct(x)
+    if unit in _COUNTED and float(x).is_integer():
+        return plural(int(x), _COUNTED[unit])
+    if unit == "order":
+        return f"order {format_sig(x)}"
+    if unit == "Q":
+        return f"Q {format_sig(x)}"
+    if unit == "V/us":
+        return f"{format_sig(x, 3)} V/µs"
+    return f"{format_sig(x)} {unit}".strip()
