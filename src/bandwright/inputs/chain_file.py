@@ -60,25 +60,27 @@ def _stage_parts(path: str, key: str, topo, table) -> dict[str, float]:
         if name not in table:
             raise SpecError(path, f"{key}.{name}", f"missing: {topo.NAME} needs "
                             f"{', '.join(required)}")
-    out = {}
-    for name, raw in table.items():
-        k = f"{key}.{name}"
-        clash = _unit_clash(name, raw)
-        if clash:
-            raise SpecError(path, k, clash, value=raw)
-        try:
-            v = parse_value(raw)
-        except (ValueError, TypeError) as exc:
-            raise SpecError(path, k, str(exc), value=raw) from None
-        lo, hi = _R_RANGE if name.startswith("R") else _C_RANGE
-        if not v > 0:
-            raise SpecError(path, k, "must be > 0", value=raw)
-        if not lo <= v <= hi:
-            unit = "Ω" if name.startswith("R") else "F"
-            raise SpecError(path, k, f"outside the plausible range {lo:g} … {hi:g} {unit}",
-                            value=raw)
-        out[name] = v
-    return out
+    return {name: _part_value(path, f"{key}.{name}", name, raw) for name, raw in table.items()}
+
+
+def _part_value(path: str, k: str, name: str, raw) -> float:
+    """One part's value ("4.7k", 4700.0) at key `k`: a resistor (name R…) or a capacitor,
+    inside its plausible range."""
+    clash = _unit_clash(name, raw)
+    if clash:
+        raise SpecError(path, k, clash, value=raw)
+    try:
+        v = parse_value(raw)
+    except (ValueError, TypeError) as exc:
+        raise SpecError(path, k, str(exc), value=raw) from None
+    lo, hi = _R_RANGE if name.startswith("R") else _C_RANGE
+    if not v > 0:
+        raise SpecError(path, k, "must be > 0", value=raw)
+    if not lo <= v <= hi:
+        unit = "Ω" if name.startswith("R") else "F"
+        raise SpecError(path, k, f"outside the plausible range {lo:g} … {hi:g} {unit}",
+                        value=raw)
+    return v
 
 
 def _stage_trims(path: str, key: str, topo, table, parts: dict[str, float]
@@ -127,21 +129,7 @@ def _stage_dc_block(path: str, key: str, table) -> tuple[float, float | None]:
                             "(to the reference, optional)")
     if "C" not in table:
         raise SpecError(path, f"{key}.C", "missing: a DC block needs its series capacitor C")
-    out = {}
-    for name, raw in table.items():
-        k = f"{key}.{name}"
-        clash = _unit_clash(name, raw)
-        if clash:
-            raise SpecError(path, k, clash, value=raw)
-        try:
-            v = parse_value(raw)
-        except (ValueError, TypeError) as exc:
-            raise SpecError(path, k, str(exc), value=raw) from None
-        lo, hi = _R_RANGE if name == "R" else _C_RANGE
-        if not lo <= v <= hi:
-            raise SpecError(path, k, f"outside the plausible range {lo:g} … {hi:g} "
-                            f"{'Ω' if name == 'R' else 'F'}", value=raw)
-        out[name] = v
+    out = {name: _part_value(path, f"{key}.{name}", name, raw) for name, raw in table.items()}
     return out["C"], out.get("R")
 
 
