@@ -67,11 +67,15 @@ _STEP_TOL = 1e-9
 _IMPROVEMENT_TOL = 1e-15
 # No resistor below this many times the op-amp's minimum load: any may hang on an output.
 _MIN_LOAD_FACTOR = 4
-# The series grid search reads figures from the wiring's cached monomial expansion (one
-# product and one matrix multiply per batch). The continuous resistor solve stays on the
+# The series grid search reads figures from the wiring's cached monomial expansion where it
+# can be expanded (one matrix multiply per batch; ties broken by ``_tie_break``, not by
+# rounding). The continuous resistor solve stays on the
 # determinant path: several capacitor starts solve to errors at rounding level, and their
 # ranking (which ones are rounded) is decided by that rounding; reported figures stay too.
-_SEARCH_METHOD = "expansion"
+_SEARCH_METHOD = "auto"
+# Errors this close count as a tie (rounding of a figure_error near 1e-6 is about 1e-22).
+_TIE_REL = 1e-9
+_TIE_ABS = 1e-20
 # A gain stage has no f0: its figures are read at this frequency (far below any GBW).
 _GAIN_STAGE_NEAR_HZ = 1.0
 
@@ -305,6 +309,23 @@ def solve_resistors(elements: tuple[Element, ...], starts: np.ndarray, target: S
     return vals, _error_batch(f0, q, g, target)
 
 
+def _tie_break(err: np.ndarray, grid: np.ndarray, anchor: np.ndarray) -> int:
+    """Index of the least error; among points that tie with it to rounding, the one
+    nearest (in log distance) the exact values `anchor`.
+
+    Figures that depend only on a ratio tie exactly for every pair of equal parts (a gain
+    stage's Rf = Rg, say); without this the last bits of the arithmetic would choose.
+    """
+    least = float(np.min(err))
+    if not math.isfinite(least):
+        return int(np.argmin(err))
+    ties = np.flatnonzero(err <= least * (1 + _TIE_REL) + _TIE_ABS)
+    if ties.size == 1:
+        return int(ties[0])
+    dist = np.sum((np.log(grid[ties]) - anchor) ** 2, axis=-1)
+    return int(ties[np.argmin(dist)])
+
+
 def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], target: Section,
                  series_of, movable, source_ohms: float = 0.0) -> tuple[dict[str, float], float]:
     """Best combination of series values around `start` (rounded) for the parts in
@@ -317,6 +338,7 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
     others held), sweeping while the error falls.
     """
     names = passive_names(elements)
+    anchor = np.log([float(start[n]) for n in names])
     current = {n: float(nearest(start[n], series_of(n))) for n in names}
     moving = [n for n in names if movable(n)]
     steps = _NEIGHBOURS if (2 * _NEIGHBOURS + 1) ** len(moving) <= _WIDE_GRID_MAX \
@@ -326,9 +348,6 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
     near = target.f0_hz if target.kind != "gain" else _GAIN_STAGE_NEAR_HZ
     best_err = math.inf
     seen: dict[bytes, float] = {}  # a recentred grid shares most of its points
-    # A gain stage's error depends only on a resistor ratio: every pair of equal resistors
-    # ties exactly, and rounding picks among them; the determinant path keeps its choice.
-    method = "det" if target.kind == "gain" else _SEARCH_METHOD
     for _ in range(_SEARCH_SWEEPS * len(blocks)):
         improved = False
         for block in blocks:
@@ -340,12 +359,12 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
             if new.any():
                 f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near,
                                                  values=grid[new], source_ohms=source_ohms,
-                                                 method=method)
+                                                 method=_SEARCH_METHOD)
                 for key, e in zip((k for k, n in zip(keys, new) if n),
                                   _error_batch(f0, q, g, target)):
                     seen[key] = float(e)
             err = np.array([seen[k] for k in keys])
-            k = int(np.argmin(err))
+            k = _tie_break(err, grid, anchor)
             if err[k] < best_err - _IMPROVEMENT_TOL:
                 best_err, improved = float(err[k]), True
                 current = {n: float(v) for n, v in zip(names, grid[k])}
