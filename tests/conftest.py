@@ -3,12 +3,14 @@ planned at most once per test run (in process, as the CLI's JSON, as an --out fo
 
 from __future__ import annotations
 
+import atexit
 import functools
 import io
 import os
 import shutil
 import subprocess
 import sys
+import tempfile
 import textwrap
 import warnings
 from concurrent.futures import ProcessPoolExecutor
@@ -23,6 +25,11 @@ from hypothesis import settings
 settings.register_profile("ci", derandomize=True, deadline=None)
 settings.register_profile("dev", deadline=None)
 settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci" if os.environ.get("CI") else "dev"))
+
+# The expansions' disk cache (circuits.expansion_cache) goes to a folder of this run, not
+# to the user's cache: every run derives them again, and the checks see the derivation.
+os.environ["BANDWRIGHT_CACHE"] = tempfile.mkdtemp(prefix="bandwright-test-cache-")
+atexit.register(shutil.rmtree, os.environ["BANDWRIGHT_CACHE"], True)
 
 ROOT = Path(__file__).resolve().parent.parent
 SCENARIOS = ROOT / "scenarios"

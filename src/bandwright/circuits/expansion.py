@@ -42,6 +42,7 @@ from typing import Sequence
 
 import numpy as np
 
+from bandwright.circuits import expansion_cache
 from bandwright.circuits.elements import GROUND, SUPPLY_NET, Element
 
 __all__ = ["Expansion", "expansion", "structure_key", "expanded_polynomials", "expandable",
@@ -152,7 +153,19 @@ def _stamps(key: tuple) -> tuple[np.ndarray, np.ndarray, list[bool], np.ndarray,
 
 
 def _moebius(f_const: np.ndarray, stamps: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Integer coefficients of the multilinear det(F + sum x_v U_v): (subset bitmask, coef)."""
+    """Integer coefficients of the multilinear det(F + sum x_v U_v): (subset bitmask, coef),
+    read from the disk cache (``expansion_cache``) when this wiring was derived before."""
+    key = expansion_cache.key_of(f_const, stamps)
+    hit = expansion_cache.load(key, stamps.shape[0])
+    if hit is not None:
+        return hit
+    masks, coefs = _moebius_derive(f_const, stamps)
+    expansion_cache.store(key, masks, coefs)
+    return masks, coefs
+
+
+def _moebius_derive(f_const: np.ndarray, stamps: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``_moebius`` from its 2^n determinants (the subset lattice, [3]_)."""
     n = stamps.shape[0]
     bits = (np.arange(2 ** n)[:, None] >> np.arange(n)) & 1          # (2^n, n)
     mats = f_const + np.einsum("kv,vij->kij", bits.astype(float), stamps)
