@@ -35,9 +35,10 @@ def resolve_amplifier(choice: AmplifierChoice, *, path: str, key: str = "amplifi
             and (supply.rails_v[1] - supply.rails_v[0]) / 2 > model.swing_to_rail_v):
         lo, hi = supply.rails_v
         raise SpecError(path, "supply.reference_v",
-                        f"the reference {format_si(supply.reference_v, 'V', significant=4)} is within the op-amp's swing "
-                        f"loss ({format_si(model.swing_to_rail_v, 'V', significant=4)}) of a rail [{lo:g}, {hi:g}] V: no "
-                        f"output swing around it", value=supply.reference_v)
+                        f"the reference {format_si(supply.reference_v, 'V', significant=4)} is "
+                        f"within the op-amp's swing loss "
+                        f"({format_si(model.swing_to_rail_v, 'V', significant=4)}) of a rail "
+                        f"[{lo:g}, {hi:g}] V: no output swing around it", value=supply.reference_v)
     if supply is not None and swing_limit_vpk(supply, model.swing_to_rail_v) <= 0:
         raise SpecError(path, "supply.rails_v",
                         f"rails leave no output swing: the op-amp needs "
@@ -54,7 +55,8 @@ def check_tones(model: OpAmp, tones: Sequence[Tone], *, path: str, key: str) -> 
     for i, tone in enumerate(tones):
         if tone.vpk > 0 and tone.freq_hz > model.gbw_hz:
             raise SpecError(path, f"input.tone[{i}].freq_hz",
-                            f"a {format_si(tone.vpk, 'Vpk', significant=4)} tone above the op-amp's GBW "
+                            f"a {format_si(tone.vpk, 'Vpk', significant=4)} tone above the "
+                            f"op-amp's GBW "
                             f"({format_hz(model.gbw_hz, significant=3)}, {key}), where no active "
                             "section acts on "
                             "it: give the level left after a passive lowpass ahead of the "

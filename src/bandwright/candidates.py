@@ -100,8 +100,8 @@ def _bandpass_candidate(req: Requirement, family: str, order: int | None) -> Can
     secs = bandpass_sections(proto, center_hz=pb.center_hz, bandwidth_hz=pb.bandwidth_hz,
                              gain=pb.gain)
     return Candidate(path="bandpass", family=family, order=order, ripple_db=loss_db,
-                     sections=secs, note=decided + f"; designed for {format_sig(loss_db, 3)} dB of the "
-                     f"{format_sig(pb.max_loss_db)} dB allowed")
+                     sections=secs, note=decided + f"; designed for {format_sig(loss_db, 3)} dB of "
+                                                   f"the {format_sig(pb.max_loss_db)} dB allowed")
 
 
 def _decider(req: Requirement, family: str, omegas, order: int, loss_db: float) -> str:
@@ -186,7 +186,8 @@ def _wideband_candidate(req: Requirement, family: str, order: int | None) -> Can
         n_lp += 2 * short_hi
         secs = build(a_db, n_hp, n_lp)
     note = (f"highpass order {n_hp} + lowpass order {n_lp}, each side's edge loss "
-            f"{format_sig(a_db, 3)} dB so the skirts together lose at most {format_sig(budget, 3)} dB of the "
+            f"{format_sig(a_db, 3)} dB so the skirts together lose at most "
+            f"{format_sig(budget, 3)} dB of the "
             f"{format_sig(pb.max_loss_db)} dB allowed")
     if cap_hp or cap_lp:
         note += f"; capped at the largest supported order, {MAX_ORDER} a side"

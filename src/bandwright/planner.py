@@ -286,7 +286,8 @@ def _why(designs: list[Design]) -> str:
         return why
     if (_shortfall(best) != _shortfall(nxt) and best.yield_result is not None
             and nxt.yield_result is not None):
-        return (f"more boards meet the requirement ({format_fixed(100 * best.yield_result.yield_fraction, 1)} % "
+        return (f"more boards meet the requirement "
+                f"({format_fixed(100 * best.yield_result.yield_fraction, 1)} % "
                 f"against {format_fixed(100 * nxt.yield_result.yield_fraction, 1)} % for {name})")
     if best.opamps != nxt.opamps:
         return f"fewer op-amps ({best.opamps} against {nxt.opamps} for {name})"
@@ -294,7 +295,8 @@ def _why(designs: list[Design]) -> str:
         return (f"fewer sections ({len(best.candidate.sections)} against "
                 f"{len(nxt.candidate.sections)} for {name})")
     return (f"as many op-amps and sections as {name}, lower highest Q "
-            f"({format_sig(best.candidate.highest_q, 3)} against {format_sig(nxt.candidate.highest_q, 3)})")
+            f"({format_sig(best.candidate.highest_q, 3)} against "
+            f"{format_sig(nxt.candidate.highest_q, 3)})")
 
 
 def _assign(section: Section, model: OpAmp, req: Requirement, windows: PartWindows,
@@ -704,9 +706,10 @@ def _build_and_trim(assignments: list[Assignment], req: Requirement, model: OpAm
             stages = list(chain.stages)
             note = "parts trimmed for the chain's mask"
             if new.redesign:
-                note = (f"parts re-chosen for the chain's mask: f0 moved {format_fixed(100 * new.f0_shift, 1, sign=True)} %, "
-                        f"more than the {format_sig(100 * trim.REDESIGN_SHARE)} % a rounding trim moves it — "
-                        f"a redesign of this section, not rounding")
+                note = (f"parts re-chosen for the chain's mask: f0 moved "
+                        f"{format_fixed(100 * new.f0_shift, 1, sign=True)} %, more than the "
+                        f"{format_sig(100 * trim.REDESIGN_SHARE)} % a rounding trim moves it — a "
+                        f"redesign of this section, not rounding")
             stages[k] = with_parts(st, new.components, source_ohms=rs, note=note)
             if _trim_breaks_gbw_rule(st, stages[k]):
                 continue
@@ -767,7 +770,8 @@ def _unbuildable(cand: Candidate, ordering: Ordering | None,
         why = "; ".join(f"{name}: {reason}" for name, reason in a.rejected)
         checks.append(Check(
             id="topology", status="fail", value=s.q, limit=None, unit="Q", stage=pos,
-            message=f"no circuit builds the {s.kind} section at {format_hz(s.f0_hz, significant=5)}, Q {format_sig(s.q, 3)}, "
+            message=f"no circuit builds the {s.kind} section at "
+                    f"{format_hz(s.f0_hz, significant=5)}, Q {format_sig(s.q, 3)}, "
                     f"gain {format_sig(s.gain, 3)}{_nearest_fix(s, model)} — {why}"))
     return Design(candidate=cand, ordering=ordering, assignments=assignments, chain=None,
                   analyses=None, checks=tuple(checks))

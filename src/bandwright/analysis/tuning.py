@@ -295,8 +295,9 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
                    + f"; covers ±{format_sig(100 * spread * TRIM_MARGIN, 2)} % of {figure} "
                      f"(worst case ±{format_sig(100 * spread, 2)} %, ×{format_sig(TRIM_MARGIN)})")
             if need > d:
-                why += (f"; the range needed (±{format_sig(100 * need, 3)} % of {part}) would take a "
-                        f"trimmer larger than the fixed part: it covers ±{format_sig(100 * d, 3)} % only")
+                why += (f"; the range needed (±{format_sig(100 * need, 3)} % of {part}) would take "
+                        f"a trimmer larger than the fixed part: it covers "
+                        f"±{format_sig(100 * d, 3)} % only")
             steps.append(TrimStep(
                 stage=st.position, part=trimmer_name(part), trims=part, net_in=net_in,
                 net_out=net_out, adjusts=figure, fixed_ohms=float(fixed),
@@ -361,6 +362,7 @@ def plan_from_trims(chain: Chain, trims: dict[int, dict[str, tuple[float, float]
                                  built["f0"] / built["q"] if figure == "q" else built[figure],
                                  inverting),
                 sensitivity=float(s), design_ohms=float(values[part]),
-                why=f"given in the chain file; moves {figure} by {format_fixed(s, 2, sign=True)} % per % of {part}"))
+                why=f"given in the chain file; moves {figure} by {format_fixed(s, 2, sign=True)} "
+                    f"% per % of {part}"))
             done.append(figure)
     return TuningPlan(steps=tuple(steps))

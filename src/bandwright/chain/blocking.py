@@ -102,11 +102,13 @@ def _block_for(stage: Stage, req, *, dc_in_v: float, ref_v: float, room_v: float
     target = req.passband.low_hz / CORNER_RATIO
     c = float(bracket(1.0 / (2 * math.pi * target * z), req.design.capacitor_series)[1])
     corner = 1.0 / (2 * math.pi * z * c)
-    reason = (f"{what} sits {_volts(offset)} from the reference; DC gain {format_sig(gains[net], 3)} "
-              f"would move the stage's {net} by {_volts(shifts[net] * math.copysign(1, gains[net] * offset))}, "
-              f"{100 * shifts[net] / room_v:.0f} % of its {format_si(room_v, 'V')} room to the rails "
-              f"(blocked above {format_sig(100 * BLOCK_SHARE)} %); corner {format_hz(corner, significant=3)}, "
-              f"at or below 1/{format_sig(CORNER_RATIO)} of the band's low edge")
+    reason = (f"{what} sits {_volts(offset)} from the reference; DC gain "
+              f"{format_sig(gains[net], 3)} would move the stage's {net} by "
+              f"{_volts(shifts[net] * math.copysign(1, gains[net] * offset))}, "
+              f"{100 * shifts[net] / room_v:.0f} % of its {format_si(room_v, 'V')} room to the "
+              f"rails (blocked above {format_sig(100 * BLOCK_SHARE)} %); corner "
+              f"{format_hz(corner, significant=3)}, at or below 1/{format_sig(CORNER_RATIO)} of "
+              f"the band's low edge")
     return DcBlock(c_farads=c, r_ohms=r_ohms, net="in", corner_hz=corner, reason=reason)
 
 

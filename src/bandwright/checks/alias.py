@@ -27,7 +27,8 @@ def alias_checks(an: Analyses) -> list[Check]:
         out.append(Check(
             id="alias", status="pass" if f.passes else "fail", value=f.level_dbfs,
             limit=f.limit_dbfs, unit="dBFS", stage=None, net=CONVERTER_NET,
-            message=f"{what} at {format_fixed(f.level_dbfs, 1)} dBFS (limit {format_fixed(f.limit_dbfs, 1)} dBFS)"))
+            message=f"{what} at {format_fixed(f.level_dbfs, 1)} dBFS (limit "
+                    f"{format_fixed(f.limit_dbfs, 1)} dBFS)"))
     return out
 
 

@@ -37,8 +37,10 @@ def input_range_checks(an: Analyses) -> list[Check]:
         who = "the reference follower" if lv.stage == "reference" else f"{lv.opamp}"
         reach = (f"{format_si(lv.cm_to_rail_v, 'V', significant=4)} from each rail" if lv.cm_to_rail_v >= 0 else
                  f"{format_si(-lv.cm_to_rail_v, 'V', significant=4)} beyond each rail")
-        msg = (f"{who}: + input ({lv.net}) spans {format_sig(lo, 3)} … {format_si(hi, 'V')} (bias {format_si(lv.dc_v, 'V')} "
-               f"± {format_si(lv.peak_vpk, 'Vpk')}); its inputs work from {format_si(lv.low_v, 'V')} to "
+        msg = (f"{who}: + input ({lv.net}) spans {format_sig(lo, 3)} … {format_si(hi, 'V')} (bias "
+               f"{format_si(lv.dc_v, 'V')} "
+               f"± {format_si(lv.peak_vpk, 'Vpk')}); its inputs work from "
+               f"{format_si(lv.low_v, 'V')} to "
                f"{format_si(lv.high_v, 'V')} ({reach})")
         if not lv.fits:
             msg += ("; a rail-to-rail input class, a reference (or source DC level) further "

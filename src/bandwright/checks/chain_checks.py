@@ -44,7 +44,8 @@ def headroom_checks(an: Analyses) -> list[Check]:
             shift = b.source_v - an.bias.reference.reference_v
             if abs(shift) > _SOURCE_SHIFT_SHARE * max(n.limit_vpk, 0.0) + 1e-3:
                 # DC blocks are not placed automatically: say where the level comes from.
-                around += (f"; the source's DC level (input.dc_v) moves it {format_si(shift, 'V', sign=True)} "
+                around += (f"; the source's DC level (input.dc_v) moves it "
+                           f"{format_si(shift, 'V', sign=True)} "
                            f"from the reference through DC-coupled stages: block DC (a "
                            f"series capacitor with a resistor to the reference) ahead of the "
                            f"first stage with DC gain, or bias the source at the reference")
@@ -92,10 +93,9 @@ def drive_checks(an: Analyses) -> list[Check]:
             id="drive", status="pass" if ok else "fail",
             value=n.load_ohms if math.isfinite(n.load_ohms) else None,
             limit=n.min_load_ohms, unit="ohm", stage=n.stage, net=n.net,
-            message=f"least load {load} (feedback network and next input"
-                    f"{', converter input' if n.net == 'out' and an.converter else ''}), "
-                    f"op-amp minimum "
-                    f"{format_si(n.min_load_ohms, 'Ω')}"))
+            message=f"least load {load} (feedback network and next "
+                    f"input{', converter input' if n.net == 'out' and an.converter else ''}), "
+                    f"op-amp minimum {format_si(n.min_load_ohms, 'Ω')}"))
     return out
 
 

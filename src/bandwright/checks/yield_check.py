@@ -37,10 +37,12 @@ def yield_checks(result: YieldResult, *, tuning=None) -> list[Check]:
     sp = result.spreads
     lo, hi = result.interval
     ok = result.meets_target
-    parts = (f"R ±{format_sig(sp.resistor_pct)} % ({sp.resistor_source}), C ±{format_sig(sp.capacitor_pct)} % "
+    parts = (f"R ±{format_sig(sp.resistor_pct)} % ({sp.resistor_source}), C "
+             f"±{format_sig(sp.capacitor_pct)} % "
              f"({sp.capacitor_source}), GBW ±{format_sig(sp.gbw_spread_pct)} %, {sp.distribution}")
     msg = (f"{_pct(result.yield_fraction)} of {result.samples} boards are stable and "
-           f"meet the mask and headroom (95 % interval {_pct(lo)}–{_pct(hi)}; target {_pct(result.min_yield)}); "
+           f"meet the mask and headroom (95 % interval {_pct(lo)}–{_pct(hi)}; target "
+           f"{_pct(result.min_yield)}); "
            f"{parts}; seed {result.seed}")
     if ok and lo < result.min_yield:
         msg += "; the interval reaches below the target: more samples would settle it"
@@ -71,9 +73,9 @@ def _tuned_check(result: YieldResult, tuning) -> Check:
     msg = (f"after tuning ({n_trim} trimmer{'s' if n_trim != 1 else ''}, the procedure below): "
            f"{_pct(t.yield_fraction)} of {t.samples} boards are stable and meet the mask and "
            f"headroom (95 % interval {_pct(lo)}–{_pct(hi)}; target {_pct(result.min_yield)}); "
-           f"untrimmed {_pct(tuning.yield_untrimmed)}; R ±{format_sig(sp.resistor_pct)} %, "
-           f"C ±{format_sig(sp.capacitor_pct)} %, GBW ±{format_sig(sp.gbw_spread_pct)} %, {sp.distribution}; "
-           f"seed {t.seed}; trimmed because {tuning.reason}")
+           f"untrimmed {_pct(tuning.yield_untrimmed)}; R ±{format_sig(sp.resistor_pct)} %, C "
+           f"±{format_sig(sp.capacitor_pct)} %, GBW ±{format_sig(sp.gbw_spread_pct)} %, "
+           f"{sp.distribution}; seed {t.seed}; trimmed because {tuning.reason}")
     if t.unrescued:
         short = ", ".join(f"{k} {v}" for k, v in t.out_of_range.items() if v)
         fails = ", ".join(f"{k} {v}" for k, v in t.fail_counts.items() if v)

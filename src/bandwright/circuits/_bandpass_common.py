@@ -219,18 +219,20 @@ def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
     (notes if gbw_ok else failures).append(gbw_text)
     g = abs(section.gain)
     if g > natural_gain * (1 + GAIN_RTOL):
-        text = (f"gain {format_sig(g)} V/V exceeds the {format_sig(natural_gain)} V/V this section reaches at "
-                f"Q {format_sig(section.q)}; designed for {format_sig(natural_gain)} V/V, "
-                f"{20 * math.log10(g / natural_gain):.2f} dB to be made up by a gain stage")
+        text = (f"gain {format_sig(g)} V/V exceeds the {format_sig(natural_gain)} V/V this section "
+                f"reaches at Q {format_sig(section.q)}; designed for {format_sig(natural_gain)} "
+                f"V/V, {20 * math.log10(g / natural_gain):.2f} dB to be made up by a gain stage")
         (notes if accept_gain_shortfall else failures).append(text)
     if spread > max_spread:
-        failures.append(f"resistor spread {format_sig(spread)}:1 exceeds {format_sig(max_spread)}:1")
+        failures.append(f"resistor spread {format_sig(spread)}:1 exceeds "
+                        f"{format_sig(max_spread)}:1")
     if c_tolerance is None:
         c_tolerance = r_tolerance
     shift = tolerance_shift(sensitivities, r_tolerance, c_tolerance)
     if shift > TOLERANCE_Q_SHIFT_LIMIT:
         parts = (f"{format_sig(100 * r_tolerance, 3)} % parts" if c_tolerance == r_tolerance else
-                 f"{format_sig(100 * r_tolerance, 3)} % resistors and {format_sig(100 * c_tolerance, 3)} % "
+                 f"{format_sig(100 * r_tolerance, 3)} % resistors and "
+                 f"{format_sig(100 * c_tolerance, 3)} % "
                  "capacitors")
         failures.append(
             f"Q {format_sig(section.q)}: with {parts} Q may move by {100 * shift:.0f} % in the "

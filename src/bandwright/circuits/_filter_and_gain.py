@@ -265,7 +265,8 @@ def section_problems(section: Section, *, kind: str, min_gain: float = 0.0) -> l
     if not (math.isfinite(g) and g != 0):
         problems.append(f"gain = {section.gain!r}: must be finite and non-zero")
     elif g < min_gain and not is_unity(g / min_gain):
-        problems.append(f"|gain| = {format_sig(g, 6)} V/V: below the {format_sig(min_gain)} V/V this topology "
+        problems.append(f"|gain| = {format_sig(g, 6)} V/V: below the {format_sig(min_gain)} V/V "
+                        f"this topology "
                         "reaches; run it at unity and put the attenuation in a gain stage")
     return problems
 
@@ -540,7 +541,8 @@ def filter_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
         reasons += unity_note(section)
     spread_ok = part_spread <= MAX_SPREAD
     if not spread_ok:
-        reasons.append(f"component spread {format_sig(part_spread)} exceeds {format_sig(MAX_SPREAD)}")
+        reasons.append(f"component spread {format_sig(part_spread)} exceeds "
+                       f"{format_sig(MAX_SPREAD)}")
     return Limits(feasible=gbw_ok and spread_ok, reasons=tuple(reasons), gbw_needed_hz=needed,
                   spread=part_spread, q_sensitivity=q_sens,
                   noise_gain=noise_gain_at(section.f0_hz, fig.f0_hz, fig.q, ng),

@@ -137,11 +137,11 @@ def design_reference(stage_elements: Sequence[Element], *, rails_v: tuple[float,
     divider = (f"divider {format_si(r1, 'Ω')}/{format_si(r2, 'Ω')} from the "
                f"{format_si(top, 'V', significant=4)} rail, {format_si(c, 'F')} decoupling (pole "
                f"{format_hz(fc_hz, significant=3)}, {format_sig(DECOUPLE_BELOW)}× below "
-               f"{format_hz(low_hz, significant=3)}, so its {format_si(noise_v, 'V/√Hz', significant=2)} "
-               f"is filtered in band)")
+               f"{format_hz(low_hz, significant=3)}, so its "
+               f"{format_si(noise_v, 'V/√Hz', significant=2)} is filtered in band)")
     if passive_legs:
-        why = (f"a follower drives the reference: {plural(len(passive_legs), 'part')} of the stages "
-               f"return signal current to it (e.g. {', '.join(passive_legs[:3])}), which a "
+        why = (f"a follower drives the reference: {plural(len(passive_legs), 'part')} of the "
+               f"stages return signal current to it (e.g. {', '.join(passive_legs[:3])}), which a "
                f"divider alone would turn into a voltage shared by every stage")
     elif buffered:
         why = (f"a follower drives the reference: {plural(inputs, 'op-amp input')} draw "

@@ -159,7 +159,8 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
 
 def _summary(parts: Mapping[str, float], fig: Figures) -> str:
     """The first reason of ``limits``: the design's ratios and gain."""
-    return (f"R2/R1 = {format_sig(parts['R2'] / parts['R1'])}, C1 = C2, gain {format_sig(fig.gain)} V/V"
+    return (f"R2/R1 = {format_sig(parts['R2'] / parts['R1'])}, C1 = C2, gain "
+            f"{format_sig(fig.gain)} V/V"
             + (" (follower)" if "Rf" not in parts else ""))
 
 

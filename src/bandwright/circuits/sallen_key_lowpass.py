@@ -187,9 +187,11 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
             disc = 0.0  # round-off at exactly the minimum ratio (the design's own point)
         if disc < 0:
             raise InfeasibleDesign(
-                f"C1/C2 = {format_sig(c1 / c2)} is below the {format_sig(4 * section.q ** 2)} needed for "
+                f"C1/C2 = {format_sig(c1 / c2)} is below the {format_sig(4 * section.q ** 2)} "
+                f"needed for "
                 f"Q = {format_sig(section.q)} at gain {format_sig(k)}" if common.is_unity(k) else
-                f"no resistor pair reaches Q = {format_sig(section.q)} with C1/C2 = {format_sig(c1 / c2)}")
+                f"no resistor pair reaches Q = {format_sig(section.q)} with C1/C2 = "
+                f"{format_sig(c1 / c2)}")
         sq = math.sqrt(disc)
         roots = [(-b + sq) / (2 * a), (-b - sq) / (2 * a)]
     best = None
@@ -225,7 +227,8 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
 
 def _summary(parts: Mapping[str, float], fig: Figures) -> str:
     """The first reason of ``limits``: the design's ratios and gain."""
-    return (f"C1/C2 = {format_sig(parts['C1'] / parts['C2'])}, R1 = R2, gain {format_sig(fig.gain)} V/V"
+    return (f"C1/C2 = {format_sig(parts['C1'] / parts['C2'])}, R1 = R2, gain "
+            f"{format_sig(fig.gain)} V/V"
             + (" (follower)" if "Rf" not in parts else ""))
 
 

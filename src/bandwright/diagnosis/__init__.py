@@ -385,7 +385,8 @@ def _message(suspects, unexplained: bool, residual_db: float, noise_db: float,
              changes) -> str:
     if unexplained:
         return (f"no change of part values explains the measurement: the best fit leaves "
-                f"{format_fixed(residual_db, 3)} dB rms against a measurement noise of {format_fixed(noise_db, 3)} dB; "
+                f"{format_fixed(residual_db, 3)} dB rms against a measurement noise of "
+                f"{format_fixed(noise_db, 3)} dB; "
                 f"look for a wiring fault, a missing or extra part, or another topology")
     if not suspects:
         return (f"the measurement matches the chain as designed within its noise "
@@ -394,9 +395,11 @@ def _message(suspects, unexplained: bool, residual_db: float, noise_db: float,
     if s.residual_db > UNEXPLAINED_RATIO * noise_db:
         moved = ", ".join(f"{p} of stage {k} {format_fixed(c, 1, sign=True)} %" for k, p, c in changes[:4])
         return (f"no single part explains the measurement ({s.part} of stage {s.stage} alone "
-                f"leaves {format_fixed(s.residual_db, 3)} dB rms, noise {format_fixed(noise_db, 3)} dB); several parts "
+                f"leaves {format_fixed(s.residual_db, 3)} dB rms, noise "
+                f"{format_fixed(noise_db, 3)} dB); several parts "
                 f"are off together, most likely {moved}")
     alt = f" (or {', '.join(e.part + ' of stage ' + str(e.stage) for e in s.equivalent)})" \
         if s.equivalent else ""
-    return (f"stage {s.stage}: {s.part} {format_fixed(s.change_pct, 1, sign=True)} %{alt} explains the measurement "
+    return (f"stage {s.stage}: {s.part} {format_fixed(s.change_pct, 1, sign=True)} %{alt} "
+            f"explains the measurement "
             f"({format_fixed(s.residual_db, 3)} dB rms left, noise {format_fixed(noise_db, 3)} dB)")

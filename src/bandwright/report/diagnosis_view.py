@@ -106,10 +106,10 @@ def render_diagnosis(a, console: Console) -> None:
                   f"{', gain and phase' if d.sweep.phase_deg is not None else ', gain only'}",
          style="bold")
     _say(console, f"Diagnosis: {d.message}.")
-    _say(console, f"Residual {format_fixed(d.residual_db, 3)} dB rms (measured − fitted) against a noise of "
-                  f"{format_fixed(d.noise_db, 3)} dB (the sweep's point-to-point roughness); "
-                  f"{'UNEXPLAINED' if d.unexplained else 'explained'}. The measured chain "
-                  f"{_verdict(d.mask_pass) if d.mask_pass is not None else 'has no mask'}.")
+    _say(console, f"Residual {format_fixed(d.residual_db, 3)} dB rms (measured − fitted) against a "
+                  f"noise of {format_fixed(d.noise_db, 3)} dB (the sweep's point-to-point "
+                  f"roughness); {'UNEXPLAINED' if d.unexplained else 'explained'}. The measured "
+                  f"chain {_verdict(d.mask_pass) if d.mask_pass is not None else 'has no mask'}.")
     if d.suspects:
         t = _table(_suspects_title(d), *_HEAD, wrap=("cannot be told from",))
         for r in _rows(d):
@@ -142,8 +142,8 @@ def diagnosis_html(a, plots: dict | None) -> str:
            f"<p>{e(d.sweep.path)}: {d.sweep.freq_hz.size} points, "
            f"{e(_fhz(d.sweep.freq_hz[0]))} to {e(_fhz(d.sweep.freq_hz[-1]))}.</p>",
            f'<div class="verdict {status}">{e(d.message[:1].upper() + d.message[1:])}.</div>',
-           f"<p>Residual {format_fixed(d.residual_db, 3)} dB rms (measured − fitted) against a noise of "
-           f"{format_fixed(d.noise_db, 3)} dB; the measured chain "
+           f"<p>Residual {format_fixed(d.residual_db, 3)} dB rms (measured − fitted) against a "
+           f"noise of {format_fixed(d.noise_db, 3)} dB; the measured chain "
            f"{e(_verdict(d.mask_pass)) if d.mask_pass is not None else 'has no mask'}.</p>"]
     if d.suspects:
         out.append(f"<h3>{e(_suspects_title(d))}</h3>")

@@ -163,8 +163,9 @@ def _summary(s: Subject) -> str:
     if s.has_mask:
         rows.append(("passband", f"{format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre "
                                  f"{format_hz(pb.center_hz)}, width {format_hz(pb.bandwidth_hz)})"))
-        rows.append(("passband gain", f"{format_sig(pb.gain_db)} dB ± {format_sig(pb.gain_tolerance_db)} dB; at "
-                                      f"most {format_sig(pb.max_loss_db, 4)} dB loss across the band"))
+        rows.append(("passband gain", f"{format_sig(pb.gain_db)} dB ± "
+                                      f"{format_sig(pb.gain_tolerance_db)} dB; at most "
+                                      f"{format_sig(pb.max_loss_db, 4)} dB loss across the band"))
         for sp in req.stopband:
             rows.append(("stopband", f"at least {format_sig(sp.min_loss_db)} dB down at "
                                      f"{format_hz(sp.freq_hz)}{converter_view.added_text(sp)}"))
@@ -176,7 +177,8 @@ def _summary(s: Subject) -> str:
     rows.append(("input", f"up to {format_si(inp.max_vpk, 'Vpk', significant=4)} in band, from "
                           f"{format_si(inp.source_ohms, 'Ω')} source"))
     rows.append(("out-of-band tones", tones))
-    rows.append(("supply", f"{format_si(req.supply.rails_v[0], 'V', significant=4)} / {format_si(req.supply.rails_v[1], 'V', significant=4, sign=True)}"))
+    rows.append(("supply", f"{format_si(req.supply.rails_v[0], 'V', significant=4)} / "
+                           f"{format_si(req.supply.rails_v[1], 'V', significant=4, sign=True)}"))
     if s.chain is not None:
         models = sorted({st.model.name for st in s.chain.stages})
         m = s.chain.stages[0].model
@@ -203,8 +205,8 @@ def _summary(s: Subject) -> str:
     if s.kind == "plan":
         p = s.source
         c = p.chosen.candidate
-        out.append(f"<p>Chosen: <b>{_e(c.family)} {_e(words.path_label(c.path))}</b>, order {c.order} "
-                   f"({_e(c.note)}) — {_e(p.why)}.</p>")
+        out.append(f"<p>Chosen: <b>{_e(c.family)} {_e(words.path_label(c.path))}</b>, order "
+                   f"{c.order} ({_e(c.note)}) — {_e(p.why)}.</p>")
     else:
         out.append(f"<p>Audit of the chain in <code>{_e(s.path)}</code>.</p>")
     an = s.analyses
@@ -216,12 +218,14 @@ def _summary(s: Subject) -> str:
              f"output noise, {format_hz(nz.band_hz[0])}–{format_hz(nz.band_hz[1])}"),
             (f"{format_fixed(an.snr_db, 1)} dB", "signal to noise at full input"),
             (f"{format_fixed(an.dynamic_range_db, 1)} dB", "dynamic range"),
-            (f"{format_fixed(worst.margin_db, 1, sign=True)} dB", f"worst headroom margin ({worst.net})"),
+            (f"{format_fixed(worst.margin_db, 1, sign=True)} dB", f"worst headroom margin "
+                                                                  f"({worst.net})"),
             (f"{len(s.chain.stages)}", "stages"),
         ]
         y = s.yield_result
         if isinstance(y, YieldResult):
-            figs.append((f"{format_fixed(100 * y.yield_fraction, 1)} %", f"yield, {y.samples} boards"))
+            figs.append((f"{format_fixed(100 * y.yield_fraction, 1)} %", f"yield, {y.samples} "
+                                                                         f"boards"))
         out.append('<div class="figures">' + "".join(
             f"<div><b>{_e(v)}</b><span>{_e(k)}</span></div>" for v, k in figs) + "</div>")
     out.append("<h3>The requirement as understood</h3><dl class=\"req\">")
@@ -256,9 +260,8 @@ def _candidates(s: Subject) -> str:
                       num_cols=(3, 4, 5, 6, 7, 8, 9, 10), row_classes=classes))
     out.append(f'<p class="note">Ranked: buildable first, then fewest failing checks (the '
                f"higher yield between two that miss it), fewest op-amps, fewest sections, lowest "
-               f"highest Q, widest dynamic range. The yield is not run for a candidate that "
-               f"fails other checks. "
-               f"{_e(s.source.why).capitalize()}.</p></section>")
+               f"highest Q, widest dynamic range. The yield is not run for a candidate that fails "
+               f"other checks. {_e(s.source.why).capitalize()}.</p></section>")
     return "".join(out)
 
 
@@ -431,7 +434,8 @@ def _noise(s: Subject) -> str:
     out.append(
         f"<p>Output noise {format_si(nz.integrated_vrms, 'V rms', significant=4)} over "
         f"{_e(format_hz(nz.band_hz[0]))}–{_e(format_hz(nz.band_hz[1]))}; SNR at full input "
-        f"{format_fixed(an.snr_db, 1)} dB; dynamic range {format_fixed(an.dynamic_range_db, 1)} dB (input could grow "
+        f"{format_fixed(an.snr_db, 1)} dB; dynamic range {format_fixed(an.dynamic_range_db, 1)} "
+        f"dB (input could grow "
         f"{format_fixed(an.worst_margin_db, 1, sign=True)} dB before the first net clips).</p>")
     wide = converter_view.noise_band_text(nz, format_hz)
     if wide:

@@ -207,7 +207,8 @@ def _response(s: Subject) -> Figure:
     _response_axes(zoom, s, f, built_db, ideal_db, z_lo, z_hi, zy_lo, zy_hi)
     zoom.set_title("Passband, zoomed", loc="left", fontsize=11)
     if s.has_mask:
-        zoom.annotate(f"allowed: {format_sig(floor, 4)} to {format_sig(ceiling, 4)} dB\nfrom {fmt_hz(pb.low_hz)} to "
+        zoom.annotate(f"allowed: {format_sig(floor, 4)} to {format_sig(ceiling, 4)} dB\nfrom "
+                      f"{fmt_hz(pb.low_hz)} to "
                       f"{fmt_hz(pb.high_hz)}", (0.02, 0.02), xycoords="axes fraction",
                       fontsize=8, color="#333333",
                       bbox=dict(boxstyle="round,pad=0.3", facecolor="white", alpha=0.85,
@@ -277,7 +278,8 @@ def _levels(s: Subject) -> Figure:
     ax.set_ylim(floor, limit * 3.0)
     ax.yaxis.set_major_formatter(EngFormatter(unit="V", sep=" "))
     ax.set_ylabel("level at the net (peak, log scale)")
-    ax.set_title(f"Node levels for {format_si(req.input.max_vpk, 'Vpk', significant=4)} in at each frequency",
+    ax.set_title(f"Node levels for {format_si(req.input.max_vpk, 'Vpk', significant=4)} in at "
+                 f"each frequency",
                  loc="left", fontsize=11)
     fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncols=3,
                fontsize=7.5, frameon=False)
@@ -296,7 +298,8 @@ def _levels(s: Subject) -> Figure:
     for yi, m, n in zip(y, margins, an.nodes):
         bars.annotate(f"{format_fixed(m, 1, sign=True)} dB\n{format_si(n.peak_vpk, 'Vpk')} / "
                       f"{format_si(n.limit_vpk, 'Vpk')}\nbias {format_si(n.dc_v, 'V', sign=True)}; "
-                      f"room ↑{format_si(n.upper_margin_v, 'V')} ↓{format_si(n.lower_margin_v, 'V')}",
+                      f"room ↑{format_si(n.upper_margin_v, 'V')} "
+                      f"↓{format_si(n.lower_margin_v, 'V')}",
                       (max(m, 0.0), yi), xytext=(4, 0), textcoords="offset points",
                       va="center", fontsize=7.5)
     bars.set_xlabel("headroom margin (dB)")
@@ -399,7 +402,8 @@ def _yield(s: Subject) -> Figure | None:
     sp = yr.spreads
     ax.set_title(f"Tolerance spread: {format_fixed(100 * yr.yield_fraction, 1)} % of boards pass "
                  f"(95 % interval {format_fixed(100 * lo_i, 1)}–{format_fixed(100 * hi_i, 1)} %)", loc="left", fontsize=11)
-    zoom.set_title(f"Passband; R ±{format_sig(sp.resistor_pct)} %, C ±{format_sig(sp.capacitor_pct)} %",
+    zoom.set_title(f"Passband; R ±{format_sig(sp.resistor_pct)} %, C "
+                   f"±{format_sig(sp.capacitor_pct)} %",
                    loc="left", fontsize=11)
     handles, labels = ax.get_legend_handles_labels()
     if s.has_mask:
@@ -506,7 +510,8 @@ def _folds(s: Subject) -> Figure | None:
 
     q_db, n_db = rms_dbfs(c.quantisation_vrms), rms_dbfs(c.chain_vrms)
     ax.axhline(q_db, color="#7b1fa2", linewidth=1.0, linestyle=":",
-               label=f"converter noise {format_fixed(q_db, 1)} dBFS ({format_sig(conv.effective_bits)} bits, band)")
+               label=f"converter noise {format_fixed(q_db, 1)} dBFS "
+                     f"({format_sig(conv.effective_bits)} bits, band)")
     ax.axhline(n_db, color="#5b8c2a", linewidth=1.0, linestyle="-.",
                label=f"chain noise to fs/2 {format_fixed(n_db, 1)} dBFS")
     levels += [q_db, n_db]
@@ -514,7 +519,8 @@ def _folds(s: Subject) -> Figure | None:
         colour = STATUS_COLOUR["pass" if f.passes else "fail"]
         if f.source == "noise":
             ax.hlines(f.level_dbfs, pb.low_hz, pb.high_hz, color=colour, linewidth=4,
-                      label=f"noise above fs/2 folded onto the passband {format_fixed(f.level_dbfs, 1)} dBFS")
+                      label=f"noise above fs/2 folded onto the passband "
+                            f"{format_fixed(f.level_dbfs, 1)} dBFS")
             levels.append(f.level_dbfs)
             continue
         ax.vlines(f.alias_hz, -400, f.level_dbfs, color=colour, linewidth=2)
@@ -605,7 +611,8 @@ def diagnosis_figure(d: Diagnosis) -> Figure:
                 top + 5)
     ax.set_ylabel("gain (dB)")
     lead = d.suspects[0] if d.suspects and not d.unexplained else None
-    title = "Measured sweep: " + (f"stage {lead.stage} {lead.part} {format_fixed(lead.change_pct, 1, sign=True)} %"
+    title = "Measured sweep: " + (f"stage {lead.stage} {lead.part} "
+                                  f"{format_fixed(lead.change_pct, 1, sign=True)} %"
                                   if lead else "unexplained" if d.unexplained
                                   else "as designed")
     ax.set_title(title, loc="left", fontsize=11)

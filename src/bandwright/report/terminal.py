@@ -36,19 +36,24 @@ def _db(x: float) -> str:
 def _requirement(req: Requirement, model: OpAmp, console: Console) -> None:
     pb = req.passband
     _say(console, 
-        f"Band: {format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre {format_hz(pb.center_hz)}, width "
-        f"{format_hz(pb.bandwidth_hz)}, {format_sig(pb.bandwidth_hz / pb.center_hz, 3)} of centre); gain "
-        f"{format_sig(pb.gain_db)} dB ± {format_sig(pb.gain_tolerance_db)}; at most {format_sig(pb.max_loss_db, 4)} dB loss in band")
+        f"Band: {format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre "
+        f"{format_hz(pb.center_hz)}, width {format_hz(pb.bandwidth_hz)}, "
+        f"{format_sig(pb.bandwidth_hz / pb.center_hz, 3)} of centre); gain "
+        f"{format_sig(pb.gain_db)} dB ± {format_sig(pb.gain_tolerance_db)}; at most "
+        f"{format_sig(pb.max_loss_db, 4)} dB loss in band")
     for sp in req.stopband:
-        _say(console, f"Stop: at least {format_sig(sp.min_loss_db)} dB down at {format_hz(sp.freq_hz)}"
-                      f"{converter_view.added_text(sp)}")
+        _say(console, f"Stop: at least {format_sig(sp.min_loss_db)} dB down at "
+                      f"{format_hz(sp.freq_hz)}{converter_view.added_text(sp)}")
     inp = req.input
     tones = ", ".join(f"{format_si(t.vpk, 'Vpk', significant=4)} at {format_hz(t.freq_hz)}" for t in inp.tones) or "none"
-    _say(console, f"Input: up to {format_si(inp.max_vpk, 'Vpk', significant=4)} in band from {format_si(inp.source_ohms, 'Ω')}"
-                  f"; tones: {tones}")
-    _say(console, f"Rails {format_sig(req.supply.rails_v[0])} / {format_si(req.supply.rails_v[1], 'V', significant=4, sign=True)}; op-amp "
-                  f"'{model.name}': {format_hz(model.gbw_hz, significant=3)} GBW, {format_sig(model.slew_v_per_us)} V/µs, "
-                  f"{format_si(model.noise_v_per_rthz, 'V/√Hz')}; {format_sig(req.environment.temperature_c)} °C")
+    _say(console, f"Input: up to {format_si(inp.max_vpk, 'Vpk', significant=4)} in band from "
+                  f"{format_si(inp.source_ohms, 'Ω')}; tones: {tones}")
+    _say(console, f"Rails {format_sig(req.supply.rails_v[0])} / "
+                  f"{format_si(req.supply.rails_v[1], 'V', significant=4, sign=True)}; op-amp "
+                  f"'{model.name}': {format_hz(model.gbw_hz, significant=3)} GBW, "
+                  f"{format_sig(model.slew_v_per_us)} V/µs, "
+                  f"{format_si(model.noise_v_per_rthz, 'V/√Hz')}; "
+                  f"{format_sig(req.environment.temperature_c)} °C")
     if getattr(req, "converter", None) is not None:
         _say(console, "Converter: " + converter_view.requirement_text(req.converter))
 
@@ -76,8 +81,8 @@ def render_plan(p: Plan, console: Console) -> None:
                   "noise over the noise band, µV rms; DR: dynamic range, dB; yield: share of Monte "
                   "Carlo boards that pass, % (not run for a candidate that fails other checks)")
     d = p.chosen
-    _say(console, f"Chosen: {d.candidate.family} {words.path_label(d.candidate.path)}, order {d.candidate.order} "
-                  f"({d.candidate.note}) — {p.why}.")
+    _say(console, f"Chosen: {d.candidate.family} {words.path_label(d.candidate.path)}, order "
+                  f"{d.candidate.order} ({d.candidate.note}) — {p.why}.")
     if d.chain is None:
         _unbuilt(d, console)
     else:
@@ -180,11 +185,11 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
                           for n, v in st.components) or "no parts (a unity-gain follower)"
         _say(console, f"Stage {st.position} {st.topology}: {parts}", style="bold")
         if st.ideal is not None and st.kind != "gain":
-            _say(console, f"  figures: {words.TARGET} f0 {format_hz(st.target.f0_hz)}, "
-                          f"Q {format_sig(st.target.q)}; {words.IDEAL_PARTS} (unrounded) f0 "
+            _say(console, f"  figures: {words.TARGET} f0 {format_hz(st.target.f0_hz)}, Q "
+                          f"{format_sig(st.target.q)}; {words.IDEAL_PARTS} (unrounded) f0 "
                           f"{format_hz(st.ideal.f0_hz)}, Q {format_sig(st.ideal.q)}; {words.BUILT} "
-                          f"(series parts) f0 {format_hz(st.built.f0_hz)}, Q {format_sig(st.built.q)} "
-                          f"(op-amp's GBW included)")
+                          f"(series parts) f0 {format_hz(st.built.f0_hz)}, Q "
+                          f"{format_sig(st.built.q)} (op-amp's GBW included)")
         if st.reason:
             _say(console, f"  why: {st.reason}")
         for name, why in st.rejected:
@@ -192,8 +197,7 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
         if getattr(st, "dc_block", None) is not None:
             b = st.dc_block
             rb = "" if b.r_ohms is None else f", RB={format_si(b.r_ohms, 'Ω')} to the reference"
-            _say(console, f"  DC block: CB={format_si(b.c_farads, 'F')} in series{rb}: "
-                          f"{b.reason}")
+            _say(console, f"  DC block: CB={format_si(b.c_farads, 'F')} in series{rb}: {b.reason}")
     lv = _table("Node levels, worst case (signal anywhere in band + every tone)", "net", "stage",
                 "bias", "peak", "limit", "margin", "slew needed", "least load")
     for n in an.nodes:
@@ -211,10 +215,11 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
         f"Input-referred noise at {format_hz(nz.freq_hz[centre])}: "
         f"{format_si(nz.input_referred_v_per_rthz[centre], 'V/√Hz')} (source open-circuit voltage)")
     _say(console, 
-        f"Output noise {format_si(nz.integrated_vrms, 'V rms', significant=4)} over {format_hz(nz.band_hz[0])}–"
-        f"{format_hz(nz.band_hz[1])}; SNR at full input {format_fixed(an.snr_db, 1)} dB; dynamic range "
-        f"{format_fixed(an.dynamic_range_db, 1)} dB (input could grow {format_fixed(an.worst_margin_db, 1, sign=True)} dB "
-        f"before the first net clips)")
+        f"Output noise {format_si(nz.integrated_vrms, 'V rms', significant=4)} over "
+        f"{format_hz(nz.band_hz[0])}–{format_hz(nz.band_hz[1])}; SNR at full input "
+        f"{format_fixed(an.snr_db, 1)} dB; dynamic range {format_fixed(an.dynamic_range_db, 1)} dB "
+        f"(input could grow {format_fixed(an.worst_margin_db, 1, sign=True)} dB before the first "
+        f"net clips)")
     wide = converter_view.noise_band_text(nz, format_hz)
     if wide:
         _say(console, wide)

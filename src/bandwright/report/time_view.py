@@ -58,8 +58,8 @@ def render_time(an, console: Console) -> None:
     if tf is None:
         return
     console.print(f"Time: group delay {_ms(tf.delay_min_s)} to {_ms(tf.delay_max_s)} across the "
-                  f"band (spread {_ms(tf.delay_spread_s)}, {_ms(tf.delay_center_s)} at the centre); "
-                  f"step settles to 1 % in {_ms(tf.settling_s)}", markup=False)
+                  f"band (spread {_ms(tf.delay_spread_s)}, {_ms(tf.delay_center_s)} at the "
+                  f"centre); step settles to 1 % in {_ms(tf.settling_s)}", markup=False)
     t = Table(title=f"Tone bursts of {_ms(tf.center.burst_s)} at the output", box=None,
               title_justify="left", pad_edge=False)
     for col in ("at", "delay 50 %", "rise 10-90 %", "overshoot", "ringing to 1 %"):
@@ -132,7 +132,8 @@ def time_html(tf, svg_html: str | None) -> str:
                 'figures: no chain was built, or its output is unstable.</p></section>')
     rows = "".join(
         f"<tr><td>{name} {format_hz(b.freq_hz)}</td><td class=\"num\">{_ms(b.delay_s)}</td>"
-        f"<td class=\"num\">{_ms(b.rise_s)}</td><td class=\"num\">{format_sig(b.overshoot_pct, 3)} %</td>"
+        f"<td class=\"num\">{_ms(b.rise_s)}</td><td "
+        f"class=\"num\">{format_sig(b.overshoot_pct, 3)} %</td>"
         f"<td class=\"num\">{_ms(b.ringing_s)}</td></tr>"
         for b, name in zip(tf.bursts, ("centre", "low edge", "high edge")))
     onset = "".join(

@@ -66,9 +66,8 @@ def procedure_lines(t: TuningResult) -> list[str]:
         fixed = format_si(s.fixed_ohms, "Ω")
         trim = format_si(s.trimmer_ohms, "Ω")
         lines.append(
-            f"{i}. stage {s.stage}: generator on {s.net_in}, analyser on {s.net_out}; "
-            f"set trimmer {s.part} ({trim}, in series with {s.trims} = {fixed}) for the "
-            f"{s.reading}")
+            f"{i}. stage {s.stage}: generator on {s.net_in}, analyser on {s.net_out}; set trimmer "
+            f"{s.part} ({trim}, in series with {s.trims} = {fixed}) for the {s.reading}")
     return lines
 
 
@@ -76,8 +75,8 @@ def _summary(t: TuningResult) -> str:
     ty = t.tuned
     lo, hi = ty.interval
     text = (f"Yield untrimmed {format_fixed(100 * t.yield_untrimmed, 1)} %, after tuning "
-            f"{format_fixed(100 * ty.yield_fraction, 1)} % (95 % interval {format_fixed(100 * lo, 1)}–{format_fixed(100 * hi, 1)} %, "
-            f"{ty.samples} boards)")
+            f"{format_fixed(100 * ty.yield_fraction, 1)} % (95 % interval "
+            f"{format_fixed(100 * lo, 1)}–{format_fixed(100 * hi, 1)} %, {ty.samples} boards)")
     if ty.unrescued:
         text += (f"; {ty.unrescued} boards fail after tuning, {ty.beyond_range} of them with a "
                  f"trimmer at the end of its travel")
@@ -136,10 +135,9 @@ def trimmer_comments(deck: str, plan: TuningPlan) -> str:
         name = f"{s.part}_s{s.stage}"
         notes[name.lower()] = (
             f"* trimmer {name}: {format_si(s.trimmer_ohms, 'Ω')} end to end, set here at "
-            f"mid-travel; travel 0 … {format_si(s.trimmer_ohms, 'Ω')} "
-            f"({s.trims}_s{s.stage} + trimmer {format_si(s.fixed_ohms, 'Ω')} … "
-            f"{format_si(s.fixed_ohms + s.trimmer_ohms, 'Ω')}); adjusts {s.adjusts}: "
-            f"{s.reading}")
+            f"mid-travel; travel 0 … {format_si(s.trimmer_ohms, 'Ω')} ({s.trims}_s{s.stage} + "
+            f"trimmer {format_si(s.fixed_ohms, 'Ω')} … "
+            f"{format_si(s.fixed_ohms + s.trimmer_ohms, 'Ω')}); adjusts {s.adjusts}: {s.reading}")
     out = []
     for line in deck.splitlines():
         head = line.split(" ", 1)[0].lower()

@@ -64,8 +64,8 @@ def advice_sentence(y: Any) -> str | None:
 
 def ordering_sentence(o: Any) -> str:
     """The chosen section order against the order the sections came in and increasing Q."""
-    return (f"Section order ({o.method}): {format_fixed(o.gain_over_generated_db, 1, sign=True)} dB "
-            f"of dynamic range over the prototype's section order, "
+    return (f"Section order ({o.method}): {format_fixed(o.gain_over_generated_db, 1, sign=True)} "
+            f"dB of dynamic range over the prototype's section order, "
             f"{format_fixed(o.gain_over_increasing_q_db, 1, sign=True)} dB over increasing Q "
             "(planning model, equal-maxima gains).")
 
