@@ -14,7 +14,7 @@ from bandwright.circuits.elements import opamp_output_nets
 from bandwright.circuits.nodal import ac_solve, drawn_impedance, input_impedance_min
 from bandwright.circuits.realize import Realization, choose_capacitor, realize
 from bandwright.errors import InfeasibleDesign
-from bandwright.parts.notation import format_hz, format_si, format_sig
+from bandwright.parts.notation import format_hz, format_si, format_sig, plural
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
@@ -314,10 +314,10 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
     names_done = {n for n, _ in rejected} | {topo.NAME}
     for t, l in feasible:
         if t.NAME not in names_done:
-            rejected.append((t.NAME, f"feasible, but costlier: {l.opamps} op-amp(s), "
+            rejected.append((t.NAME, f"feasible, but costlier: {plural(l.opamps, 'op-amp')}, "
                              f"|S_Q| {l.q_sensitivity:.3g}, noise gain {l.noise_gain:.3g}"))
-    reason = (f"{lim.opamps} op-amp(s), Q sensitivity {lim.q_sensitivity:.3g}, noise gain "
-              f"{lim.noise_gain:.3g}; needs {format_hz(lim.gbw_needed_hz, significant=3)} "
+    reason = (f"{plural(lim.opamps, 'op-amp')}, Q sensitivity {format_sig(lim.q_sensitivity, 3)}, "
+              f"noise gain {format_sig(lim.noise_gain, 3)}; needs {format_hz(lim.gbw_needed_hz, significant=3)} "
               f"GBW, the op-amp has {format_hz(model.gbw_hz, significant=3)}")
     if level != 1.0:
         reason += f"; built at {_level_text(level)} of the first level"
