@@ -39,7 +39,7 @@ def _requirement(req: Requirement, model: OpAmp, console: Console) -> None:
         f"Band: {format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre "
         f"{format_hz(pb.center_hz)}, width {format_hz(pb.bandwidth_hz)}, "
         f"{format_sig(pb.bandwidth_hz / pb.center_hz, 3)} of centre); gain "
-        f"{format_sig(pb.gain_db)} dB ± {format_sig(pb.gain_tolerance_db)}; at most "
+        f"{format_sig(pb.gain_db)} dB ± {format_sig(pb.gain_tolerance_db)} dB; at most "
         f"{format_sig(pb.max_loss_db, 4)} dB loss in band")
     for sp in req.stopband:
         _say(console, f"Stop: at least {format_sig(sp.min_loss_db)} dB down at "
