@@ -545,8 +545,8 @@ def _for_noise_budget(design: Design, req: Requirement, model: OpAmp, windows: P
                 f"chosen first: the chain's output noise was {format_si(before, 'V')} rms "
                 f"against the {format_si(limit, 'V')} budget")
         trial[k] = replace(a, reason=(f"re-chosen for the noise budget ({what}): the chain's "
-                                      f"output noise {before * 1e6:.3g} → "
-                                      f"{format_si(an.noise.integrated_vrms, 'V')} rms; "
+                                      f"output noise {format_si(before, 'V rms')} → "
+                                      f"{format_si(an.noise.integrated_vrms, 'V rms')}; "
                                       + a.reason),
                            rejected=(gone,) + tuple(r for r in old.rejected
                                                     if r[0] != a.realization.topology))
@@ -554,7 +554,7 @@ def _for_noise_budget(design: Design, req: Requirement, model: OpAmp, windows: P
         stages[k] = replace(stages[k], reason=trial[k].reason, rejected=trial[k].rejected)
         chain = build_chain(stages, source_ohms=chain.source_ohms)
         assignments = trial
-        changes.append(f"stage {k + 1}: {what} ({before * 1e6:.3g} → "
+        changes.append(f"stage {k + 1}: {what} ({format_si(before, 'V')} → "
                        f"{format_si(an.noise.integrated_vrms, 'V')})")
         best = replace(best, assignments=tuple(trial), chain=chain, analyses=an,
                        checks=checks, ordering=claims(chain))

@@ -340,7 +340,7 @@ def _noise(s: Subject) -> Figure:
     lo_y = min([float(np.min(c[c > 0])) for c in curves if np.any(c > 0)] + [float(dens.min())])
     _plain_log_y(ax, 0.7 * lo_y, 1.4 * float(dens.max()))
     ax.set_ylabel(f"output noise density ({unit}/√Hz, log scale)")
-    ax.set_title(f"Output noise density, {s.requirement.environment.temperature_c:g} °C; "
+    ax.set_title(f"Output noise density, {format_sig(s.requirement.environment.temperature_c)} °C; "
                  "largest contributions", loc="left", fontsize=11)
     fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncols=2,
                fontsize=8, frameon=False)
