@@ -74,11 +74,11 @@ def test_gain_that_cannot_fit_a_single_supply_says_why_and_plans_the_fixes(tmp_p
     head = [c for c in result.chosen.checks if c.id == "headroom" and c.status == "fail"]
     assert head
     msg = next(c.message for c in head if "reference is" in c.message)
-    assert "the swing around the 1.65 V reference is 0.65 Vpk on 0/3.3 V" in msg
+    assert "the swing around the 1.65 V reference is 650 mVpk on 0/3.3 V" in msg
     # Built gain a little above 28 dB: the chosen series parts decide the last digit.
     built_vpk = float(re.search(r"gain 28 dB puts (\d+\.\d+) Vpk on out", msg).group(1))
     assert 1.256 <= built_vpk <= 1.30
-    assert "rail-to-rail class ('rail-to-rail', 0.02 V from each rail) fits: planned" in msg
+    assert "rail-to-rail class ('rail-to-rail', 20 mV from each rail) fits: planned" in msg
     # 2 (1.26 + 1) = 4.5 V: the next common supply is 5 V.
     assert "a 5 V supply (reference 2.5 V) fits: planned" in msg
     # The rail-to-rail fix, planned independently.

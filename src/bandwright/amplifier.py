@@ -8,7 +8,7 @@ from typing import Sequence
 from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.errors import SpecError
 from bandwright.parts.catalogue import ARCHETYPES, make_opamp
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_si
 from bandwright.parts.opamp import OpAmp
 from bandwright.inputs.requirement import AmplifierChoice, Supply, Tone
 
@@ -35,13 +35,14 @@ def resolve_amplifier(choice: AmplifierChoice, *, path: str, key: str = "amplifi
             and (supply.rails_v[1] - supply.rails_v[0]) / 2 > model.swing_to_rail_v):
         lo, hi = supply.rails_v
         raise SpecError(path, "supply.reference_v",
-                        f"the reference {supply.reference_v:g} V is within the op-amp's swing "
-                        f"loss ({model.swing_to_rail_v:g} V) of a rail [{lo:g}, {hi:g}] V: no "
-                        f"output swing around it", value=supply.reference_v)
+                        f"the reference {format_si(supply.reference_v, 'V', significant=4)} is "
+                        f"within the op-amp's swing loss "
+                        f"({format_si(model.swing_to_rail_v, 'V', significant=4)}) of a rail "
+                        f"[{lo:g}, {hi:g}] V: no output swing around it", value=supply.reference_v)
     if supply is not None and swing_limit_vpk(supply, model.swing_to_rail_v) <= 0:
         raise SpecError(path, "supply.rails_v",
                         f"rails leave no output swing: the op-amp needs "
-                        f"{model.swing_to_rail_v:g} V from each rail", value=list(supply.rails_v))
+                        f"{format_si(model.swing_to_rail_v, 'V', significant=4)} from each rail", value=list(supply.rails_v))
     check_tones(model, tones, path=path, key=key)
     return model
 
@@ -54,8 +55,9 @@ def check_tones(model: OpAmp, tones: Sequence[Tone], *, path: str, key: str) -> 
     for i, tone in enumerate(tones):
         if tone.vpk > 0 and tone.freq_hz > model.gbw_hz:
             raise SpecError(path, f"input.tone[{i}].freq_hz",
-                            f"a {tone.vpk:g} Vpk tone above the op-amp's GBW "
-                            f"({format_value(model.gbw_hz, 'Hz')}, {key}), where no active "
+                            f"a {format_si(tone.vpk, 'Vpk', significant=4)} tone above the "
+                            f"op-amp's GBW "
+                            f"({format_hz(model.gbw_hz, significant=3)}, {key}), where no active "
                             "section acts on "
                             "it: give the level left after a passive lowpass ahead of the "
                             "chain, or an op-amp with a higher GBW", value=tone.freq_hz)

@@ -15,6 +15,7 @@ from bandwright.sections.section import Section
 from bandwright.sections.split import cascade_response
 from bandwright.inputs.requirement import Requirement
 from bandwright.vocabulary import FAMILIES
+from bandwright.parts.notation import format_hz, format_sig
 
 __all__ = ["Candidate", "make_candidates", "WIDEBAND_RATIO", "MAX_ORDER"]
 
@@ -99,8 +100,8 @@ def _bandpass_candidate(req: Requirement, family: str, order: int | None) -> Can
     secs = bandpass_sections(proto, center_hz=pb.center_hz, bandwidth_hz=pb.bandwidth_hz,
                              gain=pb.gain)
     return Candidate(path="bandpass", family=family, order=order, ripple_db=loss_db,
-                     sections=secs, note=decided + f"; designed for {loss_db:.3g} dB of the "
-                     f"{pb.max_loss_db:g} dB allowed")
+                     sections=secs, note=decided + f"; designed for {format_sig(loss_db, 3)} dB of "
+                                                   f"the {format_sig(pb.max_loss_db)} dB allowed")
 
 
 def _decider(req: Requirement, family: str, omegas, order: int, loss_db: float) -> str:
@@ -109,8 +110,8 @@ def _decider(req: Requirement, family: str, omegas, order: int, loss_db: float) 
                key=lambda i: order_for_point(family, float(omegas[i]), loss_db,
                                              req.stopband[i].min_loss_db))
     p = req.stopband[best]
-    return (f"order {order} set by {p.min_loss_db:g} dB at {p.freq_hz:g} Hz "
-            f"(Ω = {float(omegas[best]):.4g})")
+    return (f"order {order} set by {format_sig(p.min_loss_db)} dB at {format_hz(p.freq_hz)} "
+            f"(Ω = {format_sig(float(omegas[best]))})")
 
 
 def _side_order(family: str, omegas: list[float], losses: list[float], loss_db: float,
@@ -185,8 +186,9 @@ def _wideband_candidate(req: Requirement, family: str, order: int | None) -> Can
         n_lp += 2 * short_hi
         secs = build(a_db, n_hp, n_lp)
     note = (f"highpass order {n_hp} + lowpass order {n_lp}, each side's edge loss "
-            f"{a_db:.3g} dB so the skirts together lose at most {budget:.3g} dB of the "
-            f"{pb.max_loss_db:g} dB allowed")
+            f"{format_sig(a_db, 3)} dB so the skirts together lose at most "
+            f"{format_sig(budget, 3)} dB of the "
+            f"{format_sig(pb.max_loss_db)} dB allowed")
     if cap_hp or cap_lp:
         note += f"; capped at the largest supported order, {MAX_ORDER} a side"
     return Candidate(path="hp_lp", family=family, order=n_hp + n_lp, ripple_db=a_db,

@@ -41,7 +41,7 @@ from bandwright.circuits.nodal import (ac_solve, input_impedance_max, input_impe
 from bandwright.circuits import topologies_of_kind
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.catalogue import archetype, suggest_faster
-from bandwright.parts.notation import format_hz, format_value
+from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
@@ -286,15 +286,17 @@ def _why(designs: list[Design]) -> str:
         return why
     if (_shortfall(best) != _shortfall(nxt) and best.yield_result is not None
             and nxt.yield_result is not None):
-        return (f"more boards meet the requirement ({100 * best.yield_result.yield_fraction:.1f} % "
-                f"against {100 * nxt.yield_result.yield_fraction:.1f} % for {name})")
+        return (f"more boards meet the requirement "
+                f"({format_fixed(100 * best.yield_result.yield_fraction, 1)} % "
+                f"against {format_fixed(100 * nxt.yield_result.yield_fraction, 1)} % for {name})")
     if best.opamps != nxt.opamps:
         return f"fewer op-amps ({best.opamps} against {nxt.opamps} for {name})"
     if len(best.candidate.sections) != len(nxt.candidate.sections):
         return (f"fewer sections ({len(best.candidate.sections)} against "
                 f"{len(nxt.candidate.sections)} for {name})")
     return (f"as many op-amps and sections as {name}, lower highest Q "
-            f"({best.candidate.highest_q:.3g} against {nxt.candidate.highest_q:.3g})")
+            f"({format_sig(best.candidate.highest_q, 3)} against "
+            f"{format_sig(nxt.candidate.highest_q, 3)})")
 
 
 def _assign(section: Section, model: OpAmp, req: Requirement, windows: PartWindows,
@@ -427,8 +429,8 @@ def build_design(cand: Candidate, req: Requirement, model: OpAmp, *,
         if rs / z_in > SOURCE_LOADING_LIMIT:
             buf = _assign(Section(kind="gain", f0_hz=0.0, q=0.0, gain=1.0), model, req, windows)
             buf = replace(buf, reason=f"follower: the first section's input impedance falls to "
-                          f"{format_value(z_in, 'Ω')} in band, too low for the "
-                          f"{format_value(rs, 'Ω')} source")
+                          f"{format_si(z_in, 'Ω')} in band, too low for the "
+                          f"{format_si(rs, 'Ω')} source")
             assignments.insert(0, buf)
     chain = attach_converter(_build_and_trim(assignments, req, model, windows), req.converter)
     an = analyse(chain, req)
@@ -475,7 +477,7 @@ def _alternatives(a: Assignment, model: OpAmp, req: Requirement, windows: PartWi
                          a.level / _NOISE_LEVEL_STEP)
     if lower.realization is not None and lower.level < a.level:
         out.append((f"{a.realization.topology} at a lower impedance level "
-                    f"(×{lower.level:.3g} of the first)", lower))
+                    f"(×{format_sig(lower.level, 3)} of the first)", lower))
     return out[:_RECHOICE_ALTERNATIVES]
 
 
@@ -540,11 +542,11 @@ def _for_noise_budget(design: Design, req: Requirement, model: OpAmp, windows: P
         a, old = trial[k], assignments[k]
         limit = req.noise.max_output_vrms
         gone = (old.realization.topology,
-                f"chosen first: the chain's output noise was {before * 1e6:.3g} µV rms "
-                f"against the {limit * 1e6:.3g} µV budget")
+                f"chosen first: the chain's output noise was {format_si(before, 'V')} rms "
+                f"against the {format_si(limit, 'V')} budget")
         trial[k] = replace(a, reason=(f"re-chosen for the noise budget ({what}): the chain's "
-                                      f"output noise {before * 1e6:.3g} → "
-                                      f"{an.noise.integrated_vrms * 1e6:.3g} µV rms; "
+                                      f"output noise {format_si(before, 'V rms')} → "
+                                      f"{format_si(an.noise.integrated_vrms, 'V rms')}; "
                                       + a.reason),
                            rejected=(gone,) + tuple(r for r in old.rejected
                                                     if r[0] != a.realization.topology))
@@ -552,8 +554,8 @@ def _for_noise_budget(design: Design, req: Requirement, model: OpAmp, windows: P
         stages[k] = replace(stages[k], reason=trial[k].reason, rejected=trial[k].rejected)
         chain = build_chain(stages, source_ohms=chain.source_ohms)
         assignments = trial
-        changes.append(f"stage {k + 1}: {what} ({before * 1e6:.3g} → "
-                       f"{an.noise.integrated_vrms * 1e6:.3g} µV)")
+        changes.append(f"stage {k + 1}: {what} ({format_si(before, 'V')} → "
+                       f"{format_si(an.noise.integrated_vrms, 'V')})")
         best = replace(best, assignments=tuple(trial), chain=chain, analyses=an,
                        checks=checks, ordering=claims(chain))
         if not _noise_failed(checks):
@@ -563,7 +565,7 @@ def _for_noise_budget(design: Design, req: Requirement, model: OpAmp, windows: P
                   "without failing another check: a quieter op-amp class, or more gain early")
     elif _noise_failed(best.checks):
         advice = (f"; chosen again for it: {'; '.join(changes)}, still above the budget "
-                  f"(first built: {first_noise * 1e6:.3g} µV): a quieter op-amp class, or "
+                  f"(first built: {format_si(first_noise, 'V')}): a quieter op-amp class, or "
                   f"more gain early")
     else:
         return best
@@ -618,7 +620,7 @@ def _place(assignments: list[Assignment], origin: list[int | None], req: Require
     if order == here or not gain_db >= _PLACE_MIN_DB:
         return assignments, origin, f"built stages kept in the model's order ({method})"
     note = (f"built stages placed again ({method}): " +
-            (f"{gain_db:+.1f} dB of dynamic range over the model's order"
+            (f"{format_fixed(gain_db, 1, sign=True)} dB of dynamic range over the model's order"
              if math.isfinite(gain_db) else "the model's order clips on the swing"))
     return [assignments[i] for i in order], [origin[i] for i in order], note
 
@@ -704,9 +706,10 @@ def _build_and_trim(assignments: list[Assignment], req: Requirement, model: OpAm
             stages = list(chain.stages)
             note = "parts trimmed for the chain's mask"
             if new.redesign:
-                note = (f"parts re-chosen for the chain's mask: f0 moved {100 * new.f0_shift:+.1f} %, "
-                        f"more than the {100 * trim.REDESIGN_SHARE:g} % a rounding trim moves it — "
-                        f"a redesign of this section, not rounding")
+                note = (f"parts re-chosen for the chain's mask: f0 moved "
+                        f"{format_fixed(100 * new.f0_shift, 1, sign=True)} %, more than the "
+                        f"{format_sig(100 * trim.REDESIGN_SHARE)} % a rounding trim moves it — a "
+                        f"redesign of this section, not rounding")
             stages[k] = with_parts(st, new.components, source_ohms=rs, note=note)
             if _trim_breaks_gbw_rule(st, stages[k]):
                 continue
@@ -767,7 +770,8 @@ def _unbuildable(cand: Candidate, ordering: Ordering | None,
         why = "; ".join(f"{name}: {reason}" for name, reason in a.rejected)
         checks.append(Check(
             id="topology", status="fail", value=s.q, limit=None, unit="Q", stage=pos,
-            message=f"no circuit builds the {s.kind} section at {s.f0_hz:.5g} Hz, Q {s.q:.3g}, "
-                    f"gain {s.gain:.3g}{_nearest_fix(s, model)} — {why}"))
+            message=f"no circuit builds the {s.kind} section at "
+                    f"{format_hz(s.f0_hz, significant=5)}, Q {format_sig(s.q, 3)}, "
+                    f"gain {format_sig(s.gain, 3)}{_nearest_fix(s, model)} — {why}"))
     return Design(candidate=cand, ordering=ordering, assignments=assignments, chain=None,
                   analyses=None, checks=tuple(checks))

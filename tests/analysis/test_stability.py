@@ -21,7 +21,7 @@ from bandwright.analysis.stability import routh_stable, stage_poles
 from bandwright.audit import audit
 from bandwright.chain.graph import flatten
 from bandwright.circuits.figures import transfer_polynomials
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz
 from bandwright.report.spice import spice_deck
 
 from ngspice_runner import read_wrdata_columns, run_ngspice
@@ -165,7 +165,7 @@ def test_unstable_board_leads_the_audit(tmp_path):
     first = a.checks[0]
     assert first.id == "stability" and first.status == "fail" and first.value == 2.0
     for p in rhp:   # the message names each right-half-plane pole as numpy.roots finds it
-        assert "+" + format_value(abs(p) / (2 * math.pi), "Hz") in first.message
+        assert "+" + format_hz(abs(p) / (2 * math.pi), significant=3) in first.message
     (g,) = [c for c in a.checks if c.id == "gbw"]
     assert g.status == "fail" and "unstable" in g.message and "cannot reach" not in g.message
     for c in a.checks:

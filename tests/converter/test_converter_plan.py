@@ -60,7 +60,7 @@ def test_planner_adds_the_stopband_points_the_converter_needs(planned):
     assert [p.min_loss_db for p in added] == pytest.approx([64.0, 76.1], abs=1e-9)
     assert "tone[0]" in added[1].added
     # The built chain holds them (mask checks) and the folds stay below 1 LSB.
-    mask = [c for c in planned.checks if c.id == "mask" and "160000" in c.message]
+    mask = [c for c in planned.checks if c.id == "mask" and "160 kHz" in c.message]
     assert mask and all(c.status == "pass" for c in mask)
     alias = [c for c in planned.checks if c.id == "alias"]
     assert len(alias) == 2 and all(c.status == "pass" for c in alias)

@@ -12,7 +12,8 @@ import numpy as np
 import pytest
 
 from bandwright.parts.eseries import series_mantissas
-from bandwright.parts.notation import format_hz, format_spice, format_value, parse_value
+from bandwright.parts.notation import (format_hz, format_si, format_spice, format_value,
+                                       parse_value)
 
 # (text, value): SI prefixes per BIPM SI Brochure Table 7; RKM per IEC 60062 §4 [mem].
 EXAMPLES = [
@@ -148,3 +149,22 @@ def test_format_hz_puts_a_space_before_the_prefixed_unit(value_hz, text):
         number, unit = text.split(" ")
         back = parse_value(number + unit[:-2])
         assert back == pytest.approx(value_hz, rel=5e-4)
+
+
+@pytest.mark.parametrize("value,unit,text", [
+    (1.2, "V", "+1.2 V"), (-3e-3, "V", "-3 mV"), (5e-4, "V", "+500 µV"),
+    (-0.0, "V", "+0 V"), (4.2e-3, "Vpk", "+4.2 mVpk"), (2e6, "Hz", "+2 MHz")])
+def test_format_si_sign_marks_a_shift(value, unit, text):
+    """sign=True puts "+" before a value that is not negative (a margin or a shift), never
+    "-0" (a value that rounds to zero is unsigned zero), and the prefix still follows the
+    value (BIPM SI Brochure, 9th ed., §5.4.3 [mem])."""
+    assert format_si(value, unit, sign=True) == text
+    assert format_si(value, unit, sign=True).lstrip("+") == format_si(value, unit)
+
+
+def test_format_si_chooses_the_prefix_from_the_value():
+    """A 5 mV budget reads "5 mV rms", not "5000 µV rms" (SI Brochure §5.4.3 [mem])."""
+    assert format_si(5e-3, "V rms", significant=4) == "5 mV rms"
+    assert format_si(16.89e-6, "V rms", significant=4) == "16.89 µV rms"
+    assert format_si(122e-6, "s") == "122 µs"
+    assert format_si(29e-9, "V/√Hz", significant=2) == "29 nV/√Hz"

@@ -106,8 +106,8 @@ def test_only_resistors_or_only_capacitors():
 
 def test_violations_describe_each_offender_in_order():
     got = violations({"R2": 2.2e6, "C1": 10e-12, "R1": 4.7e3, "C2": 1e-7})
-    assert got == ["R2 = 2.2M\u03a9 is above the resistor window 1k\u03a9 \u2026 1M\u03a9",
-                   "C1 = 10pF is below the capacitor window 100pF \u2026 1uF"]
+    assert got == ["R2 = 2.2 M\u03a9 is above the resistor window 1 k\u03a9 \u2026 1 M\u03a9",
+                   "C1 = 10 pF is below the capacitor window 100 pF \u2026 1 \u00b5F"]
     assert violations({"R1": 1e3, "R2": 1e6, "C1": 100e-12, "C2": 1e-6}) == []
 
 

@@ -18,6 +18,7 @@ from bandwright.report.files import audit_files, plan_files
 from bandwright.report.html import SECTION_IDS, html_report
 from bandwright.report.json_out import audit_to_dict, dumps, plan_to_dict
 from bandwright.parts.notation import format_hz as fmt_hz
+from bandwright.parts.notation import format_fixed, format_si
 from bandwright.report.terminal import render_audit
 from bandwright.inputs.loader import spec_from_dict
 
@@ -92,14 +93,15 @@ def test_every_scenario_report_has_every_section(name):
 
 def _same_figures(doc: dict) -> list[tuple[str, str]]:
     """The figures all three must show, formatted as the reports print them."""
-    figures = [("output noise", f"{doc['noise']['integrated_vrms'] * 1e6:.4g} µV rms")]
+    figures = [("output noise", format_si(doc["noise"]["integrated_vrms"], "V rms",
+                                                 significant=4))]
     for st in doc["stages"]:
         if st["kind"] != "gain":
             figures.append((f"stage {st['position']} built f0", fmt_hz(st["built"]["f0_hz"])))
     worst = min(n["margin_db"] for n in doc["nodes"])
-    figures.append(("worst headroom margin", f"{worst:+.1f} dB"))
+    figures.append(("worst headroom margin", f"{format_fixed(worst, 1, sign=True)} dB"))
     for n in doc["nodes"]:
-        figures.append((f"{n['net']} peak", f"{n['peak_vpk']:.3g} Vpk"))
+        figures.append((f"{n['net']} peak", format_si(n["peak_vpk"], "Vpk")))
     if doc.get("yield"):
         figures.append(("yield", f"{100 * doc['yield']['yield']:.1f} %"))
     return figures

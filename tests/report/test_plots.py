@@ -14,7 +14,7 @@ import pytest
 import scipy.signal
 from PIL import Image
 
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_si, format_value
 from bandwright.report import plots
 from bandwright.report.subject import subject_of
 
@@ -154,7 +154,7 @@ def test_noise_curves_add_up_in_power_to_the_total(lockin):
     np.testing.assert_allclose(np.sqrt(np.sum(parts**2, axis=0)), total.get_ydata(),
                                rtol=1e-9)
     nz = p.chosen.analyses.noise
-    assert f"{nz.integrated_vrms * 1e6:.4g} µV rms" in total.get_label()
+    assert format_si(nz.integrated_vrms, "V rms", significant=4) in total.get_label()
 
 
 def test_tone_markers_add_up_to_the_worst_case_peak(lockin):

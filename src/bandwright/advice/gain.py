@@ -9,6 +9,7 @@ from dataclasses import replace
 from typing import Any, Callable
 
 from bandwright.inputs.requirement import Requirement
+from bandwright.parts.notation import format_fixed, format_si, format_sig
 
 __all__ = ["with_gain_advice", "advise_on_headroom"]
 
@@ -67,18 +68,21 @@ def with_gain_advice(design, req: Requirement, rebuild: Callable[[Requirement], 
             break
         gain_db = math.floor((gain_db + margin) * 10) / 10 - 0.1
     if found is None:
-        advice = (f"; no gain down to {max(gain_db, _MIN_GAIN_DB):.1f} dB was found to fit "
-                  f"(asked: {pb.gain_db:g} dB): lower input.max_vpk{tones}, or widen the rails")
+        advice = (f"; no gain down to {format_fixed(max(gain_db, _MIN_GAIN_DB), 1)} dB was found "
+                  f"to fit (asked: {format_sig(pb.gain_db)} dB): lower input.max_vpk{tones}, or "
+                  f"widen the rails")
     else:
         where = ("converter's full scale" if worst.net == "adc" else
-                 f"swing around the {req.supply.reference_v:g} V reference on "
-                 f"{req.supply.rails_v[0]:g}/{req.supply.rails_v[1]:g} V"
+                 f"swing around the {format_si(req.supply.reference_v, 'V', significant=4)} "
+                 f"reference on "
+                 f"{format_sig(req.supply.rails_v[0])}/{format_si(req.supply.rails_v[1], 'V', significant=4)}"
                  if req.supply.single else
-                 f"swing on {req.supply.rails_v[0]:g}/{req.supply.rails_v[1]:+g} V rails")
-        advice = (f"; at most about {found[0]:.1f} dB of gain fits the ±{worst.limit_vpk:.3g} V "
-                  f"{where} with "
-                  f"{_volts(inp.max_vpk)} in{tones} (asked: {pb.gain_db:g} dB; planned at "
-                  f"{found[0]:.1f} dB, the worst margin is {found[1]:+.1f} dB)")
+                 f"swing on {format_sig(req.supply.rails_v[0])}/{format_si(req.supply.rails_v[1], 'V', significant=4, sign=True)} rails")
+        advice = (f"; at most about {format_fixed(found[0], 1)} dB of gain fits the "
+                  f"±{format_si(worst.limit_vpk, 'V')} {where} with {_volts(inp.max_vpk)} "
+                  f"in{tones} (asked: {format_sig(pb.gain_db)} dB; planned at "
+                  f"{format_fixed(found[0], 1)} dB, the worst margin is "
+                  f"{format_fixed(found[1], 1, sign=True)} dB)")
     return advise_on_headroom(design, worst.net, advice)
 
 
@@ -95,4 +99,4 @@ def advise_on_headroom(design, net: str, advice: str):
 
 
 def _volts(v: float) -> str:
-    return f"{v * 1e3:.3g} mV" if v < 1 else f"{v:.3g} V"
+    return format_si(v, "V")

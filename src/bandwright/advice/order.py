@@ -12,6 +12,7 @@ from bandwright.candidates import MAX_ORDER, Candidate, path_label
 from bandwright.checks.base import Check
 from bandwright.prototype import bandpass_omega, order_for_point
 from bandwright.inputs.requirement import Requirement
+from bandwright.parts.notation import format_fixed, format_hz, format_sig
 
 __all__ = ["MAX_BUILT_ORDER", "prototype_loss_db", "omega_for_loss", "frequency_of_omega",
            "order_beyond_reach"]
@@ -102,8 +103,8 @@ def order_beyond_reach(cand: Candidate, req: Requirement) -> Check:
     that point would have to move.
     """
     n = len(cand.sections)
-    head = (f"{n} sections ({cand.family} {path_label(cand.path)}, order {cand.order}): the mask needs more "
-            f"than the largest order, {MAX_ORDER}")
+    head = (f"{n} sections ({cand.family} {path_label(cand.path)}, order {cand.order}): the mask "
+            f"needs more than the largest order, {MAX_ORDER}")
     need = _needed_order(cand, req)
     if need is None or cand.note.startswith("order given"):
         tail = (f"; ask for order {MAX_BUILT_ORDER} or less"
@@ -121,9 +122,10 @@ def order_beyond_reach(cand: Candidate, req: Requirement) -> Check:
     f_ok = frequency_of_omega(omega_for_loss(cand.family, MAX_BUILT_ORDER, cand.ripple_db,
                                              p.min_loss_db),
                               pb.center_hz, pb.bandwidth_hz, upper=p.freq_hz > pb.center_hz)
-    msg = (f"the stopband needs a {cand.family} order of {order} ({p.min_loss_db:g} dB at "
-           f"{p.freq_hz:.6g} Hz, Ω = {omega:.4g}); {cap}: order {MAX_BUILT_ORDER} gives "
-           f"{reach:.1f} dB there — ask for no more at {p.freq_hz:.6g} Hz, or move the point "
-           f"out to {f_ok:.6g} Hz")
+    msg = (f"the stopband needs a {cand.family} order of {order} ({format_sig(p.min_loss_db)} dB "
+           f"at {format_hz(p.freq_hz, significant=6)}, Ω = {format_sig(omega)}); {cap}: order "
+           f"{MAX_BUILT_ORDER} gives {format_fixed(reach, 1)} dB there — ask for no more at "
+           f"{format_hz(p.freq_hz, significant=6)}, or move the point out to "
+           f"{format_hz(f_ok, significant=6)}")
     return Check(id="order", status="fail", value=float(order), limit=float(MAX_BUILT_ORDER),
                  unit="order", message=msg)

@@ -15,6 +15,7 @@ from bandwright.advice.gain import advise_on_headroom
 from bandwright.analysis.levels import swing_limit_vpk
 from bandwright.inputs.requirement import AmplifierChoice, Requirement, Supply
 from bandwright.parts.catalogue import ARCHETYPES
+from bandwright.parts.notation import format_fixed, format_si, format_sig
 
 __all__ = ["with_supply_advice", "RAIL_TO_RAIL", "COMMON_SUPPLIES_V"]
 
@@ -65,17 +66,20 @@ def with_supply_advice(design, req: Requirement,
     worst = min(clipping, key=lambda n: n.margin_db)
     model = design.chain.stage_of(worst.net).model
     around = swing_limit_vpk(sup, model.swing_to_rail_v)
-    why = (f"; gain {req.passband.gain_db:g} dB puts {worst.peak_vpk:.3g} Vpk on {worst.net}"
-           f" (bias {worst.dc_v:.3g} V), the swing around the {sup.reference_v:.3g} V "
-           f"reference is {around:.3g} Vpk on {sup.rails_v[0]:g}/{sup.rails_v[1]:g} V")
+    why = (f"; gain {format_sig(req.passband.gain_db)} dB puts {format_si(worst.peak_vpk, 'Vpk')} "
+           f"on {worst.net} (bias {format_si(worst.dc_v, 'V')}), the swing around the "
+           f"{format_si(sup.reference_v, 'V')} reference is {format_si(around, 'Vpk')} on "
+           f"{format_sig(sup.rails_v[0])}/{format_si(sup.rails_v[1], 'V', significant=4)}")
     fixes: list[str] = []
     rr = ARCHETYPES[RAIL_TO_RAIL]
     if model.swing_to_rail_v > rr.swing_to_rail_v:
         trial = rebuild(replace(req, amplifier=AmplifierChoice(archetype=RAIL_TO_RAIL)))
         ok, margin = _fits(trial)
         if ok:
-            fixes.append(f"a rail-to-rail class ('{RAIL_TO_RAIL}', {rr.swing_to_rail_v:g} V "
-                         f"from each rail) fits: planned, worst margin {margin:+.1f} dB")
+            fixes.append(f"a rail-to-rail class ('{RAIL_TO_RAIL}', "
+                         f"{format_si(rr.swing_to_rail_v, 'V', significant=4)} "
+                         f"from each rail) fits: planned, worst margin "
+                         f"{format_fixed(margin, 1, sign=True)} dB")
     need = max(n.peak_vpk + abs(n.dc_v - sup.reference_v) for n in nodes)
     v_need = 2 * (need + model.swing_to_rail_v)
     higher = [v for v in COMMON_SUPPLIES_V if v > sup.rails_v[1] and v >= v_need]
@@ -90,8 +94,9 @@ def with_supply_advice(design, req: Requirement,
                                 input=replace(req.input, dc_v=dc)))
         ok, margin = _fits(trial)
         if ok:
-            fixes.append(f"a {top:g} V supply (reference {mid:g} V) fits: planned, worst "
-                         f"margin {margin:+.1f} dB")
+            fixes.append(f"a {format_si(top, 'V', significant=4)} supply (reference "
+                         f"{format_si(mid, 'V', significant=4)}) fits: planned, worst "
+                         f"margin {format_fixed(margin, 1, sign=True)} dB")
     why += ("; fixes: " + "; ".join(fixes)) if fixes else "; no rail-to-rail class or " \
         "common supply up to 36 V was found to fit: lower the gain or input.max_vpk"
     return advise_on_headroom(design, worst.net, why)

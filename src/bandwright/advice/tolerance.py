@@ -10,6 +10,7 @@ from bandwright.analysis.montecarlo import Offer, YieldResult, monte_carlo
 from bandwright.chain.graph import Chain
 from bandwright.inputs.requirement import Requirement
 from bandwright.parts.tolerance import DEFAULT_TOLERANCE_PCT
+from bandwright.parts.notation import format_sig
 
 __all__ = ["tighter_offer", "plan_yield", "RESISTOR_STEPS_PCT", "CAPACITOR_STEPS_PCT"]
 
@@ -83,7 +84,7 @@ def tighter_offer(chain: Chain, requirement: Requirement, result: YieldResult, *
                      message=f"even resistors {_grade(r_min)} and capacitors {_grade(c_min)} "
                              f"give only {_fmt_yield(best.yield_fraction, best.interval)}: "
                              f"the chain itself is too sensitive or too close to the mask "
-                             f"(nominal margin {result.nominal_margin_db:.3g} dB; see the parts "
+                             f"(nominal margin {format_sig(result.nominal_margin_db, 3)} dB; see the parts "
                              f"that decide it)")
     r, c = sp.resistor_pct, sp.capacitor_pct
     current = result

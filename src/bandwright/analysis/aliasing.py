@@ -15,6 +15,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from bandwright.inputs.requirement import Requirement, StopbandPoint
+from bandwright.parts.notation import format_fixed, format_hz
 
 __all__ = ["Fold", "alias_hz", "tone_label", "tone_folds", "fold_intervals",
            "folded_noise_vrms", "noise_fold_top_hz", "vrms_dbfs", "vpk_dbfs",
@@ -233,13 +234,16 @@ def anti_alias_points(req: Requirement) -> tuple[StopbandPoint, ...]:
             continue
         need = vpk_dbfs(t.vpk * pb.gain, fs_vpk) - lim
         wanted.append((t.freq_hz, need,
-                       f"{tone_label(i)} at {t.freq_hz:.6g} Hz folds to {a:.6g} Hz and must "
-                       f"reach the converter below {lim:.1f} dBFS"))
+                       f"{tone_label(i)} at {format_hz(t.freq_hz, significant=6)} folds to "
+                       f"{format_hz(a, significant=6)} and must "
+                       f"reach the converter below {format_fixed(lim, 1)} dBFS"))
     f_image = conv.sample_rate_hz - pb.high_hz
     need = vpk_dbfs(req.input.max_vpk * pb.gain, fs_vpk) - lim
     wanted.append((f_image, need,
-                   f"content as large as the in-band signal at fs − f_high = {f_image:.6g} Hz "
-                   f"folds onto the band edge and must reach the converter below {lim:.1f} dBFS"))
+                   f"content as large as the in-band signal at fs − f_high = "
+                   f"{format_hz(f_image, significant=6)} "
+                   f"folds onto the band edge and must reach the converter below "
+                   f"{format_fixed(lim, 1)} dBFS"))
     out: list[StopbandPoint] = []
     for f, need, why in sorted(wanted):
         need = math.ceil(need * 10) / 10

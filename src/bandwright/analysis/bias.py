@@ -18,6 +18,7 @@ from bandwright.circuits.reference import (SPLIT_REFERENCE, Reference, design_re
                                            referenced)
 from bandwright.circuits.elements import REFERENCE_NET, SUPPLY_NET
 from bandwright.inputs.requirement import Requirement
+from bandwright.parts.notation import format_si
 
 __all__ = ["NetBias", "FloatingInput", "BiasAnalysis", "chain_reference", "bias_points",
            "REFERENCE_OWNER"]
@@ -153,7 +154,7 @@ def bias_points(chain: Chain, requirement: Requirement, reference: Reference) ->
 
 
 def _volts(v: float) -> str:
-    return f"{v * 1e3:+.3g} mV" if abs(v) < 1 else f"{v:+.4g} V"
+    return format_si(v, "V", significant=3 if abs(v) < 1 else 4, sign=True)
 
 
 def describe(b: NetBias) -> str:

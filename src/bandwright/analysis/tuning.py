@@ -33,6 +33,7 @@ from bandwright.chain.graph import CHAIN_INPUT, Chain
 from bandwright.chain.stage import Stage
 from bandwright.circuits import topology
 from bandwright.parts.eseries import bracket
+from bandwright.parts.notation import format_fixed, format_hz, format_sig
 
 __all__ = ["TrimStep", "TuningPlan", "plan_tuning", "plan_from_trims", "trimmer_values", "trimmer_name",
            "TRIM_MARGIN", "TRIMMER_RESOLUTION", "FIGURES", "stage_nets"]
@@ -203,11 +204,11 @@ def _choose(sens: StageSensitivity, figure: str, done: list[str], used: set[str]
 def _reading(adjusts: str, net_in: str, net_out: str, target: float, inverting: bool) -> str:
     if adjusts == "f0":
         phase = "180°" if inverting else "0°"
-        return (f"peak of {net_out}/{net_in} at {target:.7g} Hz "
+        return (f"peak of {net_out}/{net_in} at {format_hz(target, significant=7)} "
                 f"(the phase of {net_out} against {net_in} passes {phase} there)")
     if adjusts == "q":
-        return f"−3 dB width {target:.4g} Hz"
-    return f"gain {target:.4g} V/V at the peak"
+        return f"−3 dB width {format_hz(target)}"
+    return f"gain {format_sig(target)} V/V at the peak"
 
 
 def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
@@ -264,7 +265,7 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
             if part is None:
                 if spread >= _MIN_SPREAD:
                     untrimmable.append(f"stage {st.position} ({st.topology}): {figure} "
-                                       f"(±{100 * spread:.2g} % worst case)")
+                                       f"(±{format_sig(100 * spread, 2)} % worst case)")
                 continue
             k = sens.parts.index(part)
             s = rows[figure][k]
@@ -288,14 +289,15 @@ def plan_tuning(chain: Chain, spreads: Spreads, *, resistor_series: str,
             # What the trim moves on the worst board: the range it needs, not the rounded
             # travel of the part bought.
             travel[part] = d
-            why = (f"moves {figure} by {s:+.2f} % per % of {part}"
-                   + (f", {' and '.join(done)} by less than {100 * _UNDO:g} % of that"
+            why = (f"moves {figure} by {format_fixed(s, 2, sign=True)} % per % of {part}"
+                   + (f", {' and '.join(done)} by less than {format_sig(100 * _UNDO)} % of that"
                       if done else "")
-                   + f"; covers ±{100 * spread * TRIM_MARGIN:.2g} % of {figure} "
-                     f"(worst case ±{100 * spread:.2g} %, ×{TRIM_MARGIN:g})")
+                   + f"; covers ±{format_sig(100 * spread * TRIM_MARGIN, 2)} % of {figure} "
+                     f"(worst case ±{format_sig(100 * spread, 2)} %, ×{format_sig(TRIM_MARGIN)})")
             if need > d:
-                why += (f"; the range needed (±{100 * need:.3g} % of {part}) would take a "
-                        f"trimmer larger than the fixed part: it covers ±{100 * d:.3g} % only")
+                why += (f"; the range needed (±{format_sig(100 * need, 3)} % of {part}) would take "
+                        f"a trimmer larger than the fixed part: it covers "
+                        f"±{format_sig(100 * d, 3)} % only")
             steps.append(TrimStep(
                 stage=st.position, part=trimmer_name(part), trims=part, net_in=net_in,
                 net_out=net_out, adjusts=figure, fixed_ohms=float(fixed),
@@ -360,6 +362,7 @@ def plan_from_trims(chain: Chain, trims: dict[int, dict[str, tuple[float, float]
                                  built["f0"] / built["q"] if figure == "q" else built[figure],
                                  inverting),
                 sensitivity=float(s), design_ohms=float(values[part]),
-                why=f"given in the chain file; moves {figure} by {s:+.2f} % per % of {part}"))
+                why=f"given in the chain file; moves {figure} by {format_fixed(s, 2, sign=True)} "
+                    f"% per % of {part}"))
             done.append(figure)
     return TuningPlan(steps=tuple(steps))

@@ -23,6 +23,7 @@ from bandwright.circuits.dc_block import DcBlock, blocked
 from bandwright.circuits.elements import GROUND, resistor
 from bandwright.circuits.nodal import dc_solve, floating_nets, input_impedance_min
 from bandwright.parts.eseries import bracket
+from bandwright.parts.notation import format_hz, format_si, format_sig
 
 __all__ = ["BLOCK_SHARE", "CORNER_RATIO", "BIAS_DROP_SHARE", "MAX_SHUNT_OHMS",
            "place_dc_blocks", "stage_dc_gains", "block_corner_hz", "corner_grid",
@@ -79,7 +80,7 @@ def block_corner_hz(elements, c_farads: float, r_ohms: float | None,
 
 
 def _volts(v: float) -> str:
-    return f"{v * 1e3:+.3g} mV" if abs(v) < 1 else f"{v:+.3g} V"
+    return format_si(v, "V", sign=True)
 
 
 def _block_for(stage: Stage, req, *, dc_in_v: float, ref_v: float, room_v: float,
@@ -101,11 +102,13 @@ def _block_for(stage: Stage, req, *, dc_in_v: float, ref_v: float, room_v: float
     target = req.passband.low_hz / CORNER_RATIO
     c = float(bracket(1.0 / (2 * math.pi * target * z), req.design.capacitor_series)[1])
     corner = 1.0 / (2 * math.pi * z * c)
-    reason = (f"{what} sits {_volts(offset)} from the reference; DC gain {gains[net]:.3g} "
-              f"would move the stage's {net} by {_volts(shifts[net] * math.copysign(1, gains[net] * offset))}, "
-              f"{100 * shifts[net] / room_v:.0f} % of its {room_v:.3g} V room to the rails "
-              f"(blocked above {100 * BLOCK_SHARE:g} %); corner {corner:.3g} Hz, at or below 1/"
-              f"{CORNER_RATIO:g} of the band's low edge")
+    reason = (f"{what} sits {_volts(offset)} from the reference; DC gain "
+              f"{format_sig(gains[net], 3)} would move the stage's {net} by "
+              f"{_volts(shifts[net] * math.copysign(1, gains[net] * offset))}, "
+              f"{100 * shifts[net] / room_v:.0f} % of its {format_si(room_v, 'V')} room to the "
+              f"rails (blocked above {format_sig(100 * BLOCK_SHARE)} %); corner "
+              f"{format_hz(corner, significant=3)}, at or below 1/{format_sig(CORNER_RATIO)} of "
+              f"the band's low edge")
     return DcBlock(c_farads=c, r_ohms=r_ohms, net="in", corner_hz=corner, reason=reason)
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from bandwright.analysis import Analyses
 from bandwright.checks.base import Check
+from bandwright.parts.notation import format_si, format_sig
 
 __all__ = ["dc_return_checks", "input_range_checks"]
 
@@ -34,11 +35,13 @@ def input_range_checks(an: Analyses) -> list[Check]:
     for lv in an.inputs:
         lo, hi = lv.dc_v - lv.peak_vpk, lv.dc_v + lv.peak_vpk
         who = "the reference follower" if lv.stage == "reference" else f"{lv.opamp}"
-        reach = (f"{lv.cm_to_rail_v:g} V from each rail" if lv.cm_to_rail_v >= 0 else
-                 f"{-lv.cm_to_rail_v:g} V beyond each rail")
-        msg = (f"{who}: + input ({lv.net}) spans {lo:.3g} … {hi:.3g} V (bias {lv.dc_v:.3g} V "
-               f"± {lv.peak_vpk:.3g} Vpk); its inputs work from {lv.low_v:.3g} V to "
-               f"{lv.high_v:.3g} V ({reach})")
+        reach = (f"{format_si(lv.cm_to_rail_v, 'V', significant=4)} from each rail" if lv.cm_to_rail_v >= 0 else
+                 f"{format_si(-lv.cm_to_rail_v, 'V', significant=4)} beyond each rail")
+        msg = (f"{who}: + input ({lv.net}) spans {format_sig(lo, 3)} … {format_si(hi, 'V')} (bias "
+               f"{format_si(lv.dc_v, 'V')} "
+               f"± {format_si(lv.peak_vpk, 'Vpk')}); its inputs work from "
+               f"{format_si(lv.low_v, 'V')} to "
+               f"{format_si(lv.high_v, 'V')} ({reach})")
         if not lv.fits:
             msg += ("; a rail-to-rail input class, a reference (or source DC level) further "
                     "from the rail, or less signal at that input")

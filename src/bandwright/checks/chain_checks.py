@@ -9,7 +9,8 @@ from bandwright.analysis.bias import describe
 from bandwright.chain.graph import CONVERTER_NET, Chain
 from bandwright.checks.base import Check
 from bandwright.circuits import topology
-from bandwright.parts.notation import format_hz, format_value
+from bandwright.parts.notation import (format_fixed, format_hz, format_hz_range, format_si,
+                                       format_sig)
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
 from bandwright.inputs.requirement import Requirement
@@ -34,7 +35,8 @@ def headroom_checks(an: Analyses) -> list[Check]:
             else WARN_MARGIN_DB
         status = "fail" if m < 0 else ("warn" if m < warn_db else "pass")
         what = ("overranges the converter" if conv else "clips") if m < 0 else "peaks"
-        tail = f" of the converter's ±{n.limit_vpk:.4g} V full scale (aim: {warn_db:g} dB " \
+        tail = f" of the converter's ±{format_si(n.limit_vpk, 'V', significant=4)} full " \
+               f"scale (aim: {format_sig(warn_db)} dB " \
                f"below it)" if conv else ""
         b = an.bias.nets.get(n.net) if an.bias is not None else None
         around = f"; {describe(b)}" if b is not None else ""
@@ -42,18 +44,22 @@ def headroom_checks(an: Analyses) -> list[Check]:
             shift = b.source_v - an.bias.reference.reference_v
             if abs(shift) > _SOURCE_SHIFT_SHARE * max(n.limit_vpk, 0.0) + 1e-3:
                 # DC blocks are not placed automatically: say where the level comes from.
-                around += (f"; the source's DC level (input.dc_v) moves it {shift:+.3g} V "
+                around += (f"; the source's DC level (input.dc_v) moves it "
+                           f"{format_si(shift, 'V', sign=True)} "
                            f"from the reference through DC-coupled stages: block DC (a "
                            f"series capacitor with a resistor to the reference) ahead of the "
                            f"first stage with DC gain, or bias the source at the reference")
-        swing = "" if conv else (f"; {n.upper_margin_v:+.3g} V to the upper swing limit "
-                                 f"{n.swing_high_v:.3g} V, {n.lower_margin_v:+.3g} V to the "
-                                 f"lower {n.swing_low_v:.3g} V")
+        swing = "" if conv else (
+            f"; {format_si(n.upper_margin_v, 'V', sign=True)} to the upper swing limit "
+            f"{format_si(n.swing_high_v, 'V')}, {format_si(n.lower_margin_v, 'V', sign=True)} "
+            f"to the lower {format_si(n.swing_low_v, 'V')}")
         out.append(Check(
             id="headroom", status=status, value=n.peak_vpk, limit=n.limit_vpk, unit="Vpk",
             stage=n.stage, net=n.net,
-            message=f"{what} at {n.peak_vpk:.3g} Vpk (in-band {n.signal_vpk:.3g} + tones "
-                    f"{n.peak_vpk - n.signal_vpk:.3g}){around}{swing}; margin {m:+.1f} dB{tail}"))
+            message=f"{what} at {format_si(n.peak_vpk, 'Vpk')} (in-band "
+                    f"{format_si(n.signal_vpk, 'Vpk')} + tones "
+                    f"{format_si(n.peak_vpk - n.signal_vpk, 'Vpk')}){around}{swing}; margin "
+                    f"{format_fixed(m, 1, sign=True)} dB{tail}"))
     return out
 
 
@@ -69,7 +75,8 @@ def slew_checks(an: Analyses) -> list[Check]:
         out.append(Check(
             id="slew", status=status, value=need, limit=have, unit="V/us", stage=n.stage,
             net=n.net,
-            message=f"needs {need:.3g} V/µs of the op-amp's {have:.3g} V/µs"
+            message=f"needs {format_sig(need, 3)} V/µs of the op-amp's "
+                    f"{format_sig(have, 3)} V/µs"
                     + (" — the output will distort on large signals" if ratio < 1 else "")))
     return out
 
@@ -81,15 +88,14 @@ def drive_checks(an: Analyses) -> list[Check]:
         if n.net == CONVERTER_NET:
             continue  # its load is the op-amp's at "out"; its settling: checks.alias
         ok = n.load_ohms >= n.min_load_ohms
-        load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "no load"
+        load = format_si(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "no load"
         out.append(Check(
             id="drive", status="pass" if ok else "fail",
             value=n.load_ohms if math.isfinite(n.load_ohms) else None,
             limit=n.min_load_ohms, unit="ohm", stage=n.stage, net=n.net,
-            message=f"least load {load} (feedback network and next input"
-                    f"{', converter input' if n.net == 'out' and an.converter else ''}), "
-                    f"op-amp minimum "
-                    f"{format_value(n.min_load_ohms, 'Ω')}"))
+            message=f"least load {load} (feedback network and next "
+                    f"input{', converter input' if n.net == 'out' and an.converter else ''}), "
+                    f"op-amp minimum {format_si(n.min_load_ohms, 'Ω')}"))
     return out
 
 
@@ -131,13 +137,16 @@ def gbw_checks(chain: Chain, stability=()) -> list[Check]:
             out.append(Check(
                 id="gbw", status="fail", value=None, limit=have, unit="Hz", stage=st.position,
                 message=f"{st.topology} is not stable with this op-amp: its built pole pair "
-                        f"(f0 {b.f0_hz:.4g} Hz, Q {b.q:.4g}) lies on or right of the "
+                        f"(f0 {format_hz(b.f0_hz)}, Q {format_sig(b.q)}) lies on or right of the "
                         f"imaginary axis"))
             continue
         need = stage_gbw_needed_hz(st)
         ok = have >= need
-        needs = (f"needs {format_hz(need)} GBW here" if math.isfinite(need) else
-                 f"cannot reach Q {b.q:.3g} at gain {abs(b.gain):.3g} with any GBW")
+        # A follower's need is nil: a "0 Hz" figure would read as a misprint.
+        needs = ("needs negligible GBW here" if need == 0 else
+                 f"needs {format_hz(need)} GBW here" if math.isfinite(need) else
+                 f"cannot reach Q {format_sig(b.q, 3)} at gain {format_sig(abs(b.gain), 3)} "
+                 f"with any GBW")
         out.append(Check(
             id="gbw", status="pass" if ok else "fail", value=need, limit=have, unit="Hz",
             stage=st.position,
@@ -150,14 +159,15 @@ def noise_checks(an: Analyses, requirement: Requirement) -> list[Check]:
     limit = requirement.noise.max_output_vrms
     got = an.noise.integrated_vrms
     lo, hi = an.noise.band_hz
-    top = ", ".join(f"{n} {v * 1e6:.3g} µV" for n, v in an.noise.contributions_vrms[:3])
-    msg = (f"{got * 1e6:.4g} µV rms at the output over {lo:.4g}–{hi:.4g} Hz; largest: {top}")
+    top = ", ".join(f"{n} {format_si(v, 'V')}" for n, v in an.noise.contributions_vrms[:3])
+    msg = (f"{format_si(got, 'V rms', significant=4)} at the output over "
+           f"{format_hz_range(lo, hi)}; largest: {top}")
     if limit is None:
         return [Check(id="noise", status="pass", value=got, limit=None, unit="Vrms",
                       message=msg + " (no budget given)")]
     ok = got <= limit
     return [Check(id="noise", status="pass" if ok else "fail", value=got, limit=limit,
-                  unit="Vrms", message=msg + f"; budget {limit * 1e6:.4g} µV rms")]
+                  unit="Vrms", message=msg + f"; budget {format_si(limit, 'V rms', significant=4)}")]
 
 
 def parts_checks(chain: Chain, windows: PartWindows = PartWindows()) -> list[Check]:

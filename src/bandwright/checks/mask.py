@@ -6,6 +6,7 @@ from bandwright.analysis.mask import mask_margins
 from bandwright.analysis.response import MaskReading
 from bandwright.checks.base import Check
 from bandwright.inputs.requirement import Requirement
+from bandwright.parts.notation import format_fixed, format_hz, format_sig
 
 __all__ = ["mask_checks"]
 
@@ -34,13 +35,15 @@ def mask_checks(reading: MaskReading, requirement: Requirement) -> list[Check]:
     out.append(Check(
         id="mask", status="pass" if ok else "fail", value=err, limit=pb.gain_tolerance_db,
         unit="dB",
-        message=f"passband peak {peak:.3f} dB is {err:+.3f} dB from the asked {pb.gain_db:g} dB"
-                f" (allowed ±{pb.gain_tolerance_db:g} dB)"))
+        message=f"passband peak {format_fixed(peak, 3)} dB is {format_fixed(err, 3, sign=True)} dB "
+                f"from the asked {format_sig(pb.gain_db)} dB (allowed "
+                f"±{format_sig(pb.gain_tolerance_db)} dB)"))
     for k, (f, point) in enumerate(zip(reading.stop_freq_hz, requirement.stopband)):
         loss_s = float(m.stop_loss_db[0, k])
         ok = bool(m.stop_point_ok[0, k])
         out.append(Check(
             id="mask", status="pass" if ok else "fail", value=loss_s, limit=point.min_loss_db,
             unit="dB",
-            message=f"{loss_s:.2f} dB of loss at {f:.6g} Hz, needs {point.min_loss_db:g} dB"))
+            message=f"{format_fixed(loss_s, 2)} dB of loss at {format_hz(f, significant=6)}, "
+                    f"needs {format_sig(point.min_loss_db)} dB"))
     return out

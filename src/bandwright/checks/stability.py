@@ -17,7 +17,7 @@ import numpy as np
 from bandwright.analysis import Analyses
 from bandwright.analysis.stability import StagePoles
 from bandwright.checks.base import Check
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_sig
 
 __all__ = ["stability_checks", "unstable_message", "void_if_unstable", "STEADY_STATE_IDS"]
 
@@ -29,8 +29,8 @@ def _pole_text(p: complex) -> str:
     f_hz = abs(p) / (2 * math.pi)
     if abs(p.imag) > 1e-9 * abs(p):
         q = -abs(p) / (2 * p.real) if p.real != 0 else math.inf
-        return f"pair at {format_value(f_hz, 'Hz')}, Q {q:.3g}"
-    return f"real pole at {'+' if p.real >= 0 else '−'}{format_value(f_hz, 'Hz')}"
+        return f"pair at {format_hz(f_hz, significant=3)}, Q {format_sig(q, 3)}"
+    return f"real pole at {'+' if p.real >= 0 else '−'}{format_hz(f_hz, significant=3)}"
 
 
 def unstable_message(sp: StagePoles) -> str:
@@ -40,7 +40,7 @@ def unstable_message(sp: StagePoles) -> str:
     growth = max(float(np.max(rhp.real)), 0.0) if rhp.size else 0.0
     return (f"{rhp.size} pole{'s' if rhp.size != 1 else ''} in the right half-plane ("
             + "; ".join(_pole_text(complex(p)) for p in shown)
-            + f"; fastest growth e^({growth:.4g}·t/s))")
+            + f"; fastest growth e^({format_sig(growth)}·t/s))")
 
 
 def stability_checks(an: Analyses) -> list[Check]:

@@ -7,12 +7,13 @@ import math
 from bandwright.analysis import Analyses
 from bandwright.checks.base import Check
 from bandwright.inputs.requirement import Requirement
+from bandwright.parts.notation import format_hz, format_si, format_sig
 
 __all__ = ["onset_checks", "time_checks"]
 
 
 def _ms(t_s: float) -> str:
-    return "never" if not math.isfinite(t_s) else f"{t_s * 1e3:.3g} ms"
+    return "never" if not math.isfinite(t_s) else format_si(t_s, "s")
 
 
 def _advice(net: str, first: bool, event: str) -> str:
@@ -38,12 +39,12 @@ def onset_checks(an: Analyses) -> list[Check]:
     for o in an.time.onset:
         what = "a DC step" if o.event == "dc_step" else "the tones and signal starting"
         if o.peak_vpk <= o.limit_vpk:
-            status, msg = "pass", (f"{what} at worst phase peaks at {o.peak_vpk:.3g} Vpk "
-                                   f"(steady {o.steady_vpk:.3g} Vpk)")
+            status, msg = "pass", (f"{what} at worst phase peaks at {format_si(o.peak_vpk, 'Vpk')} "
+                                   f"(steady {format_si(o.steady_vpk, 'Vpk')})")
         else:
             status = "fail" if o.event == "dc_step" or not math.isfinite(o.recovery_s) else "warn"
-            msg = (f"{what} at worst phase drives it to {o.peak_vpk:.3g} Vpk, beyond its "
-                   f"{o.limit_vpk:.3g} Vpk swing, at {_ms(o.at_s)}; back inside after "
+            msg = (f"{what} at worst phase drives it to {format_si(o.peak_vpk, 'Vpk')}, beyond its "
+                   f"{format_si(o.limit_vpk, 'Vpk')} swing, at {_ms(o.at_s)}; back inside after "
                    f"{_ms(o.recovery_s)}; {_advice(o.net, o.net == first, o.event)}")
         out.append(Check(id="onset", status=status, value=o.peak_vpk, limit=o.limit_vpk,
                          unit="Vpk", stage=o.stage, net=o.net, message=msg))
@@ -64,14 +65,14 @@ def time_checks(an: Analyses, requirement: Requirement) -> list[Check]:
     worst_over = max(tf.bursts, key=lambda b: b.overshoot_pct)
     rows = [
         (lim.max_rise_s, worst_rise.rise_s, "s",
-         f"envelope rise 10-90 % of a burst at {worst_rise.freq_hz:.4g} Hz"),
+         f"envelope rise 10-90 % of a burst at {format_hz(worst_rise.freq_hz)}"),
         (lim.max_delay_spread_s, tf.delay_spread_s, "s",
-         f"group delay spread across the band ({tf.delay_min_s * 1e3:.3g} to "
-         f"{tf.delay_max_s * 1e3:.3g} ms)"),
+         f"group delay spread across the band ({format_si(tf.delay_min_s, 's')} to "
+         f"{format_si(tf.delay_max_s, 's')})"),
         (lim.max_ringing_s, worst_ring.ringing_s, "s",
-         f"ringing to 1 % after a burst at {worst_ring.freq_hz:.4g} Hz"),
+         f"ringing to 1 % after a burst at {format_hz(worst_ring.freq_hz)}"),
         (lim.max_overshoot_pct, worst_over.overshoot_pct, "%",
-         f"envelope overshoot of a burst at {worst_over.freq_hz:.4g} Hz"),
+         f"envelope overshoot of a burst at {format_hz(worst_over.freq_hz)}"),
         (lim.max_settling_s, tf.settling_s, "s", "step response settling to 1 %"),
     ]
     out = []
@@ -79,9 +80,11 @@ def time_checks(an: Analyses, requirement: Requirement) -> list[Check]:
         if limit is None:
             continue
         ok = math.isfinite(value) and value <= limit
-        shown = (f"{value * 1e3:.4g} ms" if unit == "s" else f"{value:.4g} %") \
+        shown = (format_si(value, "s", significant=4) if unit == "s" else
+                 f"{format_sig(value, 4)} %") \
             if math.isfinite(value) else "not reached"
-        bound = f"{limit * 1e3:.4g} ms" if unit == "s" else f"{limit:.4g} %"
+        bound = format_si(limit, "s", significant=4) if unit == "s" else \
+            f"{format_sig(limit, 4)} %"
         out.append(Check(id="time", status="pass" if ok else "fail", value=value, limit=limit,
                          unit=unit, message=f"{what}: {shown} against {bound}"))
     return out

@@ -6,12 +6,13 @@ import math
 
 from bandwright.analysis.montecarlo import YieldResult
 from bandwright.checks.base import Check
+from bandwright.parts.notation import format_fixed, format_sig
 
 __all__ = ["yield_checks"]
 
 
 def _pct(x: float) -> str:
-    return f"{100 * x:.1f} %"
+    return f"{format_fixed(100 * x, 1)} %"
 
 
 def yield_checks(result: YieldResult, *, tuning=None) -> list[Check]:
@@ -36,10 +37,12 @@ def yield_checks(result: YieldResult, *, tuning=None) -> list[Check]:
     sp = result.spreads
     lo, hi = result.interval
     ok = result.meets_target
-    parts = (f"R ±{sp.resistor_pct:g} % ({sp.resistor_source}), C ±{sp.capacitor_pct:g} % "
-             f"({sp.capacitor_source}), GBW ±{sp.gbw_spread_pct:g} %, {sp.distribution}")
+    parts = (f"R ±{format_sig(sp.resistor_pct)} % ({sp.resistor_source}), C "
+             f"±{format_sig(sp.capacitor_pct)} % "
+             f"({sp.capacitor_source}), GBW ±{format_sig(sp.gbw_spread_pct)} %, {sp.distribution}")
     msg = (f"{_pct(result.yield_fraction)} of {result.samples} boards are stable and "
-           f"meet the mask and headroom (95 % interval {_pct(lo)}–{_pct(hi)}; target {_pct(result.min_yield)}); "
+           f"meet the mask and headroom (95 % interval {_pct(lo)}–{_pct(hi)}; target "
+           f"{_pct(result.min_yield)}); "
            f"{parts}; seed {result.seed}")
     if ok and lo < result.min_yield:
         msg += "; the interval reaches below the target: more samples would settle it"
@@ -47,11 +50,11 @@ def yield_checks(result: YieldResult, *, tuning=None) -> list[Check]:
         fails = ", ".join(f"{k} {v}" for k, v in result.fail_counts.items() if v)
         margin = result.nominal_margin_db
         msg += f"; failing: {fails or 'none'}; " + (
-            f"nominal margin {margin:.3g} dB" if math.isfinite(margin)
+            f"nominal margin {format_sig(margin, 3)} dB" if math.isfinite(margin)
             else "the nominal board is unstable")
         if result.drivers:
             msg += "; decided most by " + ", ".join(
-                f"{d.part} of stage {d.stage} ({100 * d.index:.0f} %)" for d in result.drivers[:3])
+                f"{d.part} of stage {d.stage} ({format_fixed(100 * d.index, 0)} %)" for d in result.drivers[:3])
         if not result.nominal_passes:
             msg += "; the chain fails with nominal parts already: tighter parts cannot help"
         elif result.offer is not None:
@@ -70,9 +73,9 @@ def _tuned_check(result: YieldResult, tuning) -> Check:
     msg = (f"after tuning ({n_trim} trimmer{'s' if n_trim != 1 else ''}, the procedure below): "
            f"{_pct(t.yield_fraction)} of {t.samples} boards are stable and meet the mask and "
            f"headroom (95 % interval {_pct(lo)}–{_pct(hi)}; target {_pct(result.min_yield)}); "
-           f"untrimmed {_pct(tuning.yield_untrimmed)}; R ±{sp.resistor_pct:g} %, "
-           f"C ±{sp.capacitor_pct:g} %, GBW ±{sp.gbw_spread_pct:g} %, {sp.distribution}; "
-           f"seed {t.seed}; trimmed because {tuning.reason}")
+           f"untrimmed {_pct(tuning.yield_untrimmed)}; R ±{format_sig(sp.resistor_pct)} %, C "
+           f"±{format_sig(sp.capacitor_pct)} %, GBW ±{format_sig(sp.gbw_spread_pct)} %, "
+           f"{sp.distribution}; seed {t.seed}; trimmed because {tuning.reason}")
     if t.unrescued:
         short = ", ".join(f"{k} {v}" for k, v in t.out_of_range.items() if v)
         fails = ", ".join(f"{k} {v}" for k, v in t.fail_counts.items() if v)

@@ -37,6 +37,7 @@ from bandwright.circuits.rules import (MAX_SPREAD, NOMINAL_C_FARADS, check_capac
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
+from bandwright.parts.notation import format_sig
 
 __all__ = ["TOLERANCE_Q_SHIFT_LIMIT", "MAX_SPREAD", "DEFAULT_TOLERANCE",
            "GAIN_RTOL", "tolerance_shift", "check_section", "divider",
@@ -218,24 +219,26 @@ def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
     (notes if gbw_ok else failures).append(gbw_text)
     g = abs(section.gain)
     if g > natural_gain * (1 + GAIN_RTOL):
-        text = (f"gain {g:.4g} V/V exceeds the {natural_gain:.4g} V/V this section reaches at "
-                f"Q {section.q:.4g}; designed for {natural_gain:.4g} V/V, "
-                f"{20 * math.log10(g / natural_gain):.2f} dB to be made up by a gain stage")
+        text = (f"gain {format_sig(g)} V/V exceeds the {format_sig(natural_gain)} V/V this section "
+                f"reaches at Q {format_sig(section.q)}; designed for {format_sig(natural_gain)} "
+                f"V/V, {20 * math.log10(g / natural_gain):.2f} dB to be made up by a gain stage")
         (notes if accept_gain_shortfall else failures).append(text)
     if spread > max_spread:
-        failures.append(f"resistor spread {spread:.4g}:1 exceeds {max_spread:.4g}:1")
+        failures.append(f"resistor spread {format_sig(spread)}:1 exceeds "
+                        f"{format_sig(max_spread)}:1")
     if c_tolerance is None:
         c_tolerance = r_tolerance
     shift = tolerance_shift(sensitivities, r_tolerance, c_tolerance)
     if shift > TOLERANCE_Q_SHIFT_LIMIT:
-        parts = (f"{100 * r_tolerance:.3g} % parts" if c_tolerance == r_tolerance else
-                 f"{100 * r_tolerance:.3g} % resistors and {100 * c_tolerance:.3g} % "
+        parts = (f"{format_sig(100 * r_tolerance, 3)} % parts" if c_tolerance == r_tolerance else
+                 f"{format_sig(100 * r_tolerance, 3)} % resistors and "
+                 f"{format_sig(100 * c_tolerance, 3)} % "
                  "capacitors")
         failures.append(
-            f"Q {section.q:.4g}: with {parts} Q may move by {100 * shift:.0f} % in the "
+            f"Q {format_sig(section.q)}: with {parts} Q may move by {100 * shift:.0f} % in the "
             f"worst case (sum of |S_x^Q| t_x, first order); at most "
             f"{100 * TOLERANCE_Q_SHIFT_LIMIT:.0f} % is accepted"
-            + (f", which this section keeps up to Q {tolerance_q_max:.3g}"
+            + (f", which this section keeps up to Q {format_sig(tolerance_q_max, 3)}"
                if tolerance_q_max else ""))
     return Limits(feasible=not failures, reasons=tuple(failures + notes),
                   gbw_needed_hz=float(gbw_needed_hz), spread=float(spread),

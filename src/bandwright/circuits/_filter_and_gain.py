@@ -44,7 +44,7 @@ from bandwright.circuits.elements import Element, opamp, resistor
 from bandwright.circuits.rules import (MAX_SPREAD, NOMINAL_C_FARADS, check_capacitor,
                                        gbw_needed_hz, gbw_reason, infeasible_limits)
 from bandwright.errors import InfeasibleDesign
-from bandwright.parts.notation import format_hz
+from bandwright.parts.notation import format_hz, format_sig
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
 
@@ -265,7 +265,8 @@ def section_problems(section: Section, *, kind: str, min_gain: float = 0.0) -> l
     if not (math.isfinite(g) and g != 0):
         problems.append(f"gain = {section.gain!r}: must be finite and non-zero")
     elif g < min_gain and not is_unity(g / min_gain):
-        problems.append(f"|gain| = {g:.6g} V/V: below the {min_gain:g} V/V this topology "
+        problems.append(f"|gain| = {format_sig(g, 6)} V/V: below the {format_sig(min_gain)} V/V "
+                        f"this topology "
                         "reaches; run it at unity and put the attenuation in a gain stage")
     return problems
 
@@ -301,8 +302,8 @@ def unity_note(section: Section) -> list[str]:
     """
     g = abs(section.gain)
     if g != 1.0 and is_unity(g):
-        return [f"|gain| {g:.7g} V/V built at unity ({100 * (g - 1):+.3g} %, within "
-                f"{100 * UNITY_RTOL:g} %)"]
+        return [f"|gain| {format_sig(g, 7)} V/V built at unity ({100 * (g - 1):+.3g} %, within "
+                f"{format_sig(100 * UNITY_RTOL)} %)"]
     return []
 
 
@@ -535,12 +536,13 @@ def filter_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
     part_spread = spread(parts, separate=separate)
     q_sens = max_log_sensitivity(lambda p: ideal_figures(p).q, parts)
     gbw_ok, gbw_text = gbw_reason(needed, model.gbw_hz)
-    reasons = [summary(parts, fig), gbw_text, f"max |S^Q| = {q_sens:.3g}"]
+    reasons = [summary(parts, fig), gbw_text, f"max |S^Q| = {format_sig(q_sens, 3)}"]
     if note_unity:
         reasons += unity_note(section)
     spread_ok = part_spread <= MAX_SPREAD
     if not spread_ok:
-        reasons.append(f"component spread {part_spread:.4g} exceeds {MAX_SPREAD:g}")
+        reasons.append(f"component spread {format_sig(part_spread)} exceeds "
+                       f"{format_sig(MAX_SPREAD)}")
     return Limits(feasible=gbw_ok and spread_ok, reasons=tuple(reasons), gbw_needed_hz=needed,
                   spread=part_spread, q_sensitivity=q_sens,
                   noise_gain=noise_gain_at(section.f0_hz, fig.f0_hz, fig.q, ng),
@@ -621,7 +623,7 @@ def gain_stage_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
         return infeasible_limits(problems, opamps)
     parts = design(section)
     ng = noise_gain(parts)
-    reasons = [f"{summary(parts)}; noise gain {ng:.4g}; bandwidth "
+    reasons = [f"{summary(parts)}; noise gain {format_sig(ng)}; bandwidth "
                f"{format_hz(closed_loop_bandwidth_hz(ng, model))}"]
     if note_unity:
         reasons += unity_note(section)
@@ -629,7 +631,7 @@ def gain_stage_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
     if max_freq_hz is None:
         needed = 0.0
         reasons.append("GBW need set by the highest signal frequency (pass max_freq_hz): "
-                       f"{ng / _GAIN_ERROR_BANDWIDTH_RATIO:.4g} x f_max")
+                       f"{format_sig(ng / _GAIN_ERROR_BANDWIDTH_RATIO)} x f_max")
     else:
         needed = gain_stage_gbw_needed_hz(ng, max_freq_hz)
         ok, text = gbw_reason(needed, model.gbw_hz,
@@ -638,6 +640,6 @@ def gain_stage_limits(section: Section, model: OpAmp, *, kind: str, opamps: int,
     part_spread = spread(parts)
     if part_spread > MAX_SPREAD:
         ok = False
-        reasons.append(f"resistor ratio {part_spread:.4g} exceeds {MAX_SPREAD:g}")
+        reasons.append(f"resistor ratio {format_sig(part_spread)} exceeds {format_sig(MAX_SPREAD)}")
     return Limits(feasible=ok, reasons=tuple(reasons), gbw_needed_hz=needed,
                   spread=part_spread, q_sensitivity=0.0, noise_gain=ng, opamps=opamps)

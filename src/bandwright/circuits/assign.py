@@ -14,7 +14,7 @@ from bandwright.circuits.elements import opamp_output_nets
 from bandwright.circuits.nodal import ac_solve, drawn_impedance, input_impedance_min
 from bandwright.circuits.realize import Realization, choose_capacitor, realize
 from bandwright.errors import InfeasibleDesign
-from bandwright.parts.notation import format_hz, format_value
+from bandwright.parts.notation import format_hz, format_si, format_sig, plural
 from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
@@ -103,13 +103,13 @@ def _level_problem(real: Realization, model: OpAmp,
         return None
     z_in = input_impedance_min(real.elements, input_floor[0])
     if z_in < input_floor[1]:
-        return (f"its input impedance falls to {format_value(z_in, 'Ω')}, below the "
-                f"{format_value(input_floor[1], 'Ω')} the stage before can drive",
+        return (f"its input impedance falls to {format_si(z_in, 'Ω')}, below the "
+                f"{format_si(input_floor[1], 'Ω')} the stage before can drive",
                 input_floor[1] / z_in)
     weak = _weakest_output(real.elements, input_floor[0])
     if weak is not None and weak[1] < model.min_load_ohms:
-        return (f"its own network loads {weak[0]} down to {format_value(weak[1], 'Ω')}, "
-                f"below the op-amp's {format_value(model.min_load_ohms, 'Ω')} minimum load",
+        return (f"its own network loads {weak[0]} down to {format_si(weak[1], 'Ω')}, "
+                f"below the op-amp's {format_si(model.min_load_ohms, 'Ω')} minimum load",
                 model.min_load_ohms / weak[1])
     return None
 
@@ -186,7 +186,7 @@ def _choose_level(build, topo, start: float, model: OpAmp,
 
 
 def _level_text(level: float) -> str:
-    return f"impedance level ×{level:.3g}"
+    return f"impedance level ×{format_sig(level, 3)}"
 
 
 def _natural_gain(topo, q: float) -> float:
@@ -280,7 +280,7 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
             problem = _level_problem(real, model, input_floor)
         if problem is not None:
             rejected.append((topo.NAME, problem[0] + (f" (at {_level_text(level)}; at most "
-                                                      f"×{LEVEL_MAX:g} is tried)"
+                                                      f"×{format_sig(LEVEL_MAX)} is tried)"
                                                       if level != 1.0 else "")))
             continue
         df, dq, dg = real.errors()
@@ -314,10 +314,10 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
     names_done = {n for n, _ in rejected} | {topo.NAME}
     for t, l in feasible:
         if t.NAME not in names_done:
-            rejected.append((t.NAME, f"feasible, but costlier: {l.opamps} op-amp(s), "
+            rejected.append((t.NAME, f"feasible, but costlier: {plural(l.opamps, 'op-amp')}, "
                              f"|S_Q| {l.q_sensitivity:.3g}, noise gain {l.noise_gain:.3g}"))
-    reason = (f"{lim.opamps} op-amp(s), Q sensitivity {lim.q_sensitivity:.3g}, noise gain "
-              f"{lim.noise_gain:.3g}; needs {format_hz(lim.gbw_needed_hz, significant=3)} "
+    reason = (f"{plural(lim.opamps, 'op-amp')}, Q sensitivity {format_sig(lim.q_sensitivity, 3)}, "
+              f"noise gain {format_sig(lim.noise_gain, 3)}; needs {format_hz(lim.gbw_needed_hz, significant=3)} "
               f"GBW, the op-amp has {format_hz(model.gbw_hz, significant=3)}")
     if level != 1.0:
         reason += f"; built at {_level_text(level)} of the first level"
@@ -362,7 +362,7 @@ def _with_shortfall(section: Section, model: OpAmp, rejected: list[tuple[str, st
         short_db = 20 * math.log10(abs(section.gain) / reach)
         others = [(n, r) for n, r in rejected if n != topo.NAME]
         return replace(a, rejected=tuple(others), gain_shortfall=abs(section.gain) / reach,
-                       reason=(f"reaches Q {section.q:.4g} but not the gain: built at its "
-                               f"natural gain {reach:.4g} V/V, {short_db:.2f} dB left to a "
+                       reason=(f"reaches Q {format_sig(section.q)} but not the gain: built at its "
+                               f"natural gain {format_sig(reach)} V/V, {short_db:.2f} dB left to a "
                                f"gain stage; " + a.reason))
     return None

@@ -21,6 +21,7 @@ from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, opamp, resistor
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
+from bandwright.parts.notation import format_si, format_sig
 
 __all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
            "INVERTING", "design", "elements", "limits", "ideal_figures", "noise_gain",
@@ -158,7 +159,8 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
 
 def _summary(parts: Mapping[str, float]) -> str:
     """The start of the first reason of ``limits``: the ratio and the input resistance."""
-    return f"Rf/Rin = {parts['Rf'] / parts['Rin']:.4g}; input resistance {parts['Rin']:.4g} ohm"
+    return (f"Rf/Rin = {format_sig(parts['Rf'] / parts['Rin'])}; input resistance "
+            f"{format_si(parts['Rin'], 'Ω', significant=4)}")
 
 
 def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) -> Limits:

@@ -36,6 +36,7 @@ from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, capacitor, opamp, resistor
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
+from bandwright.parts.notation import format_sig
 
 __all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
            "INVERTING", "design", "elements", "limits", "ideal_figures",
@@ -149,8 +150,9 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
 
 def _summary(parts: Mapping[str, float], fig: Figures) -> str:
     """The first reason of ``limits``: the design's ratios and gain."""
-    return (f"R2/R1 = {parts['R2'] / parts['R1']:.4g}, C1 = C2 = {abs(fig.gain):.4g} C3, "
-            f"gain {fig.gain:.4g} V/V")
+    return (f"R2/R1 = {format_sig(parts['R2'] / parts['R1'])}, C1 = C2 = "
+            f"{format_sig(abs(fig.gain))} C3, "
+            f"gain {format_sig(fig.gain)} V/V")
 
 
 def limits(section: Section, model: OpAmp) -> Limits:

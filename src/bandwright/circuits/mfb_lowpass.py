@@ -42,6 +42,7 @@ from bandwright.circuits.elements import Element, capacitor, opamp, resistor
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
+from bandwright.parts.notation import format_sig
 
 __all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
            "INVERTING", "design", "elements", "limits", "ideal_figures",
@@ -172,8 +173,8 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
     if -1e-9 * (w0 * c1 / q) ** 2 < disc < 0:
         disc = 0.0  # round-off at exactly the minimum ratio (the design's own point)
     if disc < 0:
-        raise InfeasibleDesign(f"C1/C2 = {c1 / c2:.4g} is below the {4 * q * q * (1 + k):.4g} "
-                               f"needed for Q = {q:.4g} at gain {-k:.4g}")
+        raise InfeasibleDesign(f"C1/C2 = {format_sig(c1 / c2)} is below the {format_sig(4 * q * q * (1 + k))} "
+                               f"needed for Q = {format_sig(q)} at gain {format_sig(-k)}")
     best = None
     for g in ((w0 * c1 / q + math.sqrt(disc)) / (2 * (1 + k)),
               (w0 * c1 / q - math.sqrt(disc)) / (2 * (1 + k))):
@@ -206,7 +207,7 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
 
 def _summary(parts: Mapping[str, float], fig: Figures) -> str:
     """The first reason of ``limits``: the design's ratios and gain."""
-    return f"C1/C2 = {parts['C1'] / parts['C2']:.4g} = 4Q^2(1+K), gain {fig.gain:.4g} V/V"
+    return f"C1/C2 = {format_sig(parts['C1'] / parts['C2'])} = 4Q^2(1+K), gain {format_sig(fig.gain)} V/V"
 
 
 def limits(section: Section, model: OpAmp) -> Limits:

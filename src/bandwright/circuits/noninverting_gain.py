@@ -26,6 +26,7 @@ from bandwright.circuits.base import Figures, Limits
 from bandwright.circuits.elements import Element, resistor
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
+from bandwright.parts.notation import format_sig
 
 __all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
            "INVERTING", "design", "elements", "limits", "ideal_figures", "noise_gain",
@@ -181,8 +182,8 @@ def _form(parts: Mapping[str, float]) -> str:
     if not parts:
         return "follower"
     if "Rf" in parts:
-        return f"amplifier, Rf/Rg = {parts['Rf'] / parts['Rg']:.4g}"
-    return f"buffered divider, Rb/(Ra+Rb) = {parts['Rb'] / (parts['Ra'] + parts['Rb']):.4g}"
+        return f"amplifier, Rf/Rg = {format_sig(parts['Rf'] / parts['Rg'])}"
+    return f"buffered divider, Rb/(Ra+Rb) = {format_sig(parts['Rb'] / (parts['Ra'] + parts['Rb']))}"
 
 
 def limits(section: Section, model: OpAmp, *, max_freq_hz: float | None = None) -> Limits:

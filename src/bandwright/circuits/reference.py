@@ -30,7 +30,7 @@ from typing import Sequence
 from bandwright.circuits.elements import (GROUND, REFERENCE_NET, SUPPLY_NET, Element, capacitor,
                                           opamp, resistor)
 from bandwright.parts.eseries import bracket, nearest
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_hz, format_si, format_sig, plural
 from bandwright.parts.opamp import OpAmp
 
 __all__ = ["Reference", "referenced", "design_reference", "DIVIDER_OHMS", "DECOUPLE_BELOW",
@@ -133,28 +133,29 @@ def design_reference(stage_elements: Sequence[Element], *, rails_v: tuple[float,
     shift_v = inputs * abs(model.bias_current_a) * r_par
     fc_hz = 1 / (2 * math.pi * r_par * c)
     buffered = bool(passive_legs) or shift_v > MAX_DIVIDER_SHIFT_V
-    noise_nv = math.sqrt(4 * 1.380649e-23 * 298.15 * r_par) * 1e9
-    divider = (f"divider {format_value(r1, 'Ω')}/{format_value(r2, 'Ω')} from the "
-               f"{top:g} V rail, {format_value(c, 'F')} decoupling (pole "
-               f"{format_value(fc_hz, 'Hz')}, {DECOUPLE_BELOW:g}× below "
-               f"{format_value(low_hz, 'Hz')}, so its {noise_nv:.0f} nV/√Hz is filtered in band)")
+    noise_v = math.sqrt(4 * 1.380649e-23 * 298.15 * r_par)
+    divider = (f"divider {format_si(r1, 'Ω')}/{format_si(r2, 'Ω')} from the "
+               f"{format_si(top, 'V', significant=4)} rail, {format_si(c, 'F')} decoupling (pole "
+               f"{format_hz(fc_hz, significant=3)}, {format_sig(DECOUPLE_BELOW)}× below "
+               f"{format_hz(low_hz, significant=3)}, so its "
+               f"{format_si(noise_v, 'V/√Hz', significant=2)} is filtered in band)")
     if passive_legs:
-        why = (f"a follower drives the reference: {len(passive_legs)} part(s) of the stages "
-               f"return signal current to it (e.g. {', '.join(passive_legs[:3])}), which a "
+        why = (f"a follower drives the reference: {plural(len(passive_legs), 'part')} of the "
+               f"stages return signal current to it (e.g. {', '.join(passive_legs[:3])}), which a "
                f"divider alone would turn into a voltage shared by every stage")
     elif buffered:
-        why = (f"a follower drives the reference: {inputs} op-amp input(s) draw "
-               f"{format_value(inputs * abs(model.bias_current_a), 'A')} of bias current, "
-               f"{shift_v * 1e3:.3g} mV across the divider (more than "
-               f"{MAX_DIVIDER_SHIFT_V * 1e3:g} mV)")
+        why = (f"a follower drives the reference: {plural(inputs, 'op-amp input')} draw "
+               f"{format_si(inputs * abs(model.bias_current_a), 'A')} of bias current, "
+               f"{format_si(shift_v, 'V')} across the divider (more than "
+               f"{format_si(MAX_DIVIDER_SHIFT_V, 'V')})")
     else:
-        why = (f"no follower: only {inputs} op-amp input(s) sit at the reference, drawing "
-               f"{format_value(inputs * abs(model.bias_current_a), 'A')} "
-               f"({shift_v * 1e6:.3g} µV across the divider) and no signal current")
+        why = (f"no follower: only {plural(inputs, 'op-amp input')} sit at the reference, drawing "
+               f"{format_si(inputs * abs(model.bias_current_a), 'A')} "
+               f"({format_si(shift_v, 'V')} across the divider) and no signal current")
     node = DIVIDER_NET if buffered else REFERENCE_NET
     els = [resistor("R1_ref", SUPPLY_NET, node, r1), resistor("R2_ref", node, GROUND, r2),
            capacitor("C1_ref", node, GROUND, c)]
     if buffered:
         els.append(opamp("U1_ref", DIVIDER_NET, REFERENCE_NET, REFERENCE_NET, model))
     return Reference(reference_v=reference_v, supply_v=top, single=True, elements=tuple(els),
-                     buffered=buffered, reason=f"reference {reference_v:g} V: {divider}; {why}")
+                     buffered=buffered, reason=f"reference {format_si(reference_v, 'V', significant=4)}: {divider}; {why}")

@@ -33,6 +33,7 @@ from bandwright.circuits.base import Limits
 from bandwright.circuits.elements import Element, capacitor, opamp, resistor
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
+from bandwright.parts.notation import format_sig
 
 __all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
            "INVERTING", "design", "elements", "limits", "amplifier_gain", "natural_gain",
@@ -85,8 +86,8 @@ def natural_gain(q: float) -> float:
 
 def _problems(section: Section) -> tuple[str, ...]:
     if section.q <= 0.5:
-        return (f"Q {section.q:.4g}: needs amplifier gain K = 3 - 1/Q = "
-                f"{amplifier_gain(section.q):.4g} V/V, below the 1 V/V a non-inverting "
+        return (f"Q {format_sig(section.q)}: needs amplifier gain K = 3 - 1/Q = "
+                f"{format_sig(amplifier_gain(section.q))} V/V, below the 1 V/V a non-inverting "
                 "amplifier reaches (Q must exceed 0.5)",)
     return ()
 

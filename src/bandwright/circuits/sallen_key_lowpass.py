@@ -42,6 +42,7 @@ from bandwright.circuits.elements import Element, capacitor, resistor
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
+from bandwright.parts.notation import format_sig
 
 __all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
            "INVERTING", "design", "elements", "limits", "ideal_figures",
@@ -186,9 +187,11 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
             disc = 0.0  # round-off at exactly the minimum ratio (the design's own point)
         if disc < 0:
             raise InfeasibleDesign(
-                f"C1/C2 = {c1 / c2:.4g} is below the {4 * section.q ** 2:.4g} needed for "
-                f"Q = {section.q:.4g} at gain {k:.4g}" if common.is_unity(k) else
-                f"no resistor pair reaches Q = {section.q:.4g} with C1/C2 = {c1 / c2:.4g}")
+                f"C1/C2 = {format_sig(c1 / c2)} is below the {format_sig(4 * section.q ** 2)} "
+                f"needed for "
+                f"Q = {format_sig(section.q)} at gain {format_sig(k)}" if common.is_unity(k) else
+                f"no resistor pair reaches Q = {format_sig(section.q)} with C1/C2 = "
+                f"{format_sig(c1 / c2)}")
         sq = math.sqrt(disc)
         roots = [(-b + sq) / (2 * a), (-b - sq) / (2 * a)]
     best = None
@@ -199,8 +202,8 @@ def resistors_for_capacitors(section: Section, *, c1_farads: float,
             if best is None or ratio < best[0]:
                 best = (ratio, r1, r2)
     if best is None:
-        raise InfeasibleDesign(f"no positive resistors reach Q = {section.q:.4g} with "
-                               f"C1/C2 = {c1 / c2:.4g}")
+        raise InfeasibleDesign(f"no positive resistors reach Q = {format_sig(section.q)} with "
+                               f"C1/C2 = {format_sig(c1 / c2)}")
     return {"R1": best[1], "R2": best[2], "C1": c1, "C2": c2, **common.gain_resistors(k)}
 
 
@@ -224,7 +227,8 @@ def elements(components: Mapping[str, float], model: OpAmp) -> tuple[Element, ..
 
 def _summary(parts: Mapping[str, float], fig: Figures) -> str:
     """The first reason of ``limits``: the design's ratios and gain."""
-    return (f"C1/C2 = {parts['C1'] / parts['C2']:.4g}, R1 = R2, gain {fig.gain:.4g} V/V"
+    return (f"C1/C2 = {format_sig(parts['C1'] / parts['C2'])}, R1 = R2, gain "
+            f"{format_sig(fig.gain)} V/V"
             + (" (follower)" if "Rf" not in parts else ""))
 
 

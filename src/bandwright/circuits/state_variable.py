@@ -38,6 +38,7 @@ from bandwright.circuits.base import Limits
 from bandwright.circuits.elements import Element, capacitor, opamp, resistor
 from bandwright.parts.opamp import OpAmp
 from bandwright.sections.section import Section
+from bandwright.parts.notation import format_sig
 
 __all__ = ["NAME", "KIND", "OPAMPS", "PARTS", "OPTIONAL_PARTS", "NETS", "REFERENCE",
            "INVERTING", "design", "elements", "limits", "natural_gain", "q_sensitivities",
@@ -75,8 +76,8 @@ def natural_gain(q: float) -> float:
 
 def _problems(section: Section) -> tuple[str, ...]:
     if section.q <= 0.5:
-        return (f"Q {section.q:.4g}: the summer's divider needs Q > 0.5 "
-                f"(natural gain 2Q - 1 = {natural_gain(section.q):.4g} V/V)",)
+        return (f"Q {format_sig(section.q)}: the summer's divider needs Q > 0.5 "
+                f"(natural gain 2Q - 1 = {format_sig(natural_gain(section.q))} V/V)",)
     return ()
 
 

@@ -26,7 +26,7 @@ from bandwright.diagnosis.fit import (DEG_PER_RAD, Measurement, SingleFit,
 from bandwright.diagnosis.model import DB_PER_NEPER, ChainModel, Variable
 from bandwright.inputs.sweep_file import Sweep, check_covers
 from bandwright.parts.eseries import SERIES_NAMES, is_member, neighbours
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_fixed, format_hz, format_si
 
 __all__ = ["Diagnosis", "Suspect", "Equivalent", "Fix", "StageFit", "diagnose",
            "NOISE_FLOOR_DB", "NOISE_FLOOR_DEG", "UNEXPLAINED_RATIO", "SIGNIFICANT_CHI2",
@@ -218,7 +218,7 @@ def _fix(model: ChainModel, audit, j: int, meas: Measurement) -> Fix:
     x = np.zeros(model.size)
     if var.kind == "GBW":
         text = (f"fit an op-amp whose GBW is at least the model's "
-                f"{var.nominal / 1e6:.3g} MHz as {var.part.split('.')[0]}")
+                f"{format_hz(var.nominal, significant=3)} as {var.part.split('.')[0]}")
         verdict = None
         if audit.has_mask:
             verdict = all(c.status != "fail" for c in _mask(audit.requirement,
@@ -239,7 +239,7 @@ def _fix(model: ChainModel, audit, j: int, meas: Measurement) -> Fix:
     if audit.has_mask:
         verdict = all(c.status != "fail" for c in _mask(audit.requirement, _responder(model, x)))
     unit = "Ω" if var.kind == "R" else "F"
-    text = f"replace {var.part} of stage {var.stage} with {format_value(best, unit)} ({series})"
+    text = f"replace {var.part} of stage {var.stage} with {format_si(best, unit)} ({series})"
     return Fix(part=var.part, value=best, series=series, text=text, mask_pass=verdict)
 
 
@@ -385,18 +385,21 @@ def _message(suspects, unexplained: bool, residual_db: float, noise_db: float,
              changes) -> str:
     if unexplained:
         return (f"no change of part values explains the measurement: the best fit leaves "
-                f"{residual_db:.3f} dB rms against a measurement noise of {noise_db:.3f} dB; "
+                f"{format_fixed(residual_db, 3)} dB rms against a measurement noise of "
+                f"{format_fixed(noise_db, 3)} dB; "
                 f"look for a wiring fault, a missing or extra part, or another topology")
     if not suspects:
         return (f"the measurement matches the chain as designed within its noise "
-                f"({residual_db:.3f} dB rms, noise {noise_db:.3f} dB)")
+                f"({format_fixed(residual_db, 3)} dB rms, noise {format_fixed(noise_db, 3)} dB)")
     s = suspects[0]
     if s.residual_db > UNEXPLAINED_RATIO * noise_db:
-        moved = ", ".join(f"{p} of stage {k} {c:+.1f} %" for k, p, c in changes[:4])
+        moved = ", ".join(f"{p} of stage {k} {format_fixed(c, 1, sign=True)} %" for k, p, c in changes[:4])
         return (f"no single part explains the measurement ({s.part} of stage {s.stage} alone "
-                f"leaves {s.residual_db:.3f} dB rms, noise {noise_db:.3f} dB); several parts "
+                f"leaves {format_fixed(s.residual_db, 3)} dB rms, noise "
+                f"{format_fixed(noise_db, 3)} dB); several parts "
                 f"are off together, most likely {moved}")
     alt = f" (or {', '.join(e.part + ' of stage ' + str(e.stage) for e in s.equivalent)})" \
         if s.equivalent else ""
-    return (f"stage {s.stage}: {s.part} {s.change_pct:+.1f} %{alt} explains the measurement "
-            f"({s.residual_db:.3f} dB rms left, noise {noise_db:.3f} dB)")
+    return (f"stage {s.stage}: {s.part} {format_fixed(s.change_pct, 1, sign=True)} %{alt} "
+            f"explains the measurement "
+            f"({format_fixed(s.residual_db, 3)} dB rms left, noise {format_fixed(noise_db, 3)} dB)")

@@ -260,7 +260,7 @@ def format_hz(value_hz: float, *, significant: int = 4) -> str:
 _PEOPLE_PREFIXES: dict[int, str] = {**_PRINT_PREFIXES, -6: "µ"}
 
 
-def format_si(value: float, unit: str, *, significant: int = 3) -> str:
+def format_si(value: float, unit: str, *, significant: int = 3, sign: bool = False) -> str:
     """Print a figure for people: the number, a space, the SI prefix and the unit.
 
     The one engineering formatter of the reports (terminal, HTML, plots, messages); JSON
@@ -274,6 +274,8 @@ def format_si(value: float, unit: str, *, significant: int = 3) -> str:
         "V", "Vpk", "V rms", "Ω", "F", "Hz", "V/µs", "A"...
     significant : int, optional
         Significant digits kept (3 by default).
+    sign : bool, optional
+        Print "+" before a value that is not negative (a shift or a margin: "+1.2 V").
 
     Returns
     -------
@@ -288,10 +290,12 @@ def format_si(value: float, unit: str, *, significant: int = 3) -> str:
     """
     value = float(value)
     if not math.isfinite(value):
-        return f"{value} {unit}".strip()
+        return f"{'+' if sign and value > 0 else ''}{value} {unit}".strip()
     text = _engineering(value, significant, _PEOPLE_PREFIXES)
     if text.startswith("-") and text.strip("-0.") == "":
         text = "0"
+    if sign and not text.startswith("-"):
+        text = "+" + text
     if "e" in text:
         return f"{text} {unit}".strip()
     number = text.rstrip("fpnµmkMGT")

@@ -24,7 +24,7 @@ from typing import Mapping
 
 import numpy as np
 
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_si
 
 __all__ = ["PartWindows", "impedance_scale", "violations"]
 
@@ -162,6 +162,6 @@ def violations(values: Mapping[str, float], windows: PartWindows = PartWindows()
     for i in np.flatnonzero((v < lo) | (v > hi)):
         unit, what = ("Ω", "resistor") if is_r[i] else ("F", "capacitor")
         side = "below" if v[i] < lo[i] else "above"
-        out.append(f"{names[i]} = {format_value(v[i], unit)} is {side} the {what} window "
-                   f"{format_value(lo[i], unit)} … {format_value(hi[i], unit)}")
+        out.append(f"{names[i]} = {format_si(v[i], unit)} is {side} the {what} window "
+                   f"{format_si(lo[i], unit)} … {format_si(hi[i], unit)}")
     return out

@@ -10,35 +10,36 @@ from rich import box
 from rich.table import Table
 from rich.text import Text
 
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
 
 __all__ = ["requirement_text", "terminal_blocks", "html_section", "added_text",
            "noise_band_text"]
 
 
 def _hz(f: float) -> str:
-    return format_value(f, "Hz")
+    return format_hz(f, significant=3)
 
 
 def _uv(v: float) -> str:
-    return f"{v * 1e6:.4g} µV"
+    return format_si(v, "V", significant=4)
 
 
 def requirement_text(conv) -> str:
     """The `[converter]` as understood, one line."""
     parts = [f"{conv.bits}-bit at {_hz(conv.sample_rate_hz)} (fs/2 = {_hz(conv.nyquist_hz)})",
-             f"full scale {conv.full_scale_vpp:g} Vpp (±{conv.full_scale_vpk:g} V)"]
+             f"full scale {format_si(conv.full_scale_vpp, 'Vpp', significant=4)} "
+             f"(±{format_si(conv.full_scale_vpk, 'V', significant=4)})"]
     if conv.enob is not None:
-        parts.append(f"ENOB {conv.enob:g}")
+        parts.append(f"ENOB {format_sig(conv.enob)}")
     load = []
     if conv.input_ohms is not None:
-        load.append(format_value(conv.input_ohms, "Ω"))
+        load.append(format_si(conv.input_ohms, "Ω"))
     if conv.input_farads > 0:
-        load.append(format_value(conv.input_farads, "F"))
+        load.append(format_si(conv.input_farads, "F"))
     parts.append("input " + (" ∥ ".join(load) if load else "unloaded"))
     lim = "1 LSB" if conv.max_alias_dbfs is None else "asked"
-    parts.append(f"folds below {conv.alias_limit_dbfs:.1f} dBFS ({lim})")
-    parts.append(f"peak aimed {conv.headroom_db:g} dB below full scale")
+    parts.append(f"folds below {format_fixed(conv.alias_limit_dbfs, 1)} dBFS ({lim})")
+    parts.append(f"peak aimed {format_sig(conv.headroom_db)} dB below full scale")
     return "; ".join(parts)
 
 
@@ -55,26 +56,29 @@ def noise_band_text(nz, fmt_hz) -> str | None:
     lo, hi = nz.wide_band_hz
     ratio = 20 * math.log10(nz.wide_vrms / nz.integrated_vrms) if nz.integrated_vrms > 0 \
         else math.inf
-    return (f"Noise integrated over {fmt_hz(nz.band_hz[0])}–{fmt_hz(nz.band_hz[1])} (the "
-            f"noise band); over the report's whole span {fmt_hz(lo)}–{fmt_hz(hi)} it is "
-            f"{_uv(nz.wide_vrms)} rms ({ratio:+.1f} dB): what a converter with no filter "
-            f"after it would see")
+    return (f"Noise integrated over {fmt_hz(nz.band_hz[0])}–{fmt_hz(nz.band_hz[1])} (the noise "
+            f"band); over the report's whole span {fmt_hz(lo)}–{fmt_hz(hi)} it is "
+            f"{_uv(nz.wide_vrms)} rms ({format_fixed(ratio, 1, sign=True)} dB): what a converter "
+            f"with no filter after it would see")
 
 
 def _lines(c) -> list[str]:
     conv = c.converter
     tau = "" if c.load_time_constant_s is None else \
-        f"; its input RC (input_ohms · input_farads) is {format_value(c.load_time_constant_s, 's')}"
+        f"; its input RC (input_ohms · input_farads) is {format_si(c.load_time_constant_s, 's')}"
     return [
-        f"Peak at the converter {c.peak_vpk:.4g} Vpk of ±{c.full_scale_vpk:.4g} V full scale: "
-        f"margin {c.margin_db:+.1f} dB (aim {conv.headroom_db:g} dB); {c.fill_gain_db:.1f} dB "
+        f"Peak at the converter {format_si(c.peak_vpk, 'Vpk', significant=4)} of "
+        f"±{format_si(c.full_scale_vpk, 'V', significant=4)} full scale: "
+        f"margin {format_fixed(c.margin_db, 1, sign=True)} dB (aim {format_sig(conv.headroom_db)} "
+        f"dB); {format_fixed(c.fill_gain_db, 1)} dB "
         f"of passband gain would put the peak at the aim",
         f"Noise at the converter over {_hz(c.band_hz[0])}–{_hz(c.band_hz[1])}: chain "
         f"{_uv(c.chain_vrms)}, folded from above fs/2 (to {_hz(c.folds[-1].top_hz)}) "
-        f"{_uv(c.folded_vrms)}, converter ({conv.effective_bits:g} bits: FS/2^N/√12 in band) "
-        f"{_uv(c.quantisation_vrms)}; total {_uv(c.total_vrms)} rms, "
+        f"{_uv(c.folded_vrms)}, converter ({format_sig(conv.effective_bits)} bits: FS/2^N/√12 in "
+        f"band) {_uv(c.quantisation_vrms)}; total {_uv(c.total_vrms)} rms, "
         f"{_uv(c.input_referred_vrms)} referred to the input; the {c.dominant_noise} dominates",
-        f"SNR at full input {c.snr_db:.1f} dB; dynamic range {c.dynamic_range_db:.1f} dB "
+        f"SNR at full input {format_fixed(c.snr_db, 1)} dB; dynamic range "
+        f"{format_fixed(c.dynamic_range_db, 1)} dB "
         f"(largest in-band signal before any node, the converter included, runs out of room)",
         f"Drive: settling a full-scale kick to 1 LSB in half a sample period needs about "
         f"{_hz(c.settle_gbw_hz)} GBW (a first-order estimate), the op-amp at the output has "

@@ -9,7 +9,7 @@ from typing import Any
 
 from rich.console import Console
 
-from bandwright.parts.notation import format_hz, format_value
+from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
 from bandwright.report.console_text import row as _row
 from bandwright.report.console_text import say as _say
 from bandwright.report.console_text import table as _table
@@ -63,7 +63,7 @@ def diagnosis_dict(d) -> dict[str, Any]:
 def _value(part: str, value: float | None) -> str:
     if value is None:
         return "—"
-    return format_value(value, "Ω" if part.startswith("R") else "F")
+    return format_si(value, "Ω" if part.startswith("R") else "F")
 
 
 def _fhz(f: float) -> str:
@@ -78,9 +78,9 @@ def _rows(d) -> list[tuple[str, ...]]:
     rows = []
     for i, s in enumerate(d.suspects, start=1):
         eq = ", ".join(f"{e.part}{'' if e.stage == s.stage else f' (stage {e.stage})'} "
-                       f"{e.change_pct:+.1f} %" for e in s.equivalent) or "—"
-        rows.append((str(i), str(s.stage), s.part, f"{s.change_pct:+.1f} %",
-                     f"{100 * s.confidence:.0f} %", f"{s.residual_db:.3f} dB", eq,
+                       f"{format_fixed(e.change_pct, 1, sign=True)} %" for e in s.equivalent) or "—"
+        rows.append((str(i), str(s.stage), s.part, f"{format_fixed(s.change_pct, 1, sign=True)} %",
+                     f"{format_fixed(100 * s.confidence, 0)} %", f"{format_fixed(s.residual_db, 3)} dB", eq,
                      _value(s.part, s.fix.value), _verdict(s.fix.mask_pass)))
     return rows
 
@@ -106,10 +106,10 @@ def render_diagnosis(a, console: Console) -> None:
                   f"{', gain and phase' if d.sweep.phase_deg is not None else ', gain only'}",
          style="bold")
     _say(console, f"Diagnosis: {d.message}.")
-    _say(console, f"Residual {d.residual_db:.3f} dB rms (measured − fitted) against a noise of "
-                  f"{d.noise_db:.3f} dB (the sweep's point-to-point roughness); "
-                  f"{'UNEXPLAINED' if d.unexplained else 'explained'}. The measured chain "
-                  f"{_verdict(d.mask_pass) if d.mask_pass is not None else 'has no mask'}.")
+    _say(console, f"Residual {format_fixed(d.residual_db, 3)} dB rms (measured − fitted) against a "
+                  f"noise of {format_fixed(d.noise_db, 3)} dB (the sweep's point-to-point "
+                  f"roughness); {'UNEXPLAINED' if d.unexplained else 'explained'}. The measured "
+                  f"chain {_verdict(d.mask_pass) if d.mask_pass is not None else 'has no mask'}.")
     if d.suspects:
         t = _table(_suspects_title(d), *_HEAD, wrap=("cannot be told from",))
         for r in _rows(d):
@@ -121,14 +121,14 @@ def render_diagnosis(a, console: Console) -> None:
     st = _table("Stages, as designed → as fitted", "#", "topology", "f0", "Q", "gain dB")
     for s in d.stages:
         f0 = "—" if s.kind == "gain" else f"{_fhz(s.planned.f0_hz)} → {_fhz(s.fitted.f0_hz)}"
-        q = "—" if s.kind == "gain" else f"{s.planned.q:.4g} → {s.fitted.q:.4g}"
+        q = "—" if s.kind == "gain" else f"{format_sig(s.planned.q)} → {format_sig(s.fitted.q)}"
         g = f"{_db(s.planned.gain)} → {_db(s.fitted.gain)}"
         _row(st, str(s.position), s.topology, f0, q, g)
     _say(console, st)
 
 
 def _db(x: float) -> str:
-    return f"{20 * math.log10(abs(x)):+.2f}" if x and math.isfinite(x) else "—"
+    return format_fixed(20 * math.log10(abs(x)), 2, sign=True) if x and math.isfinite(x) else "—"
 
 
 def diagnosis_html(a, plots: dict | None) -> str:
@@ -142,8 +142,8 @@ def diagnosis_html(a, plots: dict | None) -> str:
            f"<p>{e(d.sweep.path)}: {d.sweep.freq_hz.size} points, "
            f"{e(_fhz(d.sweep.freq_hz[0]))} to {e(_fhz(d.sweep.freq_hz[-1]))}.</p>",
            f'<div class="verdict {status}">{e(d.message[:1].upper() + d.message[1:])}.</div>',
-           f"<p>Residual {d.residual_db:.3f} dB rms (measured − fitted) against a noise of "
-           f"{d.noise_db:.3f} dB; the measured chain "
+           f"<p>Residual {format_fixed(d.residual_db, 3)} dB rms (measured − fitted) against a "
+           f"noise of {format_fixed(d.noise_db, 3)} dB; the measured chain "
            f"{e(_verdict(d.mask_pass)) if d.mask_pass is not None else 'has no mask'}.</p>"]
     if d.suspects:
         out.append(f"<h3>{e(_suspects_title(d))}</h3>")

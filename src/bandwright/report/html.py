@@ -19,7 +19,7 @@ from typing import TYPE_CHECKING, Sequence
 from bandwright import __version__
 from bandwright.analysis.montecarlo import YieldResult
 from bandwright.checks.base import Check, worst_status
-from bandwright.parts.notation import format_hz, format_value
+from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
 from bandwright.report import converter_view, words, yield_text
 from bandwright.report.bom import bom_for
 from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
@@ -149,7 +149,7 @@ def _status(s: str) -> str:
 
 def _db(x: float) -> str:
     # rounded first so that a gain a hair under 1 reads +0.00, not -0.00
-    return f"{round(20 * math.log10(abs(x)), 2) + 0.0:+.2f}" if x else "—"
+    return format_fixed(20 * math.log10(abs(x)), 2, sign=True) if x else "—"
 
 
 # --------------------------------------------------------------------------- sections
@@ -163,26 +163,28 @@ def _summary(s: Subject) -> str:
     if s.has_mask:
         rows.append(("passband", f"{format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre "
                                  f"{format_hz(pb.center_hz)}, width {format_hz(pb.bandwidth_hz)})"))
-        rows.append(("passband gain", f"{pb.gain_db:g} dB ± {pb.gain_tolerance_db:g} dB; at "
-                                      f"most {pb.max_loss_db:.4g} dB loss across the band"))
+        rows.append(("passband gain", f"{format_sig(pb.gain_db)} dB ± "
+                                      f"{format_sig(pb.gain_tolerance_db)} dB; at most "
+                                      f"{format_sig(pb.max_loss_db, 4)} dB loss across the band"))
         for sp in req.stopband:
-            rows.append(("stopband", f"at least {sp.min_loss_db:g} dB down at "
+            rows.append(("stopband", f"at least {format_sig(sp.min_loss_db)} dB down at "
                                      f"{format_hz(sp.freq_hz)}{converter_view.added_text(sp)}"))
     else:
         rows.append(("mask", "none stated in the audit file: the response is not checked; "
                              f"grids use its −3 dB band {format_hz(pb.low_hz)} to "
                              f"{format_hz(pb.high_hz)}"))
-    tones = ", ".join(f"{t.vpk:g} Vpk at {format_hz(t.freq_hz)}" for t in inp.tones) or "none"
-    rows.append(("input", f"up to {inp.max_vpk:g} Vpk in band, from "
-                          f"{format_value(inp.source_ohms, 'Ω')} source"))
+    tones = ", ".join(f"{format_si(t.vpk, 'Vpk', significant=4)} at {format_hz(t.freq_hz)}" for t in inp.tones) or "none"
+    rows.append(("input", f"up to {format_si(inp.max_vpk, 'Vpk', significant=4)} in band, from "
+                          f"{format_si(inp.source_ohms, 'Ω')} source"))
     rows.append(("out-of-band tones", tones))
-    rows.append(("supply", f"{req.supply.rails_v[0]:g} V / {req.supply.rails_v[1]:+g} V"))
+    rows.append(("supply", f"{format_si(req.supply.rails_v[0], 'V', significant=4)} / "
+                           f"{format_si(req.supply.rails_v[1], 'V', significant=4, sign=True)}"))
     if s.chain is not None:
         models = sorted({st.model.name for st in s.chain.stages})
         m = s.chain.stages[0].model
         rows.append(("op-amp", f"'{', '.join(models)}': {format_hz(m.gbw_hz, significant=3)} GBW, "
-                               f"{m.slew_v_per_us:g} V/µs, {m.noise_v_per_rthz * 1e9:.3g} "
-                               "nV/√Hz"))
+                               f"{format_sig(m.slew_v_per_us)} V/µs, "
+                               f"{format_si(m.noise_v_per_rthz, 'V/√Hz')}"))
     elif s.kind == "plan":
         m = s.source.model
         rows.append(("op-amp", f"'{m.name}': {format_hz(m.gbw_hz, significant=3)} GBW"))
@@ -194,17 +196,17 @@ def _summary(s: Subject) -> str:
     if conv is not None:
         rows.append(("converter", converter_view.requirement_text(conv)))
     if req.noise.max_output_vrms:
-        rows.append(("noise budget", f"{req.noise.max_output_vrms * 1e6:.4g} µV rms at the "
+        rows.append(("noise budget", f"{format_si(req.noise.max_output_vrms, 'V rms', significant=4)} at the "
                                      "output"))
-    rows.append(("temperature", f"{req.environment.temperature_c:g} °C"))
+    rows.append(("temperature", f"{format_sig(req.environment.temperature_c)} °C"))
     status, sentence = verdict_text(s.checks)
     out = ['<section id="summary"><h2>Summary</h2>',
            f'<div class="verdict {status}">Verdict: {_e(sentence)}</div>']
     if s.kind == "plan":
         p = s.source
         c = p.chosen.candidate
-        out.append(f"<p>Chosen: <b>{_e(c.family)} {_e(words.path_label(c.path))}</b>, order {c.order} "
-                   f"({_e(c.note)}) — {_e(p.why)}.</p>")
+        out.append(f"<p>Chosen: <b>{_e(c.family)} {_e(words.path_label(c.path))}</b>, order "
+                   f"{c.order} ({_e(c.note)}) — {_e(p.why)}.</p>")
     else:
         out.append(f"<p>Audit of the chain in <code>{_e(s.path)}</code>.</p>")
     an = s.analyses
@@ -212,16 +214,18 @@ def _summary(s: Subject) -> str:
         worst = min(an.nodes, key=lambda n: n.margin_db)
         nz = an.noise
         figs = [
-            (f"{nz.integrated_vrms * 1e6:.4g} µV rms",
+            (format_si(nz.integrated_vrms, 'V rms', significant=4),
              f"output noise, {format_hz(nz.band_hz[0])}–{format_hz(nz.band_hz[1])}"),
-            (f"{an.snr_db:.1f} dB", "signal to noise at full input"),
-            (f"{an.dynamic_range_db:.1f} dB", "dynamic range"),
-            (f"{worst.margin_db:+.1f} dB", f"worst headroom margin ({worst.net})"),
+            (f"{format_fixed(an.snr_db, 1)} dB", "signal to noise at full input"),
+            (f"{format_fixed(an.dynamic_range_db, 1)} dB", "dynamic range"),
+            (f"{format_fixed(worst.margin_db, 1, sign=True)} dB", f"worst headroom margin "
+                                                                  f"({worst.net})"),
             (f"{len(s.chain.stages)}", "stages"),
         ]
         y = s.yield_result
         if isinstance(y, YieldResult):
-            figs.append((f"{100 * y.yield_fraction:.1f} %", f"yield, {y.samples} boards"))
+            figs.append((f"{format_fixed(100 * y.yield_fraction, 1)} %", f"yield, {y.samples} "
+                                                                         f"boards"))
         out.append('<div class="figures">' + "".join(
             f"<div><b>{_e(v)}</b><span>{_e(k)}</span></div>" for v, k in figs) + "</div>")
     out.append("<h3>The requirement as understood</h3><dl class=\"req\">")
@@ -239,16 +243,16 @@ def _candidates(s: Subject) -> str:
     rows, classes = [], []
     for i, d in enumerate(s.source.designs):
         c, an = d.candidate, d.analyses
-        margin = f"{an.worst_margin_db:+.1f} dB" if an else "—"
-        noise = f"{an.noise.integrated_vrms * 1e6:.3g} µV" if an else "—"
-        dr = f"{an.dynamic_range_db:.1f} dB" if an else "—"
+        margin = f"{format_fixed(an.worst_margin_db, 1, sign=True)} dB" if an else "—"
+        noise = format_si(an.noise.integrated_vrms, 'V') if an else "—"
+        dr = f"{format_fixed(an.dynamic_range_db, 1)} dB" if an else "—"
         state = words.candidate_state(d.buildable, d.failures)
         y = getattr(d, "yield_result", None)
         yv = y.yield_fraction if isinstance(y, YieldResult) else None
         rows.append([("→ " if i == 0 else "") + str(i + 1), _e(c.family), _e(words.path_label(c.path)),
                      str(c.order), str(len(c.sections)),
-                     str(d.opamps) if d.buildable else "—", f"{c.highest_q:.3g}", _e(margin),
-                     _e(noise), _e(dr), "—" if yv is None else f"{100 * yv:.1f} %",
+                     str(d.opamps) if d.buildable else "—", format_sig(c.highest_q, 3), _e(margin),
+                     _e(noise), _e(dr), "—" if yv is None else f"{format_fixed(100 * yv, 1)} %",
                      _e(state)])
         classes.append("chosen" if i == 0 else "")
     out.append(_table(["#", "family", "path", "order", "sections", "op-amps", "highest Q",
@@ -256,9 +260,8 @@ def _candidates(s: Subject) -> str:
                       num_cols=(3, 4, 5, 6, 7, 8, 9, 10), row_classes=classes))
     out.append(f'<p class="note">Ranked: buildable first, then fewest failing checks (the '
                f"higher yield between two that miss it), fewest op-amps, fewest sections, lowest "
-               f"highest Q, widest dynamic range. The yield is not run for a candidate that "
-               f"fails other checks. "
-               f"{_e(s.source.why).capitalize()}.</p></section>")
+               f"highest Q, widest dynamic range. The yield is not run for a candidate that fails "
+               f"other checks. {_e(s.source.why).capitalize()}.</p></section>")
     return "".join(out)
 
 
@@ -271,8 +274,8 @@ def _chain(s: Subject, schematics: dict[str, bytes]) -> str:
             sec = a.section
             why = "; ".join(f"{n}: {r}" for n, r in a.rejected) if a.realization is None \
                 else f"built as {a.realization.topology}"
-            rows.append([str(i + 1), _e(sec.kind), _e(format_hz(sec.f0_hz)), f"{sec.q:.4g}",
-                         f"{sec.gain:.3g}", _e(why)])
+            rows.append([str(i + 1), _e(sec.kind), _e(format_hz(sec.f0_hz)), format_sig(sec.q),
+                         format_sig(sec.gain, 3), _e(why)])
         out.append('<p>No circuit builds at least one section with this op-amp:</p>')
         out.append(_table(["#", "kind", "f0", "Q", "gain", "what stops it"], rows,
                           num_cols=(0, 2, 3, 4)))
@@ -285,7 +288,7 @@ def _chain(s: Subject, schematics: dict[str, bytes]) -> str:
     for st in s.chain.stages:
         tg, b = st.target, st.built
         f0 = "—" if st.kind == "gain" else f"{format_hz(tg.f0_hz)} → {format_hz(b.f0_hz)}"
-        q = "—" if st.kind == "gain" else f"{tg.q:.4g} → {b.q:.4g}"
+        q = "—" if st.kind == "gain" else f"{format_sig(tg.q)} → {format_sig(b.q)}"
         ops = sum(1 for e in st.elements if e.kind == "opamp")
         rows.append([str(st.position), _e(st.kind), _e(st.topology), _e(f0), _e(q),
                      _e(f"{_db(tg.gain)} → {_db(b.gain)}"), str(ops)])
@@ -323,11 +326,11 @@ def _stages(s: Subject, schematics: dict[str, bytes]) -> str:
             figs.append((words.IDEAL_PARTS, st.ideal.f0_hz, st.ideal.q, st.ideal.gain))
         figs.append((words.BUILT, st.built.f0_hz, st.built.q, st.built.gain))
         rows = [[_e(name), "—" if st.kind == "gain" else _e(format_hz(f0)),
-                 "—" if st.kind == "gain" else f"{q:.4g}", f"{g:.4g}", _e(_db(g))]
+                 "—" if st.kind == "gain" else format_sig(q), format_sig(g), _e(_db(g))]
                 for name, f0, q, g in figs]
         out.append(_table(["", "f0", "Q", "gain (V/V)", "gain (dB)"], rows,
                           num_cols=(1, 2, 3, 4)))
-        parts = [[_e(n), _e(format_value(v, "Ω" if n.startswith("R") else "F"))]
+        parts = [[_e(n), _e(format_si(v, "Ω" if n.startswith("R") else "F"))]
                  for n, v in st.components]
         if parts:
             out.append(_table(["part", "value"], parts, num_cols=(1,)))
@@ -352,12 +355,12 @@ def _levels(s: Subject) -> str:
     status = {k.net: k.status for k in s.checks if k.id == "headroom" and k.net}
     rows = []
     for n in s.analyses.nodes:
-        load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
-        rows.append([_e(n.net), _e(net_label(s.chain, n.net)), f"{n.dc_v:+.4g} V",
-                     f"{n.signal_vpk:.3g} Vpk",
-                     f"{n.peak_vpk:.3g} Vpk", f"{n.limit_vpk:.3g} Vpk",
-                     f"{n.margin_db:+.1f} dB", _status(status.get(n.net, "pass")),
-                     _e(f"{n.slew_needed_v_per_us:.3g} V/µs"), _e(load)])
+        load = format_si(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
+        rows.append([_e(n.net), _e(net_label(s.chain, n.net)), format_si(n.dc_v, 'V', significant=4, sign=True),
+                     format_si(n.signal_vpk, 'Vpk'),
+                     format_si(n.peak_vpk, 'Vpk'), format_si(n.limit_vpk, 'Vpk'),
+                     f"{format_fixed(n.margin_db, 1, sign=True)} dB", _status(status.get(n.net, "pass")),
+                     _e(f"{format_sig(n.slew_needed_v_per_us, 3)} V/µs"), _e(load)])
     out.append(_table(["net", "where", "bias", "in-band signal", "peak (signal + tones)",
                        "limit (room around the bias)", "margin", "verdict", "slew needed",
                        "least load"], rows,
@@ -429,10 +432,11 @@ def _noise(s: Subject) -> str:
         return "".join(out)
     nz = an.noise
     out.append(
-        f"<p>Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over "
+        f"<p>Output noise {format_si(nz.integrated_vrms, 'V rms', significant=4)} over "
         f"{_e(format_hz(nz.band_hz[0]))}–{_e(format_hz(nz.band_hz[1]))}; SNR at full input "
-        f"{an.snr_db:.1f} dB; dynamic range {an.dynamic_range_db:.1f} dB (input could grow "
-        f"{an.worst_margin_db:+.1f} dB before the first net clips).</p>")
+        f"{format_fixed(an.snr_db, 1)} dB; dynamic range {format_fixed(an.dynamic_range_db, 1)} "
+        f"dB (input could grow "
+        f"{format_fixed(an.worst_margin_db, 1, sign=True)} dB before the first net clips).</p>")
     wide = converter_view.noise_band_text(nz, format_hz)
     if wide:
         out.append(f"<p>{_e(wide)}.</p>")

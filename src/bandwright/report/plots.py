@@ -40,6 +40,7 @@ from matplotlib.patches import Patch, Rectangle
 from matplotlib.ticker import EngFormatter, MaxNLocator, NullFormatter, NullLocator
 
 from bandwright.analysis.levels import net_transfers
+from bandwright.parts.notation import format_fixed, format_si, format_sig
 from bandwright.parts.notation import format_hz as fmt_hz
 from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
 from bandwright.sections.split import cascade_response
@@ -158,7 +159,7 @@ def _mask_patches(ax: Axes, s: Subject, x_lo: float, x_hi: float, y_lo: float, y
         ax.add_patch(Rectangle((a, top), b - a, y_hi - top, **kw))
         ax.plot([sp.freq_hz], [top], marker="v", color=FORBIDDEN, markersize=7, linestyle="")
         if label_points and x_lo < sp.freq_hz < x_hi:
-            ax.annotate(f"{sp.min_loss_db:g} dB down\nat {fmt_hz(sp.freq_hz)}", (sp.freq_hz, top),
+            ax.annotate(f"{format_sig(sp.min_loss_db)} dB down\nat {fmt_hz(sp.freq_hz)}", (sp.freq_hz, top),
                         xytext=(0, -10), textcoords="offset points", fontsize=7.5,
                         ha="center", va="top", color=LIMIT,
                         bbox=dict(boxstyle="round,pad=0.15", facecolor="white", alpha=0.8,
@@ -206,7 +207,8 @@ def _response(s: Subject) -> Figure:
     _response_axes(zoom, s, f, built_db, ideal_db, z_lo, z_hi, zy_lo, zy_hi)
     zoom.set_title("Passband, zoomed", loc="left", fontsize=11)
     if s.has_mask:
-        zoom.annotate(f"allowed: {floor:.4g} to {ceiling:.4g} dB\nfrom {fmt_hz(pb.low_hz)} to "
+        zoom.annotate(f"allowed: {format_sig(floor, 4)} to {format_sig(ceiling, 4)} dB\nfrom "
+                      f"{fmt_hz(pb.low_hz)} to "
                       f"{fmt_hz(pb.high_hz)}", (0.02, 0.02), xycoords="axes fraction",
                       fontsize=8, color="#333333",
                       bbox=dict(boxstyle="round,pad=0.3", facecolor="white", alpha=0.85,
@@ -257,13 +259,13 @@ def _levels(s: Subject) -> Figure:
                     markeredgecolor="white", markeredgewidth=0.5)
             lows.extend(tl[tl > 0])
     ax.axhline(limit, color=LIMIT, linestyle="--", linewidth=1.2,
-               label=f"swing limit {limit:.3g} Vpk")
+               label=f"swing limit {format_si(limit, 'Vpk')}")
     for n in an.nodes:
         if not math.isclose(n.limit_vpk, limit):
             ax.axhline(n.limit_vpk, color=LIMIT, linestyle=":", linewidth=1.0)
     for ft, vt in zip(tone_f, tone_v):
         ax.axvline(ft, color="#9a9a9a", linewidth=0.8, linestyle="-.")
-        ax.annotate(f"tone {vt:g} Vpk", (ft, 1.0), xycoords=("data", "axes fraction"),
+        ax.annotate(f"tone {format_si(vt, 'Vpk', significant=4)}", (ft, 1.0), xycoords=("data", "axes fraction"),
                     xytext=(3, -12), textcoords="offset points", fontsize=8, color="#555555")
     if tones:
         ax.plot([], [], linestyle="", marker="D", color="#555555",
@@ -276,7 +278,8 @@ def _levels(s: Subject) -> Figure:
     ax.set_ylim(floor, limit * 3.0)
     ax.yaxis.set_major_formatter(EngFormatter(unit="V", sep=" "))
     ax.set_ylabel("level at the net (peak, log scale)")
-    ax.set_title(f"Node levels for {req.input.max_vpk:g} Vpk in at each frequency",
+    ax.set_title(f"Node levels for {format_si(req.input.max_vpk, 'Vpk', significant=4)} in at "
+                 f"each frequency",
                  loc="left", fontsize=11)
     fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncols=3,
                fontsize=7.5, frameon=False)
@@ -293,8 +296,10 @@ def _levels(s: Subject) -> Figure:
     span = max([abs(m) for m in margins] + [1.0])
     bars.set_xlim(min(0.0, min(margins)) - 0.05 * span, max(0.0, max(margins)) + 0.8 * span)
     for yi, m, n in zip(y, margins, an.nodes):
-        bars.annotate(f"{m:+.1f} dB\n{n.peak_vpk:.3g} / {n.limit_vpk:.3g} Vpk\n"
-                      f"bias {n.dc_v:+.3g} V; room ↑{n.upper_margin_v:.3g} ↓{n.lower_margin_v:.3g} V",
+        bars.annotate(f"{format_fixed(m, 1, sign=True)} dB\n{format_si(n.peak_vpk, 'Vpk')} / "
+                      f"{format_si(n.limit_vpk, 'Vpk')}\nbias {format_si(n.dc_v, 'V', sign=True)}; "
+                      f"room ↑{format_si(n.upper_margin_v, 'V')} "
+                      f"↓{format_si(n.lower_margin_v, 'V')}",
                       (max(m, 0.0), yi), xytext=(4, 0), textcoords="offset points",
                       va="center", fontsize=7.5)
     bars.set_xlabel("headroom margin (dB)")
@@ -312,12 +317,12 @@ def _noise(s: Subject) -> Figure:
     scale, unit = (1e9, "nV") if float(np.max(nz.output_v_per_rthz)) < 1e-6 else (1e6, "µV")
     fig, (ax,) = _figure(1)
     ax.plot(f, scale * nz.output_v_per_rthz, color="#111111", linewidth=2.2,
-            label=f"total: {nz.integrated_vrms * 1e6:.4g} µV rms over the band")
+            label=f"total: {format_si(nz.integrated_vrms, 'V rms', significant=4)} over the band")
     top = nz.contributions_vrms[:TOP_CONTRIBUTORS]
     for k, (name, vrms) in enumerate(top):
         ax.plot(f, scale * np.sqrt(nz.contributions_psd[name]), linewidth=1.3,
                 color=CONTRIBUTOR_COLOURS[k % len(CONTRIBUTOR_COLOURS)],
-                label=f"{source_label(chain, name)}: {vrms * 1e6:.3g} µV rms")
+                label=f"{source_label(chain, name)}: {format_si(vrms, 'V rms')}")
     rest = [name for name, _ in nz.contributions_vrms[TOP_CONTRIBUTORS:]]
     if rest:
         psd = np.sum([nz.contributions_psd[name] for name in rest], axis=0)
@@ -335,7 +340,7 @@ def _noise(s: Subject) -> Figure:
     lo_y = min([float(np.min(c[c > 0])) for c in curves if np.any(c > 0)] + [float(dens.min())])
     _plain_log_y(ax, 0.7 * lo_y, 1.4 * float(dens.max()))
     ax.set_ylabel(f"output noise density ({unit}/√Hz, log scale)")
-    ax.set_title(f"Output noise density, {s.requirement.environment.temperature_c:g} °C; "
+    ax.set_title(f"Output noise density, {format_sig(s.requirement.environment.temperature_c)} °C; "
                  "largest contributions", loc="left", fontsize=11)
     fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncols=2,
                fontsize=8, frameon=False)
@@ -395,9 +400,10 @@ def _yield(s: Subject) -> Figure | None:
         axis.set_ylabel("gain (dB)")
     lo_i, hi_i = yr.interval
     sp = yr.spreads
-    ax.set_title(f"Tolerance spread: {100 * yr.yield_fraction:.1f} % of boards pass "
-                 f"(95 % interval {100 * lo_i:.1f}–{100 * hi_i:.1f} %)", loc="left", fontsize=11)
-    zoom.set_title(f"Passband; R ±{sp.resistor_pct:g} %, C ±{sp.capacitor_pct:g} %",
+    ax.set_title(f"Tolerance spread: {format_fixed(100 * yr.yield_fraction, 1)} % of boards pass "
+                 f"(95 % interval {format_fixed(100 * lo_i, 1)}–{format_fixed(100 * hi_i, 1)} %)", loc="left", fontsize=11)
+    zoom.set_title(f"Passband; R ±{format_sig(sp.resistor_pct)} %, C "
+                   f"±{format_sig(sp.capacitor_pct)} %",
                    loc="left", fontsize=11)
     handles, labels = ax.get_legend_handles_labels()
     if s.has_mask:
@@ -494,9 +500,9 @@ def _folds(s: Subject) -> Figure | None:
     ax.axvspan(pb.low_hz, pb.high_hz, color="#2f6f9f", alpha=0.08, label="passband")
     ax.axhline(c.folds[0].limit_dbfs if c.folds else conv.alias_limit_dbfs, color=LIMIT,
                linewidth=1.4, linestyle="--",
-               label=f"alias limit {conv.alias_limit_dbfs:.1f} dBFS")
+               label=f"alias limit {format_fixed(conv.alias_limit_dbfs, 1)} dBFS")
     ax.axhline(-c.margin_db, color=BUILT, linewidth=1.2,
-               label=f"peak at the converter {-c.margin_db:+.1f} dBFS")
+               label=f"peak at the converter {format_fixed(-c.margin_db, 1, sign=True)} dBFS")
     levels = [-c.margin_db, conv.alias_limit_dbfs]
 
     def rms_dbfs(v: float) -> float:
@@ -504,15 +510,17 @@ def _folds(s: Subject) -> Figure | None:
 
     q_db, n_db = rms_dbfs(c.quantisation_vrms), rms_dbfs(c.chain_vrms)
     ax.axhline(q_db, color="#7b1fa2", linewidth=1.0, linestyle=":",
-               label=f"converter noise {q_db:.1f} dBFS ({conv.effective_bits:g} bits, band)")
+               label=f"converter noise {format_fixed(q_db, 1)} dBFS "
+                     f"({format_sig(conv.effective_bits)} bits, band)")
     ax.axhline(n_db, color="#5b8c2a", linewidth=1.0, linestyle="-.",
-               label=f"chain noise to fs/2 {n_db:.1f} dBFS")
+               label=f"chain noise to fs/2 {format_fixed(n_db, 1)} dBFS")
     levels += [q_db, n_db]
     for k, f in enumerate(c.folds):
         colour = STATUS_COLOUR["pass" if f.passes else "fail"]
         if f.source == "noise":
             ax.hlines(f.level_dbfs, pb.low_hz, pb.high_hz, color=colour, linewidth=4,
-                      label=f"noise above fs/2 folded onto the passband {f.level_dbfs:.1f} dBFS")
+                      label=f"noise above fs/2 folded onto the passband "
+                            f"{format_fixed(f.level_dbfs, 1)} dBFS")
             levels.append(f.level_dbfs)
             continue
         ax.vlines(f.alias_hz, -400, f.level_dbfs, color=colour, linewidth=2)
@@ -603,16 +611,17 @@ def diagnosis_figure(d: Diagnosis) -> Figure:
                 top + 5)
     ax.set_ylabel("gain (dB)")
     lead = d.suspects[0] if d.suspects and not d.unexplained else None
-    title = "Measured sweep: " + (f"stage {lead.stage} {lead.part} {lead.change_pct:+.1f} %"
+    title = "Measured sweep: " + (f"stage {lead.stage} {lead.part} "
+                                  f"{format_fixed(lead.change_pct, 1, sign=True)} %"
                                   if lead else "unexplained" if d.unexplained
                                   else "as designed")
     ax.set_title(title, loc="left", fontsize=11)
     ax.legend(loc="lower center", fontsize=8, framealpha=0.9)
     r = d.sweep.gain_db - d.fitted_db
     res.axhspan(-d.noise_db, d.noise_db, color=IDEAL, alpha=0.25, linewidth=0,
-                label=f"± noise ({d.noise_db:.3f} dB)")
+                label=f"± noise ({format_fixed(d.noise_db, 3)} dB)")
     res.plot(f, r, color=MEASURED, marker=".", markersize=2.5, linestyle="",
-             label=f"measured − fitted ({d.residual_db:.3f} dB rms)")
+             label=f"measured − fitted ({format_fixed(d.residual_db, 3)} dB rms)")
     lim = max(5 * d.noise_db, float(np.max(np.abs(r))) * 1.1)
     res.set_ylim(-lim, lim)
     res.set_ylabel("residual (dB)")

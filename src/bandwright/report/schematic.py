@@ -19,7 +19,7 @@ from schemdraw import flow
 
 from bandwright.chain.graph import CHAIN_INPUT, Chain, global_net
 from bandwright.circuits.elements import GROUND, Element
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_fixed, format_si, format_sig
 from bandwright.parts.notation import format_hz as fmt_hz
 from bandwright.report.schematic_layout import Layout, layout, opamp_pins
 
@@ -37,7 +37,7 @@ __all__ = ["stage_svg", "block_svg", "schematic_files", "elements_svg", "Layout"
 
 
 def _value(e: Element) -> str:
-    return format_value(e.value, "Ω" if e.kind == "R" else "F")
+    return format_si(e.value, "Ω" if e.kind == "R" else "F")
 
 
 def elements_svg(elements: Sequence[Element], *, net_names: dict[str, str] | None = None,
@@ -138,23 +138,23 @@ def stage_svg(chain: Chain, stage: Stage, *, trims: dict[str, str] | None = None
     """
     names = _local_names(chain, stage)
     t = stage.built
-    what = "" if stage.kind == "gain" else f", f0 {fmt_hz(t.f0_hz)}, Q {t.q:.3g}"
-    title = (f"Stage {stage.position}: {stage.kind}, {stage.topology}{what}, gain {t.gain:.3g} "
-             f"(as built)")
+    what = "" if stage.kind == "gain" else f", f0 {fmt_hz(t.f0_hz)}, Q {format_sig(t.q, 3)}"
+    title = (f"Stage {stage.position}: {stage.kind}, {stage.topology}{what}, gain "
+             f"{format_sig(t.gain, 3)} (as built)")
     return elements_svg(stage.elements, net_names=names, title=title, trims=trims)
 
 
 def _db(gain: float) -> str:
-    # round first so that a gain a hair below 1 shows as +0.0 dB, not -0.0 dB
-    return f"{round(20 * math.log10(abs(gain)), 1) + 0.0:+.1f} dB"
+    # a gain a hair below 1 shows as +0.0 dB, not -0.0 dB
+    return f"{format_fixed(20 * math.log10(abs(gain)), 1, sign=True)} dB"
 
 
 def _box_text(stage: Stage) -> str:
     b = stage.built
     lines = [f"stage {stage.position}", stage.topology, stage.kind]
     if stage.kind != "gain":
-        lines.append(f"f0 {fmt_hz(b.f0_hz)}, Q {b.q:.3g}")
-    lines.append(f"gain {b.gain:.3g} ({_db(b.gain)})" if b.gain else "gain 0")
+        lines.append(f"f0 {fmt_hz(b.f0_hz)}, Q {format_sig(b.q, 3)}")
+    lines.append(f"gain {format_sig(b.gain, 3)} ({_db(b.gain)})" if b.gain else "gain 0")
     return "\n".join(lines)
 
 
@@ -174,7 +174,7 @@ def block_svg(chain: Chain, *, per_row: int = 4) -> bytes:
     """
     w, h, gap = 5.0, 3.4, 1.8
     d = schemdraw.Drawing(canvas="svg", show=False, fontsize=12, lw=1.3, margin=0.7)
-    src = format_value(chain.source_ohms, "Ω") if chain.source_ohms else "0 Ω"
+    src = format_si(chain.source_ohms, "Ω") if chain.source_ohms else "0 Ω"
     d.add(elm.Dot(open=True).at((-gap, 0)).label(f"in\n(source {src})", loc="left"))
     prev = (-gap, 0.0)
     for k, st in enumerate(chain.stages):
@@ -213,8 +213,8 @@ def schematic_files(chain: Chain | None, *,
     trims: dict[int, dict[str, str]] = {}
     for s in (tuning_plan.steps if tuning_plan is not None else ()):
         trims.setdefault(s.stage, {})[s.trims] = (
-            f"{format_value(s.design_ohms, 'Ω')} = {format_value(s.fixed_ohms, 'Ω')} + "
-            f"{format_value(s.trimmer_ohms, 'Ω')} trim")
+            f"{format_si(s.design_ohms, 'Ω')} = {format_si(s.fixed_ohms, 'Ω')} + "
+            f"{format_si(s.trimmer_ohms, 'Ω')} trim")
     out = {f"schematic_stage{st.position}.svg": stage_svg(chain, st,
                                                           trims=trims.get(st.position))
            for st in chain.stages}

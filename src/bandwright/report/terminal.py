@@ -8,7 +8,7 @@ from typing import TYPE_CHECKING, Sequence
 import numpy as np
 from rich.console import Console
 
-from bandwright.parts.notation import format_hz, format_value
+from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
 from bandwright.report import converter_view
 from bandwright.report import words, yield_text
 from bandwright.report.console_text import row as _row
@@ -30,25 +30,30 @@ __all__ = ["render_plan", "render_audit"]
 
 
 def _db(x: float) -> str:
-    return f"{20 * math.log10(abs(x)):+.2f}" if x else "—"
+    return format_fixed(20 * math.log10(abs(x)), 2, sign=True) if x else "—"
 
 
 def _requirement(req: Requirement, model: OpAmp, console: Console) -> None:
     pb = req.passband
     _say(console, 
-        f"Band: {format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre {format_hz(pb.center_hz)}, width "
-        f"{format_hz(pb.bandwidth_hz)}, {pb.bandwidth_hz / pb.center_hz:.3g} of centre); gain "
-        f"{pb.gain_db:g} dB ± {pb.gain_tolerance_db:g}; at most {pb.max_loss_db:.4g} dB loss in band")
+        f"Band: {format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre "
+        f"{format_hz(pb.center_hz)}, width {format_hz(pb.bandwidth_hz)}, "
+        f"{format_sig(pb.bandwidth_hz / pb.center_hz, 3)} of centre); gain "
+        f"{format_sig(pb.gain_db)} dB ± {format_sig(pb.gain_tolerance_db)} dB; at most "
+        f"{format_sig(pb.max_loss_db, 4)} dB loss in band")
     for sp in req.stopband:
-        _say(console, f"Stop: at least {sp.min_loss_db:g} dB down at {format_hz(sp.freq_hz)}"
-                      f"{converter_view.added_text(sp)}")
+        _say(console, f"Stop: at least {format_sig(sp.min_loss_db)} dB down at "
+                      f"{format_hz(sp.freq_hz)}{converter_view.added_text(sp)}")
     inp = req.input
-    tones = ", ".join(f"{t.vpk:g} Vpk at {format_hz(t.freq_hz)}" for t in inp.tones) or "none"
-    _say(console, f"Input: up to {inp.max_vpk:g} Vpk in band from {format_value(inp.source_ohms, 'Ω')}"
-                  f"; tones: {tones}")
-    _say(console, f"Rails {req.supply.rails_v[0]:g} / {req.supply.rails_v[1]:+g} V; op-amp "
-                  f"'{model.name}': {format_hz(model.gbw_hz, significant=3)} GBW, {model.slew_v_per_us:g} V/µs, "
-                  f"{model.noise_v_per_rthz * 1e9:.3g} nV/√Hz; {req.environment.temperature_c:g} °C")
+    tones = ", ".join(f"{format_si(t.vpk, 'Vpk', significant=4)} at {format_hz(t.freq_hz)}" for t in inp.tones) or "none"
+    _say(console, f"Input: up to {format_si(inp.max_vpk, 'Vpk', significant=4)} in band from "
+                  f"{format_si(inp.source_ohms, 'Ω')}; tones: {tones}")
+    _say(console, f"Rails {format_sig(req.supply.rails_v[0])} / "
+                  f"{format_si(req.supply.rails_v[1], 'V', significant=4, sign=True)}; op-amp "
+                  f"'{model.name}': {format_hz(model.gbw_hz, significant=3)} GBW, "
+                  f"{format_sig(model.slew_v_per_us)} V/µs, "
+                  f"{format_si(model.noise_v_per_rthz, 'V/√Hz')}; "
+                  f"{format_sig(req.environment.temperature_c)} °C")
     if getattr(req, "converter", None) is not None:
         _say(console, "Converter: " + converter_view.requirement_text(req.converter))
 
@@ -61,12 +66,12 @@ def render_plan(p: Plan, console: Console) -> None:
                   "op-amps", "margin", "noise", "DR", "yield", "state")
     for i, d in enumerate(p.designs):
         c, an = d.candidate, d.analyses
-        margin = f"{an.worst_margin_db:+.1f}" if an else "—"
+        margin = format_fixed(an.worst_margin_db, 1, sign=True) if an else "—"
         # (margin: worst headroom; noise: integrated output noise; DR: dynamic range)
-        noise = f"{an.noise.integrated_vrms * 1e6:.3g}" if an else "—"
-        dr = f"{an.dynamic_range_db:.1f}" if an else "—"
+        noise = format_sig(an.noise.integrated_vrms * 1e6, 3) if an else "—"
+        dr = format_fixed(an.dynamic_range_db, 1) if an else "—"
         y = getattr(d, "yield_result", None)
-        share = f"{100 * y.yield_fraction:.1f}" if y is not None else "—"
+        share = format_fixed(100 * y.yield_fraction, 1) if y is not None else "—"
         state = words.candidate_state(d.buildable, d.failures)
         _row(cand, ("→" if i == 0 else "") + str(i + 1), c.family, words.path_label(c.path),
                      str(c.order), str(len(c.sections)), str(d.opamps) if d.buildable else "—", margin, noise,
@@ -76,8 +81,8 @@ def render_plan(p: Plan, console: Console) -> None:
                   "noise over the noise band, µV rms; DR: dynamic range, dB; yield: share of Monte "
                   "Carlo boards that pass, % (not run for a candidate that fails other checks)")
     d = p.chosen
-    _say(console, f"Chosen: {d.candidate.family} {words.path_label(d.candidate.path)}, order {d.candidate.order} "
-                  f"({d.candidate.note}) — {p.why}.")
+    _say(console, f"Chosen: {d.candidate.family} {words.path_label(d.candidate.path)}, order "
+                  f"{d.candidate.order} ({d.candidate.note}) — {p.why}.")
     if d.chain is None:
         _unbuilt(d, console)
     else:
@@ -157,7 +162,7 @@ def _unbuilt(d: Design, console: Console) -> None:
         s = a.section
         why = "; ".join(f"{n}: {r}" for n, r in a.rejected) if a.realization is None else \
             f"built as {a.realization.topology}"
-        _row(t, str(i + 1), s.kind, format_hz(s.f0_hz), f"{s.q:.4g}", f"{s.gain:.3g}", why)
+        _row(t, str(i + 1), s.kind, format_hz(s.f0_hz), format_sig(s.q), format_sig(s.gain, 3), why)
     _say(console, t)
 
 
@@ -172,49 +177,49 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
     for st in chain.stages:
         tg, b = st.target, st.built
         f0 = "—" if st.kind == "gain" else f"{format_hz(tg.f0_hz)} → {format_hz(b.f0_hz)}"
-        q = "—" if st.kind == "gain" else f"{tg.q:.4g} → {b.q:.4g}"
+        q = "—" if st.kind == "gain" else f"{format_sig(tg.q)} → {format_sig(b.q)}"
         _row(t, str(st.position), st.kind, st.topology, f0, q, f"{_db(tg.gain)} → {_db(b.gain)}")
     _say(console, t)
     for st in chain.stages:
-        parts = "  ".join(f"{n}={format_value(v, 'Ω' if n.startswith('R') else 'F')}"
+        parts = "  ".join(f"{n}={format_si(v, 'Ω' if n.startswith('R') else 'F')}"
                           for n, v in st.components) or "no parts (a unity-gain follower)"
         _say(console, f"Stage {st.position} {st.topology}: {parts}", style="bold")
         if st.ideal is not None and st.kind != "gain":
-            _say(console, f"  figures: {words.TARGET} f0 {format_hz(st.target.f0_hz)}, "
-                          f"Q {st.target.q:.4g}; {words.IDEAL_PARTS} (unrounded) f0 "
-                          f"{format_hz(st.ideal.f0_hz)}, Q {st.ideal.q:.4g}; {words.BUILT} "
-                          f"(series parts) f0 {format_hz(st.built.f0_hz)}, Q {st.built.q:.4g} "
-                          f"(op-amp's GBW included)")
+            _say(console, f"  figures: {words.TARGET} f0 {format_hz(st.target.f0_hz)}, Q "
+                          f"{format_sig(st.target.q)}; {words.IDEAL_PARTS} (unrounded) f0 "
+                          f"{format_hz(st.ideal.f0_hz)}, Q {format_sig(st.ideal.q)}; {words.BUILT} "
+                          f"(series parts) f0 {format_hz(st.built.f0_hz)}, Q "
+                          f"{format_sig(st.built.q)} (op-amp's GBW included)")
         if st.reason:
             _say(console, f"  why: {st.reason}")
         for name, why in st.rejected:
             _say(console, f"  not {name}: {why}")
         if getattr(st, "dc_block", None) is not None:
             b = st.dc_block
-            rb = "" if b.r_ohms is None else f", RB={format_value(b.r_ohms, 'Ω')} to the reference"
-            _say(console, f"  DC block: CB={format_value(b.c_farads, 'F')} in series{rb}: "
-                          f"{b.reason}")
+            rb = "" if b.r_ohms is None else f", RB={format_si(b.r_ohms, 'Ω')} to the reference"
+            _say(console, f"  DC block: CB={format_si(b.c_farads, 'F')} in series{rb}: {b.reason}")
     lv = _table("Node levels, worst case (signal anywhere in band + every tone)", "net", "stage",
                 "bias", "peak", "limit", "margin", "slew needed", "least load")
     for n in an.nodes:
-        load = format_value(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
-        _row(lv, n.net, str(n.stage), f"{n.dc_v:+.4g} V", f"{n.peak_vpk:.3g} Vpk",
-             f"{n.limit_vpk:.3g} Vpk", f"{n.margin_db:+.1f} dB",
-             f"{n.slew_needed_v_per_us:.3g} V/µs", load)
+        load = format_si(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
+        _row(lv, n.net, str(n.stage), f"{format_si(n.dc_v, 'V', significant=4, sign=True)}", f"{format_si(n.peak_vpk, 'Vpk')}",
+             f"{format_si(n.limit_vpk, 'Vpk')}", f"{format_fixed(n.margin_db, 1, sign=True)} dB",
+             f"{format_sig(n.slew_needed_v_per_us, 3)} V/µs", load)
     _say(console, lv)
     if an.bias is not None and an.bias.reference.single:
         _say(console, f"Reference: {an.bias.reference.reason}; it sits at "
-                      f"{an.bias.reference_dc_v:.4g} V")
+                      f"{format_si(an.bias.reference_dc_v, 'V', significant=4)}")
     nz = an.noise
     centre = int(np.argmin(np.abs(np.log(nz.freq_hz / math.sqrt(nz.band_hz[0] * nz.band_hz[1])))))
     _say(console, 
         f"Input-referred noise at {format_hz(nz.freq_hz[centre])}: "
-        f"{nz.input_referred_v_per_rthz[centre] * 1e9:.3g} nV/√Hz (source open-circuit voltage)")
+        f"{format_si(nz.input_referred_v_per_rthz[centre], 'V/√Hz')} (source open-circuit voltage)")
     _say(console, 
-        f"Output noise {nz.integrated_vrms * 1e6:.4g} µV rms over {format_hz(nz.band_hz[0])}–"
-        f"{format_hz(nz.band_hz[1])}; SNR at full input {an.snr_db:.1f} dB; dynamic range "
-        f"{an.dynamic_range_db:.1f} dB (input could grow {an.worst_margin_db:+.1f} dB "
-        f"before the first net clips)")
+        f"Output noise {format_si(nz.integrated_vrms, 'V rms', significant=4)} over "
+        f"{format_hz(nz.band_hz[0])}–{format_hz(nz.band_hz[1])}; SNR at full input "
+        f"{format_fixed(an.snr_db, 1)} dB; dynamic range {format_fixed(an.dynamic_range_db, 1)} dB "
+        f"(input could grow {format_fixed(an.worst_margin_db, 1, sign=True)} dB before the first "
+        f"net clips)")
     wide = converter_view.noise_band_text(nz, format_hz)
     if wide:
         _say(console, wide)

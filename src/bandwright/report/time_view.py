@@ -12,6 +12,8 @@ import numpy as np
 from rich.console import Console
 from rich.table import Table
 
+from bandwright.parts.notation import format_hz, format_si, format_sig
+
 __all__ = ["time_dict", "render_time", "time_figure", "time_html", "TIMING_CAPTION"]
 
 TIMING_CAPTION = ("Left: group delay of the chain output across the passband (edges dashed). "
@@ -47,7 +49,7 @@ def time_dict(tf) -> dict[str, Any] | None:
 
 
 def _ms(t: float) -> str:
-    return "—" if not math.isfinite(t) else f"{t * 1e3:.3g} ms"
+    return "—" if not math.isfinite(t) else format_si(t, "s")
 
 
 def render_time(an, console: Console) -> None:
@@ -56,21 +58,21 @@ def render_time(an, console: Console) -> None:
     if tf is None:
         return
     console.print(f"Time: group delay {_ms(tf.delay_min_s)} to {_ms(tf.delay_max_s)} across the "
-                  f"band (spread {_ms(tf.delay_spread_s)}, {_ms(tf.delay_center_s)} at the centre); "
-                  f"step settles to 1 % in {_ms(tf.settling_s)}", markup=False)
+                  f"band (spread {_ms(tf.delay_spread_s)}, {_ms(tf.delay_center_s)} at the "
+                  f"centre); step settles to 1 % in {_ms(tf.settling_s)}", markup=False)
     t = Table(title=f"Tone bursts of {_ms(tf.center.burst_s)} at the output", box=None,
               title_justify="left", pad_edge=False)
     for col in ("at", "delay 50 %", "rise 10-90 %", "overshoot", "ringing to 1 %"):
         t.add_column(col, justify="right")
     for b, name in zip(tf.bursts, ("centre", "low edge", "high edge")):
-        t.add_row(f"{name} {b.freq_hz:.4g} Hz", _ms(b.delay_s), _ms(b.rise_s),
-                  f"{b.overshoot_pct:.3g} %", _ms(b.ringing_s))
+        t.add_row(f"{name} {format_hz(b.freq_hz)}", _ms(b.delay_s), _ms(b.rise_s),
+                  f"{format_sig(b.overshoot_pct, 3)} %", _ms(b.ringing_s))
     console.print(t)
     worst = max(tf.onset, key=lambda o: o.peak_vpk / o.limit_vpk, default=None)
     if worst is not None:
-        console.print(f"Onset: worst at {worst.net}, {worst.peak_vpk:.3g} Vpk at "
-                      f"{_ms(worst.at_s)} against {worst.limit_vpk:.3g} Vpk (steady "
-                      f"{worst.steady_vpk:.3g} Vpk); every net in the onset checks", markup=False)
+        console.print(f"Onset: worst at {worst.net}, {format_si(worst.peak_vpk, 'Vpk')} at "
+                      f"{_ms(worst.at_s)} against {format_si(worst.limit_vpk, 'Vpk')} (steady "
+                      f"{format_si(worst.steady_vpk, 'Vpk')}); every net in the onset checks", markup=False)
 
 
 def _crossings(ax, b, colour: str) -> None:
@@ -109,14 +111,14 @@ def time_figure(tf, *, low_hz: float, high_hz: float, size_in: tuple[float, floa
         env_ax.plot(other.t_s * 1e3, other.envelope / other.gain, color=colour, alpha=0.35,
                     linewidth=0.8,
                     label=None if i else "output envelopes at the band edges " +
-                    " and ".join(f"{o.freq_hz:.4g} Hz" for o in tf.bursts[1:]))
+                    " and ".join(f"{format_hz(o.freq_hz)}" for o in tf.bursts[1:]))
     env_ax.plot(t_ms, b.envelope / b.gain, color=colour, linewidth=1.4,
-                label=f"output envelope at {b.freq_hz:.4g} Hz")
+                label=f"output envelope at {format_hz(b.freq_hz)}")
     _crossings(env_ax, b, colour)
     env_ax.set_xlabel("time (ms)")
     env_ax.set_ylabel("envelope (share of steady level)")
     env_ax.set_title(f"Burst of {_ms(b.burst_s)}: rise {_ms(b.rise_s)}, overshoot "
-                     f"{b.overshoot_pct:.3g} %,\nringing to 1 % {_ms(b.ringing_s)}", loc="left",
+                     f"{format_sig(b.overshoot_pct, 3)} %,\nringing to 1 % {_ms(b.ringing_s)}", loc="left",
                      fontsize=10)
     env_ax.legend(loc="upper right", fontsize=8, framealpha=0.9)
     env_ax.grid(True, color="#d0d0d0", linewidth=0.6)
@@ -129,13 +131,15 @@ def time_html(tf, svg_html: str | None) -> str:
         return ('<section id="time"><h2>Time domain</h2><p class="note">No time-domain '
                 'figures: no chain was built, or its output is unstable.</p></section>')
     rows = "".join(
-        f"<tr><td>{name} {b.freq_hz:.4g} Hz</td><td class=\"num\">{_ms(b.delay_s)}</td>"
-        f"<td class=\"num\">{_ms(b.rise_s)}</td><td class=\"num\">{b.overshoot_pct:.3g} %</td>"
+        f"<tr><td>{name} {format_hz(b.freq_hz)}</td><td class=\"num\">{_ms(b.delay_s)}</td>"
+        f"<td class=\"num\">{_ms(b.rise_s)}</td><td "
+        f"class=\"num\">{format_sig(b.overshoot_pct, 3)} %</td>"
         f"<td class=\"num\">{_ms(b.ringing_s)}</td></tr>"
         for b, name in zip(tf.bursts, ("centre", "low edge", "high edge")))
     onset = "".join(
-        f"<tr><td>{html.escape(o.net)}</td><td class=\"num\">{o.peak_vpk:.3g}</td>"
-        f"<td class=\"num\">{o.steady_vpk:.3g}</td><td class=\"num\">{o.limit_vpk:.3g}</td>"
+        f"<tr><td>{html.escape(o.net)}</td><td class=\"num\">{format_sig(o.peak_vpk, 3)}</td>"
+        f"<td class=\"num\">{format_sig(o.steady_vpk, 3)}</td>"
+        f"<td class=\"num\">{format_sig(o.limit_vpk, 3)}</td>"
         f"<td class=\"num\">{_ms(o.recovery_s) if o.peak_vpk > o.limit_vpk else '—'}</td></tr>"
         for o in tf.onset)
     figure = (f'<figure id="plot-timing"><h3>Group delay and burst envelope</h3>{svg_html}'

@@ -10,7 +10,7 @@ import html
 from typing import TYPE_CHECKING, Any
 
 from bandwright.circuits.elements import Element
-from bandwright.parts.notation import format_exact, format_value
+from bandwright.parts.notation import format_fixed, format_si, format_value, format_exact
 from bandwright.report.subject import is_plan
 
 if TYPE_CHECKING:
@@ -63,21 +63,20 @@ def procedure_lines(t: TuningResult) -> list[str]:
     """The procedure as numbered steps, in the order they are set."""
     lines = []
     for i, s in enumerate(t.plan.steps, start=1):
-        fixed = format_value(s.fixed_ohms, "Ω")
-        trim = format_value(s.trimmer_ohms, "Ω")
+        fixed = format_si(s.fixed_ohms, "Ω")
+        trim = format_si(s.trimmer_ohms, "Ω")
         lines.append(
-            f"{i}. stage {s.stage}: generator on {s.net_in}, analyser on {s.net_out}; "
-            f"set trimmer {s.part} ({trim}, in series with {s.trims} = {fixed}) for the "
-            f"{s.reading}")
+            f"{i}. stage {s.stage}: generator on {s.net_in}, analyser on {s.net_out}; set trimmer "
+            f"{s.part} ({trim}, in series with {s.trims} = {fixed}) for the {s.reading}")
     return lines
 
 
 def _summary(t: TuningResult) -> str:
     ty = t.tuned
     lo, hi = ty.interval
-    text = (f"Yield untrimmed {100 * t.yield_untrimmed:.1f} %, after tuning "
-            f"{100 * ty.yield_fraction:.1f} % (95 % interval {100 * lo:.1f}–{100 * hi:.1f} %, "
-            f"{ty.samples} boards)")
+    text = (f"Yield untrimmed {format_fixed(100 * t.yield_untrimmed, 1)} %, after tuning "
+            f"{format_fixed(100 * ty.yield_fraction, 1)} % (95 % interval "
+            f"{format_fixed(100 * lo, 1)}–{format_fixed(100 * hi, 1)} %, {ty.samples} boards)")
     if ty.unrescued:
         text += (f"; {ty.unrescued} boards fail after tuning, {ty.beyond_range} of them with a "
                  f"trimmer at the end of its travel")
@@ -135,11 +134,10 @@ def trimmer_comments(deck: str, plan: TuningPlan) -> str:
     for s in plan.steps:
         name = f"{s.part}_s{s.stage}"
         notes[name.lower()] = (
-            f"* trimmer {name}: {format_value(s.trimmer_ohms, 'Ω')} end to end, set here at "
-            f"mid-travel; travel 0 … {format_value(s.trimmer_ohms, 'Ω')} "
-            f"({s.trims}_s{s.stage} + trimmer {format_value(s.fixed_ohms, 'Ω')} … "
-            f"{format_value(s.fixed_ohms + s.trimmer_ohms, 'Ω')}); adjusts {s.adjusts}: "
-            f"{s.reading}")
+            f"* trimmer {name}: {format_si(s.trimmer_ohms, 'Ω')} end to end, set here at "
+            f"mid-travel; travel 0 … {format_si(s.trimmer_ohms, 'Ω')} ({s.trims}_s{s.stage} + "
+            f"trimmer {format_si(s.fixed_ohms, 'Ω')} … "
+            f"{format_si(s.fixed_ohms + s.trimmer_ohms, 'Ω')}); adjusts {s.adjusts}: {s.reading}")
     out = []
     for line in deck.splitlines():
         head = line.split(" ", 1)[0].lower()

@@ -50,11 +50,12 @@ _COUNTED = {"parts": "part", "poles": "pole", "sections": "section"}
 
 def check_figure(x: float | None, unit: str) -> str:
     """A check's value or limit as the terminal and the HTML print it: "11.5 kΩ",
-    "46.8 µV rms", "20.2 MHz", "97.8 %", "1 part" (the JSON keeps the SI float)."""
+    "46.8 µV rms", "20.2 MHz", "97.8 %", "1 part" (the JSON keeps the SI float). Hz figures
+    are GBWs; one of exactly 0 (what a follower needs) reads "negligible", as its message."""
     if x is None:
         return "—"
     if unit == "Hz":
-        return format_hz(x)
+        return "negligible" if x == 0 else format_hz(x)
     if unit in _SI_UNIT:
         return format_si(x, _SI_UNIT[unit])
     if unit == "share":

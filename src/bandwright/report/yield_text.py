@@ -7,7 +7,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from bandwright.parts.notation import format_fixed, format_pct, format_si
+from bandwright.parts.notation import format_fixed, format_pct, format_si, format_sig
 
 __all__ = ["summary_sentence", "failing_sentence", "DRIVER_HEAD", "DRIVER_NOTE",
            "driver_rows", "advice_sentence", "ordering_sentence", "ordering_built_text"]
@@ -28,9 +28,9 @@ def summary_sentence(y: Any) -> str:
     three_sigma = " (3σ)" if sp.distribution == "gaussian" else ""
     return (f"{format_pct(y.yield_fraction)} of {y.samples} boards meet the mask and headroom "
             f"(95 % interval {format_fixed(100 * lo, 1)}–{format_pct(hi)}, Wilson; target "
-            f"{format_pct(y.min_yield, decimals=0)}). Resistors ±{sp.resistor_pct:g} % "
-            f"({sp.resistor_source}), capacitors ±{sp.capacitor_pct:g} % "
-            f"({sp.capacitor_source}), op-amp GBW ±{sp.gbw_spread_pct:g} %, "
+            f"{format_pct(y.min_yield, decimals=0)}). Resistors ±{format_sig(sp.resistor_pct)} % "
+            f"({sp.resistor_source}), capacitors ±{format_sig(sp.capacitor_pct)} % "
+            f"({sp.capacitor_source}), op-amp GBW ±{format_sig(sp.gbw_spread_pct)} %, "
             f"{sp.distribution}{three_sigma}, seed {y.seed}.")
 
 
@@ -64,8 +64,8 @@ def advice_sentence(y: Any) -> str | None:
 
 def ordering_sentence(o: Any) -> str:
     """The chosen section order against the order the sections came in and increasing Q."""
-    return (f"Section order ({o.method}): {format_fixed(o.gain_over_generated_db, 1, sign=True)} dB "
-            f"of dynamic range over the prototype's section order, "
+    return (f"Section order ({o.method}): {format_fixed(o.gain_over_generated_db, 1, sign=True)} "
+            f"dB of dynamic range over the prototype's section order, "
             f"{format_fixed(o.gain_over_increasing_q_db, 1, sign=True)} dB over increasing Q "
             "(planning model, equal-maxima gains).")
 
