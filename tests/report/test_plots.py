@@ -14,7 +14,7 @@ import pytest
 import scipy.signal
 from PIL import Image
 
-from bandwright.parts.notation import format_si, format_value
+from bandwright.parts.notation import format_si
 from bandwright.report import plots
 from bandwright.report.subject import subject_of
 
@@ -98,7 +98,7 @@ def test_schematics_show_every_part_with_its_value(name):
         for e in st.elements:
             assert e.name in text, (st.position, e.name)
             if e.kind in ("R", "C"):
-                assert format_value(e.value, "Ω" if e.kind == "R" else "F") in text
+                assert format_si(e.value, "Ω" if e.kind == "R" else "F") in text
         assert f"stage {st.position}" in block and st.topology in block
 
 
