@@ -68,13 +68,23 @@ def _trim_top(c: np.ndarray, w: float) -> np.ndarray:
 
 
 def _cascade_lsim(chain, u: np.ndarray, t: np.ndarray) -> np.ndarray:
-    """Output of the chain for input u(t), by scipy.signal.lsim stage after stage."""
-    y = u
+    """Output of the chain for input u(t): the stages' polynomials as state-space blocks
+    (scipy.signal.tf2ss), joined in series, one scipy.signal.lsim run. Joined rather than
+    run stage after stage, so that no stage's sampled output is re-interpolated as the
+    next one's input (a step through a strictly proper follower would reach the next stage
+    as a one-sample ramp)."""
+    a = np.zeros((0, 0)); b = np.zeros((0, 1)); c = np.zeros((1, 0)); d = np.ones((1, 1))
     for st in chain.stages:
         rs = chain.source_ohms if chain.input_of(st) == "in" else 0.0
         num, den = transfer_polynomials(st.elements, out_net="out", source_ohms=rs)
         w = 2 * np.pi * (st.built.f0_hz or 1e3)
-        _, y, _ = ss.lsim((_trim_top(num, w)[::-1], _trim_top(den, w)[::-1]), y, t)
+        a2, b2, c2, d2 = ss.tf2ss(_trim_top(num, w)[::-1], _trim_top(den, w)[::-1])
+        n1, n2 = a.shape[0], a2.shape[0]
+        a = np.block([[a, np.zeros((n1, n2))], [b2 @ c, a2]])
+        b = np.vstack([b, b2 @ d])
+        c = np.hstack([d2 @ c, c2])
+        d = d2 @ d
+    _, y, _ = ss.lsim((a, b, c, d), u, t)
     return y
 
 
