@@ -9,7 +9,11 @@ import numpy as np
 from bandwright.chain.graph import CHAIN_OUTPUT, Chain, flatten
 from bandwright.circuits.nodal import NoiseResult, noise as nodal_noise
 
-__all__ = ["NoiseAnalysis", "chain_noise"]
+__all__ = ["NoiseAnalysis", "chain_noise", "source_words", "listed_sources", "LISTED_SOURCES"]
+
+# How many sources the terminal, the HTML, the plot and the noise check's message name one
+# by one; the rest are summed in power into one line, the same in all of them.
+LISTED_SOURCES = 6
 
 
 @dataclass(frozen=True, slots=True)
@@ -80,3 +84,33 @@ def chain_noise(chain: Chain, freq_hz: np.ndarray, *, band_hz: tuple[float, floa
                                             if np.any(v)},
                          integrated_vrms=total, band_hz=(float(band_hz[0]), float(band_hz[1])),
                          input_referred_v_per_rthz=referred)
+
+
+def source_words(name: str) -> str:
+    """A noise source key in an engineer's words.
+
+    "R2_s1" -> "stage 1 R2, thermal"; "U1_s2 voltage" -> "stage 2 U1, voltage noise";
+    "U1_s2 current-" -> "stage 2 U1, current noise into −"; "Rsource" -> "source resistance,
+    thermal". A key of another form (a reference network's part) comes back as it is.
+    """
+    if name == "Rsource":
+        return "source resistance, thermal"
+    part, _, what = name.partition(" ")
+    ref, _, pos = part.rpartition("_s")
+    if not pos.isdigit() or not ref:
+        return name
+    where = f"stage {pos} {ref}"
+    return {"": f"{where}, thermal", "voltage": f"{where}, voltage noise",
+            "current+": f"{where}, current noise into +",
+            "current-": f"{where}, current noise into −"}.get(what, f"{where} {what}")
+
+
+def listed_sources(nz: NoiseAnalysis, count: int = LISTED_SOURCES
+                   ) -> tuple[tuple[tuple[str, float], ...], tuple[str, ...], float]:
+    """The `count` largest sources, the names of the rest and the rest's power sum, V rms.
+
+    Uncorrelated sources add in power, so the rest's figure is the root of the sum of squares.
+    """
+    top = nz.contributions_vrms[:count]
+    rest = nz.contributions_vrms[count:]
+    return top, tuple(n for n, _ in rest), float(np.sqrt(sum(v * v for _, v in rest)))

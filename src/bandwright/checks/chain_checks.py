@@ -6,6 +6,7 @@ import math
 
 from bandwright.analysis import Analyses
 from bandwright.analysis.bias import describe
+from bandwright.analysis.noise import source_words
 from bandwright.chain.graph import CONVERTER_NET, Chain
 from bandwright.checks.base import Check
 from bandwright.circuits import topology
@@ -159,7 +160,8 @@ def noise_checks(an: Analyses, requirement: Requirement) -> list[Check]:
     limit = requirement.noise.max_output_vrms
     got = an.noise.integrated_vrms
     lo, hi = an.noise.band_hz
-    top = ", ".join(f"{n} {format_si(v, 'V')}" for n, v in an.noise.contributions_vrms[:3])
+    top = "; ".join(f"{source_words(n)} {format_si(v, 'V rms')}"
+                   for n, v in an.noise.contributions_vrms[:3])
     msg = (f"{format_si(got, 'V rms', significant=4)} at the output over "
            f"{format_hz_range(lo, hi)}; largest: {top}")
     if limit is None:

@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Sequence
 
 from bandwright import __version__
 from bandwright.analysis.montecarlo import YieldResult
+from bandwright.analysis.noise import listed_sources
 from bandwright.checks.base import Check, worst_status
 from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
 from bandwright.report import converter_view, words, yield_text
@@ -94,7 +95,7 @@ _PLOT_CAPTIONS = {
     "yield": "Spread of the response over part tolerances (Monte Carlo): the shaded band "
              "holds the middle boards between the low and high percentiles named in the "
              "legend, the solid line the median board, the dashed line nominal parts.",
-    "poles": "Left: each section's poles in the s-plane (built ×, target ○). Right: the "
+    "poles": "Left: each section's poles in the s-plane (built ×, target ◇). Right: the "
              "same sections as pole frequency and Q — the higher the Q, the more a small "
              "f0 error moves the band edges.",
 }
@@ -170,9 +171,7 @@ def _summary(s: Subject) -> str:
             rows.append(("stopband", f"at least {format_sig(sp.min_loss_db)} dB down at "
                                      f"{format_hz(sp.freq_hz)}{converter_view.added_text(sp)}"))
     else:
-        rows.append(("mask", "none stated in the audit file: the response is not checked; "
-                             f"grids use its −3 dB band {format_hz(pb.low_hz)} to "
-                             f"{format_hz(pb.high_hz)}"))
+        rows.append(("mask", words.unasked_band(pb)))
     tones = ", ".join(f"{format_si(t.vpk, 'Vpk', significant=4)} at {format_hz(t.freq_hz)}" for t in inp.tones) or "none"
     rows.append(("input", f"up to {format_si(inp.max_vpk, 'Vpk', significant=4)} in band, from "
                           f"{format_si(inp.source_ohms, 'Ω')} source"))
@@ -441,15 +440,13 @@ def _noise(s: Subject) -> str:
     if wide:
         out.append(f"<p>{_e(wide)}.</p>")
     total2 = nz.integrated_vrms ** 2
-    rows = [[_e(name), _e(source_label(s.chain, name)), f"{v * 1e6:.3g}",
-             f"{100 * v * v / total2:.1f} %"] for name, v in nz.contributions_vrms[:10]]
-    rest = nz.contributions_vrms[10:]
+    listed, rest, rv = listed_sources(nz)
+    rows = [[_e(source_label(s.chain, name)), f"{v * 1e6:.3g}",
+             f"{100 * v * v / total2:.1f} %"] for name, v in listed]
     if rest:
-        rv = math.sqrt(sum(v * v for _, v in rest))
-        rows.append(["", _e(f"{len(rest)} other sources together"), f"{rv * 1e6:.3g}",
+        rows.append([_e(f"{len(rest)} other sources together"), f"{rv * 1e6:.3g}",
                      f"{100 * rv * rv / total2:.1f} %"])
-    out.append(_table(["source", "what it is", "µV rms", "share of power"], rows,
-                      num_cols=(2, 3)))
+    out.append(_table(["source", "µV rms", "share of power"], rows, num_cols=(1, 2)))
     out.append('<p class="note">Sources add in power (uncorrelated); the shares add up to '
                '100 %. The density plot is in <a href="#plot-noise">Plots</a>.</p></section>')
     return "".join(out)

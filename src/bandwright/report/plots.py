@@ -40,6 +40,7 @@ from matplotlib.patches import Patch, Rectangle
 from matplotlib.ticker import EngFormatter, MaxNLocator, NullFormatter, NullLocator
 
 from bandwright.analysis.levels import net_transfers
+from bandwright.analysis.noise import listed_sources
 from bandwright.parts.notation import format_fixed, format_si, format_sig
 from bandwright.parts.notation import format_hz as fmt_hz
 from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
@@ -68,9 +69,10 @@ IDEAL = "#8c8c8c"
 FORBIDDEN = "#d64541"
 LIMIT = "#b3261e"
 STATUS_COLOUR = {"pass": "#3b7d3b", "warn": "#c98a00", "fail": "#c0392b"}
-TOP_CONTRIBUTORS = 5
 INTERNAL_DASHES = (":", "-.", (0, (6, 2)), (0, (1, 3)))
-CONTRIBUTOR_COLOURS = ("#d0541f", "#2a7ab0", "#5b8c2a", "#9c4fa8", "#b8860b")
+# A hollow circle reads as a zero on an s-plane plot: the target poles get a hollow diamond.
+TARGET_POLE_STYLE = {"marker": "D", "markersize": 8, "markerfacecolor": "none"}
+CONTRIBUTOR_COLOURS = ("#d0541f", "#2a7ab0", "#5b8c2a", "#9c4fa8", "#b8860b", "#1f8f8a")
 
 
 def _figure(ncols: int = 1,
@@ -318,17 +320,15 @@ def _noise(s: Subject) -> Figure:
     fig, (ax,) = _figure(1)
     ax.plot(f, scale * nz.output_v_per_rthz, color="#111111", linewidth=2.2,
             label=f"total: {format_si(nz.integrated_vrms, 'V rms', significant=4)} over the band")
-    top = nz.contributions_vrms[:TOP_CONTRIBUTORS]
+    top, rest, rest_vrms = listed_sources(nz)
     for k, (name, vrms) in enumerate(top):
         ax.plot(f, scale * np.sqrt(nz.contributions_psd[name]), linewidth=1.3,
                 color=CONTRIBUTOR_COLOURS[k % len(CONTRIBUTOR_COLOURS)],
                 label=f"{source_label(chain, name)}: {format_si(vrms, 'V rms')}")
-    rest = [name for name, _ in nz.contributions_vrms[TOP_CONTRIBUTORS:]]
     if rest:
         psd = np.sum([nz.contributions_psd[name] for name in rest], axis=0)
-        rest_vrms = math.sqrt(sum(v * v for _, v in nz.contributions_vrms[TOP_CONTRIBUTORS:]))
         ax.plot(f, scale * np.sqrt(psd), color="#7a7a7a", linestyle=":", linewidth=1.5,
-                label=f"{len(rest)} other sources together: {rest_vrms * 1e6:.3g} µV rms")
+                label=f"{len(rest)} other sources together: {format_si(rest_vrms, 'V rms')}")
     lo, hi = nz.band_hz
     r = (hi / lo) ** 0.06
     _log_freq_axis(ax, lo / r, hi * r)
@@ -440,12 +440,11 @@ def _poles(s: Subject) -> Figure | None:
         c = _stage_colour(st.position)
         built = _poles_of(st.built.f0_hz, st.built.q) / scale
         target = _poles_of(st.target.f0_hz, st.target.q) / scale
-        ax.plot(target.real, target.imag, linestyle="", marker="o", markersize=9,
-                markerfacecolor="none", markeredgecolor=c)
+        ax.plot(target.real, target.imag, linestyle="", **TARGET_POLE_STYLE, markeredgecolor=c)
         ax.plot(built.real, built.imag, linestyle="", marker="x", markersize=8, color=c,
                 label=f"{stage_label(st)}: f0 {fmt_hz(st.built.f0_hz)}, Q {st.built.q:.3g}")
-        fq.plot([st.target.f0_hz], [st.target.q], linestyle="", marker="o", markersize=9,
-                markerfacecolor="none", markeredgecolor=c)
+        fq.plot([st.target.f0_hz], [st.target.q], linestyle="", **TARGET_POLE_STYLE,
+                markeredgecolor=c)
         fq.plot([st.built.f0_hz], [st.built.q], linestyle="", marker="x", markersize=8,
                 color=c)
         fq.annotate(f"{st.position}", (st.built.f0_hz, st.built.q), xytext=(6, 4),
@@ -456,8 +455,8 @@ def _poles(s: Subject) -> Figure | None:
                 f"{sp.unstable_poles.size} pole(s) in the right half-plane")
     ax.axvline(0.0, color="#555555", linewidth=0.8)
     ax.axhline(0.0, color="#555555", linewidth=0.8)
-    ax.plot([], [], linestyle="", marker="o", markerfacecolor="none", markeredgecolor="#555555",
-            label="target (○), built (×)")
+    ax.plot([], [], linestyle="", **TARGET_POLE_STYLE, markeredgecolor="#555555",
+            label="target (◇), built (×)")
     lim = 1.15 * fmax / scale
     ax.set_ylim(-lim, lim)
     reals = [_poles_of(st.built.f0_hz, st.built.q).real.min() for st in stages]

@@ -11,6 +11,7 @@ import sys
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+from bandwright.analysis.noise import source_words
 from bandwright.chain.graph import CHAIN_INPUT, Chain
 
 if TYPE_CHECKING:
@@ -126,22 +127,5 @@ def net_label(chain: Chain, net: str) -> str:
 
 
 def source_label(chain: Chain, name: str) -> str:
-    """A noise source in words: "stage 1 R2, thermal", "stage 2 U1, current noise into −".
-
-    Parameters
-    ----------
-    chain : Chain
-    name : str
-        A key of ``NoiseAnalysis.contributions_psd`` ("R2_s1", "U1_s2 voltage",
-        "U1_s2 current-", "Rsource").
-    """
-    if name == "Rsource":
-        return "source resistance, thermal"
-    part, _, what = name.partition(" ")
-    ref, _, pos = part.rpartition("_s")
-    if not pos.isdigit():
-        return name
-    where = f"stage {pos} {ref}"
-    return {"": f"{where}, thermal", "voltage": f"{where}, voltage noise",
-            "current+": f"{where}, current noise into +",
-            "current-": f"{where}, current noise into −"}.get(what, f"{where} {what}")
+    """A noise source in words (`analysis.noise.source_words`); `chain` kept for callers."""
+    return source_words(name)

@@ -8,6 +8,7 @@ from typing import TYPE_CHECKING, Sequence
 import numpy as np
 from rich.console import Console
 
+from bandwright.analysis.noise import listed_sources, source_words
 from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
 from bandwright.report import converter_view
 from bandwright.report import words, yield_text
@@ -33,15 +34,19 @@ def _db(x: float) -> str:
     return format_fixed(20 * math.log10(abs(x)), 2, sign=True) if x else "—"
 
 
-def _requirement(req: Requirement, model: OpAmp, console: Console) -> None:
+def _requirement(req: Requirement, model: OpAmp, console: Console, *,
+                 has_mask: bool = True) -> None:
     pb = req.passband
-    _say(console, 
-        f"Band: {format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre "
-        f"{format_hz(pb.center_hz)}, width {format_hz(pb.bandwidth_hz)}, "
-        f"{format_sig(pb.bandwidth_hz / pb.center_hz, 3)} of centre); gain "
-        f"{format_sig(pb.gain_db)} dB ± {format_sig(pb.gain_tolerance_db)} dB; at most "
-        f"{format_sig(pb.max_loss_db, 4)} dB loss in band")
-    for sp in req.stopband:
+    if not has_mask:
+        _say(console, "Mask: " + words.unasked_band(pb))
+    else:
+        _say(console,
+             f"Band: {format_hz(pb.low_hz)} to {format_hz(pb.high_hz)} (centre "
+             f"{format_hz(pb.center_hz)}, width {format_hz(pb.bandwidth_hz)}, "
+             f"{format_sig(pb.bandwidth_hz / pb.center_hz, 3)} of centre); gain "
+             f"{format_sig(pb.gain_db)} dB ± {format_sig(pb.gain_tolerance_db)} dB; at most "
+             f"{format_sig(pb.max_loss_db, 4)} dB loss in band")
+    for sp in req.stopband if has_mask else ():
         _say(console, f"Stop: at least {format_sig(sp.min_loss_db)} dB down at "
                       f"{format_hz(sp.freq_hz)}{converter_view.added_text(sp)}")
     inp = req.input
@@ -103,7 +108,8 @@ def render_plan(p: Plan, console: Console) -> None:
 def render_audit(a: Audit, console: Console) -> None:
     """Print an audit to `console`."""
     _say(console, f"bandwright audit — {a.path}", style="bold")
-    _requirement(a.requirement, a.chain.stages[0].model, console)
+    _requirement(a.requirement, a.chain.stages[0].model, console,
+                 has_mask=bool(getattr(a, "has_mask", True)))
     _chain(a.chain, a.analyses, console, first=words.AUDIT_IDEAL)
     _tuning(a, console)
     from bandwright.report.time_view import render_time
@@ -188,8 +194,8 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
             _say(console, f"  figures: {words.TARGET} f0 {format_hz(st.target.f0_hz)}, Q "
                           f"{format_sig(st.target.q)}; {words.IDEAL_PARTS} (unrounded) f0 "
                           f"{format_hz(st.ideal.f0_hz)}, Q {format_sig(st.ideal.q)}; {words.BUILT} "
-                          f"(series parts) f0 {format_hz(st.built.f0_hz)}, Q "
-                          f"{format_sig(st.built.q)} (op-amp's GBW included)")
+                          f"f0 {format_hz(st.built.f0_hz)}, Q {format_sig(st.built.q)} (values rounded "
+                          f"to their series, op-amp's GBW included)")
         if st.reason:
             _say(console, f"  why: {st.reason}")
         for name, why in st.rejected:
@@ -225,8 +231,12 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
         _say(console, wide)
     top = _table("Largest noise sources at the output", "source", "µV rms", "share of power")
     total2 = nz.integrated_vrms**2
-    for name, v in nz.contributions_vrms[:6]:
-        _row(top, name, f"{v * 1e6:.3g}", f"{100 * v * v / total2:.1f} %")
+    listed, rest, rest_vrms = listed_sources(nz)
+    for name, v in listed:
+        _row(top, source_words(name), f"{v * 1e6:.3g}", f"{100 * v * v / total2:.1f} %")
+    if rest:
+        _row(top, f"{len(rest)} other sources together", f"{rest_vrms * 1e6:.3g}",
+             f"{100 * rest_vrms ** 2 / total2:.1f} %")
     _say(console, top)
     if getattr(an, "converter", None) is not None:
         for block in converter_view.terminal_blocks(an.converter):
