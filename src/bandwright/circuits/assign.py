@@ -315,7 +315,8 @@ def assign(section: Section, model: OpAmp, *, r_series: str = "E96", c_series: s
     for t, l in feasible:
         if t.NAME not in names_done:
             rejected.append((t.NAME, f"feasible, but costlier: {plural(l.opamps, 'op-amp')}, "
-                             f"|S_Q| {l.q_sensitivity:.3g}, noise gain {l.noise_gain:.3g}"))
+                             f"Q sensitivity {format_sig(l.q_sensitivity, 3)}, "
+                             f"noise gain {format_sig(l.noise_gain, 3)}"))
     reason = (f"{plural(lim.opamps, 'op-amp')}, Q sensitivity {format_sig(lim.q_sensitivity, 3)}, "
               f"noise gain {format_sig(lim.noise_gain, 3)}; needs {format_hz(lim.gbw_needed_hz, significant=3)} "
               f"GBW, the op-amp has {format_hz(model.gbw_hz, significant=3)}")
