@@ -9,7 +9,7 @@ from typing import Callable
 from bandwright.analysis.montecarlo import Offer, YieldResult, monte_carlo
 from bandwright.chain.graph import Chain
 from bandwright.inputs.requirement import Requirement
-from bandwright.parts.tolerance import DEFAULT_TOLERANCE_PCT
+from bandwright.parts.tolerance import DEFAULT_TOLERANCE_PCT, dielectric
 from bandwright.parts.notation import format_sig
 
 __all__ = ["tighter_offer", "plan_yield", "RESISTOR_STEPS_PCT", "CAPACITOR_STEPS_PCT"]
@@ -24,9 +24,17 @@ _GRADE = {pct: name for name, pct in DEFAULT_TOLERANCE_PCT.items()}
 Progress = Callable[[int, int], None]
 
 
-def _grade(pct: float) -> str:
+def _resistors(pct: float) -> str:
     g = _GRADE.get(pct)
-    return f"{pct:g} %" + (f" (the customary {g} grade)" if g else "")
+    return f"resistors {pct:g} %" + (f" (the grade {g} values are customarily sold at)" if g else "")
+
+
+def _capacitors(pct: float, chain: Chain) -> str:
+    # A capacitor's grade is a matter of its dielectric, not of an E-series: name the kinds
+    # the chain's capacitors are (parts.tolerance.dielectric) so the buyer knows what to ask for.
+    kinds = sorted({dielectric(e.value) for st in chain.stages for e in st.elements
+                    if e.kind == "C" and e.value > 0})
+    return f"capacitors {pct:g} %" + (f" ({' and '.join(kinds)})" if kinds else "")
 
 
 def _fmt_yield(y: float, ci: tuple[float, float]) -> str:
@@ -81,7 +89,7 @@ def tighter_offer(chain: Chain, requirement: Requirement, result: YieldResult, *
     if not best.meets_target:
         return Offer(resistor_pct=r_min, capacitor_pct=c_min,
                      yield_fraction=best.yield_fraction, interval=best.interval, reaches=False,
-                     message=f"even resistors {_grade(r_min)} and capacitors {_grade(c_min)} "
+                     message=f"even {_resistors(r_min)} and {_capacitors(c_min, chain)} "
                              f"give only {_fmt_yield(best.yield_fraction, best.interval)}: "
                              f"the chain itself is too sensitive or too close to the mask "
                              f"(nominal margin {format_sig(result.nominal_margin_db, 3)} dB; see the parts "
@@ -105,7 +113,7 @@ def tighter_offer(chain: Chain, requirement: Requirement, result: YieldResult, *
             break
     return Offer(resistor_pct=r, capacitor_pct=c, yield_fraction=current.yield_fraction,
                  interval=current.interval, reaches=True,
-                 message=f"resistors {_grade(r)} and capacitors {_grade(c)} give "
+                 message=f"{_resistors(r)} and {_capacitors(c, chain)} give "
                          f"{_fmt_yield(current.yield_fraction, current.interval)}")
 
 
