@@ -12,7 +12,7 @@ __all__ = ["mask_checks"]
 
 
 def mask_checks(reading: MaskReading, requirement: Requirement) -> list[Check]:
-    """One check for the passband floor, one for the passband ceiling, one per stopband point.
+    """One check for the passband floor (lowest in-band gain against `gain_db - max_loss_db`), one for the passband ceiling, one per stopband point.
 
     All losses are relative to `passband.gain_db` (docs/design.md, "Meanings"); the verdicts are
     those of ``analysis.mask.mask_margins``, the reader the Monte Carlo uses too.
@@ -22,12 +22,18 @@ def mask_checks(reading: MaskReading, requirement: Requirement) -> list[Check]:
                      requirement)
     out: list[Check] = []
     i = int(m.worst_loss_index[0])
-    worst = float(m.loss_db[0])
+    # The floor is read as a gain, not a loss: a chain above the asked gain would otherwise
+    # print a negative "loss".
+    lowest = float(pb.gain_db - m.loss_db[0]) + 0.0
+    floor = pb.gain_db - pb.max_loss_db
     ok = bool(m.loss_ok[0])
     out.append(Check(
-        id="mask", status="pass" if ok else "fail", value=worst, limit=pb.max_loss_db, unit="dB",
-        message=(f"passband loss up to {worst:.3f} dB (worst at {reading.passband_freq_hz[i]:.6g} Hz), "
-                 f"{'within' if ok else 'more than'} the allowed {pb.max_loss_db:.3f} dB")))
+        id="mask", status="pass" if ok else "fail", value=lowest, limit=floor, unit="dB",
+        message=(f"lowest in-band gain {format_fixed(lowest, 3)} dB (at "
+                 f"{format_hz(reading.passband_freq_hz[i], significant=6)}), "
+                 f"{format_fixed(abs(lowest - floor), 3)} dB {'above' if ok else 'below'} its floor "
+                 f"{format_sig(floor)} dB (the asked {format_sig(pb.gain_db)} dB less the "
+                 f"allowed {format_sig(pb.max_loss_db)} dB of loss)")))
     peak = float(m.peak_db[0])
     err = float(m.gain_error_db[0]) + 0.0  # + 0.0 turns -0.0 into 0.0
     err = 0.0 if abs(err) < 5e-10 else err
