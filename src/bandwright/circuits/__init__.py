@@ -1,6 +1,7 @@
 """Circuit topologies, one module each, and the nodal solver.
 
-``TOPOLOGIES`` maps a topology name to its module (see ``circuits.base.Topology``).
+``TOPOLOGY_NAMES`` lists the topologies; ``topology(name)`` imports a topology's module on
+first use (its protocol: ``circuits.base.Topology``).
 """
 
 from __future__ import annotations

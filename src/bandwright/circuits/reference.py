@@ -29,6 +29,7 @@ from typing import Sequence
 
 from bandwright.circuits.elements import (GROUND, REFERENCE_NET, SUPPLY_NET, Element, capacitor,
                                           opamp, resistor)
+from bandwright.circuits.nodal import BOLTZMANN_J_PER_K, KELVIN_OFFSET
 from bandwright.parts.eseries import bracket, nearest
 from bandwright.parts.notation import format_hz, format_si, format_sig, plural
 from bandwright.parts.opamp import OpAmp
@@ -133,7 +134,8 @@ def design_reference(stage_elements: Sequence[Element], *, rails_v: tuple[float,
     shift_v = inputs * abs(model.bias_current_a) * r_par
     fc_hz = 1 / (2 * math.pi * r_par * c)
     buffered = bool(passive_legs) or shift_v > MAX_DIVIDER_SHIFT_V
-    noise_v = math.sqrt(4 * 1.380649e-23 * 298.15 * r_par)
+    # Its Johnson noise as the divider's description states it, at 25 °C.
+    noise_v = math.sqrt(4 * BOLTZMANN_J_PER_K * (25.0 + KELVIN_OFFSET) * r_par)
     divider = (f"divider {format_si(r1, 'Ω')}/{format_si(r2, 'Ω')} from the "
                f"{format_si(top, 'V', significant=4)} rail, {format_si(c, 'F')} decoupling (pole "
                f"{format_hz(fc_hz, significant=3)}, {format_sig(DECOUPLE_BELOW)}× below "

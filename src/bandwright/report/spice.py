@@ -90,6 +90,7 @@ from typing import Sequence
 
 from bandwright import __version__
 from bandwright.circuits.elements import GROUND, SUPPLY_NET, Element
+from bandwright.circuits.nodal import BOLTZMANN_J_PER_K, KELVIN_OFFSET
 from bandwright.parts.notation import format_spice
 from bandwright.parts.opamp import OpAmp
 
@@ -107,8 +108,6 @@ __all__ = [
 ]
 
 CHARGE_C = 1.602176634e-19  # elementary charge, exact since the 2019 SI redefinition
-BOLTZMANN_J_PER_K = 1.380649e-23  # exact since the 2019 SI redefinition
-_KELVIN_OFFSET = 273.15
 NOISE_BIAS_A = 1e-3  # DC current of every noise diode
 TINY_SOURCE_OHMS = 1e-3  # RSRC when the source is ideal (SPICE has no 0 ohm resistor)
 IDEAL_GAIN = 1e12  # stands in for an infinite A0 or GBW, which SPICE cannot write
@@ -173,7 +172,7 @@ def noise_sense_gain(white_density: float, *, temperature_c: float,
     resistance n Vt / I with n = 1 and Vt = kT/q; the difference of two identical,
     uncorrelated diodes has the white voltage PSD 4 q Vt^2 / I (module docstring).
     """
-    vt_v = BOLTZMANN_J_PER_K * (temperature_c + _KELVIN_OFFSET) / CHARGE_C
+    vt_v = BOLTZMANN_J_PER_K * (temperature_c + KELVIN_OFFSET) / CHARGE_C
     pair_psd_v2_per_hz = 4 * CHARGE_C * vt_v**2 / bias_a
     return white_density / math.sqrt(pair_psd_v2_per_hz)
 
@@ -388,7 +387,7 @@ def spice_deck(elements: Sequence[Element], *, source_ohms: float, temperature_c
     """
     if not (math.isfinite(source_ohms) and source_ohms >= 0):
         raise ValueError(f"source_ohms must be finite and >= 0; got {source_ohms!r}")
-    if not (math.isfinite(temperature_c) and temperature_c > -_KELVIN_OFFSET):
+    if not (math.isfinite(temperature_c) and temperature_c > -KELVIN_OFFSET):
         raise ValueError(f"temperature_c must be finite and above -273.15; got {temperature_c!r}")
     names = _validate(elements)
     models: dict[str, OpAmp] = {}
