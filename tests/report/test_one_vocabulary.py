@@ -14,7 +14,7 @@ import re
 
 import pytest
 
-from report_cases import ROOT, case, terminal_text
+from report_cases import ROOT, SCENARIO_NAMES, case, terminal_text
 from test_html import _visible
 
 from bandwright.analysis.noise import LISTED_SOURCES, source_words
@@ -141,16 +141,21 @@ def test_audit_reads_the_same_in_all_three(audited):
         assert words.AUDIT_IDEAL_NOTE.split(";")[0] in text, where
 
 
-@pytest.mark.parametrize("which", ["plan", "audit"])
-def test_no_stray_number_formats_or_internal_names(which, request):
-    if which == "plan":
-        _, term, page = _outputs_of_plan()
-    else:
-        _, term, page = request.getfixturevalue("audited")
-    bad = [(where, what, m.group(0), text[max(0, m.start() - 40):m.end() + 20])
-           for where, text in (("terminal", term), ("HTML", page))
-           for what, pattern in FORBIDDEN.items() for m in pattern.finditer(text)]
-    assert bad == []
+def _stray(term: str, page: str) -> list[tuple[str, str, str, str]]:
+    return [(where, what, m.group(0), text[max(0, m.start() - 40):m.end() + 20])
+            for where, text in (("terminal", term), ("HTML", page))
+            for what, pattern in FORBIDDEN.items() for m in pattern.finditer(text)]
+
+
+@pytest.mark.parametrize("name", SCENARIO_NAMES)
+def test_no_stray_number_formats_or_internal_names_in_any_plan(name):
+    c = case(name)
+    assert _stray(c.terminal_text, _visible(c.files["report.html"].decode())) == []
+
+
+def test_no_stray_number_formats_or_internal_names_in_the_audits(audited, unasked):
+    assert _stray(*audited[1:]) == []
+    assert _stray(*unasked[1:]) == []
 
 
 def test_audit_without_a_mask_says_what_it_read_and_what_it_skips(unasked):

@@ -11,7 +11,7 @@ from bandwright.chain.graph import CONVERTER_NET, Chain
 from bandwright.checks.base import Check
 from bandwright.circuits import topology
 from bandwright.parts.notation import (format_fixed, format_hz, format_hz_range, format_si,
-                                       format_sig)
+                                       format_sig, format_slew)
 from bandwright.parts.windows import PartWindows, violations
 from bandwright.sections.section import Section
 from bandwright.inputs.requirement import Requirement
@@ -76,8 +76,7 @@ def slew_checks(an: Analyses) -> list[Check]:
         out.append(Check(
             id="slew", status=status, value=need, limit=have, unit="V/us", stage=n.stage,
             net=n.net,
-            message=f"needs {format_sig(need, 3)} V/µs of the op-amp's "
-                    f"{format_sig(have, 3)} V/µs"
+            message=f"needs {format_slew(need)} of the op-amp's {format_slew(have)}"
                     + (" — the output will distort on large signals" if ratio < 1 else "")))
     return out
 

@@ -35,7 +35,12 @@ from decimal import Decimal, InvalidOperation
 from numbers import Real
 
 __all__ = ["parse_value", "format_value", "format_spice", "format_exact", "format_hz",
-           "format_si", "format_hz_range", "format_pct", "format_fixed", "format_sig", "plural"]
+           "format_si", "format_hz_range", "format_pct", "format_fixed", "format_sig", "plural",
+           "format_slew", "SLEW_FLOOR_V_PER_US"]
+
+#: Below this a slew-rate need is printed as "< 0.001 V/µs": it is nothing beside any op-amp's
+#: slew rate, and a figure like 1.13e-05 V/µs would only be read as an exponent.
+SLEW_FLOOR_V_PER_US = 1e-3
 
 _PREFIX_EXPONENT: dict[str, int] = {
     "f": -15,
@@ -351,6 +356,20 @@ def format_sig(value: float, significant: int = 4) -> str:
     if "." in text:
         text = text.rstrip("0").rstrip(".")
     return "0" if text in ("-0", "") else text
+
+
+def format_slew(v_per_us: float) -> str:
+    """A slew rate in V/µs, the unit op-amp slew rates are given in: "0.138 V/µs",
+    "7 V/µs"; a positive need below `SLEW_FLOOR_V_PER_US` prints "< 0.001 V/µs".
+
+    Examples
+    --------
+    >>> format_slew(0.138), format_slew(7.0), format_slew(1.13e-5), format_slew(0.0)
+    ('0.138 V/µs', '7 V/µs', '< 0.001 V/µs', '0 V/µs')
+    """
+    if 0 < v_per_us < SLEW_FLOOR_V_PER_US:
+        return f"< {format_sig(SLEW_FLOOR_V_PER_US)} V/µs"
+    return f"{format_sig(v_per_us, 3)} V/µs"
 
 
 def format_pct(fraction: float, *, decimals: int = 1) -> str:

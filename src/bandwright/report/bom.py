@@ -18,7 +18,7 @@ from bandwright.circuits.elements import Element
 from bandwright.circuits.reference import Reference
 from bandwright.inputs.requirement import Requirement
 from bandwright.parts.eseries import SERIES_NAMES, is_member
-from bandwright.parts.notation import format_value
+from bandwright.parts.notation import format_si
 from bandwright.parts.tolerance import default_tolerance_pct, dielectric
 from bandwright.report import tuning as trims
 
@@ -50,7 +50,7 @@ def bom_csv(chain: Chain, *, r_series: str | None, c_series: str | None,
                 pct = default_tolerance_pct(series)
             tol = f"{pct:g} %" if pct is not None else ""
             unit = "Ω" if e.kind == "R" else "F"
-            key = ("resistor" if e.kind == "R" else "capacitor", format_value(e.value, unit),
+            key = ("resistor" if e.kind == "R" else "capacitor", format_si(e.value, unit),
                    series, tol, dielectric(e.value) if e.kind == "C" else "")
         rows.setdefault(key, []).append(e.name)
     buf = io.StringIO()

@@ -20,7 +20,7 @@ from bandwright import __version__
 from bandwright.analysis.montecarlo import YieldResult
 from bandwright.analysis.noise import listed_sources
 from bandwright.checks.base import Check, worst_status
-from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
+from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig, format_slew
 from bandwright.report import converter_view, words, yield_text
 from bandwright.report.bom import bom_for
 from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
@@ -359,7 +359,7 @@ def _levels(s: Subject) -> str:
                      format_si(n.signal_vpk, 'Vpk'),
                      format_si(n.peak_vpk, 'Vpk'), format_si(n.limit_vpk, 'Vpk'),
                      f"{format_fixed(n.margin_db, 1, sign=True)} dB", _status(status.get(n.net, "pass")),
-                     _e(f"{format_sig(n.slew_needed_v_per_us, 3)} V/µs"), _e(load)])
+                     _e(format_slew(n.slew_needed_v_per_us)), _e(load)])
     out.append(_table(["net", "where", "bias", "in-band signal", "peak (signal + tones)",
                        "limit (room around the bias)", "margin", "verdict", "slew needed",
                        "least load"], rows,

@@ -9,7 +9,7 @@ import numpy as np
 from rich.console import Console
 
 from bandwright.analysis.noise import listed_sources, source_words
-from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
+from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig, format_slew
 from bandwright.report import converter_view
 from bandwright.report import words, yield_text
 from bandwright.report.console_text import row as _row
@@ -157,8 +157,13 @@ def _yield(y: YieldResult, console: Console) -> None:
 
 
 def _s(x: float) -> str:
-    # Below 1e-6 a finite difference shows rounding, not a dependence.
-    return "—" if x != x else ("0" if abs(x) < 1e-6 else f"{x:+.3g}")
+    # Below 1e-6 a finite difference shows rounding, not a dependence; below half the last
+    # digit of a three-decimal figure the dependence is there but negligible.
+    if x != x:
+        return "—"
+    if abs(x) < 1e-6:
+        return "0"
+    return "≈0" if abs(x) < 5e-4 else format_sig(x, 3) if x < 0 else "+" + format_sig(x, 3)
 
 
 def _unbuilt(d: Design, console: Console) -> None:
@@ -210,7 +215,7 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
         load = format_si(n.load_ohms, "Ω") if math.isfinite(n.load_ohms) else "none"
         _row(lv, n.net, str(n.stage), f"{format_si(n.dc_v, 'V', significant=4, sign=True)}", f"{format_si(n.peak_vpk, 'Vpk')}",
              f"{format_si(n.limit_vpk, 'Vpk')}", f"{format_fixed(n.margin_db, 1, sign=True)} dB",
-             f"{format_sig(n.slew_needed_v_per_us, 3)} V/µs", load)
+             format_slew(n.slew_needed_v_per_us), load)
     _say(console, lv)
     if an.bias is not None and an.bias.reference.single:
         _say(console, f"Reference: {an.bias.reference.reason}; it sits at "

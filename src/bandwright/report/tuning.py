@@ -10,7 +10,7 @@ import html
 from typing import TYPE_CHECKING, Any
 
 from bandwright.circuits.elements import Element
-from bandwright.parts.notation import format_fixed, format_si, format_value, format_exact
+from bandwright.parts.notation import format_fixed, format_si, format_exact
 from bandwright.report.subject import is_plan
 
 if TYPE_CHECKING:
@@ -153,7 +153,7 @@ def bom_trimmer_rows(plan: TuningPlan) -> list[list[str]]:
     rows: dict[float, list[str]] = {}
     for s in plan.steps:
         rows.setdefault(s.trimmer_ohms, []).append(f"{s.part}_s{s.stage}")
-    return [[" ".join(refs), "trimmer (multi-turn)", format_value(v, "Ω"), "1-2-5", "", "",
+    return [[" ".join(refs), "trimmer (multi-turn)", format_si(v, "Ω"), "1-2-5", "", "",
              str(len(refs))] for v, refs in rows.items()]
 
 

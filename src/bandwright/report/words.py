@@ -14,7 +14,7 @@ from __future__ import annotations
 from typing import Any, Sequence
 
 from bandwright.candidates import path_label
-from bandwright.parts.notation import format_hz, format_pct, format_si, format_sig, plural
+from bandwright.parts.notation import format_hz, format_pct, format_si, format_sig, format_slew, plural
 
 __all__ = ["STATUS_WORD", "candidate_state", "path_label", "checks_sentence",
            "check_figure", "unasked_band", "TARGET", "IDEAL_PARTS", "BUILT", "AUDIT_IDEAL", "AUDIT_IDEAL_NOTE"]
@@ -75,5 +75,5 @@ def check_figure(x: float | None, unit: str) -> str:
     if unit == "Q":
         return f"Q {format_sig(x)}"
     if unit == "V/us":
-        return f"{format_sig(x, 3)} V/µs"
+        return format_slew(x)
     return f"{format_sig(x)} {unit}".strip()
