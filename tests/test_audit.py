@@ -80,6 +80,7 @@ BAD = [
 
 
 @pytest.mark.parametrize("name,text,key,word", BAD, ids=[b[0] for b in BAD])
+@pytest.mark.slow
 def test_bad_chain_file_names_stage_and_part(name, text, key, word, tmp_path):
     p = tmp_path / "chain.toml"
     p.write_text(text)
@@ -93,6 +94,7 @@ def test_bad_chain_file_names_stage_and_part(name, text, key, word, tmp_path):
     assert not (tmp_path / "o").exists()
 
 
+@pytest.mark.slow
 def test_bom_lists_every_part_once_with_the_yield_tolerances(scenario_cli_out):
     """bom.csv: every element of the chain appears once under its designator, quantities add
     up to the element count, and the tolerances are those the yield was computed for (the

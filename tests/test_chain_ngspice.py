@@ -174,6 +174,7 @@ AC_POINTS_PER_DECADE = 2000
 KINDS_WITH_CHOICE = ("bandpass", "lowpass", "highpass")
 
 
+@pytest.mark.slow
 def test_planned_chains_mix_single_and_multi_opamp_bandpass_circuits():
     """The planned chains below hold both a single-op-amp and a multi-op-amp bandpass circuit
     to ngspice, and lowpass and highpass sections; every topology of the library is held to
@@ -234,6 +235,7 @@ def test_every_topology_matches_ngspice(name, tmp_path):
 
 
 @pytest.mark.parametrize("name", AC_CASES)
+@pytest.mark.slow
 def test_response_matches_ngspice_ac(name, tmp_path):
     """|V(out)| of chain.cir in ngspice-39 against the tool's response, at exactly ngspice's
     frequencies: ``ac dec`` 2000 a decade over the whole report grid, and ``ac lin`` 2001
@@ -276,8 +278,9 @@ def test_response_matches_ngspice_ac(name, tmp_path):
 
 # --- 2. node levels ----------------------------------------------------------------------------
 
-@pytest.mark.parametrize("name", ["lockin_mains", "ultrasonic_ranging", "wideband_mix",
-                                  "tone_detector"])
+@pytest.mark.parametrize("name", ["lockin_mains"] + [
+    pytest.param(n, marks=pytest.mark.slow)
+    for n in ("ultrasonic_ranging", "wideband_mix", "tone_detector")])
 def test_node_levels_match_ngspice(name, tmp_path):
     """``nodes[].peak_vpk`` from ngspice's node voltages: for every op-amp output n,
     peak = max_vpk * max over the passband |V(n)| + sum over tones vpk * |V(n, f_tone)|
@@ -339,6 +342,7 @@ NOISE_INTEGRAL_DB = 0.03
 
 @pytest.mark.parametrize("name, opamp_noise", [("ultrasonic_quiet", False),
                                                ("lockin_flicker", True)])
+@pytest.mark.slow
 def test_noise_matches_ngspice(name, opamp_noise, tmp_path):
     """``.noise v(out) vin dec 200 lo hi`` on chain.cir against ``analyses.noise``.
 
@@ -429,6 +433,7 @@ def _measure(deck: str, f0_hz: float, q: float, net: str, tmp_path: Path
     return _peak_and_q(ng["frequency"], ng[net])
 
 
+@pytest.mark.slow
 def test_single_high_q_section_in_ngspice(tmp_path):
     """A high-Q section as built (parts rounded, GBW predistorted) measured in ngspice lands
     within 1 % of the target f0 and 5 % of its Q -- the planner's own tolerances for a
@@ -558,6 +563,7 @@ def test_audit_of_written_chain_reproduces_the_plan(name, tmp_path):
         [s["components"] for s in plan_doc["stages"]]
 
 
+@pytest.mark.slow
 def test_cli_plan_out_then_audit(scenario_cli_out):
     """The same round trip as a user runs it: ``bandwright plan SPEC --json --out DIR`` and
     ``bandwright audit DIR/chain.toml --json`` (scenario lockin_mains; the plan command is

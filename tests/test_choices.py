@@ -95,6 +95,7 @@ def loaded_highpass():
 
 
 @needs_ngspice
+@pytest.mark.slow
 def test_loaded_highpass_builds_at_a_higher_level_and_holds_in_ngspice(loaded_highpass, tmp_path):
     """The Butterworth highpass + lowpass candidate used to be "no circuit" (its Q 0.54
     highpass loaded the driver to 243 Ω at the first level); built at a higher level it is

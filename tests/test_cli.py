@@ -94,6 +94,7 @@ def test_out_refuses_non_empty_folder_without_force(tmp_path):
     assert [p.name for p in out.iterdir()] == ["keep.txt"]
 
 
+@pytest.mark.slow
 def test_out_into_existing_empty_folder(tmp_path):
     out = tmp_path / "empty"
     out.mkdir()
@@ -102,6 +103,7 @@ def test_out_into_existing_empty_folder(tmp_path):
     assert [p.name for p in tmp_path.iterdir()] == ["empty"]  # no temporary left behind
 
 
+@pytest.mark.slow
 def test_stdout_on_a_full_disk_is_one_line_and_exit_2(tmp_path):
     """`> /dev/full`: every write fails with ENOSPC (Linux's full device)."""
     import subprocess
@@ -115,6 +117,7 @@ def test_stdout_on_a_full_disk_is_one_line_and_exit_2(tmp_path):
             "bandwright: cannot write to standard output: No space left on device"]
 
 
+@pytest.mark.slow
 def test_closed_stdout_pipe_exits_quietly_with_141(tmp_path):
     """A reader that has gone (`| head -1` once head exits): no message, status 128 + SIGPIPE
     as a program killed by that signal reports."""
@@ -133,6 +136,7 @@ def test_closed_stdout_pipe_exits_quietly_with_141(tmp_path):
         assert r.stderr == ""
 
 
+@pytest.mark.slow
 def test_closed_stdout_is_one_line_and_exit_2():
     """Started with stdout closed (`>&-`): Python has no sys.stdout at all."""
     import subprocess

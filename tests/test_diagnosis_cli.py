@@ -55,6 +55,7 @@ def _ngspice_meets_mask(f: np.ndarray, h: np.ndarray) -> bool:
                 and 26 - stop[0] >= 40 and 26 - stop[1] >= 30)
 
 
+@pytest.mark.slow
 def test_a_changed_capacitor_fails_the_mask_and_is_named_everywhere(tmp_path):
     sweep, f, h = _sweep(tmp_path, lambda d: bench.scale_part(d, 2, "C1", 1.08), seed=1)
     assert not _ngspice_meets_mask(f, h)

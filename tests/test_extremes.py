@@ -86,6 +86,7 @@ _NUMBER = re.compile(r"\d")
 
 
 @pytest.mark.parametrize("name", list(GRID), ids=list(GRID))
+@pytest.mark.slow
 def test_extreme_plan_is_correct_or_clearly_infeasible(name):
     spec, expected = GRID[name]
     req = spec_from_dict(spec, path=f"<{name}>")
@@ -130,6 +131,7 @@ def test_q500_grid_point_really_has_a_q500_section():
 
 
 @pytest.mark.parametrize("name", ["0.1Hz fbw0.1 n4", "10MHz fbw0.5 n1 fast"])
+@pytest.mark.slow
 def test_extreme_out_folder_has_no_non_finite_figures(name, tmp_path, write_spec):
     """Every text file `--out` writes (JSON, SPICE deck, chain file, BOM, HTML) is free of
     NaN and infinity."""
@@ -158,6 +160,7 @@ def _toml(doc: dict) -> str:
 
 
 @pytest.mark.parametrize("name", ["1kHz Q500 fast", "1kHz fbw0.001 n4"])
+@pytest.mark.slow
 def test_extreme_plan_json_is_the_same_in_two_processes(name, write_spec):
     """The same requirement planned by two separate `bandwright plan --json` processes gives
     the same bytes, and the same JSON as this process: nothing depends on hash seeds, caches

@@ -7,6 +7,8 @@ import json
 import subprocess
 import sys
 
+import pytest
+
 from conftest import SCENARIOS
 
 #: Modules only drawing and the HTML report need.
@@ -22,6 +24,7 @@ print(json.dumps({"code": code, "modules": sorted(sys.modules)}))
 """
 
 
+@pytest.mark.slow
 def test_plan_json_imports_no_drawing_module():
     proc = subprocess.run([sys.executable, "-c", _PROBE, str(SCENARIOS / "tone_detector.toml")],
                           capture_output=True, text=True, check=True)

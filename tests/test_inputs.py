@@ -85,6 +85,7 @@ def test_bad_requirement_is_named_by_file_and_key(name, text, key, word, tmp_pat
 
 @pytest.mark.parametrize("name,text,key,word", BAD[:6] + BAD[-6:],
                          ids=[b[0] for b in BAD[:6] + BAD[-6:]])
+@pytest.mark.slow
 def test_bad_requirement_cli_exits_2_one_line_nothing_written(name, text, key, word, tmp_path):
     spec = tmp_path / "req.toml"
     spec.write_text(text)

@@ -240,6 +240,7 @@ def test_a_failed_rename_of_a_new_folder_leaves_nothing(tmp_path, monkeypatch):
     assert list(tmp_path.iterdir()) == []
 
 
+@pytest.mark.slow
 def test_cli_reports_a_failed_write_in_one_line(tmp_path, monkeypatch, spec, capsys):
     from bandwright import cli
     _failing_move(monkeypatch, 1)
@@ -261,6 +262,7 @@ CASES = [  # signal, where the writer pauses, whether --out already holds an ear
 
 @pytest.mark.parametrize("signum,point,existing", CASES,
                          ids=[f"{s.name}-{p}-{'existing' if e else 'new'}" for s, p, e in CASES])
+@pytest.mark.slow
 def test_signal_at_the_writing_moment(signum, point, existing, tmp_path, spec):
     """`staged`: the files are written to the hidden staging folder, nothing renamed yet —
     the folder must end as it was. `commit`: inside the renames — the signal waits until

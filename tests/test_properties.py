@@ -142,6 +142,7 @@ def test_valid_base_document_loads():
 
 @_settings(300)
 @given(top_documents)
+@pytest.mark.slow
 def test_loader_raises_only_spec_error_on_random_documents(doc):
     _load_only_spec_errors(doc)
 

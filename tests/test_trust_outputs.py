@@ -28,6 +28,7 @@ SAME_TWICE = ["tone_detector.toml", "machine_vibration.toml"]
 
 
 @pytest.mark.parametrize("name", SAME_TWICE)
+@pytest.mark.slow
 def test_same_input_gives_byte_identical_json_in_two_processes(name):
     # The first process is the session's shared `plan SPEC --json` run (tests/conftest.py).
     first = scenario_cli_json(name.removesuffix(".toml"))
@@ -39,6 +40,7 @@ def test_same_input_gives_byte_identical_json_in_two_processes(name):
     assert first.returncode == exit_code_of(doc), first.stderr
 
 
+@pytest.mark.slow
 def test_plan_json_records_versions_and_the_requirement_hash(tmp_path):
     """plan.json's `tool` names the versions and `requirement.sha256` is the SHA-256 of the
     file's bytes (hashlib as the reference)."""
@@ -96,6 +98,7 @@ def test_failure_while_writing_leaves_the_folder_as_it_was(tmp_path, exc, existi
         assert _snapshot(out) == before
 
 
+@pytest.mark.slow
 def test_disk_full_during_cli_write_is_one_line_and_leaves_the_folder(tmp_path, monkeypatch,
                                                                      capsys):
     """A write that fails part-way (ENOSPC on the third file) under `plan --out --force`:

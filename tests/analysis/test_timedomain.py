@@ -270,6 +270,7 @@ def test_onset_peak_bounds_lsim_for_the_mains_at_its_peak():
     assert np.max(np.abs(_cascade_lsim(chain, u, t))) == pytest.approx(o.peak_vpk, rel=5e-3)
 
 
+@pytest.mark.slow
 def test_dc_step_onset_against_lsim():
     """A 0.3 V DC step on a chain whose tones are silent: the onset peak is 0.3 V times the
     largest |step response|, from scipy.signal.lsim of the cascade (0.5 %)."""

@@ -49,6 +49,7 @@ def _one_line(r: subprocess.CompletedProcess) -> str:
 
 
 @pytest.mark.parametrize("kind", ["device", "fifo", "folder"])
+@pytest.mark.slow
 def test_not_a_regular_file_is_refused_at_once(kind, tmp_path):
     """`/dev/zero` would be read until memory runs out, a FIFO would block for ever: both
     are refused before they are opened (a hang fails the test by its timeout)."""
@@ -126,6 +127,7 @@ def test_deep_nesting_is_one_line_in_a_real_process(tmp_path):
     assert "nested too deeply" in line
 
 
+@pytest.mark.slow
 def test_a_clean_run_writes_nothing_outside_out_and_nothing_on_stderr(tmp_path):
     """matplotlib's font cache and config go to a temporary folder of ours, removed at exit:
     the home folder and the temporary folder are as they were; stderr is empty."""
@@ -144,6 +146,7 @@ def test_a_clean_run_writes_nothing_outside_out_and_nothing_on_stderr(tmp_path):
     assert (out / "response.png").stat().st_size > 0
 
 
+@pytest.mark.slow
 def test_matplotlib_layout_warning_is_kept_off_stderr():
     """A crowded figure makes matplotlib warn "constrained_layout not applied" (a real
     warning of matplotlib 3.x, raised here on purpose); after `quiet_matplotlib` it is not

@@ -33,6 +33,7 @@ def _fails(p, check_id):
     return [c for c in p.checks if c.id == check_id and c.status == "fail"]
 
 
+@pytest.mark.slow
 def test_q_beyond_the_op_amp_names_the_gbw_needed_and_a_class_that_builds_it(write_spec):
     """Q 50 at 20 kHz on a 3 MHz op-amp: the topology check names the GBW needed and the
     slowest class that has it; that class then builds every section."""
@@ -64,6 +65,7 @@ def test_q_beyond_the_op_amp_names_the_gbw_needed_and_a_class_that_builds_it(wri
     assert not _fails(fixed, "topology") and not _fails(fixed, "gbw")
 
 
+@pytest.mark.slow
 def test_gain_that_clips_names_the_largest_gain_that_fits(write_spec):
     """60 dB with 50 mV in on ±2.5 V rails cannot fit (50 V out); the worst headroom check
     names the largest gain that fits, which the planner has planned to be sure — and a plan

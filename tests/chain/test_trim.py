@@ -43,6 +43,7 @@ def planned(tmp_path_factory):
 
 
 @pytest.mark.ngspice
+@pytest.mark.slow
 def test_trimmed_chain_keeps_both_stopband_points_in_ngspice(planned, tmp_path):
     """The chosen chain as built and trimmed, read by ngspice-39 from its own deck: at least
     41 dB below the 20 dB reference at 500 Hz and 2 kHz, and no more than 1 dB of passband

@@ -68,6 +68,7 @@ def test_sample_rate_at_exactly_twice_the_edge_is_accepted(write_spec):
     assert e.value.key == "converter.sample_rate_hz"
 
 
+@pytest.mark.slow
 def test_chain_toml_writes_the_converter_back(write_spec, tmp_path):
     from bandwright.report.files import chain_toml
     from bandwright.planner import plan

@@ -47,6 +47,7 @@ def planned(tmp_path_factory):
     return plan(load_spec(path))
 
 
+@pytest.mark.slow
 def test_planner_adds_the_stopband_points_the_converter_needs(planned):
     """Hand computation [calc]: limit = 1 LSB = 20 log10(2^-11) = -66.227 dBFS; gain
     10 dB = 3.1623. The image fs − f_high = 200 k − 42.05 k = 157.95 kHz of 0.5 Vpk content

@@ -146,6 +146,7 @@ def audited(tmp_path_factory):
     return a, text, files, terminal_text(render_audit, a), work
 
 
+@pytest.mark.slow
 def test_audit_report_has_every_section_and_the_same_figures(audited):
     a, text, files, term, _ = audited
     raw = files["report.html"].decode()
@@ -196,6 +197,7 @@ def _check_render(html_path: Path, work: Path) -> None:
 
 
 @needs_chromium
+@pytest.mark.slow
 def test_plan_report_renders_in_headless_chromium(tmp_path):
     page = tmp_path / "report.html"
     page.write_bytes(case("ultrasonic_ranging").files["report.html"])
@@ -203,6 +205,7 @@ def test_plan_report_renders_in_headless_chromium(tmp_path):
 
 
 @needs_chromium
+@pytest.mark.slow
 def test_audit_report_renders_in_headless_chromium(audited, tmp_path):
     _, _, files, _, _ = audited
     page = tmp_path / "report.html"
@@ -210,6 +213,7 @@ def test_audit_report_renders_in_headless_chromium(audited, tmp_path):
     _check_render(page, tmp_path)
 
 
+@pytest.mark.slow
 def test_html_report_is_the_same_when_it_draws_for_itself():
     """html_report with no drawings passed in makes them itself: the same page."""
     c = case("tone_detector")

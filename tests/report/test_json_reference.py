@@ -103,6 +103,7 @@ def renders(tmp_path_factory) -> dict[str, dict]:
     return {name: json.loads(dumps(doc)) for name, doc in docs.items()}
 
 
+@pytest.mark.slow
 def test_every_emitted_key_is_in_the_reference(renders):
     keys, data = reference()
     missing = {}

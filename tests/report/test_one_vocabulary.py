@@ -10,6 +10,7 @@ JSON's SI floats through the one formatter the reports use (``report.words.check
 from __future__ import annotations
 
 import json
+import math
 import re
 
 import pytest
@@ -19,6 +20,7 @@ from test_html import _visible
 
 from bandwright.analysis.noise import LISTED_SOURCES, source_words
 from bandwright.audit import audit
+from bandwright.parts.notation import format_fixed, format_si, format_sig, format_slew
 from bandwright.report import words
 from bandwright.report.files import audit_files
 from bandwright.report.json_out import audit_to_dict, dumps
@@ -126,12 +128,41 @@ def test_plan_stage_figures_use_the_three_words():
             assert stale not in text, (where, stale)
 
 
+def _stage_and_node_figures(doc: dict) -> list[tuple[str, str]]:
+    """Each built stage's Q and gain in dB, each part value, each net's bias, slew and load,
+    formatted by the reports' own formatters from the JSON's floats."""
+    out = []
+    for st in doc["stages"]:
+        b = st["built"]
+        if st["kind"] != "gain":
+            out.append((f"stage {st['position']} built Q", format_sig(b["q"])))
+        out.append((f"stage {st['position']} built gain",
+                    format_fixed(20 * math.log10(abs(b["gain"])), 2, sign=True)))
+        for name, value in st["components"].items():
+            out.append((f"stage {st['position']} {name}",
+                        format_si(value, "Ω" if name.startswith("R") else "F")))
+    for n in doc["nodes"]:
+        out.append((f"{n['net']} bias", format_si(n["dc_v"], "V", significant=4, sign=True)))
+        out.append((f"{n['net']} slew", format_slew(n["slew_needed_v_per_us"])))
+        if n["load_ohms"] is not None:
+            out.append((f"{n['net']} load", format_si(n["load_ohms"], "Ω")))
+    return out
+
+
+def test_plan_stage_and_node_figures_read_the_same():
+    doc, term, page = _outputs_of_plan()
+    missing = [(where, what, shown) for what, shown in _stage_and_node_figures(doc)
+               for where, text in (("terminal", term), ("HTML", page)) if shown not in text]
+    assert missing == []
+
+
 def test_plan_noise_sources_read_the_same():
     doc, term, page = _outputs_of_plan()
     assert _noise_sources_shown(doc, term, "terminal") + _noise_sources_shown(doc, page, "HTML") \
         == []
 
 
+@pytest.mark.slow
 def test_audit_reads_the_same_in_all_three(audited):
     doc, term, page = audited
     assert _check_rows_shown(doc, term, "terminal") + _check_rows_shown(doc, page, "HTML") == []
@@ -158,6 +189,7 @@ def test_no_stray_number_formats_or_internal_names_in_the_audits(audited, unaske
     assert _stray(*unasked[1:]) == []
 
 
+@pytest.mark.slow
 def test_audit_without_a_mask_says_what_it_read_and_what_it_skips(unasked):
     a, term, page = unasked
     assert not a.has_mask

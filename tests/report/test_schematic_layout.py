@@ -206,6 +206,7 @@ print(json.dumps({"layouts": out, "schemdraw": "schemdraw" in sys.modules}))
 """
 
 
+@pytest.mark.slow
 def test_layout_is_the_same_in_every_process_and_needs_no_drawing_library():
     """Fresh processes with different hash seeds (set and dict order of strings) give the
     same layouts, and laying out never imports schemdraw."""
