@@ -14,6 +14,7 @@ from bandwright.inputs.requirement import (
     Requirement, StopbandPoint, Supply, TimeLimits, Tolerance, Tone, Tuning,
 )
 from bandwright.parts.eseries import SERIES_NAMES
+from bandwright.parts.notation import format_hz, format_si
 from bandwright.vocabulary import FAMILIES
 
 __all__ = ["load_spec", "spec_from_dict", "SERIES_NAMES", "AMPLIFIER_KEYS", "read_passband",
@@ -83,7 +84,7 @@ def _freq(t: TableReader, name: str, default: float | None = None, *,
     """A frequency inside FREQ_RANGE_HZ."""
     v = t.number(name, default, required=required, positive=True)
     if v is not None and not _F_LO <= v <= _F_HI:
-        raise t.error(name, f"outside {_F_LO:g} … {_F_HI:g} Hz, the range this tool plans for")
+        raise t.error(name, f"outside {format_hz(_F_LO)} … {format_hz(_F_HI)}, the range this tool plans for")
     return v
 
 
@@ -265,8 +266,8 @@ def read_passband(pb: TableReader) -> Passband:
                        f"centre (Q above {1 / MIN_FRACTIONAL_BANDWIDTH:g}): no active filter "
                        f"holds that")
     if not (_F_LO <= low and high <= _F_HI):
-        raise pb.error("bandwidth_hz", f"the band [{low:g}, {high:g}] Hz leaves {_F_LO:g} … "
-                       f"{_F_HI:g} Hz, the range this tool plans for")
+        raise pb.error("bandwidth_hz", f"the band [{low:g}, {high:g}] Hz leaves {format_hz(_F_LO)} … "
+                       f"{format_hz(_F_HI)}, the range this tool plans for")
     max_loss = pb.number("max_loss_db", HALF_POWER_DB, positive=True, high=40.0)
     gain_db = pb.number("gain_db", 0.0, low=-60.0, high=120.0)
     gain_tol = pb.number("gain_tolerance_db", 0.5, positive=True, high=20.0)
@@ -336,7 +337,7 @@ def read_time(t: TableReader, passband: Passband) -> TimeLimits:
     burst = values["burst_s"]
     if burst is not None and burst < 1.0 / passband.low_hz:
         raise t.error("burst_s", f"shorter than one period of the passband's low edge "
-                      f"({1.0 / passband.low_hz:.4g} s)")
+                      f"({format_si(1.0 / passband.low_hz, 's', significant=4)})")
     return TimeLimits(**values)
 def read_tuning(t: TableReader) -> Tuning:
     """`[tuning]`: `enabled` (true, false; left out: trim only when the yield needs it)."""
@@ -380,7 +381,7 @@ def read_converter(path: str, table: Any, *, passband: Passband | None,
     fs = _freq(t, "sample_rate_hz", required=True)
     if passband is not None and fs < 2 * passband.high_hz:
         raise t.error("sample_rate_hz", f"below twice the upper passband edge "
-                      f"({2 * passband.high_hz:g} Hz): the band itself would fold")
+                      f"({format_hz(2 * passband.high_hz)}): the band itself would fold")
     if not t.has("bits"):
         raise SpecError(path, "converter.bits", "missing (a whole number of bits, 4 to 32)")
     bits = t.integer("bits", low=4, high=32)

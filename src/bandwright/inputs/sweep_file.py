@@ -18,6 +18,7 @@ import numpy as np
 
 from bandwright.errors import SpecError
 from bandwright.inputs.reader import read_input_bytes
+from bandwright.parts.notation import format_hz
 
 __all__ = ["Sweep", "load_sweep", "check_covers", "MIN_POINTS", "COLUMNS"]
 
@@ -159,7 +160,9 @@ def check_covers(sweep: Sweep, low_hz: float, high_hz: float, *, min_inside: int
     inside = int(np.count_nonzero((sweep.freq_hz >= low_hz) & (sweep.freq_hz <= high_hz)))
     if inside < min_inside:
         raise SpecError(sweep.path, "freq_hz",
-                        f"the sweep ({sweep.freq_hz[0]:.6g} Hz to {sweep.freq_hz[-1]:.6g} Hz) "
+                        f"the sweep ({format_hz(sweep.freq_hz[0], significant=6)} to "
+                        f"{format_hz(sweep.freq_hz[-1], significant=6)}) "
                         f"has {inside} point{'s' if inside != 1 else ''} inside the passband "
-                        f"{low_hz:.6g} Hz to {high_hz:.6g} Hz; it needs at least {min_inside}",
+                        f"{format_hz(low_hz, significant=6)} to {format_hz(high_hz, significant=6)}; it needs "
+                        f"at least {min_inside}",
                         line=sweep.lines[-1])

@@ -442,7 +442,7 @@ def _poles(s: Subject) -> Figure | None:
         target = _poles_of(st.target.f0_hz, st.target.q) / scale
         ax.plot(target.real, target.imag, linestyle="", **TARGET_POLE_STYLE, markeredgecolor=c)
         ax.plot(built.real, built.imag, linestyle="", marker="x", markersize=8, color=c,
-                label=f"{stage_label(st)}: f0 {fmt_hz(st.built.f0_hz)}, Q {st.built.q:.3g}")
+                label=f"{stage_label(st)}: f0 {fmt_hz(st.built.f0_hz)}, Q {format_sig(st.built.q, 3)}")
         fq.plot([st.target.f0_hz], [st.target.q], linestyle="", **TARGET_POLE_STYLE,
                 markeredgecolor=c)
         fq.plot([st.built.f0_hz], [st.built.q], linestyle="", marker="x", markersize=8,
