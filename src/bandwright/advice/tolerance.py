@@ -26,7 +26,8 @@ Progress = Callable[[int, int], None]
 
 def _resistors(pct: float) -> str:
     g = _GRADE.get(pct)
-    return f"resistors {pct:g} %" + (f" (the grade {g} values are customarily sold at)" if g else "")
+    return f"resistors {pct:g} %" + (f" (the grade {g} values are customarily sold at)"
+                                      if g else "")
 
 
 def _capacitors(pct: float, chain: Chain) -> str:

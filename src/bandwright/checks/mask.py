@@ -12,7 +12,8 @@ __all__ = ["mask_checks"]
 
 
 def mask_checks(reading: MaskReading, requirement: Requirement) -> list[Check]:
-    """One check for the passband floor (lowest in-band gain against `gain_db - max_loss_db`), one for the passband ceiling, one per stopband point.
+    """One check for the passband floor (the lowest in-band gain against `gain_db -
+    max_loss_db`), one for the passband ceiling, one per stopband point.
 
     All losses are relative to `passband.gain_db` (docs/design.md, "Meanings"); the verdicts are
     those of ``analysis.mask.mask_margins``, the reader the Monte Carlo uses too.

@@ -14,10 +14,12 @@ from __future__ import annotations
 from typing import Any, Sequence
 
 from bandwright.candidates import path_label
-from bandwright.parts.notation import format_hz, format_pct, format_si, format_sig, format_slew, plural
+from bandwright.parts.notation import (format_hz, format_pct, format_si, format_sig, format_slew,
+                                       plural)
 
 __all__ = ["STATUS_WORD", "candidate_state", "path_label", "checks_sentence",
-           "check_figure", "unasked_band", "TARGET", "IDEAL_PARTS", "BUILT", "AUDIT_IDEAL", "AUDIT_IDEAL_NOTE"]
+           "check_figure", "unasked_band", "TARGET", "IDEAL_PARTS", "BUILT", "AUDIT_IDEAL",
+           "AUDIT_IDEAL_NOTE"]
 
 STATUS_WORD = {"pass": "pass", "warn": "WARN", "fail": "FAIL"}
 
