@@ -20,7 +20,6 @@ import argparse
 import math
 import resource
 import shutil
-import subprocess
 import sys
 import tempfile
 import time
@@ -32,6 +31,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from _chains import grid_for_ngspice, six_section_chain  # noqa: E402
+from _spice_batch import run_control_batch  # noqa: E402
 
 from bandwright.analysis.grid import passband_grid  # noqa: E402
 from bandwright.analysis.levels import swing_limit_vpk  # noqa: E402
@@ -77,15 +77,7 @@ def run_ngspice(chain, req, values, grid_hz, ppd, workdir: Path) -> tuple[float,
         cmds.append("destroy all")
     deck = spice_deck(flatten(chain), source_ohms=chain.source_ohms,
                       temperature_c=req.environment.temperature_c, title="monte carlo")
-    lines = deck.rstrip("\n").splitlines()
-    text = "\n".join(lines[:-1] + [".control", *cmds, "quit 0", ".endc", lines[-1]]) + "\n"
-    (workdir / "mc.cir").write_text(text)
-    t0 = time.perf_counter()
-    proc = subprocess.run(["ngspice", "-b", "mc.cir"], cwd=workdir, capture_output=True,
-                          text=True, check=False)
-    wall = time.perf_counter() - t0
-    if "error" in (proc.stdout + proc.stderr).lower():
-        raise RuntimeError(proc.stdout[-2000:] + proc.stderr[-2000:])
+    wall, _ = run_control_batch(deck, cmds, workdir, "mc.cir")
     env = _read_blocks(workdir / "env.txt", grid_hz.size)
     pbd = _read_blocks(workdir / "pb.txt", passband_grid(req).size)
     sgl = _read_blocks(workdir / "single.txt", 1)

@@ -50,6 +50,8 @@ from pathlib import Path
 
 import numpy as np
 
+from _spice_batch import run_control_batch
+
 ROOT = Path(__file__).resolve().parent.parent
 SCENARIOS = ROOT / "scenarios"
 REFERENCE = "import numpy, scipy.signal"
@@ -126,17 +128,8 @@ def run_spice_sweeps(deck: str, grid_hz: np.ndarray, r_pct: float, c_pct: float,
         cmds += [f"alter {name} = {v:.9g}" for (name, _), v in zip(parts, row)]
         cmds += [f"ac lin {n} {lo!r} {hi!r}", "let sweep_n = length(frequency)",
                  "echo sweep_points $&sweep_n", "destroy all"]
-    lines = deck.rstrip("\n").splitlines()
-    text = "\n".join(lines[:-1] + [".control", *cmds, "quit 0", ".endc", lines[-1]]) + "\n"
-    (workdir / "sweeps.cir").write_text(text)
-    t0 = time.perf_counter()
-    proc = subprocess.run(["ngspice", "-b", "sweeps.cir"], cwd=workdir, capture_output=True,
-                          text=True, check=False)
-    wall = time.perf_counter() - t0
-    output = proc.stdout + proc.stderr
-    if re.search(r"^\s*(\*+\s*)?error\b", output, re.IGNORECASE | re.MULTILINE):
-        raise RuntimeError(output[-2000:])
-    done = [int(k) for k in _SWEEP_DONE.findall(proc.stdout)]
+    wall, stdout = run_control_batch(deck, cmds, workdir, "sweeps.cir")
+    done = [int(k) for k in _SWEEP_DONE.findall(stdout)]
     return wall, len(parts), len(done), sum(done)
 
 
