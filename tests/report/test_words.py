@@ -9,6 +9,7 @@ from __future__ import annotations
 from types import SimpleNamespace
 
 from bandwright.report.words import check_figure, checks_sentence
+from bandwright.report import words
 
 
 def test_a_followers_gbw_need_reads_negligible_not_zero():
@@ -27,3 +28,8 @@ def test_counts_agree_in_number():
     assert check_figure(2.0, "parts") == "2 parts"
     one = [SimpleNamespace(status="pass")]
     assert checks_sentence(one) == "1 check: 1 pass, 0 WARN, 0 FAIL."
+
+
+def test_the_lump_of_other_noise_sources_agrees_with_its_count():
+    assert words.other_sources(1) == "1 other source together"
+    assert words.other_sources(12) == "12 other sources together"

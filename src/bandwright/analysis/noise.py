@@ -11,8 +11,8 @@ from bandwright.circuits.nodal import NoiseResult, noise as nodal_noise
 
 __all__ = ["NoiseAnalysis", "chain_noise", "source_words", "listed_sources", "LISTED_SOURCES"]
 
-# How many sources the terminal, the HTML, the plot and the noise check's message name one
-# by one; the rest are summed in power into one line, the same in all of them.
+# How many sources the terminal, the HTML and the plot name one by one; the rest are summed
+# in power into one line, the same in all three.
 LISTED_SOURCES = 6
 
 

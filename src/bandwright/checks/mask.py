@@ -32,7 +32,8 @@ def mask_checks(reading: MaskReading, requirement: Requirement) -> list[Check]:
         id="mask", status="pass" if ok else "fail", value=lowest, limit=floor, unit="dB",
         message=(f"lowest in-band gain {format_fixed(lowest, 3)} dB (at "
                  f"{format_hz(reading.passband_freq_hz[i], significant=6)}), "
-                 f"{format_fixed(abs(lowest - floor), 3)} dB {'above' if ok else 'below'} its floor "
+                 f"{format_fixed(abs(lowest - floor), 3)} dB {'above' if ok else 'below'} "
+                 f"its floor "
                  f"{format_sig(floor)} dB (the asked {format_sig(pb.gain_db)} dB less the "
                  f"allowed {format_sig(pb.max_loss_db)} dB of loss)")))
     peak = float(m.peak_db[0])

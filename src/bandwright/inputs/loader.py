@@ -84,7 +84,8 @@ def _freq(t: TableReader, name: str, default: float | None = None, *,
     """A frequency inside FREQ_RANGE_HZ."""
     v = t.number(name, default, required=required, positive=True)
     if v is not None and not _F_LO <= v <= _F_HI:
-        raise t.error(name, f"outside {format_hz(_F_LO)} … {format_hz(_F_HI)}, the range this tool plans for")
+        raise t.error(name, f"outside {format_hz(_F_LO)} … {format_hz(_F_HI)}, the range this "
+                            f"tool plans for")
     return v
 
 
@@ -266,7 +267,8 @@ def read_passband(pb: TableReader) -> Passband:
                        f"centre (Q above {1 / MIN_FRACTIONAL_BANDWIDTH:g}): no active filter "
                        f"holds that")
     if not (_F_LO <= low and high <= _F_HI):
-        raise pb.error("bandwidth_hz", f"the band [{low:g}, {high:g}] Hz leaves {format_hz(_F_LO)} … "
+        raise pb.error("bandwidth_hz", f"the band [{low:g}, {high:g}] Hz leaves "
+                       f"{format_hz(_F_LO)} … "
                        f"{format_hz(_F_HI)}, the range this tool plans for")
     max_loss = pb.number("max_loss_db", HALF_POWER_DB, positive=True, high=40.0)
     gain_db = pb.number("gain_db", 0.0, low=-60.0, high=120.0)

@@ -163,6 +163,7 @@ def check_covers(sweep: Sweep, low_hz: float, high_hz: float, *, min_inside: int
                         f"the sweep ({format_hz(sweep.freq_hz[0], significant=6)} to "
                         f"{format_hz(sweep.freq_hz[-1], significant=6)}) "
                         f"has {inside} point{'s' if inside != 1 else ''} inside the passband "
-                        f"{format_hz(low_hz, significant=6)} to {format_hz(high_hz, significant=6)}; it needs "
+                        f"{format_hz(low_hz, significant=6)} to "
+                        f"{format_hz(high_hz, significant=6)}; it needs "
                         f"at least {min_inside}",
                         line=sweep.lines[-1])

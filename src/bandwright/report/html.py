@@ -444,7 +444,7 @@ def _noise(s: Subject) -> str:
     rows = [[_e(source_label(s.chain, name)), f"{v * 1e6:.3g}",
              f"{100 * v * v / total2:.1f} %"] for name, v in listed]
     if rest:
-        rows.append([_e(f"{len(rest)} other sources together"), f"{rv * 1e6:.3g}",
+        rows.append([_e(words.other_sources(len(rest))), f"{rv * 1e6:.3g}",
                      f"{100 * rv * rv / total2:.1f} %"])
     out.append(_table(["source", "µV rms", "share of power"], rows, num_cols=(1, 2)))
     out.append('<p class="note">Sources add in power (uncorrelated); the shares add up to '

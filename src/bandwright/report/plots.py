@@ -43,6 +43,7 @@ from bandwright.analysis.levels import net_transfers
 from bandwright.analysis.noise import listed_sources
 from bandwright.parts.notation import format_fixed, format_si, format_sig
 from bandwright.parts.notation import format_hz as fmt_hz
+from bandwright.report import words
 from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
 from bandwright.sections.split import cascade_response
 
@@ -328,7 +329,7 @@ def _noise(s: Subject) -> Figure:
     if rest:
         psd = np.sum([nz.contributions_psd[name] for name in rest], axis=0)
         ax.plot(f, scale * np.sqrt(psd), color="#7a7a7a", linestyle=":", linewidth=1.5,
-                label=f"{len(rest)} other sources together: {format_si(rest_vrms, 'V rms')}")
+                label=f"{words.other_sources(len(rest))}: {format_si(rest_vrms, 'V rms')}")
     lo, hi = nz.band_hz
     r = (hi / lo) ** 0.06
     _log_freq_axis(ax, lo / r, hi * r)
@@ -442,7 +443,8 @@ def _poles(s: Subject) -> Figure | None:
         target = _poles_of(st.target.f0_hz, st.target.q) / scale
         ax.plot(target.real, target.imag, linestyle="", **TARGET_POLE_STYLE, markeredgecolor=c)
         ax.plot(built.real, built.imag, linestyle="", marker="x", markersize=8, color=c,
-                label=f"{stage_label(st)}: f0 {fmt_hz(st.built.f0_hz)}, Q {format_sig(st.built.q, 3)}")
+                label=f"{stage_label(st)}: f0 {fmt_hz(st.built.f0_hz)}, "
+                      f"Q {format_sig(st.built.q, 3)}")
         fq.plot([st.target.f0_hz], [st.target.q], linestyle="", **TARGET_POLE_STYLE,
                 markeredgecolor=c)
         fq.plot([st.built.f0_hz], [st.built.q], linestyle="", marker="x", markersize=8,

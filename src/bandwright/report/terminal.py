@@ -199,7 +199,8 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
             _say(console, f"  figures: {words.TARGET} f0 {format_hz(st.target.f0_hz)}, Q "
                           f"{format_sig(st.target.q)}; {words.IDEAL_PARTS} (unrounded) f0 "
                           f"{format_hz(st.ideal.f0_hz)}, Q {format_sig(st.ideal.q)}; {words.BUILT} "
-                          f"f0 {format_hz(st.built.f0_hz)}, Q {format_sig(st.built.q)} (values rounded "
+                          f"f0 {format_hz(st.built.f0_hz)}, Q {format_sig(st.built.q)} "
+                          f"(values rounded "
                           f"to their series, op-amp's GBW included)")
         if st.reason:
             _say(console, f"  why: {st.reason}")
@@ -240,7 +241,7 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
     for name, v in listed:
         _row(top, source_words(name), f"{v * 1e6:.3g}", f"{100 * v * v / total2:.1f} %")
     if rest:
-        _row(top, f"{len(rest)} other sources together", f"{rest_vrms * 1e6:.3g}",
+        _row(top, words.other_sources(len(rest)), f"{rest_vrms * 1e6:.3g}",
              f"{100 * rest_vrms ** 2 / total2:.1f} %")
     _say(console, top)
     if getattr(an, "converter", None) is not None:

@@ -18,8 +18,8 @@ from bandwright.parts.notation import (format_hz, format_pct, format_si, format_
                                        plural)
 
 __all__ = ["STATUS_WORD", "candidate_state", "path_label", "checks_sentence",
-           "check_figure", "unasked_band", "TARGET", "IDEAL_PARTS", "BUILT", "AUDIT_IDEAL",
-           "AUDIT_IDEAL_NOTE"]
+           "check_figure", "unasked_band", "other_sources", "TARGET", "IDEAL_PARTS", "BUILT",
+           "AUDIT_IDEAL", "AUDIT_IDEAL_NOTE"]
 
 STATUS_WORD = {"pass": "pass", "warn": "WARN", "fail": "FAIL"}
 
@@ -34,9 +34,15 @@ def unasked_band(pb: Any) -> str:
     """What an audit without a mask says instead of a requirement (terminal and HTML alike):
     the band and gain it prints are read from the response, and what is skipped."""
     return (f"none stated in the audit file: the band {format_hz(pb.low_hz)} to "
-            f"{format_hz(pb.high_hz)} (its −3 dB points) and the gain {format_sig(pb.gain_db, 4)} dB "
+            f"{format_hz(pb.high_hz)} (its −3 dB points) and the gain "
+            f"{format_sig(pb.gain_db, 4)} dB "
             f"(its peak) are read from the response; the mask and yield checks are skipped, "
             f"having nothing to check against")
+
+
+def other_sources(count: int) -> str:
+    """The noise table's and plot's last line: "12 other sources together"."""
+    return f"{plural(count, 'other source')} together"
 
 
 def candidate_state(buildable: bool, failures: int) -> str:
