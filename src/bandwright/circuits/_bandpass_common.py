@@ -236,7 +236,8 @@ def assemble_limits(section: Section, model_gbw_hz: float, *, opamps: int,
                  "capacitors")
         failures.append(
             f"Q {format_sig(section.q)}: with {parts} Q may move by {100 * shift:.0f} % in the "
-            f"worst case (sum of |S_x^Q| t_x, first order); at most "
+            f"worst case (each part's Q sensitivity times its tolerance, added up; first "
+            f"order); at most "
             f"{100 * TOLERANCE_Q_SHIFT_LIMIT:.0f} % is accepted"
             + (f", which this section keeps up to Q {format_sig(tolerance_q_max, 3)}"
                if tolerance_q_max else ""))
