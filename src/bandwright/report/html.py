@@ -18,12 +18,12 @@ from typing import TYPE_CHECKING, Sequence
 
 from bandwright import __version__
 from bandwright.analysis.montecarlo import YieldResult
-from bandwright.analysis.noise import listed_sources
+from bandwright.analysis.noise import listed_sources, source_words
 from bandwright.checks.base import Check, worst_status
 from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig, format_slew
 from bandwright.report import converter_view, words, yield_text
 from bandwright.report.bom import bom_for
-from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
+from bandwright.report.subject import Subject, net_label, stage_label, subject_of
 from bandwright.report.svg import svg_inline
 
 if TYPE_CHECKING:
@@ -441,7 +441,7 @@ def _noise(s: Subject) -> str:
         out.append(f"<p>{_e(wide)}.</p>")
     total2 = nz.integrated_vrms ** 2
     listed, rest, rv = listed_sources(nz)
-    rows = [[_e(source_label(s.chain, name)), f"{v * 1e6:.3g}",
+    rows = [[_e(source_words(name)), f"{v * 1e6:.3g}",
              f"{100 * v * v / total2:.1f} %"] for name, v in listed]
     if rest:
         rows.append([_e(words.other_sources(len(rest))), f"{rv * 1e6:.3g}",

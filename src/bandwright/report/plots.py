@@ -40,11 +40,11 @@ from matplotlib.patches import Patch, Rectangle
 from matplotlib.ticker import EngFormatter, MaxNLocator, NullFormatter, NullLocator
 
 from bandwright.analysis.levels import net_transfers
-from bandwright.analysis.noise import listed_sources
+from bandwright.analysis.noise import listed_sources, source_words
 from bandwright.parts.notation import format_fixed, format_si, format_sig
 from bandwright.parts.notation import format_hz as fmt_hz
 from bandwright.report import words
-from bandwright.report.subject import Subject, net_label, source_label, stage_label, subject_of
+from bandwright.report.subject import Subject, net_label, stage_label, subject_of
 from bandwright.sections.split import cascade_response
 
 if TYPE_CHECKING:
@@ -54,7 +54,7 @@ if TYPE_CHECKING:
     from bandwright.diagnosis import Diagnosis
     from bandwright.planner import Plan
 
-__all__ = ["plot_files", "plot_figures", "PLOT_NAMES", "DPI", "SIZE_PX", "source_label",
+__all__ = ["plot_files", "plot_figures", "PLOT_NAMES", "DPI", "SIZE_PX",
            "diagnosis_figure"]
 
 #: Resolution and pixel size of every PNG.
@@ -315,7 +315,7 @@ def _levels(s: Subject) -> Figure:
 
 
 def _noise(s: Subject) -> Figure:
-    nz, chain = s.analyses.noise, s.chain
+    nz = s.analyses.noise
     f = nz.freq_hz
     scale, unit = (1e9, "nV") if float(np.max(nz.output_v_per_rthz)) < 1e-6 else (1e6, "µV")
     fig, (ax,) = _figure(1)
@@ -325,7 +325,7 @@ def _noise(s: Subject) -> Figure:
     for k, (name, vrms) in enumerate(top):
         ax.plot(f, scale * np.sqrt(nz.contributions_psd[name]), linewidth=1.3,
                 color=CONTRIBUTOR_COLOURS[k % len(CONTRIBUTOR_COLOURS)],
-                label=f"{source_label(chain, name)}: {format_si(vrms, 'V rms')}")
+                label=f"{source_words(name)}: {format_si(vrms, 'V rms')}")
     if rest:
         psd = np.sum([nz.contributions_psd[name] for name in rest], axis=0)
         ax.plot(f, scale * np.sqrt(psd), color="#7a7a7a", linestyle=":", linewidth=1.5,

@@ -11,7 +11,6 @@ import sys
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from bandwright.analysis.noise import source_words
 from bandwright.chain.graph import CHAIN_INPUT, Chain
 
 if TYPE_CHECKING:
@@ -24,7 +23,7 @@ if TYPE_CHECKING:
     from bandwright.planner import Plan
     from bandwright.sections.section import Section
 
-__all__ = ["Subject", "subject_of", "is_plan", "net_label", "stage_label", "source_label"]
+__all__ = ["Subject", "subject_of", "is_plan", "net_label", "stage_label"]
 
 
 @dataclass(frozen=True)
@@ -125,7 +124,3 @@ def net_label(chain: Chain, net: str) -> str:
         return "converter input"
     return f"{stage_label(d['stage'])} {d['local']}"
 
-
-def source_label(chain: Chain, name: str) -> str:
-    """A noise source in words (`analysis.noise.source_words`); `chain` kept for callers."""
-    return source_words(name)

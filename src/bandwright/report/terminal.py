@@ -108,8 +108,7 @@ def render_plan(p: Plan, console: Console) -> None:
 def render_audit(a: Audit, console: Console) -> None:
     """Print an audit to `console`."""
     _say(console, f"bandwright audit — {a.path}", style="bold")
-    _requirement(a.requirement, a.chain.stages[0].model, console,
-                 has_mask=bool(getattr(a, "has_mask", True)))
+    _requirement(a.requirement, a.chain.stages[0].model, console, has_mask=a.has_mask)
     _chain(a.chain, a.analyses, console, first=words.AUDIT_IDEAL)
     _tuning(a, console)
     from bandwright.report.time_view import render_time
@@ -200,8 +199,7 @@ def _chain(chain: Chain, an: Analyses, console: Console, *, first: str = words.T
                           f"{format_sig(st.target.q)}; {words.IDEAL_PARTS} (unrounded) f0 "
                           f"{format_hz(st.ideal.f0_hz)}, Q {format_sig(st.ideal.q)}; {words.BUILT} "
                           f"f0 {format_hz(st.built.f0_hz)}, Q {format_sig(st.built.q)} "
-                          f"(values rounded "
-                          f"to their series, op-amp's GBW included)")
+                          f"(values rounded to their series, op-amp's GBW included)")
         if st.reason:
             _say(console, f"  why: {st.reason}")
         for name, why in st.rejected:
