@@ -46,6 +46,7 @@ from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
 from bandwright.inputs.requirement import Requirement
+from bandwright.workers import run_jobs
 
 __all__ = ["Plan", "Design", "plan", "build_design", "with_yield"]
 
@@ -182,18 +183,25 @@ def plan(requirement: Requirement, *, family: str | None = None,
     requirement = replace(requirement,
                           stopband=requirement.stopband + anti_alias_points(requirement))
     candidates = make_candidates(requirement, family=family, order=order)
-    designs = []
-    for c in candidates:
-        designs.append(build_design(c, requirement, model, windows=windows))
-        if progress is not None:
-            progress("candidates", len(designs), len(candidates))
+
+    def build(c: Candidate) -> tuple[Design, YieldResult | None]:
+        d = build_design(c, requirement, model, windows=windows)
+        # A clean candidate's yield is needed whatever the others do (below): it is run
+        # beside the build, on the same worker, and joins the design after the first ranking.
+        return d, (monte_carlo(d.chain, requirement) if _clean(d) else None)
+
+    built = run_jobs(build, candidates, done=None if progress is None else
+                     (lambda n: progress("candidates", n, len(candidates))))
+    designs = [d for d, _ in built]
+    ready = {id(d): y for d, y in built}
     # The yield of every candidate that passes its other checks: how many built boards meet
     # the requirement then decides between them. One that already fails a check ranks by its
     # failures, so its Monte Carlo is skipped — unless no candidate is clean, when the best
     # of them gets one. The tighter-parts search, several runs more, is for the chosen only.
     designs.sort(key=_rank)
-    clean = [d.buildable and d.failures == 0 for d in designs]
-    designs = [with_yield(d, requirement, progress=progress, offer=False)
+    clean = [_clean(d) for d in designs]
+    designs = [with_yield(d if ready[id(d)] is None else replace(d, yield_result=ready[id(d)]),
+                          requirement, progress=progress, offer=False)
                if ok or (i == 0 and not any(clean)) else d
                for i, (d, ok) in enumerate(zip(designs, clean))]
     designs.sort(key=_rank)
@@ -204,6 +212,11 @@ def plan(requirement: Requirement, *, family: str | None = None,
     designs[0] = with_yield(designs[0], requirement, progress=progress)
     return Plan(requirement=requirement, model=model, designs=tuple(designs),
                 why=_why(designs))
+
+
+def _clean(d: Design) -> bool:
+    """Buildable, and passing every check but the yield (which decides among these)."""
+    return d.buildable and d.failures == 0
 
 
 def _rebuild(cand: Candidate, model: OpAmp, windows: PartWindows, order: int | None
@@ -238,15 +251,21 @@ def with_yield(design: Design, requirement: Requirement, *,
     result = design.yield_result
     if result is None:
         result = monte_carlo(design.chain, requirement, progress=report)
+    untrimmed, tuning = result, design.tuning
+    jobs = {}
     if offer and result.offer is None:
-        extra = tighter_offer(design.chain, requirement, result, progress=report)
-        result = result if extra is None else replace(result, offer=extra)
-    tuning = design.tuning
+        jobs["offer"] = lambda: tighter_offer(design.chain, requirement, untrimmed,
+                                              progress=report)
     if offer and tuning is None:
         # Only the chosen design is tuned: the ranking compares untrimmed chains.
-        tuning = tuning_for(design.chain, requirement, result, targets={
+        jobs["tuning"] = lambda: tuning_for(design.chain, requirement, untrimmed, targets={
             st.position: (st.target.f0_hz, st.target.q, abs(st.target.gain))
             for st in design.chain.stages if st.kind == "bandpass"})
+    # The two read the untrimmed result only: they run side by side.
+    done = dict(zip(jobs, run_jobs(lambda job: job(), list(jobs.values()))))
+    if done.get("offer") is not None:
+        result = replace(result, offer=done["offer"])
+    tuning = done.get("tuning", tuning)
     checks = tuple(c for c in design.checks if c.id != "yield")
     return replace(design, yield_result=result, tuning=tuning,
                    checks=checks + tuple(yield_checks(result, tuning=tuning)))

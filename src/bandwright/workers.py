@@ -1,0 +1,106 @@
+"""Independent jobs side by side on the machine's cores.
+
+The planner's candidates (family × order × path) are built independently of one another:
+each is a pure function of the requirement, and their results are ranked only once all are
+in. On a platform that forks (Linux), they run in forked worker processes, one per core; a
+forked child starts with the parent's memory (imports, caches, the job itself), so nothing
+but the results crosses between processes, and each result is the one the same call gives
+in-process. Elsewhere, with one core, in a worker already, or with ``BANDWRIGHT_WORKERS=1``
+in the environment, the jobs run one after another in this process.
+
+A job that raises in a worker is run again here, so that its exception (a ``SpecError``,
+say) reaches the caller as it would without workers.
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+import os
+import sys
+import warnings
+from typing import Callable, Sequence, TypeVar
+
+__all__ = ["WORKERS_ENV", "worker_count", "run_jobs"]
+
+T = TypeVar("T")
+R = TypeVar("R")
+
+# Environment variable: the most worker processes a run may use (1: none, every job here).
+WORKERS_ENV = "BANDWRIGHT_WORKERS"
+# Candidates number four at most today; more workers than that would only wait.
+_MAX_WORKERS = 4
+
+# The job of the pool being started: set before the fork, so the children inherit it.
+_JOB: tuple[Callable, Sequence] | None = None
+_IN_WORKER = False
+
+
+def worker_count(jobs: int) -> int:
+    """How many worker processes `jobs` independent jobs get here (0: run them in-process)."""
+    if _IN_WORKER or jobs < 2 or "fork" not in multiprocessing.get_all_start_methods() \
+            or not sys.platform.startswith("linux"):
+        return 0
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        cores = os.cpu_count() or 1
+    limit = _MAX_WORKERS
+    text = os.environ.get(WORKERS_ENV, "").strip()
+    if text:
+        try:
+            limit = max(1, int(text))
+        except ValueError:
+            limit = 1       # an unreadable setting: the safe way, no workers
+    n = min(cores, jobs, limit)
+    return n if n >= 2 else 0
+
+
+def _start_worker() -> None:
+    global _IN_WORKER
+    _IN_WORKER = True
+    # The parent may hold a console lock (a progress bar's thread) at the fork: a worker
+    # never writes to the terminal, so it gets streams of its own, and no warnings.
+    sys.stdout = sys.stderr = open(os.devnull, "w")
+    warnings.simplefilter("ignore")
+
+
+def _run(index: int):
+    fn, items = _JOB
+    try:
+        return True, fn(items[index])
+    except Exception:       # re-raised by the parent's own run of this job
+        return False, None
+
+
+def run_jobs(fn: Callable[[T], R], items: Sequence[T], *,
+             done: Callable[[int], None] | None = None) -> list[R]:
+    """``[fn(x) for x in items]``, the calls spread over worker processes where that pays.
+
+    Parameters
+    ----------
+    fn : callable
+        A pure function of its item (a closure is fine: workers are forked, not pickled to);
+        its result must pickle.
+    items : sequence
+    done : callable(count), optional
+        Told how many results are in, after each one (in item order).
+    """
+    global _JOB
+    n = worker_count(len(items))
+    out: list[R] = []
+    if n == 0:
+        for item in items:
+            out.append(fn(item))
+            if done is not None:
+                done(len(out))
+        return out
+    _JOB = (fn, items)
+    try:
+        with multiprocessing.get_context("fork").Pool(n, initializer=_start_worker) as pool:
+            for k, (ok, result) in enumerate(pool.imap(_run, range(len(items)))):
+                out.append(result if ok else fn(items[k]))
+                if done is not None:
+                    done(len(out))
+    finally:
+        _JOB = None
+    return out
