@@ -299,3 +299,19 @@ def test_tone_onset_settles_to_the_steady_state():
     h = net_transfers(chain, f)[CHAIN_OUTPUT]
     steady = h * np.exp(2j * np.pi * f * t_end)
     assert np.max(np.abs(y - steady) / np.abs(h)) < 1e-6
+
+
+def test_exponentials_skipped_only_where_they_are_zero():
+    """``_exp_matrix`` leaves out a fast pole's row where e^{p t} is 0 in doubles: the
+    matrix equals the full e^{p max(t, 0)} (0 before t = 0) bit for bit, on a rising grid
+    that starts before 0, on one from 0, and on an unordered one (IEEE 754: e^x is 0 below
+    x = -745.1)."""
+    from bandwright.analysis.timedomain import _exp_matrix
+    rng = np.random.default_rng(5)
+    poles = np.concatenate([-10 ** rng.uniform(2, 8, 12) + 1j * 10 ** rng.uniform(2, 7, 12),
+                            [-1e3 + 0j, 0j, 40 + 5j]])
+    for t in (np.linspace(0, 0.02, 4096), np.linspace(-0.01, 0.02, 3001),
+              rng.uniform(-0.01, 0.02, 257)):
+        with np.errstate(under="ignore", over="ignore"):
+            full = np.where(t >= 0, np.exp(poles[:, None] * np.maximum(t, 0)), 0)
+        assert np.array_equal(_exp_matrix(poles, t), full)

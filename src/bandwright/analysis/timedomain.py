@@ -57,6 +57,9 @@ _ONSET_MAX_POINTS = 1 << 15
 # Poles closer than this (relative) are split apart: the simple-pole formula then holds to
 # about this relative error, far below every figure's resolution.
 _SPLIT = 1e-7
+# Exponent below which e^x is 0 in IEEE doubles (the smallest subnormal is e^-744.4), with
+# a margin: ``_exp_matrix`` stops computing a pole's row there.
+_DEAD_EXPONENT = -800.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -172,10 +175,26 @@ def _residues(zpk: Zpk) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _exp_matrix(p: np.ndarray, t_s: np.ndarray) -> np.ndarray:
+    """e^{p t} for t >= 0, 0 before, shape (P, T).
+
+    On an ascending grid each pole's exponential is computed only while it can still be
+    told from zero: e^x is exactly 0 in doubles for x below about -745, so past
+    t = _DEAD_EXPONENT / Re p the entries are the zeros the full computation would give.
+    An op-amp's pole dies out within the first few samples of a grid that must outlast the
+    slowest bandpass pole, so most of such a row is never computed.
+    """
     t = np.asarray(t_s, dtype=float)
+    e = np.zeros((p.size, t.size), dtype=complex)
+    ascending = t.size < 2 or bool(np.all(np.diff(t) >= 0))
+    start = int(np.searchsorted(t, 0.0, side="left")) if ascending else 0
     with np.errstate(under="ignore", over="ignore"):
-        e = np.exp(p[:, None] * np.maximum(t, 0)[None, :])
-    return np.where(t[None, :] >= 0, e, 0)
+        for i, pole in enumerate(p):
+            stop = t.size
+            if ascending and pole.real < 0:
+                stop = int(np.searchsorted(t, _DEAD_EXPONENT / pole.real, side="right"))
+            if stop > start:
+                e[i, start:stop] = np.exp(pole * np.maximum(t[start:stop], 0))
+    return e if ascending else np.where(t[None, :] >= 0, e, 0)
 
 
 def tone_onset(zpk: Zpk, freq_hz: np.ndarray, t_s: np.ndarray) -> np.ndarray:

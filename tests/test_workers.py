@@ -1,0 +1,76 @@
+"""Candidates built side by side (``bandwright.workers``) give the plan built one by one."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from bandwright import workers
+from bandwright.errors import SpecError
+from bandwright.inputs.loader import load_spec
+from bandwright.planner import plan
+from bandwright.report.json_out import dumps, plan_to_dict
+
+from conftest import SCENARIOS
+
+needs_fork = pytest.mark.skipif(workers.worker_count(2) == 0,
+                                reason="this machine gives no worker processes (one core, or no fork)")
+
+
+@pytest.fixture
+def two_workers(monkeypatch):
+    monkeypatch.setenv(workers.WORKERS_ENV, "2")
+
+
+def _square(x):
+    return x * x
+
+
+def test_one_worker_setting_runs_in_process(monkeypatch):
+    monkeypatch.setenv(workers.WORKERS_ENV, "1")
+    assert workers.worker_count(4) == 0
+    monkeypatch.setenv(workers.WORKERS_ENV, "many")   # unreadable: the safe way
+    assert workers.worker_count(4) == 0
+    monkeypatch.delenv(workers.WORKERS_ENV)
+    assert workers.worker_count(1) == 0               # one job: nothing to share
+
+
+@needs_fork
+def test_results_in_item_order_and_progress_counted(two_workers):
+    seen = []
+    out = workers.run_jobs(lambda x: (x, np.arange(x).sum()), list(range(7)), done=seen.append)
+    assert out == [(x, np.arange(x).sum()) for x in range(7)]
+    assert seen == list(range(1, 8))
+
+
+@needs_fork
+def test_a_failing_job_raises_its_own_error_here(two_workers):
+    # SpecError does not survive pickling (keyword-only fields): the job is run again here,
+    # so the caller gets the error itself, file and key included.
+    def job(x):
+        if x == 2:
+            raise SpecError("spec.toml", "passband.center_hz", "must be > 0", value=-1)
+        return x
+
+    with pytest.raises(SpecError) as err:
+        workers.run_jobs(job, [1, 2, 3])
+    assert err.value.key == "passband.center_hz"
+
+
+@needs_fork
+def test_no_nested_workers(two_workers):
+    # A worker's own jobs run in the worker: it has no pool of its own.
+    inner = workers.run_jobs(lambda x: workers.worker_count(3), [1, 2])
+    assert inner == [0, 0]
+
+
+@needs_fork
+def test_plan_with_workers_is_the_plan_without(monkeypatch):
+    """The same JSON, byte for byte, from the candidates built side by side and one by one
+    (the planner's result must not depend on the machine's cores)."""
+    req = load_spec(SCENARIOS / "lockin_mains.toml")
+    monkeypatch.setenv(workers.WORKERS_ENV, "1")
+    alone = dumps(plan_to_dict(plan(req)))
+    monkeypatch.setenv(workers.WORKERS_ENV, "2")
+    side_by_side = dumps(plan_to_dict(plan(req)))
+    assert side_by_side == alone
