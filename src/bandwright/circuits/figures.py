@@ -51,7 +51,8 @@ from bandwright.circuits.nodal import mna_system
 from bandwright.vocabulary import StageKind
 
 __all__ = ["transfer_polynomials", "transfer_polynomials_many", "polynomial_degree",
-           "section_figures", "section_figures_batch", "figures_from_scaled",
+           "section_figures", "section_figures_batch", "section_poles_rad_s",
+           "figures_from_scaled",
            "part_sweep_figures"]
 
 # Coefficients below this fraction of the largest one (in sigma = s/w_c) are rounding
@@ -475,7 +476,8 @@ def _batch_degree(coefs: np.ndarray) -> int:
 def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
                           values: np.ndarray, out_net: str = "out", input_net: str = "in",
                           gbw_scale: np.ndarray | None = None, source_ohms: float = 0.0,
-                          method: str = "det") -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                          method: str = "det", start_rad_s: np.ndarray | None = None
+                          ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``section_figures`` for many part-value samples at once.
 
     Parameters
@@ -488,6 +490,11 @@ def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_
     out_net, input_net : str
     gbw_scale : ndarray of float, shape (S,) or (S, A), optional
         Per-sample factor on the op-amps' GBW (see ``circuits.nodal.mna_system``).
+    start_rad_s : ndarray of complex, shape (d,), optional
+        Approximate poles shared by every sample (those of a nearby value set, rad/s,
+        ``section_poles_rad_s``): the roots are polished from them by Aberth's iteration
+        instead of taken as companion eigenvalues; equal to rounding, and samples that do
+        not converge get the eigenvalues.
 
     Returns
     -------
@@ -511,8 +518,23 @@ def section_figures_batch(elements: Sequence[Element], *, kind: StageKind, near_
     num, den, w_c = _METHODS[method](elements, out_net=out_net, input_net=input_net,
                                      source_ohms=source_ohms, values=values,
                                      gbw_scale=gbw_scale)
-    return figures_from_scaled(num, den, w_c, kind=kind, near_hz=near_hz,
-                               closed_form=method == "auto")
+    start = None if start_rad_s is None else \
+        np.asarray(start_rad_s, dtype=complex)[None, :] / np.asarray(w_c)[:, None]
+    return _figures_and_poles(num, den, w_c, kind=kind, near_hz=near_hz,
+                              closed_form=method == "auto", start=start)[:3]
+
+
+def section_poles_rad_s(elements: Sequence[Element], *, values: np.ndarray,
+                        source_ohms: float = 0.0, out_net: str = "out",
+                        input_net: str = "in") -> np.ndarray:
+    """Every pole (rad/s, shape (d,)) of the transfer for one value set `values` (P,), from
+    the expansion where the wiring can be expanded (companion eigenvalues): the start
+    ``section_figures_batch`` polishes a batch of nearby value sets from."""
+    num, den, w_c = _scaled_auto(elements, out_net=out_net, input_net=input_net,
+                                 source_ohms=source_ohms,
+                                 values=np.asarray(values, dtype=float)[None, :])
+    den = den[..., : _batch_degree(den) + 1]
+    return _batch_roots(den)[0] * float(w_c[0])
 
 
 def _quadratic_roots(coefs: np.ndarray) -> np.ndarray:

@@ -16,7 +16,8 @@ import numpy as np
 
 from bandwright.circuits.base import Figures
 from bandwright.circuits.elements import Element
-from bandwright.circuits.figures import section_figures, section_figures_batch
+from bandwright.circuits.figures import (polynomial_degree, section_figures,
+                                        section_figures_batch, section_poles_rad_s)
 from bandwright.circuits.nodal import BOLTZMANN_J_PER_K, KELVIN_OFFSET, passive_names
 from bandwright.circuits.rules import edge_residuals
 from bandwright.errors import InfeasibleDesign
@@ -73,6 +74,9 @@ _MIN_LOAD_FACTOR = 4
 # determinant path: several capacitor starts solve to errors at rounding level, and their
 # ranking (which ones are rounded) is decided by that rounding; reported figures stay too.
 _SEARCH_METHOD = "auto"
+# Poles from which the grid search polishes each point's roots from the start's (fewer:
+# companion eigenvalues, as quick for three).
+_POLISH_FROM_POLES = 4
 # Errors this close count as a tie (rounding of a figure_error near 1e-6 is about 1e-22).
 _TIE_REL = 1e-9
 _TIE_ABS = 1e-20
@@ -348,6 +352,12 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
     near = target.f0_hz if target.kind != "gain" else _GAIN_STAGE_NEAR_HZ
     best_err = math.inf
     seen: dict[bytes, float] = {}  # a recentred grid shares most of its points
+    # Every grid point lies a few series steps from the start: its poles, polished from the
+    # start's, cost a few multiply-adds instead of an eigenvalue problem each. That pays
+    # from four poles on (a multi-amplifier section); three are as quick by eigenvalues.
+    seed = section_poles_rad_s(elements, values=np.array([current[n] for n in names]),
+                               source_ohms=source_ohms) \
+        if polynomial_degree(elements) >= _POLISH_FROM_POLES else None
     for _ in range(_SEARCH_SWEEPS * len(blocks)):
         improved = False
         for block in blocks:
@@ -359,7 +369,7 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
             if new.any():
                 f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near,
                                                  values=grid[new], source_ohms=source_ohms,
-                                                 method=_SEARCH_METHOD)
+                                                 method=_SEARCH_METHOD, start_rad_s=seed)
                 for key, e in zip((k for k, n in zip(keys, new) if n),
                                   _error_batch(f0, q, g, target)):
                     seen[key] = float(e)

@@ -17,6 +17,8 @@ References
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 from numpy.typing import ArrayLike
 
@@ -141,10 +143,6 @@ def _nearest_index(values: np.ndarray, codes: np.ndarray, digits: int) -> np.nda
     return np.take_along_axis(candidates, np.argmin(distance, axis=-1)[..., None], -1)[..., 0]
 
 
-def _scalar_or_array(result: np.ndarray, like: np.ndarray) -> float | np.ndarray:
-    return float(result) if like.ndim == 0 else result
-
-
 def nearest(value: ArrayLike, series: str) -> float | np.ndarray:
     """Round to the nearest value of an E-series, across decades.
 
@@ -186,7 +184,16 @@ def nearest(value: ArrayLike, series: str) -> float | np.ndarray:
     codes, digits = _lookup(series)
     v = np.asarray(value, dtype=float)
     _check_positive(v)
-    return _scalar_or_array(_values_at(_nearest_index(v, codes, digits), codes, digits), v)
+    if v.ndim == 0:
+        return _nearest_of(float(v), series)
+    return _values_at(_nearest_index(v, codes, digits), codes, digits)
+
+
+@lru_cache(maxsize=8192)
+def _nearest_of(value: float, series: str) -> float:
+    # One value at a time is how the part search and the trims ask: kept, as neighbours.
+    codes, digits = _lookup(series)
+    return float(_values_at(_nearest_index(np.asarray(value), codes, digits), codes, digits))
 
 
 def is_member(value: ArrayLike, series: str, rel_tol: float = 1e-9) -> bool | np.ndarray:
@@ -297,12 +304,20 @@ def neighbours(value: float, series: str, *, count: int) -> np.ndarray:
     >>> neighbours(1.0e3, "E12", count=2).tolist()
     [680.0, 820.0, 1000.0, 1200.0, 1500.0]
     """
-    codes, digits = _lookup(series)
+    _lookup(series)
     if int(count) != count or count < 0:
         raise ValueError(f"count must be a whole number >= 0, got {count!r}")
     v = np.asarray(value, dtype=float)
     if v.ndim != 0:
         raise ValueError("neighbours takes one value")
     _check_positive(v)
-    n0 = int(_nearest_index(v, codes, digits))
-    return _values_at(np.arange(n0 - int(count), n0 + int(count) + 1), codes, digits)
+    return np.array(_neighbours_of(float(v), series, int(count)))
+
+
+@lru_cache(maxsize=8192)
+def _neighbours_of(value: float, series: str, count: int) -> tuple[float, ...]:
+    # The part search asks for the same few values over and over (each sweep recentres
+    # on a point it has seen): a pure function of its arguments, kept.
+    codes, digits = _lookup(series)
+    n0 = int(_nearest_index(np.asarray(value), codes, digits))
+    return tuple(_values_at(np.arange(n0 - count, n0 + count + 1), codes, digits).tolist())
