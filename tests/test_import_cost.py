@@ -33,3 +33,14 @@ def test_plan_json_imports_no_drawing_module():
     loaded = [m for m in out["modules"]
               if any(m == d or m.startswith(d + ".") for d in DRAWING_ONLY)]
     assert loaded == []
+
+
+@pytest.mark.slow
+def test_plan_json_imports_no_terminal_stack():
+    """`plan --json` off a terminal prints no report and no bar: rich (the terminal report
+    and the progress bar) and the output-folder writers stay unloaded too."""
+    proc = subprocess.run([sys.executable, "-c", _PROBE, str(SCENARIOS / "lockin_mains.toml")],
+                          capture_output=True, text=True, check=True)
+    modules = json.loads(proc.stdout.strip().splitlines()[-1])["modules"]
+    terminal_only = ("rich", "bandwright.report.terminal", "bandwright.report.files")
+    assert [m for m in modules if any(m == d or m.startswith(d + ".") for d in terminal_only)] == []

@@ -15,8 +15,6 @@ import sys
 import warnings
 from pathlib import Path
 
-from rich.console import Console
-
 from bandwright import __version__
 from bandwright.checks.base import worst_status
 from bandwright.errors import SpecError
@@ -81,7 +79,7 @@ def _on_term(signum, frame) -> None:
 
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
-    err = Console(stderr=True, highlight=False, soft_wrap=True)
+    err = _ErrorLines()
     previous = _install_term_handler()
     # stderr carries our own lines only: library warnings (numpy on a degenerate design,
     # matplotlib on a crowded figure) are not the user's to read. `python -W ...` still
@@ -170,8 +168,6 @@ def _run_plan(args: argparse.Namespace) -> int:
     # Imported here so that `--help` and usage errors stay fast.
     from bandwright.planner import plan
     from bandwright.report.json_out import dumps, plan_to_dict
-    from bandwright.report.files import plan_files
-    from bandwright.report.terminal import render_plan
     from bandwright.inputs import load_spec
 
     from bandwright.report.progress import stderr_progress
@@ -182,17 +178,21 @@ def _run_plan(args: argparse.Namespace) -> int:
         result = plan(req, family=args.family, order=args.order, progress=progress)
     text = dumps(plan_to_dict(result))
     if args.out is not None:
+        from bandwright.report.files import plan_files
         _write(args, plan_files(result, text))
-    _emit(lambda: _show(args, text, render_plan, result))
+    _emit(lambda: _show(args, text, "render_plan", result))
     return 1 if worst_status(result.checks) == "fail" else 0
 
 
-def _show(args: argparse.Namespace, text: str, render, result) -> None:
+def _show(args: argparse.Namespace, text: str, render: str, result) -> None:
+    """The JSON, or the terminal report (`render`: the function of ``report.terminal``,
+    imported only for a report: `--json` leaves rich and the report stack unloaded)."""
     if args.json:
         sys.stdout.write(text + "\n")
     else:
+        from bandwright.report import terminal
         console = _console()
-        render(result, console)
+        getattr(terminal, render)(result, console)
         if args.out is not None:
             console.print(f"Wrote {args.out}/")
 
@@ -207,14 +207,24 @@ def _write(args: argparse.Namespace, files) -> None:
         raise OutDirRefused(f"{args.out}: cannot write: {exc.strerror or exc}") from None
 
 
-class _ReportConsole(Console):
-    def on_broken_pipe(self) -> None:
-        # rich would exit with status 1, which here means "a check failed".
-        self.quiet = True
-        raise BrokenPipeError(errno.EPIPE, "Broken pipe")
+class _ErrorLines:
+    """bandwright's one-line messages on stderr, through rich: imported when a line is
+    printed (a clean `plan --json` never pays for it)."""
+
+    def print(self, text: str, **kw) -> None:
+        from rich.console import Console
+        Console(stderr=True, highlight=False, soft_wrap=True).print(text, **kw)
 
 
-def _console() -> Console:
+def _console():
+    from rich.console import Console
+
+    class _ReportConsole(Console):
+        def on_broken_pipe(self) -> None:
+            # rich would exit with status 1, which here means "a check failed".
+            self.quiet = True
+            raise BrokenPipeError(errno.EPIPE, "Broken pipe")
+
     # markup=False: requirement text and check messages may hold brackets ("[tolerance]").
     return _ReportConsole(width=max(100, Console().width), no_color="NO_COLOR" in os.environ,
                           highlight=False, markup=False)
@@ -222,9 +232,7 @@ def _console() -> Console:
 
 def _run_audit(args: argparse.Namespace) -> int:
     from bandwright.audit import audit
-    from bandwright.report.files import audit_files
     from bandwright.report.json_out import audit_to_dict, dumps
-    from bandwright.report.terminal import render_audit
 
     from bandwright.report.progress import stderr_progress
 
@@ -234,8 +242,9 @@ def _run_audit(args: argparse.Namespace) -> int:
                        (lambda done, total: bar("yield", done, total)))
     text = dumps(audit_to_dict(result))
     if args.out is not None:
+        from bandwright.report.files import audit_files
         _write(args, audit_files(result, text))
-    _emit(lambda: _show(args, text, render_audit, result))
+    _emit(lambda: _show(args, text, "render_audit", result))
     if result.diagnosis is not None and result.diagnosis.mask_pass is not None:
         return 0 if result.diagnosis.mask_pass else 1  # the measured chain decides
     return 1 if worst_status(result.checks) == "fail" else 0

@@ -11,10 +11,11 @@ from __future__ import annotations
 import sys
 import time
 from contextlib import contextmanager
-from typing import Callable, Iterator, TextIO
+from typing import TYPE_CHECKING, Callable, Iterator, TextIO
 
-from rich.console import Console
-from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+if TYPE_CHECKING:  # rich is imported where a bar is really drawn
+    from rich.console import Console
+    from rich.progress import Progress
 
 __all__ = ["stderr_progress", "LABELS"]
 
@@ -52,6 +53,8 @@ class _LazyBar:
         if self.progress is None:
             if done >= total or expected <= self.min_seconds:
                 return
+            from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
+                                       TimeRemainingColumn)
             self.progress = Progress(TextColumn("{task.description}"), BarColumn(),
                                      MofNCompleteColumn(), TimeRemainingColumn(),
                                      console=self.console, transient=True)
@@ -86,6 +89,7 @@ def stderr_progress(*, min_seconds: float = 1.0, stream: TextIO | None = None
     if not out.isatty():
         yield None
         return
+    from rich.console import Console  # here: off a terminal (a pipe, --json) rich stays unloaded
     bar = _LazyBar(Console(file=out, force_terminal=True), min_seconds)
     try:
         yield bar

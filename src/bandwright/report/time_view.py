@@ -6,13 +6,14 @@ from __future__ import annotations
 
 import html
 import math
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from rich.console import Console
-from rich.table import Table
 
 from bandwright.parts.notation import format_hz, format_si, format_sig
+
+if TYPE_CHECKING:  # the JSON (time_dict) needs no rich: it is imported where a table is drawn
+    from rich.console import Console
 
 __all__ = ["time_dict", "render_time", "time_figure", "time_html", "TIMING_CAPTION"]
 
@@ -54,6 +55,7 @@ def _ms(t: float) -> str:
 
 def render_time(an, console: Console) -> None:
     """A terminal block: group delay, the three bursts, settling, onset peaks."""
+    from rich.table import Table
     tf = getattr(an, "time", None)
     if tf is None:
         return
