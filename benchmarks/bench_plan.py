@@ -5,9 +5,11 @@ scipy.signal, and ngspice running 2,000 AC sweeps of the plan's own chain.
     python benchmarks/bench_plan.py [SCENARIO ...] [--repeat 1] [--boards 2000]
                                     [--no-spice]
 
-For each scenario: the in-process ``planner.plan`` time (modules already imported), the
-part of it spent on the Monte Carlo yield (from the planner's progress reports), and the
-wall time of the command ``python -m bandwright plan SPEC --json`` as a user runs it.
+For each scenario: the in-process ``planner.plan`` time (modules already imported) with the
+candidates built side by side in worker processes (``bandwright.workers``, one per core, as
+a user's run gets them) and with ``BANDWRIGHT_WORKERS=1`` (all in this process: what the
+plan costs one core), and the wall time of the command ``python -m bandwright plan SPEC
+--json`` as a user runs it.
 
 "cold s" is one run of the same command with an empty expansion cache
 (``circuits.expansion_cache``: what a first run on a new machine pays); "CLI s" the best
@@ -39,6 +41,8 @@ Prints figures and ratios; asserts nothing.
 from __future__ import annotations
 
 import argparse
+import contextlib
+import math
 import os
 import re
 import shutil
@@ -68,6 +72,20 @@ def _wall(cmd: list[str], env: dict[str, str] | None = None) -> float:
     t0 = time.perf_counter()
     subprocess.run(cmd, cwd=ROOT, capture_output=True, check=False, env=env)
     return time.perf_counter() - t0
+
+
+@contextlib.contextmanager
+def _workers(value: str):
+    """``BANDWRIGHT_WORKERS`` set to `value` for the block (read at each plan)."""
+    before = os.environ.get("BANDWRIGHT_WORKERS")
+    os.environ["BANDWRIGHT_WORKERS"] = value
+    try:
+        yield
+    finally:
+        if before is None:
+            del os.environ["BANDWRIGHT_WORKERS"]
+        else:
+            os.environ["BANDWRIGHT_WORKERS"] = before
 
 
 def _met(ok: bool) -> str:
@@ -159,7 +177,7 @@ def main() -> None:
         print(f"ngspice: {boards} boards run, time scaled linearly to {SPICE_BOARDS}")
 
     names = args.scenarios or sorted(p.stem for p in SCENARIOS.glob("*.toml"))
-    print(f"{'scenario':26s} {'plan s':>6s} {'yield s':>7s} {'cold s':>6s} {'CLI s':>6s} "
+    print(f"{'scenario':26s} {'plan s':>6s} {'1-core':>6s} {'cold s':>6s} {'CLI s':>6s} "
           f"{'CLI/ref':>7s} "
           f"{'ngspice s':>9s} {'sweeps':>6s} {'points':>6s} {'parts':>5s} {'spice/CLI':>9s}  "
           f"goals: CLI<={GOAL_S}s, <={GOAL_STARTUP_RATIO}x ref, >={GOAL_SPICE_RATIO:g}x")
@@ -167,20 +185,15 @@ def main() -> None:
     for name in names:
         spec = SCENARIOS / f"{name}.toml"
         req = load_spec(spec)
-        best, y_time, result = None, 0.0, None
+        best, one_core, result = math.inf, math.inf, None
         for _ in range(max(1, args.repeat)):
-            marks: dict[str, float] = {}
-
-            def progress(stage: str, done: int, total: int) -> None:
-                marks[stage] = time.perf_counter()
-
             t0 = time.perf_counter()
-            result = plan(req, progress=progress)
-            dt = time.perf_counter() - t0
-            if best is None or dt < best:
-                best = dt
-                y_time = (marks["yield"] - marks.get("candidates", t0)) if "yield" in marks \
-                    else 0.0
+            result = plan(req)
+            best = min(best, time.perf_counter() - t0)
+            with _workers("1"):
+                t0 = time.perf_counter()
+                plan(req)
+                one_core = min(one_core, time.perf_counter() - t0)
         command = [sys.executable, "-m", "bandwright", "plan", str(spec), "--json"]
         with tempfile.TemporaryDirectory() as empty:
             cold = _wall(command, env={**os.environ, "BANDWRIGHT_CACHE": empty})
@@ -208,7 +221,7 @@ def main() -> None:
             verdict += f", {_met(ratio >= GOAL_SPICE_RATIO)}"
         elif spice:
             verdict += ", no chain"
-        print(f"{name:26s} {best:6.2f} {y_time:7.2f} {cold:6.2f} {cli:6.2f} {cli / startup:6.2f}x "
+        print(f"{name:26s} {best:6.2f} {one_core:6.2f} {cold:6.2f} {cli:6.2f} {cli / startup:6.2f}x "
               f"{sp_txt}  {verdict}")
     for key, text in (("time", f"CLI plan within {GOAL_S} s"),
                       ("startup", f"CLI plan within {GOAL_STARTUP_RATIO}x '{REFERENCE}'"),
