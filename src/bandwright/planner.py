@@ -3,6 +3,7 @@ checks; the best candidate wins."""
 
 from __future__ import annotations
 
+import importlib
 import math
 from dataclasses import dataclass, replace
 from typing import Callable
@@ -38,7 +39,7 @@ from bandwright.checks.yield_check import yield_checks
 from bandwright.circuits.assign import Assignment, assign
 from bandwright.circuits.nodal import (ac_solve, input_impedance_max, input_impedance_min,
                                        noise as nodal_noise)
-from bandwright.circuits import topologies_of_kind
+from bandwright.circuits import all_topologies, topologies_of_kind
 from bandwright.errors import InfeasibleDesign
 from bandwright.parts.catalogue import archetype, suggest_faster
 from bandwright.parts.notation import format_fixed, format_hz, format_si, format_sig
@@ -183,6 +184,7 @@ def plan(requirement: Requirement, *, family: str | None = None,
     requirement = replace(requirement,
                           stopband=requirement.stopband + anti_alias_points(requirement))
     candidates = make_candidates(requirement, family=family, order=order)
+    _load_before_fork()
 
     def build(c: Candidate) -> tuple[Design, YieldResult | None]:
         d = build_design(c, requirement, model, windows=windows)
@@ -212,6 +214,16 @@ def plan(requirement: Requirement, *, family: str | None = None,
     designs[0] = with_yield(designs[0], requirement, progress=progress)
     return Plan(requirement=requirement, model=model, designs=tuple(designs),
                 why=_why(designs))
+
+
+def _load_before_fork() -> None:
+    """Import here what every candidate's build imports on first use (the topology modules,
+    numpy's FFT, random and masked-array modules, which numpy loads lazily): the workers
+    are forked from this process and inherit them, instead of each importing them again."""
+    all_topologies()
+    importlib.import_module("numpy.fft")
+    importlib.import_module("numpy.random")
+    importlib.import_module("numpy.ma")       # np.unique reaches for it
 
 
 def _clean(d: Design) -> bool:

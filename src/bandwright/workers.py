@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import multiprocessing
 import os
+import signal
 import sys
 import warnings
 from typing import Callable, Sequence, TypeVar
@@ -33,6 +34,7 @@ _MAX_WORKERS = 4
 # The job of the pool being started: set before the fork, so the children inherit it.
 _JOB: tuple[Callable, Sequence] | None = None
 _IN_WORKER = False
+_LIMITS = None      # a worker's BLAS thread limit, kept for the worker's life
 
 
 def worker_count(jobs: int) -> int:
@@ -58,6 +60,16 @@ def worker_count(jobs: int) -> int:
 def _start_worker() -> None:
     global _IN_WORKER
     _IN_WORKER = True
+    # Ctrl-C reaches the whole process group: the parent alone answers it, stopping the
+    # pool, which ends the workers with SIGTERM, taken the default way (the CLI's own
+    # SIGTERM handler, inherited at the fork, would raise inside a job).
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    # One process per core already: a BLAS thread pool per worker would only fight the
+    # other workers for the same cores.
+    from threadpoolctl import threadpool_limits
+    global _LIMITS
+    _LIMITS = threadpool_limits(limits=1)
     # The parent may hold a console lock (a progress bar's thread) at the fork: a worker
     # never writes to the terminal, so it gets streams of its own, and no warnings.
     sys.stdout = sys.stderr = open(os.devnull, "w")
