@@ -2,6 +2,12 @@
 
 from __future__ import annotations
 
+import os
+import signal
+import subprocess
+import sys
+import time
+
 import numpy as np
 import pytest
 
@@ -74,3 +80,39 @@ def test_plan_with_workers_is_the_plan_without(monkeypatch):
     monkeypatch.setenv(workers.WORKERS_ENV, "2")
     side_by_side = dumps(plan_to_dict(plan(req)))
     assert side_by_side == alone
+
+
+@needs_fork
+@pytest.mark.slow
+@pytest.mark.parametrize("signum, status", [(signal.SIGINT, 130), (signal.SIGTERM, 143)])
+def test_stopped_while_workers_build(signum, status):
+    """Ctrl-C (SIGINT to the whole process group) or SIGTERM while the candidates are being
+    built: one line on stderr, the signal's exit status, nothing on stdout, and no worker
+    process left behind."""
+    proc = subprocess.Popen([sys.executable, "-m", "bandwright", "plan",
+                             str(SCENARIOS / "acoustic_emission.toml"), "--json"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            start_new_session=True)
+    try:
+        deadline = time.monotonic() + 60
+        while len(_group(proc.pid)) < 3:        # the parent and its two workers
+            assert proc.poll() is None and time.monotonic() < deadline, "no workers started"
+            time.sleep(0.02)
+        os.killpg(proc.pid, signum)
+        out, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+    assert proc.returncode == status
+    assert out == ""
+    assert err.strip() == f"bandwright: stopped by {signal.Signals(signum).name}"
+    time.sleep(0.2)
+    assert _group(proc.pid) == []
+
+
+def _group(pgid: int) -> list[str]:
+    """Processes of process group `pgid` still running (zombies are not)."""
+    rows = subprocess.run(["ps", "-e", "-o", "pgid=,stat="], capture_output=True,
+                          text=True).stdout.split("\n")
+    return [r for r in rows if r.split() and r.split()[0] == str(pgid)
+            and not r.split()[1].startswith("Z")]
