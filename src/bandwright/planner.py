@@ -47,7 +47,7 @@ from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
 from bandwright.inputs.requirement import Requirement
-from bandwright.workers import run_jobs
+from bandwright.workers import one_blas_thread, run_jobs
 
 __all__ = ["Plan", "Design", "plan", "build_design", "with_yield"]
 
@@ -178,6 +178,13 @@ def plan(requirement: Requirement, *, family: str | None = None,
     SpecError
         When the amplifier the requirement names does not exist or cannot swing on its rails.
     """
+    with one_blas_thread():
+        return _plan(requirement, family=family, order=order, windows=windows,
+                     progress=progress)
+
+
+def _plan(requirement: Requirement, *, family: str | None, order: int | None,
+          windows: PartWindows, progress: Callable[[str, int, int], None] | None) -> Plan:
     model = resolve_amplifier(requirement.amplifier, path=requirement.path,
                               supply=requirement.supply, tones=requirement.input.tones)
     # A converter may need stopband points the mask does not hold (each says why).
@@ -263,21 +270,15 @@ def with_yield(design: Design, requirement: Requirement, *,
     result = design.yield_result
     if result is None:
         result = monte_carlo(design.chain, requirement, progress=report)
-    untrimmed, tuning = result, design.tuning
-    jobs = {}
     if offer and result.offer is None:
-        jobs["offer"] = lambda: tighter_offer(design.chain, requirement, untrimmed,
-                                              progress=report)
+        extra = tighter_offer(design.chain, requirement, result, progress=report)
+        result = result if extra is None else replace(result, offer=extra)
+    tuning = design.tuning
     if offer and tuning is None:
         # Only the chosen design is tuned: the ranking compares untrimmed chains.
-        jobs["tuning"] = lambda: tuning_for(design.chain, requirement, untrimmed, targets={
+        tuning = tuning_for(design.chain, requirement, result, targets={
             st.position: (st.target.f0_hz, st.target.q, abs(st.target.gain))
             for st in design.chain.stages if st.kind == "bandpass"})
-    # The two read the untrimmed result only: they run side by side.
-    done = dict(zip(jobs, run_jobs(lambda job: job(), list(jobs.values()))))
-    if done.get("offer") is not None:
-        result = replace(result, offer=done["offer"])
-    tuning = done.get("tuning", tuning)
     checks = tuple(c for c in design.checks if c.id != "yield")
     return replace(design, yield_result=result, tuning=tuning,
                    checks=checks + tuple(yield_checks(result, tuning=tuning)))
