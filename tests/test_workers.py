@@ -65,7 +65,8 @@ def test_a_failing_job_raises_its_own_error_here(two_workers):
 
 @needs_fork
 def test_no_nested_workers(two_workers):
-    # A worker's own jobs run in the worker: it has no pool of its own.
+    # A job's own jobs run where the job runs (a worker, or this process taking its share):
+    # no pool inside a pool.
     inner = workers.run_jobs(lambda x: workers.worker_count(3), [1, 2])
     assert inner == [0, 0]
 
@@ -95,7 +96,7 @@ def test_stopped_while_workers_build(signum, status):
                             start_new_session=True)
     try:
         deadline = time.monotonic() + 60
-        while len(_group(proc.pid)) < 3:        # the parent and its two workers
+        while len(_group(proc.pid)) < 2:        # the parent and its worker
             assert proc.poll() is None and time.monotonic() < deadline, "no workers started"
             time.sleep(0.02)
         os.killpg(proc.pid, signum)
@@ -116,3 +117,10 @@ def _group(pgid: int) -> list[str]:
                           text=True).stdout.split("\n")
     return [r for r in rows if r.split() and r.split()[0] == str(pgid)
             and not r.split()[1].startswith("Z")]
+
+
+@needs_fork
+def test_this_process_takes_its_share(two_workers):
+    """The jobs are shared between this process and a worker (on two cores: one worker)."""
+    pids = workers.run_jobs(lambda x: (time.sleep(0.2), os.getpid())[1], list(range(4)))
+    assert os.getpid() in pids and len(set(pids)) == 2

@@ -2,10 +2,10 @@
 
 The planner's candidates (family × order × path) are built independently of one another:
 each is a pure function of the requirement, and their results are ranked only once all are
-in. On a platform that forks (Linux), they run in forked worker processes, one per core; a
-forked child starts with the parent's memory (imports, caches, the job itself), so nothing
-but the results crosses between processes, and each result is the one the same call gives
-in-process. Elsewhere, with one core, in a worker already, or with ``BANDWRIGHT_WORKERS=1``
+in. On a platform that forks (Linux), this process and forked worker processes share them,
+one process per core; a forked child starts with the parent's memory (imports, caches, the
+job itself), so nothing but the results crosses between processes, and each result is the
+one the same call gives in-process. Elsewhere, with one core, in a worker already, or with ``BANDWRIGHT_WORKERS=1``
 in the environment, the jobs run one after another in this process.
 
 A job that raises in a worker is run again here, so that its exception (a ``SpecError``,
@@ -18,6 +18,7 @@ import contextlib
 import gc
 import multiprocessing
 import os
+import queue
 import signal
 import sys
 import warnings
@@ -28,20 +29,23 @@ __all__ = ["WORKERS_ENV", "worker_count", "run_jobs", "one_blas_thread"]
 T = TypeVar("T")
 R = TypeVar("R")
 
-# Environment variable: the most worker processes a run may use (1: none, every job here).
+# Environment variable: the most processes a run's jobs may use, this one included (1: this
+# one alone).
 WORKERS_ENV = "BANDWRIGHT_WORKERS"
-# Candidates number four at most today; more workers than that would only wait.
+# Candidates number four at most today; more processes than that would only wait.
 _MAX_WORKERS = 4
 
-# The job of the pool being started: set before the fork, so the children inherit it.
+# The jobs being shared: set before the fork, so the workers inherit them.
 _JOB: tuple[Callable, Sequence] | None = None
 _IN_WORKER = False
+_SHARING = False    # this process is taking its share of a run's jobs: no pool inside one
 _LIMITS = None      # a worker's BLAS thread limit, kept for the worker's life
 
 
 def worker_count(jobs: int) -> int:
-    """How many worker processes `jobs` independent jobs get here (0: run them in-process)."""
-    if _IN_WORKER or jobs < 2 or "fork" not in multiprocessing.get_all_start_methods() \
+    """How many processes share `jobs` independent jobs here, this one included (one per
+    core; 0: all of them run in this process alone)."""
+    if _IN_WORKER or _SHARING or jobs < 2 or "fork" not in multiprocessing.get_all_start_methods() \
             or not sys.platform.startswith("linux"):
         return 0
     try:
@@ -92,17 +96,33 @@ def _start_worker() -> None:
     warnings.simplefilter("ignore")
 
 
-def _run(index: int):
+def _claim(counter) -> int:
+    """The next unclaimed job's index (shared by this process and the workers)."""
+    with counter.get_lock():
+        index = counter.value
+        counter.value += 1
+    return index
+
+
+def _worker_loop(counter, results) -> None:
+    """A worker: claim jobs until none is left, sending (index, ok, result) for each."""
+    _start_worker()
     fn, items = _JOB
-    try:
-        return True, fn(items[index])
-    except Exception:       # re-raised by the parent's own run of this job
-        return False, None
+    while (index := _claim(counter)) < len(items):
+        try:
+            results.put((index, True, fn(items[index])))
+        except Exception:       # re-raised by the parent's own run of this job
+            results.put((index, False, None))
 
 
 def run_jobs(fn: Callable[[T], R], items: Sequence[T], *,
              done: Callable[[int], None] | None = None) -> list[R]:
-    """``[fn(x) for x in items]``, the calls spread over worker processes where that pays.
+    """``[fn(x) for x in items]``, the calls spread over this process and worker processes
+    where that pays.
+
+    This process takes jobs too (the first one, then whichever is next when it is free): on
+    two cores it and one worker share the jobs, and what it computed itself (a lopsided
+    plan's big candidate, say) stays warm in its caches for what follows.
 
     Parameters
     ----------
@@ -111,30 +131,60 @@ def run_jobs(fn: Callable[[T], R], items: Sequence[T], *,
         its result must pickle.
     items : sequence
     done : callable(count), optional
-        Told how many results are in, after each one (in item order).
+        Told how many results are in, each time that number grows.
     """
-    global _JOB
+    global _JOB, _SHARING
     n = worker_count(len(items))
-    out: list[R] = []
+    out: list = [None] * len(items)
     if n == 0:
-        for item in items:
-            out.append(fn(item))
+        for k, item in enumerate(items):
+            out[k] = fn(item)
             if done is not None:
-                done(len(out))
+                done(k + 1)
         return out
+    ctx = multiprocessing.get_context("fork")
+    counter, results = ctx.Value("i", 0), ctx.Queue()
+    have: set[int] = set()
+
+    def receive(index: int, value) -> None:
+        out[index] = value
+        have.add(index)
+        if done is not None:
+            done(len(have))
+
     _JOB = (fn, items)
     # Every object of this process is shared with the workers page by page until written:
     # a worker's garbage collector, walking them all, would write (and so copy) every
     # page. Frozen, they are left out of the workers' collections.
     gc.freeze()
+    procs = [ctx.Process(target=_worker_loop, args=(counter, results), daemon=True)
+             for _ in range(n - 1)]
     try:
-        with multiprocessing.get_context("fork").Pool(n, initializer=_start_worker) as pool:
-            gc.unfreeze()
-            for k, (ok, result) in enumerate(pool.imap(_run, range(len(items)))):
-                out.append(result if ok else fn(items[k]))
-                if done is not None:
-                    done(len(out))
+        for proc in procs:
+            proc.start()
+        gc.unfreeze()
+        _SHARING = True
+        while (index := _claim(counter)) < len(items):
+            receive(index, fn(items[index]))
+        _SHARING = False
+        while len(have) < len(items) and any(p.is_alive() for p in procs):
+            try:
+                index, ok, value = results.get(timeout=0.05)
+            except queue.Empty:
+                continue
+            receive(index, value if ok else fn(items[index]))
+        while not results.empty() and len(have) < len(items):
+            index, ok, value = results.get()
+            receive(index, value if ok else fn(items[index]))
+        for index in range(len(items)):     # a worker that died left its job undone
+            if index not in have:
+                receive(index, fn(items[index]))
     finally:
         gc.unfreeze()
-        _JOB = None
+        _JOB, _SHARING = None, False
+        for proc in procs:
+            if proc.is_alive():
+                proc.terminate()
+            proc.join()
+        results.close()
     return out
