@@ -270,15 +270,25 @@ def with_yield(design: Design, requirement: Requirement, *,
     result = design.yield_result
     if result is None:
         result = monte_carlo(design.chain, requirement, progress=report)
+    untrimmed, tuning = result, design.tuning
+    jobs = {}
     if offer and result.offer is None:
-        extra = tighter_offer(design.chain, requirement, result, progress=report)
-        result = result if extra is None else replace(result, offer=extra)
-    tuning = design.tuning
+        jobs["offer"] = lambda: tighter_offer(design.chain, requirement, untrimmed,
+                                              progress=report)
     if offer and tuning is None:
         # Only the chosen design is tuned: the ranking compares untrimmed chains.
-        tuning = tuning_for(design.chain, requirement, result, targets={
+        jobs["tuning"] = lambda: tuning_for(design.chain, requirement, untrimmed, targets={
             st.position: (st.target.f0_hz, st.target.q, abs(st.target.gain))
             for st in design.chain.stages if st.kind == "bandpass"})
+    # Both read the untrimmed result only. Below its target each runs Monte Carlo runs of
+    # its own: side by side then (on its target both return at once: in line).
+    if untrimmed.meets_target:
+        done = {k: job() for k, job in jobs.items()}
+    else:
+        done = dict(zip(jobs, run_jobs(lambda job: job(), list(jobs.values()))))
+    if done.get("offer") is not None:
+        result = replace(result, offer=done["offer"])
+    tuning = done.get("tuning", tuning)
     checks = tuple(c for c in design.checks if c.id != "yield")
     return replace(design, yield_result=result, tuning=tuning,
                    checks=checks + tuple(yield_checks(result, tuning=tuning)))
