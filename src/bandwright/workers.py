@@ -80,9 +80,9 @@ def one_blas_thread() -> Iterator[None]:
 def _start_worker() -> None:
     global _IN_WORKER
     _IN_WORKER = True
-    # Ctrl-C reaches the whole process group: the parent alone answers it, stopping the
-    # pool, which ends the workers with SIGTERM, taken the default way (the CLI's own
-    # SIGTERM handler, inherited at the fork, would raise inside a job).
+    # Ctrl-C reaches the whole process group: the parent alone answers it and ends the
+    # workers with SIGTERM, taken the default way (the CLI's own SIGTERM handler,
+    # inherited at the fork, would raise inside a job).
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
     # One process per core already: a BLAS thread pool per worker would only fight the
