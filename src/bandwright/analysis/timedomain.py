@@ -41,7 +41,8 @@ from numpy.polynomial import polynomial as npoly
 from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
 from bandwright.circuits.figures import _scale_rad_s, _trim, transfer_polynomials_many
 
-__all__ = ["Zpk", "net_zpk", "zpk_response", "group_delay_s", "tone_onset", "burst_response",
+__all__ = ["Zpk", "net_zpk", "zpk_response", "group_delay_s", "tone_onset", "tone_phasors",
+           "burst_response",
            "step_response", "BurstReading", "read_burst", "OnsetReading", "onset_peaks",
            "TimeFigures", "time_figures", "default_burst_s", "worst_onset_phases",
            "RING_FRACTION"]
@@ -197,8 +198,19 @@ def _exp_matrix(p: np.ndarray, t_s: np.ndarray) -> np.ndarray:
     return e if ascending else np.where(t[None, :] >= 0, e, 0)
 
 
-def tone_onset(zpk: Zpk, freq_hz: np.ndarray, t_s: np.ndarray) -> np.ndarray:
+def tone_phasors(freq_hz: np.ndarray, t_s: np.ndarray) -> np.ndarray:
+    """e^{jωt}, shape (F, T): the tones themselves, which every net's onset on the same
+    time grid shares (``tone_onset``'s `phasors`)."""
+    jw = 2j * np.pi * np.atleast_1d(np.asarray(freq_hz, dtype=float))
+    return np.exp(jw[:, None] * np.asarray(t_s, dtype=float)[None, :])
+
+
+def tone_onset(zpk: Zpk, freq_hz: np.ndarray, t_s: np.ndarray,
+               phasors: np.ndarray | None = None) -> np.ndarray:
     """Response to e^{jωt} switched on at t = 0 from rest, shape (F, T), per 1 V.
+
+    `phasors`: ``tone_phasors(freq_hz, t_s)`` when already computed for these tones and
+    times (several nets on one grid).
 
     Notes
     -----
@@ -211,9 +223,11 @@ def tone_onset(zpk: Zpk, freq_hz: np.ndarray, t_s: np.ndarray) -> np.ndarray:
     jw = 2j * np.pi * f
     h = zpk_response(zpk, jw)
     coef = r[None, :] / (jw[:, None] - p[None, :])
-    forced = h[:, None] * np.exp(jw[:, None] * t[None, :])
+    forced = h[:, None] * (tone_phasors(f, t) if phasors is None else phasors)
+    if t.size and t.min() < 0:      # before the switch-on there is no tone
+        forced = np.where(t[None, :] >= 0, forced, 0)
     # einsum, not @: a complex BLAS call on a (F, P) × (P, T) product this thin is slower.
-    return np.where(t[None, :] >= 0, forced, 0) - np.einsum("fp,pt->ft", coef, _exp_matrix(p, t))
+    return forced - np.einsum("fp,pt->ft", coef, _exp_matrix(p, t))
 
 
 def burst_response(zpk: Zpk, freq_hz: float, t_s: np.ndarray, burst_s: float) -> np.ndarray:
@@ -356,9 +370,9 @@ def _onset_grid(zpk: Zpk, f_top_hz: float) -> np.ndarray:
 
 
 def _bound(zpk: Zpk, freqs: np.ndarray, amps: np.ndarray, t: np.ndarray,
-           n_signal: int) -> np.ndarray:
+           n_signal: int, phasors: np.ndarray | None = None) -> np.ndarray:
     """Worst-phase level Σ V|y(t)|, one row per in-band candidate frequency."""
-    y = np.abs(tone_onset(zpk, freqs, t)) * amps[:, None]
+    y = np.abs(tone_onset(zpk, freqs, t, phasors)) * amps[:, None]
     tones = y[n_signal:].sum(axis=0)
     return y[:n_signal] + tones[None, :]
 
@@ -410,6 +424,9 @@ def onset_peaks(chain: Chain, zpks: dict[str, Zpk], *, signal_vpk: float,
     freqs = np.concatenate([sig_f, tf])
     amps = np.concatenate([np.full(sig_f.size, signal_vpk), tv])
     f_top = float(freqs.max()) + float(sig_f.max())
+    # The nets of one stage, and often every net after the slowest pole, share one grid:
+    # their tones are computed once.
+    phasors: dict[tuple[int, float], np.ndarray] = {}
     out = []
     for net in chain.output_nets:
         zpk = zpks[net]
@@ -423,7 +440,10 @@ def onset_peaks(chain: Chain, zpks: dict[str, Zpk], *, signal_vpk: float,
         h = np.abs(zpk_response(zpk, 2j * np.pi * freqs))
         steady_rows = amps[: sig_f.size] * h[: sig_f.size] + float(np.sum(tv * h[sig_f.size:]))
         t = _onset_grid(zpk, f_top)
-        b = _bound(zpk, freqs, amps, t, sig_f.size)
+        grid_key = (t.size, float(t[-1]))
+        if grid_key not in phasors:
+            phasors[grid_key] = tone_phasors(freqs, t)
+        b = _bound(zpk, freqs, amps, t, sig_f.size, phasors[grid_key])
         row, col = np.unravel_index(int(np.argmax(b)), b.shape)
         # Refine the peak between the neighbouring samples.
         lo, hi = t[max(col - 1, 0)], t[min(col + 1, t.size - 1)]
