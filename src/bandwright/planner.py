@@ -199,8 +199,14 @@ def _plan(requirement: Requirement, *, family: str | None, order: int | None,
         # beside the build, on the same worker, and joins the design after the first ranking.
         return d, (monte_carlo(d.chain, requirement) if _clean(d) else None)
 
-    built = run_jobs(build, candidates, done=None if progress is None else
-                     (lambda n: progress("candidates", n, len(candidates))))
+    # Longest jobs first, so that the last one to finish is a short one: a bandpass-path
+    # candidate's sections take the multi-amplifier topologies (eight or nine parts to
+    # search) where the highpass + lowpass path's take five or six.
+    first = sorted(range(len(candidates)), key=lambda i: candidates[i].path != "bandpass")
+    built_in_turn = run_jobs(build, [candidates[i] for i in first],
+                             done=None if progress is None else
+                             (lambda n: progress("candidates", n, len(candidates))))
+    built = [b for _, b in sorted(zip(first, built_in_turn), key=lambda ib: ib[0])]
     designs = [d for d, _ in built]
     ready = {id(d): y for d, y in built}
     # The yield of every candidate that passes its other checks: how many built boards meet
