@@ -364,15 +364,17 @@ def _grid_search(elements: tuple[Element, ...], start: Mapping[str, float], targ
             axes = [neighbours(current[n], series_of(n), count=steps) if n in block
                     else np.array([current[n]]) for n in names]
             grid = np.stack([a.ravel() for a in np.meshgrid(*axes, indexing="ij")], axis=-1)
-            keys = [row.tobytes() for row in grid]
+            # Each row's bytes, in one call (a row's ``tobytes``, row by row, cost more
+            # than the rest of the bookkeeping).
+            keys = np.ascontiguousarray(grid).view(np.dtype((np.void, grid.itemsize
+                                                              * grid.shape[1]))).ravel().tolist()
             new = np.array([k not in seen for k in keys])
             if new.any():
                 f0, q, g = section_figures_batch(elements, kind=target.kind, near_hz=near,
                                                  values=grid[new], source_ohms=source_ohms,
                                                  method=_SEARCH_METHOD, start_rad_s=seed)
-                for key, e in zip((k for k, n in zip(keys, new) if n),
-                                  _error_batch(f0, q, g, target)):
-                    seen[key] = float(e)
+                seen.update(zip([k for k, n in zip(keys, new) if n],
+                                _error_batch(f0, q, g, target).tolist()))
             err = np.array([seen[k] for k in keys])
             k = _tie_break(err, grid, anchor)
             if err[k] < best_err - _IMPROVEMENT_TOL:
