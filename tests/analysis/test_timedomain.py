@@ -315,6 +315,13 @@ def test_exponentials_skipped_only_where_they_are_zero():
         with np.errstate(under="ignore", over="ignore"):
             full = np.where(t >= 0, np.exp(poles[:, None] * np.maximum(t, 0)), 0)
         assert np.array_equal(_exp_matrix(poles, t), full)
+        # Rows shared between nets on one grid (a downstream net carries the upstream
+        # poles): the second matrix takes them from the first, unchanged.
+        rows = {}
+        _exp_matrix(poles[:6], t, rows)
+        assert len(rows) == 6
+        assert np.array_equal(_exp_matrix(poles, t, rows), full)
+        assert len(rows) == poles.size
 
 
 def test_shared_tones_give_the_same_onset():

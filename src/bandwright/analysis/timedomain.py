@@ -175,8 +175,12 @@ def _residues(zpk: Zpk) -> tuple[np.ndarray, np.ndarray]:
     return p, zpk.k * np.exp(log_r)
 
 
-def _exp_matrix(p: np.ndarray, t_s: np.ndarray) -> np.ndarray:
+def _exp_matrix(p: np.ndarray, t_s: np.ndarray,
+                rows: dict[complex, np.ndarray] | None = None) -> np.ndarray:
     """e^{p t} for t >= 0, 0 before, shape (P, T).
+
+    `rows`: rows already computed on this same grid, by pole (filled in here): a net after
+    a stage carries that stage's poles, so on a shared grid their rows are shared.
 
     On an ascending grid each pole's exponential is computed only while it can still be
     told from zero: e^x is exactly 0 in doubles for x below about -745, so past
@@ -190,11 +194,16 @@ def _exp_matrix(p: np.ndarray, t_s: np.ndarray) -> np.ndarray:
     start = int(np.searchsorted(t, 0.0, side="left")) if ascending else 0
     with np.errstate(under="ignore", over="ignore"):
         for i, pole in enumerate(p):
+            if rows is not None and complex(pole) in rows:
+                e[i] = rows[complex(pole)]
+                continue
             stop = t.size
             if ascending and pole.real < 0:
                 stop = int(np.searchsorted(t, _DEAD_EXPONENT / pole.real, side="right"))
             if stop > start:
                 e[i, start:stop] = np.exp(pole * np.maximum(t[start:stop], 0))
+            if rows is not None:
+                rows[complex(pole)] = e[i].copy()
     return e if ascending else np.where(t[None, :] >= 0, e, 0)
 
 
@@ -206,11 +215,12 @@ def tone_phasors(freq_hz: np.ndarray, t_s: np.ndarray) -> np.ndarray:
 
 
 def tone_onset(zpk: Zpk, freq_hz: np.ndarray, t_s: np.ndarray,
-               phasors: np.ndarray | None = None) -> np.ndarray:
+               phasors: np.ndarray | None = None,
+               rows: dict[complex, np.ndarray] | None = None) -> np.ndarray:
     """Response to e^{jωt} switched on at t = 0 from rest, shape (F, T), per 1 V.
 
     `phasors`: ``tone_phasors(freq_hz, t_s)`` when already computed for these tones and
-    times (several nets on one grid).
+    times, and `rows` the poles' exponentials on these times (several nets on one grid).
 
     Notes
     -----
@@ -227,7 +237,7 @@ def tone_onset(zpk: Zpk, freq_hz: np.ndarray, t_s: np.ndarray,
     if t.size and t.min() < 0:      # before the switch-on there is no tone
         forced = np.where(t[None, :] >= 0, forced, 0)
     # einsum, not @: a complex BLAS call on a (F, P) × (P, T) product this thin is slower.
-    return forced - np.einsum("fp,pt->ft", coef, _exp_matrix(p, t))
+    return forced - np.einsum("fp,pt->ft", coef, _exp_matrix(p, t, rows))
 
 
 def burst_response(zpk: Zpk, freq_hz: float, t_s: np.ndarray, burst_s: float) -> np.ndarray:
@@ -238,11 +248,14 @@ def burst_response(zpk: Zpk, freq_hz: float, t_s: np.ndarray, burst_s: float) ->
     return on - np.exp(2j * np.pi * freq_hz * burst_s) * off
 
 
-def step_response(zpk: Zpk, t_s: np.ndarray) -> np.ndarray:
-    """Response to a 1 V step at the source from rest: H(0) + Σ r_i e^{p_i t}/p_i."""
+def step_response(zpk: Zpk, t_s: np.ndarray,
+                  rows: dict[complex, np.ndarray] | None = None) -> np.ndarray:
+    """Response to a 1 V step at the source from rest: H(0) + Σ r_i e^{p_i t}/p_i.
+    `rows`: as ``tone_onset``'s."""
     p, r = _residues(zpk)
     t = np.asarray(t_s, dtype=float)
-    y = zpk_response(zpk, np.zeros(1))[0] + np.einsum("p,pt->t", r / p, _exp_matrix(p, t))
+    y = zpk_response(zpk, np.zeros(1))[0] + np.einsum("p,pt->t", r / p,
+                                                       _exp_matrix(p, t, rows))
     return np.where(t >= 0, y.real, 0.0)
 
 
@@ -370,9 +383,10 @@ def _onset_grid(zpk: Zpk, f_top_hz: float) -> np.ndarray:
 
 
 def _bound(zpk: Zpk, freqs: np.ndarray, amps: np.ndarray, t: np.ndarray,
-           n_signal: int, phasors: np.ndarray | None = None) -> np.ndarray:
+           n_signal: int, phasors: np.ndarray | None = None,
+           rows: dict[complex, np.ndarray] | None = None) -> np.ndarray:
     """Worst-phase level Σ V|y(t)|, one row per in-band candidate frequency."""
-    y = np.abs(tone_onset(zpk, freqs, t, phasors)) * amps[:, None]
+    y = np.abs(tone_onset(zpk, freqs, t, phasors, rows)) * amps[:, None]
     tones = y[n_signal:].sum(axis=0)
     return y[:n_signal] + tones[None, :]
 
@@ -425,8 +439,9 @@ def onset_peaks(chain: Chain, zpks: dict[str, Zpk], *, signal_vpk: float,
     amps = np.concatenate([np.full(sig_f.size, signal_vpk), tv])
     f_top = float(freqs.max()) + float(sig_f.max())
     # The nets of one stage, and often every net after the slowest pole, share one grid:
-    # their tones are computed once.
+    # their tones, and the exponentials of the poles they share, are computed once.
     phasors: dict[tuple[int, float], np.ndarray] = {}
+    pole_rows: dict[tuple[int, float], dict[complex, np.ndarray]] = {}
     out = []
     for net in chain.output_nets:
         zpk = zpks[net]
@@ -442,8 +457,9 @@ def onset_peaks(chain: Chain, zpks: dict[str, Zpk], *, signal_vpk: float,
         t = _onset_grid(zpk, f_top)
         grid_key = (t.size, float(t[-1]))
         if grid_key not in phasors:
-            phasors[grid_key] = tone_phasors(freqs, t)
-        b = _bound(zpk, freqs, amps, t, sig_f.size, phasors[grid_key])
+            phasors[grid_key], pole_rows[grid_key] = tone_phasors(freqs, t), {}
+        rows = pole_rows[grid_key]
+        b = _bound(zpk, freqs, amps, t, sig_f.size, phasors[grid_key], rows)
         row, col = np.unravel_index(int(np.argmax(b)), b.shape)
         # Refine the peak between the neighbouring samples.
         lo, hi = t[max(col - 1, 0)], t[min(col + 1, t.size - 1)]
@@ -457,7 +473,7 @@ def onset_peaks(chain: Chain, zpks: dict[str, Zpk], *, signal_vpk: float,
         level = b.max(axis=0)
         event = "tones"
         if dc_step_v:
-            s = np.abs(step_response(zpk, t)) * dc_step_v + worst_steady
+            s = np.abs(step_response(zpk, t, rows)) * dc_step_v + worst_steady
             if float(s.max()) > peak:
                 peak, at, event, level = float(s.max()), float(t[int(np.argmax(s))]), \
                     "dc_step", s
