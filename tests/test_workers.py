@@ -124,3 +124,13 @@ def test_this_process_takes_its_share(two_workers):
     """The jobs are shared between this process and a worker (on two cores: one worker)."""
     pids = workers.run_jobs(lambda x: (time.sleep(0.2), os.getpid())[1], list(range(4)))
     assert os.getpid() in pids and len(set(pids)) == 2
+
+
+@needs_fork
+def test_a_job_knows_where_it_runs(two_workers):
+    """``in_worker`` tells a job in a worker from one in this process: the planner's yield
+    progress is reported only where it is False (a fork of a terminal's progress bar would
+    draw on the terminal, or wait for its lock)."""
+    where = workers.run_jobs(lambda x: (time.sleep(0.2), workers.in_worker())[1], [1, 2, 3, 4])
+    assert set(where) == {True, False}
+    assert workers.in_worker() is False

@@ -47,7 +47,7 @@ from bandwright.parts.opamp import OpAmp
 from bandwright.parts.windows import PartWindows
 from bandwright.sections.section import Section
 from bandwright.inputs.requirement import Requirement
-from bandwright.workers import one_blas_thread, run_jobs
+from bandwright.workers import in_worker, one_blas_thread, run_jobs
 
 __all__ = ["Plan", "Design", "plan", "build_design", "with_yield"]
 
@@ -272,7 +272,13 @@ def with_yield(design: Design, requirement: Requirement, *,
     it (``advice.tolerance.plan_yield``); a result already computed is reused."""
     if design.chain is None:
         return design
-    report = None if progress is None else (lambda done, total: progress("yield", done, total))
+    def report(done: int, total: int) -> None:
+        # The bar belongs to this process: a job that runs in a worker (the offer, below)
+        # must not draw on the terminal from a fork of it (nor take its console's lock).
+        if not in_worker():
+            progress("yield", done, total)
+
+    report = None if progress is None else report
     result = design.yield_result
     if result is None:
         result = monte_carlo(design.chain, requirement, progress=report)

@@ -24,7 +24,7 @@ import sys
 import warnings
 from typing import Callable, Iterator, Sequence, TypeVar
 
-__all__ = ["WORKERS_ENV", "worker_count", "run_jobs", "one_blas_thread"]
+__all__ = ["WORKERS_ENV", "worker_count", "run_jobs", "one_blas_thread", "in_worker"]
 
 T = TypeVar("T")
 R = TypeVar("R")
@@ -40,6 +40,11 @@ _JOB: tuple[Callable, Sequence] | None = None
 _IN_WORKER = False
 _SHARING = False    # this process is taking its share of a run's jobs: no pool inside one
 _LIMITS = None      # a worker's BLAS thread limit, kept for the worker's life
+
+
+def in_worker() -> bool:
+    """Whether this is a worker process (which must not draw on the terminal)."""
+    return _IN_WORKER
 
 
 def worker_count(jobs: int) -> int:
