@@ -163,6 +163,38 @@ def test_mna_row_for_a_finite_gbw_opamp_is_scaled_by_a0():
     assert sys_.g[row, n] == 1.0
 
 
+def test_stamps_are_shared_by_wiring_and_follow_every_change_of_it():
+    """The stamps kept per wiring (``nodal._stamps``) give the matrices a fresh stamping
+    gives, and a change of nets, op-amp model, input net or source type is a new wiring:
+    each is checked against the stamp rules of the module docstring (conductance 1/R on
+    the diagonal, -1/R off it; op-amp row 1/A0 + s/wt)."""
+    slow, fast = generic_opamp(1e6, 100.0), generic_opamp(5e6, 80.0)
+    a = mna_system(inverting_amp(1e3, 1e4, slow))
+    b = mna_system(inverting_amp(2e3, 3e4, slow))             # same wiring, other values
+    n, out = b.index("n"), b.index("out")
+    assert b.g[n, n] == pytest.approx(1 / 2e3 + 1 / 3e4)
+    assert b.g[n, out] == pytest.approx(-1 / 3e4)
+    assert a.g[n, n] == pytest.approx(1 / 1e3 + 1 / 1e4)
+    c = mna_system(inverting_amp(1e3, 1e4, fast))             # another op-amp
+    row = c.opamp_rows["U1"]
+    assert c.g[row, out] == pytest.approx(10 ** (-80 / 20))
+    assert c.c[row, out] == pytest.approx(1 / (2 * math.pi * 5e6))
+    assert a.c[row, out] == pytest.approx(1 / (2 * math.pi * 1e6))
+    moved = (resistor("R1", "in", "n", 1e3), resistor("R2", "in", "out", 1e4),
+             opamp("U1", "0", "n", "out", slow))              # R2 on other nets
+    d = mna_system(moved)
+    assert d.g[d.index("n"), d.index("out")] == 0.0
+    assert d.g[d.index("in"), d.index("out")] == pytest.approx(-1 / 1e4)
+    norton = mna_system(inverting_amp(1e3, 1e4, slow), source_ohms=50.0)
+    assert norton.size == a.size - 1                          # no source branch row
+    assert norton.g[norton.index("in"), norton.index("in")] == pytest.approx(1 / 50 + 1 / 1e3)
+    # What a caller gets is its own: changing it leaves the next stamping alone.
+    a.rhs[:] = 7.0
+    a.opamp_rows["U1"] = -1
+    again = mna_system(inverting_amp(1e3, 1e4, slow))
+    assert again.rhs.max() == 1.0 and again.opamp_rows["U1"] == row
+
+
 # --- noise -------------------------------------------------------------------------------------
 
 def test_resistor_to_ground_through_source_resistance_is_4ktr_parallel():

@@ -34,6 +34,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 from typing import Sequence
@@ -163,6 +164,84 @@ def _check_values(elements: Sequence[Element], values: np.ndarray | None) -> np.
     return v
 
 
+@dataclass(frozen=True, slots=True)
+class _Stamps:
+    """What one wiring stamps whatever its part values: the passive parts' incidence
+    tensor, the fixed (source and op-amp) entries, the excitation and the unknowns."""
+
+    nets: tuple[str, ...]
+    idx: dict[str, int]
+    incidence: np.ndarray          # (P, M, M)
+    is_r: np.ndarray               # (P,)
+    g_fix: np.ndarray              # (M, M)
+    c_fix: np.ndarray              # (M, M)
+    rhs: np.ndarray                # (M,)
+    opamp_rows: dict[str, int]
+
+
+@functools.lru_cache(maxsize=512)
+def _stamps(wiring: tuple, input_net: str, source_ohms: float) -> _Stamps:
+    """``_Stamps`` of a wiring: (name, kind, nets, model) per element. A search evaluates the
+    same few wirings thousands of times with other values; their stamps are made once."""
+    elements = [Element(name=n, kind=k, nets=nets, model=m) for n, k, nets, m in wiring]
+    nets = _net_order(elements, input_net)
+    n_nets = len(nets)
+    ideal_source = source_ohms == 0.0
+    opamps = [e for e in elements if e.kind == "opamp"]
+    size = n_nets + int(ideal_source) + len(opamps)
+    gnd = size  # ground gets a scratch slot that is sliced off, so stamps need no branches
+    idx = {n: i for i, n in enumerate(nets)}
+    idx[GROUND] = gnd
+    idx[SUPPLY_NET] = gnd
+
+    passives = [e for e in elements if e.kind in ("R", "C")]
+    n_p = len(passives)
+    a = np.array([idx[e.nets[0]] for e in passives], dtype=int)
+    b = np.array([idx[e.nets[1]] for e in passives], dtype=int)
+    p = np.arange(n_p)
+    incidence = np.zeros((n_p, size + 1, size + 1))
+    np.add.at(incidence, (p, a, a), 1.0)
+    np.add.at(incidence, (p, b, b), 1.0)
+    np.add.at(incidence, (p, a, b), -1.0)
+    np.add.at(incidence, (p, b, a), -1.0)
+    incidence = np.ascontiguousarray(incidence[:, :size, :size])
+    is_r = np.array([e.kind == "R" for e in passives], dtype=bool)
+
+    g_fix = np.zeros((size + 1, size + 1))
+    c_fix = np.zeros((size + 1, size + 1))
+    rhs = np.zeros(size + 1)
+    k_in = idx[input_net]
+    if ideal_source:
+        row = n_nets
+        g_fix[row, k_in] = 1.0
+        g_fix[k_in, row] = 1.0
+        rhs[row] = 1.0
+    else:
+        # Norton equivalent of (1 V in series with Rs).
+        g_fix[k_in, k_in] += 1.0 / source_ohms
+        rhs[k_in] = 1.0 / source_ohms
+    opamp_rows: dict[str, int] = {}
+    for k, e in enumerate(opamps):
+        row = n_nets + int(ideal_source) + k
+        opamp_rows[e.name] = row
+        plus, minus, out = (idx[n] for n in e.nets)
+        model = e.model
+        ideal = math.isinf(model.gbw_hz)
+        # Divided through by A0: V_out (1/A0 + s/wt) - (V+ - V-) = 0.
+        g_fix[row, out] = 0.0 if ideal else 1.0 / model.a0
+        c_fix[row, out] = 0.0 if ideal else 1.0 / (2 * math.pi * model.gbw_hz)
+        g_fix[row, plus] += -1.0
+        g_fix[row, minus] += 1.0
+        g_fix[out, row] += 1.0  # the output current enters KCL at the output net
+    out = _Stamps(nets=nets, idx=idx, incidence=incidence, is_r=is_r,
+                  g_fix=np.ascontiguousarray(g_fix[:size, :size]),
+                  c_fix=np.ascontiguousarray(c_fix[:size, :size]),
+                  rhs=np.ascontiguousarray(rhs[:size]), opamp_rows=opamp_rows)
+    for arr in (out.incidence, out.is_r, out.g_fix, out.c_fix, out.rhs):
+        arr.flags.writeable = False          # shared by every call with this wiring
+    return out
+
+
 def mna_system(elements: Sequence[Element], *, input_net: str = "in", source_ohms: float = 0.0,
                values: np.ndarray | None = None,
                gbw_scale: np.ndarray | None = None) -> MnaSystem:
@@ -216,66 +295,21 @@ def mna_system(elements: Sequence[Element], *, input_net: str = "in", source_ohm
             if e.nets[2] == GROUND:
                 raise ValueError(f"{e.name}: op-amp output tied to ground")
     v = _check_values(elements, values)
-    nets = _net_order(elements, input_net)
-    n_nets = len(nets)
-    ideal_source = source_ohms == 0.0
+    st = _stamps(tuple((e.name, e.kind, e.nets, e.model) for e in elements), input_net,
+                 float(source_ohms))
+    conductance = np.where(st.is_r, 1.0 / v, 0.0)
+    capacitance = np.where(st.is_r, 0.0, v)
+    g = np.einsum("...p,pij->...ij", conductance, st.incidence)
+    c = np.einsum("...p,pij->...ij", capacitance, st.incidence)
+    g = g + st.g_fix
+    c = c + st.c_fix
     opamps = [e for e in elements if e.kind == "opamp"]
-    size = n_nets + int(ideal_source) + len(opamps)
-    gnd = size  # ground gets a scratch slot that is sliced off, so stamps need no branches
-    idx = {n: i for i, n in enumerate(nets)}
-    idx[GROUND] = gnd
-    idx[SUPPLY_NET] = gnd
-
-    passives = [e for e in elements if e.kind in ("R", "C")]
-    n_p = len(passives)
-    a = np.array([idx[e.nets[0]] for e in passives], dtype=int)
-    b = np.array([idx[e.nets[1]] for e in passives], dtype=int)
-    p = np.arange(n_p)
-    incidence = np.zeros((n_p, size + 1, size + 1))
-    np.add.at(incidence, (p, a, a), 1.0)
-    np.add.at(incidence, (p, b, b), 1.0)
-    np.add.at(incidence, (p, a, b), -1.0)
-    np.add.at(incidence, (p, b, a), -1.0)
-    incidence = incidence[:, :size, :size]
-    is_r = np.array([e.kind == "R" for e in passives], dtype=bool)
-    conductance = np.where(is_r, 1.0 / v, 0.0)
-    capacitance = np.where(is_r, 0.0, v)
-    g = np.einsum("...p,pij->...ij", conductance, incidence)
-    c = np.einsum("...p,pij->...ij", capacitance, incidence)
-
-    g_fix = np.zeros((size + 1, size + 1))
-    c_fix = np.zeros((size + 1, size + 1))
-    rhs = np.zeros(size + 1)
-    k_in = idx[input_net]
-    if ideal_source:
-        row = n_nets
-        g_fix[row, k_in] = 1.0
-        g_fix[k_in, row] = 1.0
-        rhs[row] = 1.0
-    else:
-        # Norton equivalent of (1 V in series with Rs).
-        g_fix[k_in, k_in] += 1.0 / source_ohms
-        rhs[k_in] = 1.0 / source_ohms
-    opamp_rows: dict[str, int] = {}
-    for k, e in enumerate(opamps):
-        row = n_nets + int(ideal_source) + k
-        opamp_rows[e.name] = row
-        plus, minus, out = (idx[n] for n in e.nets)
-        model = e.model
-        ideal = math.isinf(model.gbw_hz)
-        # Divided through by A0: V_out (1/A0 + s/wt) - (V+ - V-) = 0.
-        g_fix[row, out] = 0.0 if ideal else 1.0 / model.a0
-        c_fix[row, out] = 0.0 if ideal else 1.0 / (2 * math.pi * model.gbw_hz)
-        g_fix[row, plus] += -1.0
-        g_fix[row, minus] += 1.0
-        g_fix[out, row] += 1.0  # the output current enters KCL at the output net
-    g = g + g_fix[:size, :size]
-    c = c + c_fix[:size, :size]
+    opamp_rows, idx = dict(st.opamp_rows), st.idx
     if gbw_scale is not None:
         c = _scale_gbw(c, opamps, opamp_rows, idx, gbw_scale, n_samples=v.shape[0]
                        if v.ndim == 2 else None)
         g = np.broadcast_to(g, c.shape).copy()
-    return MnaSystem(nets=nets, g=g, c=c, rhs=rhs[:size].copy(), opamp_rows=opamp_rows)
+    return MnaSystem(nets=st.nets, g=g, c=c, rhs=st.rhs.copy(), opamp_rows=opamp_rows)
 
 
 def _scale_gbw(c: np.ndarray, opamps: list[Element], opamp_rows: dict[str, int],
