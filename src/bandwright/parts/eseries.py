@@ -17,6 +17,8 @@ References
 
 from __future__ import annotations
 
+import math
+
 from functools import lru_cache
 
 import numpy as np
@@ -129,6 +131,15 @@ def _check_positive(values: np.ndarray) -> None:
         raise ValueError("series rounding needs finite values > 0")
 
 
+def _positive_scalar(value: float) -> float:
+    """``_check_positive`` for one number, without the array machinery (the part search
+    rounds one value at a time, thousands of times)."""
+    x = float(value)
+    if not (math.isfinite(x) and x > 0):
+        raise ValueError("series rounding needs finite values > 0")
+    return x
+
+
 def _nearest_index(values: np.ndarray, codes: np.ndarray, digits: int) -> np.ndarray:
     """Global index of the series value nearest each value in log (ties go down)."""
     n = codes.size
@@ -182,6 +193,8 @@ def nearest(value: ArrayLike, series: str) -> float | np.ndarray:
     10.0
     """
     codes, digits = _lookup(series)
+    if isinstance(value, (float, int)):
+        return _nearest_of(_positive_scalar(value), series)
     v = np.asarray(value, dtype=float)
     _check_positive(v)
     if v.ndim == 0:
@@ -307,6 +320,8 @@ def neighbours(value: float, series: str, *, count: int) -> np.ndarray:
     _lookup(series)
     if int(count) != count or count < 0:
         raise ValueError(f"count must be a whole number >= 0, got {count!r}")
+    if isinstance(value, (float, int)):
+        return np.array(_neighbours_of(_positive_scalar(value), series, int(count)))
     v = np.asarray(value, dtype=float)
     if v.ndim != 0:
         raise ValueError("neighbours takes one value")
