@@ -81,13 +81,15 @@ def polynomial_degree(elements: Sequence[Element]) -> int:
 
 def _scale_rad_s(elements: Sequence[Element], v: np.ndarray) -> np.ndarray:
     """Characteristic angular frequency w_c per sample: 1 / (gm(R) gm(C))."""
-    kinds = np.array([e.kind for e in elements if e.kind in ("R", "C")])
-    is_r, is_c = kinds == "R", kinds == "C"
+    is_r = np.array([e.kind == "R" for e in elements if e.kind in ("R", "C")], dtype=bool)
+    is_c = ~is_r
+    if is_r.any() and is_c.any():
+        # np.mean's own sum and division, without its Python layer (called per batch).
+        log_tau = (np.add.reduce(np.log(v[..., is_r]), axis=-1) / int(is_r.sum())
+                   + np.add.reduce(np.log(v[..., is_c]), axis=-1) / int(is_c.sum()))
+        return np.exp(-log_tau)
     wt = [2 * math.pi * e.model.gbw_hz for e in elements
           if e.kind == "opamp" and math.isfinite(e.model.gbw_hz)]
-    if is_r.any() and is_c.any():
-        log_tau = np.mean(np.log(v[..., is_r]), axis=-1) + np.mean(np.log(v[..., is_c]), axis=-1)
-        return np.exp(-log_tau)
     # No RC time constant: the op-amp poles are the only dynamics.
     w = math.exp(np.mean(np.log(wt))) if wt else 1.0
     return np.full(v.shape[:-1], w)
@@ -131,7 +133,11 @@ def _scaled_polynomials(elements: Sequence[Element], *, out_net: str, input_net:
     d1 = row[..., None, :, None]
     d2 = col[..., None, None, :]
     s = w_c[..., None] * sigma                             # (..., K)
-    y = d1 * (g[..., None, :, :] + s[..., :, None, None] * c[..., None, :, :]) * d2
+    # d1 (G + s C) d2, built in place: the same operations in the same order, one array.
+    y = s[..., :, None, None] * c[..., None, :, :]
+    y += g[..., None, :, :]
+    y *= d1
+    y *= d2
     y_out = y.copy()
     # Cramer: x_out = col_out * det(Y with column out <- D1 rhs) / det(Y).
     y_out[..., :, k_out] = (system.rhs * row)[..., None, :] * col[..., None, k_out, None]
@@ -556,17 +562,26 @@ _ABERTH_ITERATIONS = 8
 _ABERTH_TOL = 1e-11
 
 
-def _aberth_step(coefs: np.ndarray, z: np.ndarray, off: np.ndarray) -> np.ndarray:
-    """One Aberth correction (S, d) for roots `z` of ascending `coefs` (S, d + 1)."""
+def _aberth_step(coefs: np.ndarray, z: np.ndarray) -> np.ndarray:
+    """One Aberth correction (S, d) for roots `z` of ascending `coefs` (S, d + 1).
+
+    Worked in place (a grid search runs it on hundreds of samples, several times): the
+    same operations in the same order as the plain expressions in the comments."""
     d = z.shape[-1]
-    p = np.broadcast_to(coefs[:, -1:], z.shape).astype(complex)
+    p = np.empty(z.shape, dtype=complex)
+    p[...] = coefs[:, -1:]
     dp = np.zeros_like(z)
     for m in range(d - 1, -1, -1):                       # Horner for p and p'
-        dp = dp * z + p
-        p = p * z + coefs[:, m:m + 1]
+        dp *= z                                          # dp = dp * z + p
+        dp += p
+        p *= z                                           # p = p * z + c_m
+        p += coefs[:, m:m + 1]
     w = p / dp
     diff = z[:, :, None] - z[:, None, :]
-    inv = (1.0 / np.where(off, diff, np.inf)).sum(axis=-1)
+    diag = np.arange(d)
+    diff[:, diag, diag] = np.inf                         # j = i left out: 1/inf = 0
+    np.divide(1.0, diff, out=diff)
+    inv = np.add.reduce(diff, axis=-1)                   # sum over j != i of 1/(z_i - z_j)
     step = w / (1.0 - w * inv)
     return np.where(np.isfinite(step), step, 0.0)
 
@@ -580,14 +595,12 @@ def _polished_roots(coefs: np.ndarray, start: np.ndarray) -> np.ndarray:
     Math. Comp. 27(122), 1973 [mem]: z_i -= w_i / (1 - w_i sum_{j != i} 1/(z_i - z_j)),
     w_i = p(z_i) / p'(z_i); cubic convergence to simple roots.
     """
-    d = coefs.shape[-1] - 1
     z = start.astype(complex).copy()
-    off = ~np.eye(d, dtype=bool)
     rows = np.arange(z.shape[0])                          # samples still iterating
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for _ in range(_ABERTH_ITERATIONS):
             zr = z[rows]
-            step = _aberth_step(coefs[rows], zr, off)
+            step = _aberth_step(coefs[rows], zr)
             zr = zr - step
             z[rows] = zr
             done = (np.all(np.abs(step) <= _ABERTH_TOL * np.abs(zr), axis=-1)
