@@ -236,8 +236,9 @@ def tone_onset(zpk: Zpk, freq_hz: np.ndarray, t_s: np.ndarray,
     forced = h[:, None] * (tone_phasors(f, t) if phasors is None else phasors)
     if t.size and t.min() < 0:      # before the switch-on there is no tone
         forced = np.where(t[None, :] >= 0, forced, 0)
-    # einsum, not @: a complex BLAS call on a (F, P) × (P, T) product this thin is slower.
-    return forced - np.einsum("fp,pt->ft", coef, _exp_matrix(p, t, rows))
+    # A complex matrix product (BLAS): about 8× quicker than einsum's generic complex loop
+    # on a (10, 12) × (12, 32768) product, measured with one BLAS thread as in a plan.
+    return forced - coef @ _exp_matrix(p, t, rows)
 
 
 def burst_response(zpk: Zpk, freq_hz: float, t_s: np.ndarray, burst_s: float) -> np.ndarray:
@@ -254,8 +255,7 @@ def step_response(zpk: Zpk, t_s: np.ndarray,
     `rows`: as ``tone_onset``'s."""
     p, r = _residues(zpk)
     t = np.asarray(t_s, dtype=float)
-    y = zpk_response(zpk, np.zeros(1))[0] + np.einsum("p,pt->t", r / p,
-                                                       _exp_matrix(p, t, rows))
+    y = zpk_response(zpk, np.zeros(1))[0] + (r / p) @ _exp_matrix(p, t, rows)
     return np.where(t >= 0, y.real, 0.0)
 
 
