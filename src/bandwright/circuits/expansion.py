@@ -274,6 +274,25 @@ def _monomials_fast(masks: np.ndarray, x: np.ndarray) -> np.ndarray:
     return nominal * np.exp((log_x - log_ref) @ masks.T.astype(float))
 
 
+# Varying variables up to which a folded batch's subset products come from one table of all
+# 2^k products (256 columns at most) rather than a masked product per subset.
+_TABLE_MAX_VARIABLES = 8
+
+
+def _subset_products(codes: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """``_monomials`` for monomials given as bit codes over the k columns of `x` (bit j:
+    column j), (S, u), from a table of all 2^k products. Each product is formed in
+    variable order, one factor at a time, as the masked product forms it (a factor 1.0 is
+    exact), so the values are the same."""
+    s_count, k = x.shape
+    table = np.empty((s_count, 1 << k))
+    table[:, 0] = 1.0
+    for j in range(k):
+        low = 1 << j
+        np.multiply(table[:, :low], x[:, j:j + 1], out=table[:, low:2 * low])
+    return table[:, codes]
+
+
 def _weights(coefs: np.ndarray, powers: np.ndarray, degree: int) -> np.ndarray:
     weights = np.zeros((coefs.shape[0], degree + 1))
     weights[np.arange(coefs.shape[0]), powers] = coefs
@@ -283,8 +302,9 @@ def _weights(coefs: np.ndarray, powers: np.ndarray, degree: int) -> np.ndarray:
 def _folded(masks: np.ndarray, coefs: np.ndarray, powers: np.ndarray, degree: int,
             x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
     """The expansion with every variable that takes one value in the whole batch folded
-    in: (subsets (u, k) of the k varying variables, their coefficients (u, degree + 1), the
-    varying columns (k,)); None when folding would not shrink it to half its monomials.
+    in: (subsets (u,) of the k varying variables as bit codes (bit j: the j-th varying
+    column), their coefficients (u, degree + 1), the varying columns (k,)); None when
+    folding would not shrink it to half its monomials.
 
     A series grid moves a few parts and holds the rest (and the op-amps) fixed: the
     multilinear sum regrouped by the varying variables each monomial holds has at most
@@ -301,7 +321,7 @@ def _folded(masks: np.ndarray, coefs: np.ndarray, powers: np.ndarray, degree: in
     fixed = np.prod(np.where(masks & ~vary, x[0], 1.0), axis=-1)       # (m,)
     folded = np.zeros((subsets.size, degree + 1))
     np.add.at(folded, (inverse.ravel(), powers), coefs * fixed)
-    return (subsets[:, None] >> np.arange(k)) & 1 == 1, folded, np.flatnonzero(vary)
+    return subsets, folded, np.flatnonzero(vary)
 
 
 def _evaluate(masks: np.ndarray, coefs: np.ndarray, powers: np.ndarray, degree: int,
@@ -313,7 +333,10 @@ def _evaluate(masks: np.ndarray, coefs: np.ndarray, powers: np.ndarray, degree: 
         fold = _folded(masks, coefs, powers, degree, x)
         if fold is not None:
             subsets, folded, cols = fold
-            return _monomials(subsets, x[:, cols]) @ folded
+            if cols.size <= _TABLE_MAX_VARIABLES:
+                return _subset_products(subsets, x[:, cols]) @ folded
+            bits = (subsets[:, None] >> np.arange(cols.size)) & 1 == 1
+            return _monomials(bits, x[:, cols]) @ folded
     mono = (_monomials_fast if fast else _monomials)(masks, x)
     return mono @ _weights(coefs, powers, degree)
 
