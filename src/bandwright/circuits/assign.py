@@ -75,9 +75,11 @@ class Assignment:
     gain_shortfall: float = 1.0
 
 
-def _weakest_output(elements, freq_hz) -> tuple[str, float] | None:
-    """The op-amp output net inside a stage that sees the smallest load, and that load."""
-    sol = ac_solve(elements, np.asarray(freq_hz, dtype=float))
+def _weakest_output(elements, freq_hz, sol=None) -> tuple[str, float] | None:
+    """The op-amp output net inside a stage that sees the smallest load, and that load;
+    `sol`: the stage's ``ac_solve`` at `freq_hz` when already made."""
+    if sol is None:
+        sol = ac_solve(elements, np.asarray(freq_hz, dtype=float))
     worst = None
     for net in opamp_output_nets(elements):
         z = drawn_impedance(elements, sol, net)
@@ -101,12 +103,14 @@ def _level_problem(real: Realization, model: OpAmp,
     minimum load (both scale with the impedance level). None when it breaks neither."""
     if input_floor is None:
         return None
-    z_in = input_impedance_min(real.elements, input_floor[0])
+    # One solve serves both rules (each reads the stage driven by an ideal source).
+    sol = ac_solve(real.elements, np.asarray(input_floor[0], dtype=float))
+    z_in = input_impedance_min(real.elements, input_floor[0], sol)
     if z_in < input_floor[1]:
         return (f"its input impedance falls to {format_si(z_in, 'Ω')}, below the "
                 f"{format_si(input_floor[1], 'Ω')} the stage before can drive",
                 input_floor[1] / z_in)
-    weak = _weakest_output(real.elements, input_floor[0])
+    weak = _weakest_output(real.elements, input_floor[0], sol)
     if weak is not None and weak[1] < model.min_load_ohms:
         return (f"its own network loads {weak[0]} down to {format_si(weak[1], 'Ω')}, "
                 f"below the op-amp's {format_si(model.min_load_ohms, 'Ω')} minimum load",

@@ -654,15 +654,19 @@ def drawn_impedance(elements, sol, net: str) -> np.ndarray:
         return np.abs(volt(net)) / np.abs(current)
 
 
-def _input_impedance(elements, freq_hz: np.ndarray) -> np.ndarray:
-    sol = ac_solve(elements, np.asarray(freq_hz, dtype=float))
+def _input_impedance(elements, freq_hz: np.ndarray,
+                     sol: NodalSolution | None = None) -> np.ndarray:
+    if sol is None:
+        sol = ac_solve(elements, np.asarray(freq_hz, dtype=float))
     z = drawn_impedance(elements, sol, "in")
     return z[np.isfinite(z)]
 
 
-def input_impedance_min(elements, freq_hz: np.ndarray) -> float:
-    """Smallest |Z_in| of a stage over `freq_hz`, driven by an ideal source at net "in"."""
-    z = _input_impedance(elements, freq_hz)
+def input_impedance_min(elements, freq_hz: np.ndarray,
+                        sol: NodalSolution | None = None) -> float:
+    """Smallest |Z_in| of a stage over `freq_hz`, driven by an ideal source at net "in";
+    `sol`: that ``ac_solve`` of the stage at `freq_hz` when already made."""
+    z = _input_impedance(elements, freq_hz, sol)
     return float(z.min()) if z.size else math.inf
 
 
