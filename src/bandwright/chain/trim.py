@@ -18,7 +18,6 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from numpy.polynomial import polynomial as npoly
 
 from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain, net_transfers
 from bandwright.chain.stage import stage_output_nets
@@ -89,6 +88,18 @@ def _stage_nets(chain: Chain, st) -> dict[str, str]:
             if d["stage"] is st}
 
 
+def _rows_at(coefs: np.ndarray, s: np.ndarray) -> np.ndarray:
+    """Each row's polynomial (ascending coefficients, (N, d + 1)) at every `s`, (N, F):
+    ``numpy.polynomial.polynomial.polyval(s, coefs.T, tensor=True)``'s Horner steps (the
+    same values), worked in one buffer instead of a new (N, F) array per step."""
+    out = np.empty((coefs.shape[0], s.size), dtype=complex)
+    out[...] = coefs[:, -1:]
+    for m in range(coefs.shape[1] - 2, -1, -1):
+        out *= s
+        out += coefs[:, m:m + 1]
+    return out
+
+
 def _trimmed_transfers(chain: Chain, index: int, f: np.ndarray, grid: np.ndarray
                        ) -> dict[str, np.ndarray]:
     """Transfer (N, F) to every op-amp output net with stage `index` built from each row of
@@ -102,11 +113,11 @@ def _trimmed_transfers(chain: Chain, index: int, f: np.ndarray, grid: np.ndarray
     nums, den = transfer_polynomials_many(st.elements, out_nets=locals_, source_ohms=rs,
                                           values=grid, method="auto")
     s = 2j * np.pi * f
-    d = npoly.polyval(s, den.T, tensor=True)
+    d = _rows_at(den, s)
     mine = _stage_nets(chain, st)
     out = {net: np.broadcast_to(h, (grid.shape[0], f.size)) for net, h in now.items()}
     for local, num in zip(locals_, nums):
-        out[mine[local]] = before * (npoly.polyval(s, num.T, tensor=True) / d)
+        out[mine[local]] = before * (_rows_at(num, s) / d)
     own = ac_solve(st.elements, f, source_ohms=rs).at("out")
     ratio = out[mine["out"]] / (before * own)           # the stage's new over its old transfer
     fed = {mine["out"]}
