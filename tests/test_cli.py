@@ -146,3 +146,15 @@ def test_closed_stdout_is_one_line_and_exit_2():
     assert r.returncode == 2, r.stderr
     assert r.stderr.strip().splitlines() == [
         "bandwright: cannot write to standard output: it is closed"]
+
+
+def test_the_process_ends_with_mains_status_and_every_byte_of_its_output(capsys):
+    """`python -m bandwright` ends through ``cli.run`` (exit handlers, both streams
+    flushed, then ``os._exit``, skipping the interpreter's teardown): what a reader of its
+    pipe gets is byte for byte what `main` prints in-process, and the status is main's."""
+    from bandwright.cli import main
+    r = run_cli("plan", QUICK, "--json")
+    code = main(["plan", str(QUICK), "--json"])
+    assert (r.returncode, r.stdout, r.stderr) == (code, capsys.readouterr().out, "")
+    bad = run_cli("plan", QUICK, "--order", "0")
+    assert bad.returncode == 2 and bad.stderr.startswith("bandwright: ")

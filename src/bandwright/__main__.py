@@ -1,5 +1,3 @@
-import sys
+from bandwright.cli import run
 
-from bandwright.cli import main
-
-sys.exit(main())
+run()
