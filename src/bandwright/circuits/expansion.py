@@ -274,23 +274,48 @@ def _monomials_fast(masks: np.ndarray, x: np.ndarray) -> np.ndarray:
     return nominal * np.exp((log_x - log_ref) @ masks.T.astype(float))
 
 
-# Varying variables up to which a folded batch's subset products come from one table of all
-# 2^k products (256 columns at most) rather than a masked product per subset.
-_TABLE_MAX_VARIABLES = 8
+@lru_cache(maxsize=1024)
+def _product_plan(codes: tuple[int, ...], k: int
+                  ) -> tuple[int, tuple[tuple[int, np.ndarray, np.ndarray], ...], np.ndarray]:
+    """How to form the products of the monomials `codes` (bit j: variable j) one factor at
+    a time: every code and each of its prefixes (the code without its highest bits) gets
+    a column of a table, column 0 holding 1.0. Returns the table's width; per variable j,
+    (j, the columns whose highest variable is j, the columns of their prefixes); and each
+    code's column. (A folded grid asks for the same few plans over and over: kept.)"""
+    need: set[int] = set()
+    for c in codes:
+        while c and c not in need:
+            need.add(c)
+            c &= ~(1 << (c.bit_length() - 1))
+    order = sorted(need)
+    column = {c: i + 1 for i, c in enumerate(order)}
+    column[0] = 0
+    steps = []
+    for j in range(k):
+        here = [c for c in order if c.bit_length() - 1 == j]
+        if here:
+            steps.append((j, _frozen([column[c] for c in here]),
+                          _frozen([column[c & ~(1 << j)] for c in here])))
+    return len(order) + 1, tuple(steps), _frozen([column[c] for c in codes])
+
+
+def _frozen(ints: list[int]) -> np.ndarray:
+    a = np.array(ints, dtype=np.intp)
+    a.flags.writeable = False            # held by the plan cache, shared by its callers
+    return a
 
 
 def _subset_products(codes: np.ndarray, x: np.ndarray) -> np.ndarray:
     """``_monomials`` for monomials given as bit codes over the k columns of `x` (bit j:
-    column j), (S, u), from a table of all 2^k products. Each product is formed in
-    variable order, one factor at a time, as the masked product forms it (a factor 1.0 is
-    exact), so the values are the same."""
-    s_count, k = x.shape
-    table = np.empty((s_count, 1 << k))
+    column j), (S, u): each product is formed in variable order, one factor at a time,
+    from its prefix's (``_product_plan``), as the masked product forms it (a factor 1.0
+    is exact), so the values are the same, for a fraction of the multiplications."""
+    width, steps, final = _product_plan(tuple(codes.tolist()), x.shape[1])
+    table = np.empty((x.shape[0], width))
     table[:, 0] = 1.0
-    for j in range(k):
-        low = 1 << j
-        np.multiply(table[:, :low], x[:, j:j + 1], out=table[:, low:2 * low])
-    return table[:, codes]
+    for j, dest, src in steps:
+        table[:, dest] = table[:, src] * x[:, j:j + 1]
+    return table[:, final]
 
 
 def _weights(coefs: np.ndarray, powers: np.ndarray, degree: int) -> np.ndarray:
@@ -333,10 +358,7 @@ def _evaluate(masks: np.ndarray, coefs: np.ndarray, powers: np.ndarray, degree: 
         fold = _folded(masks, coefs, powers, degree, x)
         if fold is not None:
             subsets, folded, cols = fold
-            if cols.size <= _TABLE_MAX_VARIABLES:
-                return _subset_products(subsets, x[:, cols]) @ folded
-            bits = (subsets[:, None] >> np.arange(cols.size)) & 1 == 1
-            return _monomials(bits, x[:, cols]) @ folded
+            return _subset_products(subsets, x[:, cols]) @ folded
     mono = (_monomials_fast if fast else _monomials)(masks, x)
     return mono @ _weights(coefs, powers, degree)
 
