@@ -474,8 +474,9 @@ def _batch_roots(coefs: np.ndarray) -> np.ndarray:
 
 def _batch_degree(coefs: np.ndarray) -> int:
     """Highest power whose coefficient is not rounding noise in any sample."""
-    big = np.max(np.abs(coefs), axis=-1, keepdims=True)
-    keep = np.nonzero(np.any(np.abs(coefs) > _NEGLIGIBLE * big, axis=0))[0]
+    size = np.abs(coefs)
+    big = size.max(axis=-1, keepdims=True)
+    keep = np.nonzero((size > _NEGLIGIBLE * big).any(axis=0))[0]
     return int(keep[-1]) if keep.size else 0
 
 
