@@ -5,8 +5,6 @@ from __future__ import annotations
 
 import re
 
-import textwrap
-
 import pytest
 
 from bandwright.audit import audit

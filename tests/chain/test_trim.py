@@ -97,7 +97,6 @@ def test_a_trim_beyond_the_stated_share_is_called_a_redesign():
     more than a 0.1 % share and is then marked a redesign, with its f0 move; with a 50 %
     share the same move is rounding. The f0 move is checked against the stage's own pole
     pair (numpy.roots of its denominator), not the trim's figure."""
-    from dataclasses import replace as dc_replace
     from bandwright.analysis.mask import trim_judge
     from bandwright.chain import build_chain
     from bandwright.chain.stage import with_parts
