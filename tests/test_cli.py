@@ -158,3 +158,24 @@ def test_the_process_ends_with_mains_status_and_every_byte_of_its_output(capsys)
     assert (r.returncode, r.stdout, r.stderr) == (code, capsys.readouterr().out, "")
     bad = run_cli("plan", QUICK, "--order", "0")
     assert bad.returncode == 2 and bad.stderr.startswith("bandwright: ")
+
+
+def test_run_flushes_both_streams_runs_exit_handlers_and_keeps_the_status():
+    """``cli.run``'s own contract, with a stand-in `main` that leaves its output in the
+    buffers: os._exit would drop unflushed text and skip atexit handlers, so run must flush
+    and call them first, and end with main's status."""
+    import subprocess
+    import sys
+    probe = ("import atexit, sys\n"
+             "from bandwright import cli\n"
+             "atexit.register(lambda: sys.stderr.write('handler ran'))\n"
+             "def fake():\n"
+             "    sys.stdout.write('unflushed out')\n"
+             "    sys.stderr.write('unflushed err;')\n"
+             "    return 3\n"
+             "cli.main = fake\n"
+             "cli.run()\n")
+    import os
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONUNBUFFERED"}  # buffers kept
+    r = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, env=env)
+    assert (r.returncode, r.stdout, r.stderr) == (3, "unflushed out", "unflushed err;handler ran")

@@ -277,3 +277,17 @@ def test_polished_poles_of_a_grid_match_its_eigenvalues():
                                      method="auto", start_rad_s=seed)
     for a, b in zip(eig, polished):
         np.testing.assert_allclose(b, a, rtol=1e-12)
+
+
+def test_horner_rows_equals_numpys_polyval():
+    """``figures.horner_rows`` (the one Horner evaluation of the trim, the Monte Carlo
+    kernel and the diagnosis model) gives numpy.polynomial.polynomial.polyval's values
+    (tensor=True, coefficients as columns) bit for bit, on real and on complex points."""
+    from numpy.polynomial import polynomial as npoly
+    from bandwright.circuits.figures import horner_rows
+    rng = np.random.default_rng(3)
+    coefs = rng.standard_normal((40, 7))
+    for x in (np.linspace(0.1, 3.0, 25), 1j * np.geomspace(0.1, 10.0, 25)):
+        got = horner_rows(coefs, x)
+        assert got.dtype == np.result_type(coefs, x)
+        assert np.array_equal(got, npoly.polyval(x, coefs.T, tensor=True))

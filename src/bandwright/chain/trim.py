@@ -21,7 +21,8 @@ import numpy as np
 
 from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain, net_transfers
 from bandwright.chain.stage import stage_output_nets
-from bandwright.circuits.figures import section_figures_batch, transfer_polynomials_many
+from bandwright.circuits.figures import (horner_rows, section_figures_batch,
+                                        transfer_polynomials_many)
 from bandwright.circuits.nodal import ac_solve, passive_names
 from bandwright.parts.eseries import neighbours
 
@@ -88,18 +89,6 @@ def _stage_nets(chain: Chain, st) -> dict[str, str]:
             if d["stage"] is st}
 
 
-def _rows_at(coefs: np.ndarray, s: np.ndarray) -> np.ndarray:
-    """Each row's polynomial (ascending coefficients, (N, d + 1)) at every `s`, (N, F):
-    ``numpy.polynomial.polynomial.polyval(s, coefs.T, tensor=True)``'s Horner steps (the
-    same values), worked in one buffer instead of a new (N, F) array per step."""
-    out = np.empty((coefs.shape[0], s.size), dtype=complex)
-    out[...] = coefs[:, -1:]
-    for m in range(coefs.shape[1] - 2, -1, -1):
-        out *= s
-        out += coefs[:, m:m + 1]
-    return out
-
-
 def _trimmed_transfers(chain: Chain, index: int, f: np.ndarray, grid: np.ndarray
                        ) -> dict[str, np.ndarray]:
     """Transfer (N, F) to every op-amp output net with stage `index` built from each row of
@@ -113,11 +102,11 @@ def _trimmed_transfers(chain: Chain, index: int, f: np.ndarray, grid: np.ndarray
     nums, den = transfer_polynomials_many(st.elements, out_nets=locals_, source_ohms=rs,
                                           values=grid, method="auto")
     s = 2j * np.pi * f
-    d = _rows_at(den, s)
+    d = horner_rows(den, s)
     mine = _stage_nets(chain, st)
     out = {net: np.broadcast_to(h, (grid.shape[0], f.size)) for net, h in now.items()}
     for local, num in zip(locals_, nums):
-        out[mine[local]] = before * (_rows_at(num, s) / d)
+        out[mine[local]] = before * (horner_rows(num, s) / d)
     own = ac_solve(st.elements, f, source_ohms=rs).at("out")
     ratio = out[mine["out"]] / (before * own)           # the stage's new over its old transfer
     fed = {mine["out"]}

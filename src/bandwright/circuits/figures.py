@@ -53,7 +53,7 @@ from bandwright.vocabulary import StageKind
 __all__ = ["transfer_polynomials", "transfer_polynomials_many", "polynomial_degree",
            "section_figures", "section_figures_batch", "section_poles_rad_s",
            "figures_from_scaled",
-           "part_sweep_figures"]
+           "part_sweep_figures", "horner_rows"]
 
 # Coefficients below this fraction of the largest one (in sigma = s/w_c) are rounding
 # noise of the FFT interpolation: a genuine coefficient that small would stand for a pole
@@ -77,6 +77,19 @@ def polynomial_degree(elements: Sequence[Element]) -> int:
     n_c = sum(1 for e in elements if e.kind == "C")
     n_poles = sum(1 for e in elements if e.kind == "opamp" and math.isfinite(e.model.gbw_hz))
     return n_c + n_poles
+
+
+def horner_rows(coefs: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """sum_m coefs[:, m] x^m: each row's polynomial (ascending coefficients, (S, d + 1)) at
+    every point of `x` (F,), (S, F), by Horner's rule in one buffer (the steps of
+    ``numpy.polynomial.polynomial.polyval(x, coefs.T, tensor=True)``, the same values,
+    without a new (S, F) array per step). Real or complex, as coefs and x are."""
+    out = np.empty((coefs.shape[0], x.size), dtype=np.result_type(coefs, x))
+    out[...] = coefs[:, -1:]
+    for m in range(coefs.shape[1] - 2, -1, -1):
+        out *= x
+        out += coefs[:, m:m + 1]
+    return out
 
 
 def _scale_rad_s(elements: Sequence[Element], v: np.ndarray) -> np.ndarray:

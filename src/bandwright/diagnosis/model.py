@@ -27,7 +27,8 @@ import numpy as np
 
 from bandwright.chain.graph import CHAIN_INPUT, Chain
 from bandwright.chain.stage import Stage
-from bandwright.circuits.figures import section_figures_batch, transfer_polynomials
+from bandwright.circuits.figures import (horner_rows, section_figures_batch,
+                                        transfer_polynomials)
 
 __all__ = ["Variable", "ChainModel", "DB_PER_NEPER", "gbw_part"]
 
@@ -182,7 +183,7 @@ class ChainModel:
         w_ref = float(np.exp(np.mean(np.log(w_rad_s))))
         powers = w_ref ** np.arange(num.shape[-1])
         z = 1j * w_rad_s / w_ref
-        return np.log(_horner(num * powers, z) / _horner(den * powers, z))
+        return np.log(horner_rows(num * powers, z) / horner_rows(den * powers, z))
 
     def log_h_parts(self, x: np.ndarray, w_rad_s: np.ndarray) -> np.ndarray:
         """ln H of every stage at one vector x (n,): shape (stages, F)."""
@@ -227,13 +228,3 @@ class ChainModel:
                                              source_ohms=sv.source_ohms)
             out.append((float(f0[0]), float(q[0]), float(g[0])))
         return out
-
-
-def _horner(c: np.ndarray, z: np.ndarray) -> np.ndarray:
-    """sum_m c[:, m] z^m for ascending coefficients (S, d+1) at points (F,): (S, F)."""
-    out = np.empty((c.shape[0], z.size), dtype=complex)
-    out[:] = c[:, -1:]
-    for m in range(c.shape[1] - 2, -1, -1):
-        out *= z
-        out += c[:, m:m + 1]
-    return out

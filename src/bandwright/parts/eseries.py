@@ -18,7 +18,6 @@ References
 from __future__ import annotations
 
 import math
-
 from functools import lru_cache
 
 import numpy as np

@@ -18,7 +18,7 @@ from bandwright.analysis.grid import passband_grid
 from bandwright.analysis.stability import routh_stable, scale_rad_s
 from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
 from bandwright.chain.stage import stage_output_nets
-from bandwright.circuits.figures import transfer_polynomials_many
+from bandwright.circuits.figures import horner_rows, transfer_polynomials_many
 from bandwright.inputs.requirement import Requirement
 
 __all__ = ["Grid", "StagePolynomials", "stage_polynomials", "chain_mag_sq", "chain_stable",
@@ -44,16 +44,6 @@ def power_coefficients(coefs: np.ndarray) -> np.ndarray:
     return out
 
 
-def _horner(p: np.ndarray, x: np.ndarray) -> np.ndarray:
-    """sum_m p[:, m] x^m on the grid (S, F), in place in one buffer (Horner's rule)."""
-    out = np.empty((p.shape[0], x.size))
-    out[:] = p[:, -1:]
-    for m in range(p.shape[1] - 2, -1, -1):
-        out *= x
-        out += p[:, m:m + 1]
-    return out
-
-
 def mag_sq(num: np.ndarray, den: np.ndarray, w_rad_s: np.ndarray) -> np.ndarray:
     """|N(jw)|^2 / |D(jw)|^2 for (S, d+1) ascending coefficients at (F,) frequencies.
 
@@ -61,8 +51,8 @@ def mag_sq(num: np.ndarray, den: np.ndarray, w_rad_s: np.ndarray) -> np.ndarray:
     relative error is about Q^2 x 1e-16: 1e-12 even at Q = 100.
     """
     x = w_rad_s * w_rad_s
-    out = _horner(power_coefficients(num), x)
-    out /= _horner(power_coefficients(den), x)
+    out = horner_rows(power_coefficients(num), x)
+    out /= horner_rows(power_coefficients(den), x)
     return out
 
 
