@@ -291,3 +291,85 @@ def test_horner_rows_equals_numpys_polyval():
         got = horner_rows(coefs, x)
         assert got.dtype == np.result_type(coefs, x)
         assert np.array_equal(got, npoly.polyval(x, coefs.T, tensor=True))
+
+
+def _minus_3db_points(els, f0_hz: float) -> tuple[float, float]:
+    """Lower and upper -3 dB frequencies of a bandpass from the nodal AC solve (root
+    search on |H|^2 = |H(f0)|^2 / 2 either side of f0)."""
+    from scipy.optimize import brentq
+
+    def excess(f):
+        return abs(transfer(els, np.array([f]))[0]) ** 2 - peak_sq / 2
+
+    peak_sq = abs(transfer(els, np.array([f0_hz]))[0]) ** 2
+    return (brentq(excess, f0_hz / 1e3, f0_hz, xtol=1e-12, rtol=1e-14),
+            brentq(excess, f0_hz, f0_hz * 1e3, xtol=1e-12, rtol=1e-14))
+
+
+@pytest.mark.parametrize("q", [0.3, 0.12])
+def test_low_q_tow_thomas_reads_its_real_pole_pair(q):
+    """A bandpass with Q < 1/2 has two real poles; its three op-amps' poles form a complex
+    pair far above, which must not be taken for the section's. The reading is checked
+    against the section's own AC response from the nodal solver: for a second-order
+    bandpass the -3 dB points satisfy f_lo f_hi = f0^2 and f_hi - f_lo = f0 / Q at any Q
+    (Schaumann & Van Valkenburg 2001, ch. 4 [mem])."""
+    from bandwright.circuits import tow_thomas
+    from bandwright.circuits.figures import section_figures_batch, section_poles_rad_s
+    from bandwright.sections import Section
+    f0_hz = 14.0
+    parts = tow_thomas.design(Section("bandpass", f0_hz, q, -10.0), c_farads=33e-9)
+    els = tuple(tow_thomas.elements(parts, generic_opamp(1e6, 130.0)))
+    poles = section_poles_rad_s(els, values=np.array([parts[n] for n in passive_names(els)]))
+    assert np.any((np.abs(poles) > 2 * math.pi * 1e5) & (poles.imag > 0))  # the trap
+    f_lo, f_hi = _minus_3db_points(els, f0_hz)
+    f0_ref, q_ref = math.sqrt(f_lo * f_hi), math.sqrt(f_lo * f_hi) / (f_hi - f_lo)
+    fig = section_figures(els, kind="bandpass", near_hz=f0_hz)
+    assert (fig.f0_hz, fig.q) == pytest.approx((f0_ref, q_ref), rel=1e-6)
+    assert fig.gain == pytest.approx(-10.0, rel=1e-4)
+    values = np.array([[parts[n] for n in passive_names(els)]])
+    for method in ("det", "auto"):
+        f0, qb, g = section_figures_batch(els, kind="bandpass", near_hz=f0_hz, values=values,
+                                          method=method)
+        assert (f0[0], qb[0], g[0]) == pytest.approx((fig.f0_hz, fig.q, fig.gain), rel=1e-9)
+
+
+def test_real_pole_pair_in_the_right_half_plane_reads_as_negative_q():
+    """Hand-made denominators in sigma (w_c = 1): (s + 1)(s + 4) with a complex pair at
+    |p| = 1e4 gives w0 = 2, Q = 2/5 (w0 = sqrt(p1 p2), Q = w0/|p1 + p2|, by hand); with
+    (s + 4)(s - 1) instead, one pole is in the right half plane and Q must come out < 0
+    (so that the stability rules see it), as for a right-half-plane complex pair."""
+    from bandwright.circuits.figures import figures_from_scaled
+    far = npoly.polyfromroots([-5e3 + 8.66e3j, -5e3 - 8.66e3j]).real
+    num = np.array([[0.0, 1.0, 0.0, 0.0, 0.0]])
+    w_c = np.array([1.0])
+    near = 2.0 / (2 * math.pi)
+    stable = npoly.polymul(npoly.polyfromroots([-1.0, -4.0]), far)[None, :]
+    f0, q, _ = figures_from_scaled(num, stable, w_c, kind="bandpass", near_hz=near)
+    assert (f0[0] * 2 * math.pi, q[0]) == pytest.approx((2.0, 0.4), rel=1e-9)
+    unstable = npoly.polymul(npoly.polyfromroots([1.0, -4.0]), far)[None, :]
+    f0, q, _ = figures_from_scaled(num, unstable, w_c, kind="bandpass", near_hz=near)
+    assert f0[0] * 2 * math.pi == pytest.approx(2.0, rel=1e-9)
+    assert q[0] < 0
+
+
+@pytest.mark.parametrize("name,gain", [("mfb_bandpass", -0.15), ("tow_thomas", -10.0)])
+def test_low_q_section_is_searched_not_just_rounded(name, gain):
+    """The series search of a Q < 1/2 section must do better than rounding each exact part
+    to its nearest E96/E12 value (IEC 60063): before its figures were read from the real
+    pole pair, every grid point read as 'no pole pair' and the nearest values stood (both
+    cases here were 8 to 80 times worse than what the search now finds)."""
+    from bandwright.circuits import topology
+    from bandwright.circuits.realize import figure_error, realize
+    from bandwright.parts.eseries import nearest
+    from bandwright.sections import Section
+    topo = topology(name)
+    model = generic_opamp(1e6, 130.0)
+    sec = Section("bandpass", 100.0, 0.3, gain)
+    r = realize(topo, sec, model, r_series="E96", c_series="E12")
+    naive = {n: float(nearest(v, "E12" if n.startswith("C") else "E96"))
+             for n, v in r.ideal_components}
+    naive_fig = section_figures(tuple(topo.elements(naive, model)), kind="bandpass",
+                                near_hz=sec.f0_hz)
+    assert figure_error(r.built, sec) < 0.25 * figure_error(naive_fig, sec)
+    df, dq, dg = r.errors()
+    assert abs(df) < 0.005 and abs(dq) < 0.02 and abs(dg) < 0.02

@@ -365,20 +365,75 @@ def _trim(coefs: np.ndarray) -> np.ndarray:
     return coefs[: keep[-1] + 1] if keep.size else coefs[:1]
 
 
-def _pick_pair(poles: np.ndarray, w_near: float) -> tuple[complex, ...]:
-    """The pole pair (complex, or two real poles) closest in log |p| to w_near."""
-    tiny = 1e-9 * np.maximum(np.abs(poles), np.finfo(float).tiny)
-    upper = poles[poles.imag > tiny]
-    if upper.size:
-        best = upper[np.argmin(np.abs(np.log(np.abs(upper) / w_near)))]
-        return best, np.conj(best)
-    real = np.sort(poles[np.abs(poles.imag) <= tiny].real)
-    if real.size < 2:
+# A complex pair within this factor of the expected pole frequency is the section's own;
+# only beyond it can two real poles (a section with Q < 1/2) be nearer (op-amp poles often
+# form a complex pair far above such a section).
+_COMPLEX_REACH = math.log(2.0)
+
+
+def _pick_pair(poles: np.ndarray, w_near: float) -> tuple[complex, complex, bool]:
+    """The section's pole pair: the complex pair closest in log |p| to w_near, unless none
+    lies within ``_COMPLEX_REACH`` and two real poles adjacent in |p| have their geometric
+    mean closer (a section with Q < 1/2). ``_pair_indices`` is the same rule for batches.
+    Returns the two poles and whether they are real."""
+    k1, k2, is_real = _pair_indices(poles[None, :], np.array([w_near]))
+    if k1[0] < 0:
         raise ValueError(f"the transfer has fewer than two poles: {poles}")
-    i, j = np.triu_indices(real.size, k=1)
-    w0 = np.sqrt(np.abs(real[i] * real[j]))
-    k = np.argmin(np.abs(np.log(np.maximum(w0, np.finfo(float).tiny) / w_near)))
-    return complex(real[i[k]]), complex(real[j[k]])
+    return complex(poles[k1[0]]), complex(poles[k2[0]]), bool(is_real[0])
+
+
+def _pair_indices(poles: np.ndarray, w_near: np.ndarray
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Column indices (S,), (S,) of each row's section pole pair in `poles` (S, d) (see
+    ``_pick_pair``), -1 where a row has neither a complex pair nor two real poles; and
+    whether the pair is two real poles (S,)."""
+    s_count, d = poles.shape
+    rows = np.arange(s_count)
+    mag = np.abs(poles)
+    tiny = 1e-9 * np.maximum(mag, np.finfo(float).tiny)
+    upper = poles.imag > tiny
+    real = np.abs(poles.imag) <= tiny
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_w = np.log(np.maximum(w_near, 1e-300))[:, None]
+        d_c = np.where(upper, np.abs(np.log(np.maximum(mag, 1e-300)) - log_w), np.inf)
+        kc = np.argmin(d_c, axis=1) if d else np.zeros(s_count, dtype=int)
+        best_c = d_c[rows, kc] if d else np.full(s_count, np.inf)
+        # Real poles in order of |p| (the others last); a pair's w0 is its geometric mean.
+        order = np.argsort(np.where(real, mag, np.inf), axis=1, kind="stable")
+        sm = np.take_along_axis(np.where(real, mag, np.inf), order, axis=1)
+        if d >= 2:
+            log_gm = 0.5 * (np.log(np.maximum(sm[:, :-1], 1e-300))
+                            + np.log(np.maximum(sm[:, 1:], 1e-300)))
+            d_r = np.where(np.isfinite(sm[:, 1:]), np.abs(log_gm - log_w), np.inf)
+            jr = np.argmin(d_r, axis=1)
+            best_r = d_r[rows, jr]
+        else:
+            jr, best_r = np.zeros(s_count, dtype=int), np.full(s_count, np.inf)
+    use_real = (best_c > _COMPLEX_REACH) & (best_r < best_c)
+    conj = np.argmin(np.abs(poles - np.conj(poles[rows, kc])[:, None])
+                     + np.where(np.arange(d) == kc[:, None], np.inf, 0.0), axis=1) \
+        if d >= 2 else kc
+    k1 = np.where(use_real, order[rows, jr] if d >= 2 else kc, kc)
+    k2 = np.where(use_real, order[rows, np.minimum(jr + 1, max(d - 1, 0))] if d >= 2 else kc,
+                  conj)
+    none = ~np.isfinite(np.where(use_real, best_r, best_c))
+    return np.where(none, -1, k1), np.where(none, -1, k2), use_real
+
+
+def _pair_figures(p1: np.ndarray, p2: np.ndarray, is_real: np.ndarray
+                  ) -> tuple[np.ndarray, np.ndarray]:
+    """w0 and Q of pole pairs (in any unit of angular frequency; [3]_).
+
+    A complex pair p, p*: w0 = |p|, Q = -w0 / (2 Re p), negative for a right-half-plane
+    pair. Two real poles: w0 = sqrt(p1 p2), Q = w0 / |p1 + p2| (at most 1/2), made negative
+    when either pole lies in the right half plane, so that an unstable section shows as
+    Q < 0 either way. `is_real` (S,) says which kind each pair is."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w0 = np.where(is_real, np.sqrt(np.abs(p1.real * p2.real)), np.abs(p1))
+        q_c = -w0 / (2 * p1.real)
+        q_r = w0 / np.abs(p1.real + p2.real)
+        q_r = np.where((p1.real > 0) | (p2.real > 0), -q_r, q_r)
+    return w0, np.where(is_real, q_r, q_c)
 
 
 def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
@@ -415,11 +470,14 @@ def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: fl
 
     Notes
     -----
-    Poles are the roots of the denominator; complex pairs are preferred over pairs of real
-    poles when both exist. For a complex pair p, p*: w0 = |p|,
-    Q = -|p| / (2 Re p) ([3]_), which equals |p|/(2|Re p|) for a stable pair and is negative
-    for a right-half-plane pair, so that an unstable section shows as Q < 0. For two real
-    poles p1, p2: w0 = sqrt(p1 p2), Q = w0 / |p1 + p2| (Q <= 1/2). f0 = w0 / 2 pi.
+    Poles are the roots of the denominator. The section's pair is the complex pair nearest
+    `near_hz`; where none lies within a factor 2 of it, two real poles adjacent in |p|
+    whose geometric mean is nearer (a section with Q < 1/2 has real poles, while its
+    op-amps' poles may still form a complex pair far above). For a complex pair p, p*:
+    w0 = |p|, Q = -|p| / (2 Re p) ([3]_), which equals |p|/(2|Re p|) for a stable pair and
+    is negative for a right-half-plane pair, so that an unstable section shows as Q < 0.
+    For two real poles p1, p2: w0 = sqrt(p1 p2), Q = w0 / |p1 + p2| (Q <= 1/2), negative
+    if either lies in the right half plane. f0 = w0 / 2 pi.
 
     Gain, signed:
 
@@ -447,12 +505,12 @@ def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: fl
     poles = np.roots(den[::-1])                             # in sigma = s / w_c
     pair = _pick_pair(poles, 2 * math.pi * near_hz / w_c)
     p = pair[0]
-    if abs(p.imag) > 0:
+    if pair[2]:
+        w0_a, q_a = _pair_figures(np.array([p]), np.array([pair[1]]), np.array([True]))
+        w0, q = float(w0_a[0]), float(q_a[0])
+    else:
         w0 = float(abs(p))
         q = -w0 / (2 * p.real) if p.real != 0 else math.inf
-    else:
-        w0 = math.sqrt(abs(pair[0].real * pair[1].real))
-        q = w0 / abs(pair[0].real + pair[1].real)
     if kind == "bandpass":
         with np.errstate(divide="ignore", invalid="ignore"):  # a pole on the jω axis
             h = npoly.polyval(1j * w0, num) / npoly.polyval(1j * w0, den)
@@ -466,7 +524,7 @@ def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: fl
             raise ValueError("a highpass transfer needs at least two zeros")
         extra_zeros = zeros[order[2:]]
         others = list(poles)
-        for chosen in pair:
+        for chosen in pair[:2]:
             others.pop(int(np.argmin(np.abs(np.asarray(others) - chosen))))
         gain = float(np.real(num[-1] / den[-1] * np.prod(-extra_zeros)
                              / np.prod(-np.asarray(others, dtype=complex))))
@@ -656,16 +714,11 @@ def _figures_and_poles(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, kin
     else:
         poles = _batch_roots(den)                               # (S, d), in s / w_c
     w_near = 2 * math.pi * near_hz / w_c                        # (S,)
-    mag = np.abs(poles)
-    upper = poles.imag > 1e-9 * np.maximum(mag, np.finfo(float).tiny)
-    dist = np.where(upper, np.abs(np.log(np.maximum(mag, 1e-300) / w_near[:, None])), np.inf)
-    k = np.argmin(dist, axis=1)
+    k1, k2, is_real = _pair_indices(poles, w_near)
     rows = np.arange(s_count)
-    p = poles[rows, k]
-    ok = np.isfinite(dist[rows, k])
-    w0 = np.abs(p)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        q = np.where(ok, -w0 / (2 * p.real), np.nan)
+    ok = k1 >= 0
+    w0, q = _pair_figures(poles[rows, k1], poles[rows, k2], is_real)
+    q = np.where(ok, q, np.nan)
     if kind == "bandpass":
         s = 1j * w0
         h = npoly.polyval(s, num.T, tensor=False) / npoly.polyval(s, den.T, tensor=False)
@@ -677,9 +730,8 @@ def _figures_and_poles(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, kin
         z_order = np.argsort(np.abs(zeros), axis=1)
         extra = np.take_along_axis(zeros, z_order[:, 2:], axis=1)
         mask = np.ones(poles.shape, dtype=bool)
-        mask[rows, k] = False
-        conj = np.argmin(np.abs(poles - np.conj(p)[:, None]) + np.where(mask, 0, np.inf), axis=1)
-        mask[rows, conj] = False
+        mask[rows, k1] = False
+        mask[rows, k2] = False
         others = np.where(mask, -poles, 1.0)
         gain = np.real(num[:, -1] / den[:, -1] * np.prod(-extra, axis=1) / np.prod(others, axis=1))
     f0 = np.where(ok, w0 * w_c / (2 * math.pi), np.nan)
