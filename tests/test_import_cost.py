@@ -33,6 +33,9 @@ def test_plan_json_imports_no_drawing_module():
     loaded = [m for m in out["modules"]
               if any(m == d or m.startswith(d + ".") for d in DRAWING_ONLY)]
     assert loaded == []
+    # Nor numpy's masked arrays, which numpy's unique and percentile import and nothing
+    # here needs (bandwright.arrays); this plan runs the Monte Carlo envelope and ordering.
+    assert "numpy.ma" not in out["modules"]
 
 
 @pytest.mark.slow

@@ -231,12 +231,12 @@ def _plan(requirement: Requirement, *, family: str | None, order: int | None,
 
 def _load_before_fork() -> None:
     """Import here what every candidate's build imports on first use (the topology modules,
-    numpy's FFT, random and masked-array modules, which numpy loads lazily): the workers
-    are forked from this process and inherit them, instead of each importing them again."""
+    numpy's FFT and random modules, which numpy loads lazily): the workers are forked from
+    this process and inherit them, instead of each importing them again. (numpy.ma, which
+    numpy's unique and percentile import, is not needed: ``bandwright.arrays``.)"""
     all_topologies()
     importlib.import_module("numpy.fft")
     importlib.import_module("numpy.random")
-    importlib.import_module("numpy.ma")       # np.unique reaches for it
 
 
 def _clean(d: Design) -> bool:

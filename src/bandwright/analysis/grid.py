@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 
+from bandwright.arrays import sorted_unique
 from bandwright.inputs.requirement import Requirement
 
 __all__ = ["response_grid", "passband_grid", "noise_band", "noise_grid", "converter_band_low_hz"]
@@ -29,7 +30,7 @@ def response_grid(requirement: Requirement) -> np.ndarray:
     hi = max([10 * f0] + [2 * f for f in stops])
     n = int(math.ceil(POINTS_PER_DECADE * math.log10(hi / lo))) + 1
     grid = np.concatenate([np.geomspace(lo, hi, n), passband_grid(requirement)])
-    return np.unique(grid)
+    return sorted_unique(grid)
 
 
 def converter_band_low_hz(requirement: Requirement) -> float:
@@ -59,5 +60,5 @@ def noise_grid(requirement: Requirement, points: int = 401) -> np.ndarray:
     grid = np.geomspace(lo, hi, max(points, 51))
     if getattr(requirement, "converter", None) is not None:
         pb = passband_grid(requirement)
-        grid = np.unique(np.concatenate([grid, pb[(pb > lo) & (pb < hi)]]))
+        grid = sorted_unique(np.concatenate([grid, pb[(pb > lo) & (pb < hi)]]))
     return grid

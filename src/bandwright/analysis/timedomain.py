@@ -38,6 +38,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.polynomial import polynomial as npoly
 
+from bandwright.arrays import sorted_unique
 from bandwright.chain.graph import CHAIN_INPUT, CHAIN_OUTPUT, Chain
 from bandwright.circuits.figures import _scale_rad_s, _trim, transfer_polynomials_many
 
@@ -572,7 +573,7 @@ def time_figures(chain: Chain, *, passband_hz: np.ndarray, low_hz: float, high_h
     final = float(zpk_response(out, np.zeros(1))[0].real)
     dev = np.abs(sv - final)
     settling = _last_above(ts, dev, RING_FRACTION * float(dev.max())) if dev.max() > 0 else 0.0
-    sig_f = np.unique(np.concatenate([[low_hz, center_hz, high_hz],
+    sig_f = sorted_unique(np.concatenate([[low_hz, center_hz, high_hz],
                                       pb[np.linspace(0, pb.size - 1, 9).astype(int)]]))
     onset = onset_peaks(chain, zpks, signal_vpk=signal_vpk, signal_hz=sig_f, tones=tones,
                         dc_step_v=dc_step_v, limits_vpk=limits_vpk)

@@ -35,6 +35,7 @@ from typing import Sequence
 
 import numpy as np
 
+from bandwright.arrays import quantile_linear, sorted_unique
 from bandwright.sections.section import Section, section_response
 
 __all__ = ["OrderingProblem", "Ordering", "make_problem", "order_cost", "best_order_dp",
@@ -454,12 +455,12 @@ def best_built_order(tables: BuiltTables, *, first: int | None = None,
             if cost < best_cost:
                 best, best_cost = order, cost
         return tuple(best), "exhaustive"
-    levels = np.unique(tables.peak[1:])
+    levels = sorted_unique(tables.peak[1:])
     if levels.size > _PEAK_LEVELS:
-        levels = np.quantile(levels, np.linspace(0, 1, _PEAK_LEVELS))
+        levels = quantile_linear(levels, np.linspace(0, 1, _PEAK_LEVELS))
     levels = np.maximum(levels, tables.peak[-1])
     best, best_cost = None, (True, math.inf)
-    for ceiling in np.unique(levels):
+    for ceiling in sorted_unique(levels):
         allowed = tables.peak <= ceiling * (1 + 1e-12)
         allowed[0] = allowed[-1] = True
         order, _ = _dp_under(tables, allowed, first)

@@ -29,6 +29,7 @@ from typing import Callable
 
 import numpy as np
 
+from bandwright.arrays import percentile_linear
 from bandwright.analysis.grid import response_grid
 from bandwright.analysis.montecarlo import sampling
 from bandwright.analysis.montecarlo.drivers import Driver, DriverStats
@@ -267,7 +268,7 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
     passed_a = np.concatenate(passed)
     k = int(np.count_nonzero(passed_a))
     # Frequencies as rows: the partition then runs over contiguous memory.
-    env = np.percentile(np.vstack(env_rows).T, ENVELOPE_PERCENTILES, axis=1).astype(float)
+    env = percentile_linear(np.vstack(env_rows).T, ENVELOPE_PERCENTILES, axis=1).astype(float)
     drivers, explained = stats.drivers()
     sens = chain_sensitivities(chain) if with_sensitivities else ()
     return YieldResult(
