@@ -376,48 +376,62 @@ def _pick_pair(poles: np.ndarray, w_near: float) -> tuple[complex, complex, bool
     lies within ``_COMPLEX_REACH`` and two real poles adjacent in |p| have their geometric
     mean closer (a section with Q < 1/2). ``_pair_indices`` is the same rule for batches.
     Returns the two poles and whether they are real."""
-    k1, k2, is_real = _pair_indices(poles[None, :], np.array([w_near]))
+    k1, k2, is_real = _pair_indices(poles[None, :], np.array([w_near]), conj=True)
     if k1[0] < 0:
         raise ValueError(f"the transfer has fewer than two poles: {poles}")
     return complex(poles[k1[0]]), complex(poles[k2[0]]), bool(is_real[0])
 
 
-def _pair_indices(poles: np.ndarray, w_near: np.ndarray
+def _pair_indices(poles: np.ndarray, w_near: np.ndarray, *, conj: bool = False
                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Column indices (S,), (S,) of each row's section pole pair in `poles` (S, d) (see
     ``_pick_pair``), -1 where a row has neither a complex pair nor two real poles; and
-    whether the pair is two real poles (S,)."""
+    whether the pair is two real poles (S,). For a complex pair the second index is its
+    conjugate's only with `conj` (else the first again: its figures need only the one)."""
     s_count, d = poles.shape
+    if d == 0:
+        none = np.full(s_count, -1)
+        return none, none.copy(), np.zeros(s_count, dtype=bool)
     rows = np.arange(s_count)
     mag = np.abs(poles)
-    tiny = 1e-9 * np.maximum(mag, np.finfo(float).tiny)
-    upper = poles.imag > tiny
-    real = np.abs(poles.imag) <= tiny
     with np.errstate(divide="ignore", invalid="ignore"):
-        log_w = np.log(np.maximum(w_near, 1e-300))[:, None]
-        d_c = np.where(upper, np.abs(np.log(np.maximum(mag, 1e-300)) - log_w), np.inf)
-        kc = np.argmin(d_c, axis=1) if d else np.zeros(s_count, dtype=int)
-        best_c = d_c[rows, kc] if d else np.full(s_count, np.inf)
+        upper = poles.imag > 1e-9 * np.maximum(mag, np.finfo(float).tiny)
+        d_c = np.where(upper, np.abs(np.log(np.maximum(mag, 1e-300) / w_near[:, None])),
+                       np.inf)
+    k1 = np.argmin(d_c, axis=1)
+    best = d_c[rows, k1]
+    k2 = k1.copy()
+    is_real = np.zeros(s_count, dtype=bool)
+    far = np.flatnonzero(~(best <= _COMPLEX_REACH))
+    if far.size and d >= 2:
         # Real poles in order of |p| (the others last); a pair's w0 is its geometric mean.
-        order = np.argsort(np.where(real, mag, np.inf), axis=1, kind="stable")
-        sm = np.take_along_axis(np.where(real, mag, np.inf), order, axis=1)
-        if d >= 2:
+        p, m = poles[far], mag[far]
+        key = np.where(np.abs(p.imag) <= 1e-9 * np.maximum(m, np.finfo(float).tiny), m, np.inf)
+        order = np.argsort(key, axis=1, kind="stable")
+        sm = np.take_along_axis(key, order, axis=1)
+        with np.errstate(divide="ignore", invalid="ignore"):
             log_gm = 0.5 * (np.log(np.maximum(sm[:, :-1], 1e-300))
                             + np.log(np.maximum(sm[:, 1:], 1e-300)))
-            d_r = np.where(np.isfinite(sm[:, 1:]), np.abs(log_gm - log_w), np.inf)
-            jr = np.argmin(d_r, axis=1)
-            best_r = d_r[rows, jr]
-        else:
-            jr, best_r = np.zeros(s_count, dtype=int), np.full(s_count, np.inf)
-    use_real = (best_c > _COMPLEX_REACH) & (best_r < best_c)
-    conj = np.argmin(np.abs(poles - np.conj(poles[rows, kc])[:, None])
-                     + np.where(np.arange(d) == kc[:, None], np.inf, 0.0), axis=1) \
-        if d >= 2 else kc
-    k1 = np.where(use_real, order[rows, jr] if d >= 2 else kc, kc)
-    k2 = np.where(use_real, order[rows, np.minimum(jr + 1, max(d - 1, 0))] if d >= 2 else kc,
-                  conj)
-    none = ~np.isfinite(np.where(use_real, best_r, best_c))
-    return np.where(none, -1, k1), np.where(none, -1, k2), use_real
+            d_r = np.where(np.isfinite(sm[:, 1:]),
+                           np.abs(log_gm - np.log(np.maximum(w_near[far], 1e-300))[:, None]),
+                           np.inf)
+        j = np.argmin(d_r, axis=1)
+        sub = np.arange(far.size)
+        use = d_r[sub, j] < best[far]
+        rr = far[use]
+        k1[rr], k2[rr] = order[sub, j][use], order[sub, j + 1][use]
+        is_real[rr] = True
+        best[rr] = d_r[sub, j][use]
+    if conj:
+        cx = np.flatnonzero(~is_real)
+        masked = np.where(np.arange(d) == k1[cx][:, None], np.inf, 0.0)
+        k2[cx] = np.argmin(np.abs(poles[cx] - np.conj(poles[cx, k1[cx]])[:, None]) + masked,
+                           axis=1)
+    if not np.isfinite(best).all():
+        none = ~np.isfinite(best)
+        k1[none] = -1
+        k2[none] = -1
+    return k1, k2, is_real
 
 
 def _pair_figures(p1: np.ndarray, p2: np.ndarray, is_real: np.ndarray
@@ -429,11 +443,14 @@ def _pair_figures(p1: np.ndarray, p2: np.ndarray, is_real: np.ndarray
     when either pole lies in the right half plane, so that an unstable section shows as
     Q < 0 either way. `is_real` (S,) says which kind each pair is."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        w0 = np.where(is_real, np.sqrt(np.abs(p1.real * p2.real)), np.abs(p1))
-        q_c = -w0 / (2 * p1.real)
-        q_r = w0 / np.abs(p1.real + p2.real)
-        q_r = np.where((p1.real > 0) | (p2.real > 0), -q_r, q_r)
-    return w0, np.where(is_real, q_r, q_c)
+        w0 = np.abs(p1)
+        q = -w0 / (2 * p1.real)
+        if is_real.any():
+            w0_r = np.sqrt(np.abs(p1.real * p2.real))
+            q_r = w0_r / np.abs(p1.real + p2.real)
+            q_r = np.where((p1.real > 0) | (p2.real > 0), -q_r, q_r)
+            w0, q = np.where(is_real, w0_r, w0), np.where(is_real, q_r, q)
+    return w0, q
 
 
 def section_figures(elements: Sequence[Element], *, kind: StageKind, near_hz: float,
@@ -714,7 +731,7 @@ def _figures_and_poles(num: np.ndarray, den: np.ndarray, w_c: np.ndarray, *, kin
     else:
         poles = _batch_roots(den)                               # (S, d), in s / w_c
     w_near = 2 * math.pi * near_hz / w_c                        # (S,)
-    k1, k2, is_real = _pair_indices(poles, w_near)
+    k1, k2, is_real = _pair_indices(poles, w_near, conj=kind == "highpass")
     rows = np.arange(s_count)
     ok = k1 >= 0
     w0, q = _pair_figures(poles[rows, k1], poles[rows, k2], is_real)
