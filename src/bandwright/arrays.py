@@ -3,8 +3,10 @@
 numpy's ``unique`` (without index outputs), ``percentile``, ``quantile`` and ``median``
 ask ``numpy.ma`` whether their input is masked, and so import the masked-array package
 (about 12 ms, every plan) though nothing here is masked. These give the same values bit
-for bit for the plain float arrays the planner has (no NaN); the tests compare them with
-numpy's own.
+for bit for plain float arrays without negative zeros (a NaN gives NaN, as numpy's); the
+tests compare them with numpy's own. The percentiles sort each row along contiguous memory
+instead of numpy's partition along the first axis: for the Monte Carlo envelope (2,000
+boards × 400 frequencies, float32) about 2 ms instead of 14 ms.
 """
 
 from __future__ import annotations
@@ -27,7 +29,7 @@ def sorted_unique(values) -> np.ndarray:
 
 
 def percentile_linear(a: np.ndarray, q, axis: int = -1) -> np.ndarray:
-    """``np.percentile(a, q, axis=axis)`` (its default "linear" method) for `a` without NaN.
+    """``np.percentile(a, q, axis=axis)`` (its default "linear" method).
 
     Hyndman & Fan 1996, definition 7 (numpy's default): with the n values sorted,
     h = (n - 1) q / 100, the result interpolates between the values at floor(h) and
@@ -50,16 +52,22 @@ def percentile_linear(a: np.ndarray, q, axis: int = -1) -> np.ndarray:
 
 
 def quantile_linear(a: np.ndarray, quantiles, axis: int = -1) -> np.ndarray:
-    """``np.quantile(a, quantiles, axis=axis)`` ("linear") for `a` without NaN: as
+    """``np.quantile(a, quantiles, axis=axis)`` ("linear"): as
     ``percentile_linear``, with `quantiles` from 0 to 1."""
-    arr = np.moveaxis(np.asarray(a), axis, 0)
-    n = arr.shape[0]
+    # The order statistics are the same whichever axis they are taken along: along the last
+    # one, contiguous (numpy's own moves the axis to the front).
+    arr = np.ascontiguousarray(np.moveaxis(np.asarray(a), axis, -1))
+    n = arr.shape[-1]
     virtual = np.asanyarray((n - 1) * np.asanyarray(quantiles))
     top = virtual >= n - 1                 # the largest value itself
     below = np.where(top, -1, np.floor(virtual)).astype(np.intp)
     above = np.where(top, -1, np.floor(virtual) + 1).astype(np.intp)
-    s = np.sort(arr, axis=0)
-    prev, nxt = s[below], s[above]
+    # A full sort of contiguous rows (vectorised) is quicker here than numpy's partition at
+    # a few positions; the values at those positions are the same.
+    s = np.sort(arr, axis=-1)
+    prev, nxt = s[..., below], s[..., above]
+    if virtual.ndim:                       # numpy puts the quantiles' axis first
+        prev, nxt = np.moveaxis(prev, -1, 0), np.moveaxis(nxt, -1, 0)
     gamma = np.asanyarray(virtual - below, dtype=virtual.dtype)
     gamma = gamma.reshape(virtual.shape + (1,) * (arr.ndim - 1))
     diff = nxt - prev
@@ -67,5 +75,5 @@ def quantile_linear(a: np.ndarray, quantiles, axis: int = -1) -> np.ndarray:
     np.subtract(nxt, diff * (1 - gamma), out=out, where=gamma >= 0.5, casting="unsafe",
                 dtype=type(out.dtype))
     if np.issubdtype(s.dtype, np.inexact):
-        out[..., np.isnan(s[-1])] = np.nan  # a NaN sorts last; numpy's answer is NaN
+        out[..., np.isnan(s[..., -1])] = np.nan  # a NaN sorts last; numpy's answer is NaN
     return out

@@ -267,8 +267,8 @@ def monte_carlo(chain: Chain, requirement: Requirement, *, spreads: Spreads | No
             progress(done, samples)
     passed_a = np.concatenate(passed)
     k = int(np.count_nonzero(passed_a))
-    # Frequencies as rows: the partition then runs over contiguous memory.
-    env = percentile_linear(np.vstack(env_rows).T, ENVELOPE_PERCENTILES, axis=1).astype(float)
+    # Over the boards, per frequency (percentile_linear sorts each frequency's boards).
+    env = percentile_linear(np.vstack(env_rows), ENVELOPE_PERCENTILES, axis=0).astype(float)
     drivers, explained = stats.drivers()
     sens = chain_sensitivities(chain) if with_sensitivities else ()
     return YieldResult(
