@@ -2,7 +2,7 @@
 
 The planner's candidates (family × order × path) are built independently of one another:
 each is a pure function of the requirement, and their results are ranked only once all are
-in. On a platform that forks (Linux), this process and forked worker processes share them,
+in; so are the plots and schematics of an output folder (``report.files``). On a platform that forks (Linux), this process and forked worker processes share them,
 one process per core; a forked child starts with the parent's memory (imports, caches, the
 job itself), so nothing but the results crosses between processes, and each result is the
 one the same call gives in-process. Elsewhere, with one core, in a worker already, or with ``BANDWRIGHT_WORKERS=1``

@@ -7,9 +7,10 @@ keyed by a hash of exactly those arrays, so a change to a wiring (or to the stam
 gives a new key and the element list stays the one truth; an unreadable or inconsistent
 entry is derived again and rewritten.
 
-Where: ``$BANDWRIGHT_CACHE`` when set ("" or "off": no cache at all), else
-``$XDG_CACHE_HOME/bandwright``, else ``~/.cache/bandwright``; a folder that cannot be
-written only means no cache. Entries are small (.npz, a few kB) and written atomically.
+Where: the folder ``expansions`` of ``bandwright.cache.cache_root()`` (``$BANDWRIGHT_CACHE``,
+else ``$XDG_CACHE_HOME/bandwright`` or ``~/.cache/bandwright``; "off": no cache); a folder
+that cannot be written only means no cache. Entries are small (.npz, a few kB) and written
+atomically.
 """
 
 from __future__ import annotations
@@ -21,22 +22,18 @@ from pathlib import Path
 
 import numpy as np
 
+from bandwright.cache import CACHE_VARIABLE, cache_root
+
 __all__ = ["cache_dir", "load", "store", "key_of", "CACHE_VARIABLE"]
 
-#: Environment variable naming the cache folder ("" or "off" turns the cache off).
-CACHE_VARIABLE = "BANDWRIGHT_CACHE"
 # Bumped whenever the stored layout or the meaning of an entry changes.
 _FORMAT = b"bandwright-expansion-1"
-_OFF = ("", "0", "off", "none")
 
 
 def cache_dir() -> Path | None:
     """The folder entries go to, or None when the cache is off."""
-    env = os.environ.get(CACHE_VARIABLE)
-    if env is not None:
-        return None if env.strip().lower() in _OFF else Path(env) / "expansions"
-    base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
-    return Path(base) / "bandwright" / "expansions"
+    root = cache_root()
+    return None if root is None else root / "expansions"
 
 
 def key_of(f_const: np.ndarray, stamps: np.ndarray) -> str:

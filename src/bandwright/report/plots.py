@@ -23,9 +23,10 @@ Plots
 
 from __future__ import annotations
 
+import functools
 import io
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING
 
 from bandwright.report._mpl import quiet_matplotlib
@@ -54,7 +55,7 @@ if TYPE_CHECKING:
     from bandwright.diagnosis import Diagnosis
     from bandwright.planner import Plan
 
-__all__ = ["plot_files", "plot_figures", "PLOT_NAMES", "DPI", "SIZE_PX",
+__all__ = ["plot_files", "plot_figures", "plot_makers", "plot_jobs", "PLOT_NAMES", "DPI", "SIZE_PX",
            "diagnosis_figure"]
 
 #: Resolution and pixel size of every PNG.
@@ -551,6 +552,28 @@ _BUILDERS = {"response": _response, "levels": _levels, "noise": _noise, "yield":
              "poles": _poles, "folds": _folds}
 
 
+def plot_makers(obj: Plan | Audit | Subject) -> list[tuple[str, Callable[[], Figure | None]]]:
+    """(name, maker) for every plot that may apply, in ``PLOT_NAMES`` order: each maker
+    builds its Figure (None where the plot does not apply). ``plot_figures`` calls them all;
+    ``plot_files`` may call them in worker processes."""
+    s = obj if isinstance(obj, Subject) else subject_of(obj)
+    if s.chain is None or s.analyses is None:
+        return []
+    out: list[tuple[str, Callable[[], Figure | None]]] = [
+        (name, functools.partial(build, s)) for name, build in _BUILDERS.items()]
+    if getattr(s.analyses, "time", None) is not None:
+        def timing() -> Figure:
+            from bandwright.report.time_view import time_figure
+            pb = s.requirement.passband
+            return time_figure(s.analyses.time, low_hz=pb.low_hz, high_hz=pb.high_hz,
+                               size_in=(SIZE_PX[0] / DPI, SIZE_PX[1] / DPI), dpi=DPI,
+                               colour=BUILT, grey=IDEAL)
+        out.append(("timing", timing))
+    if getattr(s.source, "diagnosis", None) is not None:
+        out.append(("diagnosis", functools.partial(diagnosis_figure, s.source.diagnosis)))
+    return out
+
+
 def plot_figures(obj: Plan | Audit | Subject) -> dict[str, Figure]:
     """Every plot that applies, as matplotlib Figures (name → Figure).
 
@@ -564,23 +587,25 @@ def plot_figures(obj: Plan | Audit | Subject) -> dict[str, Figure]:
         Keys from ``PLOT_NAMES``; "yield" only when a Monte Carlo result exists, none when
         the plan could not build a chain.
     """
-    s = obj if isinstance(obj, Subject) else subject_of(obj)
-    if s.chain is None or s.analyses is None:
-        return {}
     out = {}
-    for name, build in _BUILDERS.items():
-        fig = build(s)
+    for name, make in plot_makers(obj):
+        fig = make()
         if fig is not None:
             out[name] = fig
-    if getattr(s.analyses, "time", None) is not None:
-        from bandwright.report.time_view import time_figure
-        pb = s.requirement.passband
-        out["timing"] = time_figure(s.analyses.time, low_hz=pb.low_hz, high_hz=pb.high_hz,
-                                    size_in=(SIZE_PX[0] / DPI, SIZE_PX[1] / DPI), dpi=DPI,
-                                    colour=BUILT, grey=IDEAL)
-    if getattr(s.source, "diagnosis", None) is not None:
-        out["diagnosis"] = diagnosis_figure(s.source.diagnosis)
     return out
+
+
+def plot_jobs(obj: Plan | Audit | Subject) -> list[Callable[[], dict[str, bytes]]]:
+    """One job per plot: each builds its Figure and returns {"<name>.png": ..., "<name>.svg":
+    ...} ({} where the plot does not apply). Jobs are independent: ``plot_files`` runs them
+    side by side (``bandwright.workers``)."""
+    def job(name: str, make: Callable[[], Figure | None]) -> dict[str, bytes]:
+        fig = make()
+        if fig is None:
+            return {}
+        png, svg = _save(fig)
+        return {f"{name}.png": png, f"{name}.svg": svg}
+    return [functools.partial(job, name, make) for name, make in plot_makers(obj)]
 
 
 MEASURED = "#c0392b"
@@ -642,11 +667,14 @@ def plot_files(obj: Plan | Audit | Subject) -> dict[str, bytes]:
     Returns
     -------
     dict of str to bytes
-        PNGs are ``SIZE_PX`` pixels at ``DPI``.
+        PNGs are ``SIZE_PX`` pixels at ``DPI``; in ``PLOT_NAMES`` order. The plots are drawn
+        side by side, one worker process per core (``bandwright.workers.run_jobs``): each
+        is drawn exactly as it would be alone.
     """
+    import operator
+
+    from bandwright.workers import run_jobs
     out: dict[str, bytes] = {}
-    for name, fig in plot_figures(obj).items():
-        png, svg = _save(fig)
-        out[f"{name}.png"] = png
-        out[f"{name}.svg"] = svg
+    for part in run_jobs(operator.call, plot_jobs(obj)):
+        out.update(part)
     return out

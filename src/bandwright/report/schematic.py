@@ -6,7 +6,9 @@ element list's structure, documented there); this module only draws that layout.
 
 from __future__ import annotations
 
+import functools
 import math
+from collections.abc import Callable
 from typing import TYPE_CHECKING
 
 from bandwright.report._mpl import quiet_matplotlib
@@ -29,7 +31,7 @@ if TYPE_CHECKING:
     from bandwright.analysis.tuning import TuningPlan
     from bandwright.chain.stage import Stage
 
-__all__ = ["stage_svg", "block_svg", "schematic_files", "elements_svg", "Layout", "layout",
+__all__ = ["stage_svg", "block_svg", "schematic_files", "schematic_jobs", "elements_svg", "Layout", "layout",
            "opamp_pins"]
 
 
@@ -208,15 +210,28 @@ def schematic_files(chain: Chain | None, *,
     tuning_plan : TuningPlan, optional
         Its trimmed parts are drawn as variable resistors, "set = fixed + trimmer".
     """
+    out: dict[str, bytes] = {}
+    for job in schematic_jobs(chain, tuning_plan=tuning_plan):
+        out.update(job())
+    return out
+
+
+def schematic_jobs(chain: Chain | None, *, tuning_plan: TuningPlan | None = None
+                   ) -> list[Callable[[], dict[str, bytes]]]:
+    """``schematic_files`` as independent jobs, one per drawing, in its order (each returns
+    {file name: SVG bytes}): the output folder draws them beside the plots."""
     if chain is None:
-        return {}
+        return []
     trims: dict[int, dict[str, str]] = {}
     for s in (tuning_plan.steps if tuning_plan is not None else ()):
         trims.setdefault(s.stage, {})[s.trims] = (
             f"{format_si(s.design_ohms, 'Ω')} = {format_si(s.fixed_ohms, 'Ω')} + "
             f"{format_si(s.trimmer_ohms, 'Ω')} trim")
-    out = {f"schematic_stage{st.position}.svg": stage_svg(chain, st,
-                                                          trims=trims.get(st.position))
-           for st in chain.stages}
-    out["block.svg"] = block_svg(chain)
-    return out
+
+    def stage(st) -> dict[str, bytes]:
+        return {f"schematic_stage{st.position}.svg": stage_svg(chain, st,
+                                                               trims=trims.get(st.position))}
+
+    def block() -> dict[str, bytes]:
+        return {"block.svg": block_svg(chain)}
+    return [functools.partial(stage, st) for st in chain.stages] + [block]
