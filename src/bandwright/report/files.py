@@ -4,6 +4,7 @@ report.html."""
 from __future__ import annotations
 
 import math
+import operator
 from typing import TYPE_CHECKING, Any
 
 from bandwright.analysis.montecarlo import resolve_spreads
@@ -209,8 +210,6 @@ def audit_files(a: Audit, json_text: str) -> dict[str, bytes]:
 def _graphic_files(obj: Plan | Audit, bom: bytes | None) -> dict[str, bytes]:
     """Plots (PNG and SVG), schematics (schematic_stage<k>.svg, block.svg) and report.html,
     each drawn once and inlined into the report."""
-    import operator
-
     from bandwright.report.html import html_report
     from bandwright.report.plots import plot_jobs
     from bandwright.report.schematic import schematic_jobs

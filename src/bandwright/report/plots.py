@@ -26,6 +26,7 @@ from __future__ import annotations
 import functools
 import io
 import math
+import operator
 from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING
 
@@ -55,7 +56,7 @@ if TYPE_CHECKING:
     from bandwright.diagnosis import Diagnosis
     from bandwright.planner import Plan
 
-__all__ = ["plot_files", "plot_figures", "plot_makers", "plot_jobs", "PLOT_NAMES", "DPI", "SIZE_PX",
+__all__ = ["plot_files", "plot_figures", "plot_jobs", "PLOT_NAMES", "DPI", "SIZE_PX",
            "diagnosis_figure"]
 
 #: Resolution and pixel size of every PNG.
@@ -552,7 +553,7 @@ _BUILDERS = {"response": _response, "levels": _levels, "noise": _noise, "yield":
              "poles": _poles, "folds": _folds}
 
 
-def plot_makers(obj: Plan | Audit | Subject) -> list[tuple[str, Callable[[], Figure | None]]]:
+def _plot_makers(obj: Plan | Audit | Subject) -> list[tuple[str, Callable[[], Figure | None]]]:
     """(name, maker) for every plot that may apply, in ``PLOT_NAMES`` order: each maker
     builds its Figure (None where the plot does not apply). ``plot_figures`` calls them all;
     ``plot_files`` may call them in worker processes."""
@@ -588,7 +589,7 @@ def plot_figures(obj: Plan | Audit | Subject) -> dict[str, Figure]:
         the plan could not build a chain.
     """
     out = {}
-    for name, make in plot_makers(obj):
+    for name, make in _plot_makers(obj):
         fig = make()
         if fig is not None:
             out[name] = fig
@@ -605,7 +606,7 @@ def plot_jobs(obj: Plan | Audit | Subject) -> list[Callable[[], dict[str, bytes]
             return {}
         png, svg = _save(fig)
         return {f"{name}.png": png, f"{name}.svg": svg}
-    return [functools.partial(job, name, make) for name, make in plot_makers(obj)]
+    return [functools.partial(job, name, make) for name, make in _plot_makers(obj)]
 
 
 MEASURED = "#c0392b"
@@ -671,8 +672,6 @@ def plot_files(obj: Plan | Audit | Subject) -> dict[str, bytes]:
         side by side, one worker process per core (``bandwright.workers.run_jobs``): each
         is drawn exactly as it would be alone.
     """
-    import operator
-
     from bandwright.workers import run_jobs
     out: dict[str, bytes] = {}
     for part in run_jobs(operator.call, plot_jobs(obj)):
