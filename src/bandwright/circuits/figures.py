@@ -394,8 +394,9 @@ def _pair_indices(poles: np.ndarray, w_near: np.ndarray, *, conj: bool = False
         return none, none.copy(), np.zeros(s_count, dtype=bool)
     rows = np.arange(s_count)
     mag = np.abs(poles)
+    tiny = 1e-9 * np.maximum(mag, np.finfo(float).tiny)   # |Im p| below this: real
     with np.errstate(divide="ignore", invalid="ignore"):
-        upper = poles.imag > 1e-9 * np.maximum(mag, np.finfo(float).tiny)
+        upper = poles.imag > tiny
         d_c = np.where(upper, np.abs(np.log(np.maximum(mag, 1e-300) / w_near[:, None])),
                        np.inf)
     k1 = np.argmin(d_c, axis=1)
@@ -405,8 +406,8 @@ def _pair_indices(poles: np.ndarray, w_near: np.ndarray, *, conj: bool = False
     far = np.flatnonzero(~(best <= _COMPLEX_REACH))
     if far.size and d >= 2:
         # Real poles in order of |p| (the others last); a pair's w0 is its geometric mean.
-        p, m = poles[far], mag[far]
-        key = np.where(np.abs(p.imag) <= 1e-9 * np.maximum(m, np.finfo(float).tiny), m, np.inf)
+        m = mag[far]
+        key = np.where(np.abs(poles[far].imag) <= tiny[far], m, np.inf)
         order = np.argsort(key, axis=1, kind="stable")
         sm = np.take_along_axis(key, order, axis=1)
         with np.errstate(divide="ignore", invalid="ignore"):
